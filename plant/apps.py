@@ -1,0 +1,6 @@
+from django.apps import AppConfig
+
+
+class PlantConfig(AppConfig):
+    name = "plant"
+    verbose_name = "Plant register"

@@ -1,0 +1,234 @@
+"""The installed-meter register: sites, areas, fluids (service duty), meters and their duty history."""
+from django.core.exceptions import ValidationError
+from django.core.validators import MinValueValidator
+from django.db import models, transaction
+from django.urls import reverse
+
+from plant import risk
+
+
+class Site(models.Model):
+    name = models.CharField(max_length=120, unique=True)
+    address = models.TextField(blank=True)
+
+    def __str__(self):
+        return self.name
+
+
+class Area(models.Model):
+    site = models.ForeignKey(Site, on_delete=models.PROTECT, related_name="areas")
+    name = models.CharField(max_length=120)
+
+    class Meta:
+        constraints = [models.UniqueConstraint(fields=["site", "name"], name="area_unique_per_site")]
+        ordering = ["site__name", "name"]
+
+    def __str__(self):
+        return f"{self.site.name} / {self.name}"
+
+
+class Fluid(models.Model):
+    """A service duty: the fluid and the properties that decide which meters suit it."""
+
+    class Phase(models.TextChoices):
+        LIQUID = "liquid", "Liquid"
+        GAS = "gas", "Gas"
+        STEAM = "steam", "Steam"
+        SLURRY = "slurry", "Slurry"
+
+    name = models.CharField(max_length=120, unique=True)
+    phase = models.CharField(max_length=10, choices=Phase.choices)
+    conductivity_us_cm = models.FloatField(
+        "conductivity (µS/cm)", null=True, blank=True,
+        validators=[MinValueValidator(0.0, "Conductivity cannot be negative.")],
+    )
+    density_kg_m3 = models.FloatField(
+        "density at process conditions (kg/m³)", null=True, blank=True,
+        validators=[MinValueValidator(1e-6, "Density must be greater than zero.")],
+    )
+    viscosity_mpa_s = models.FloatField(
+        "dynamic viscosity at process conditions (mPa·s)", null=True, blank=True,
+        validators=[MinValueValidator(1e-9, "Viscosity must be greater than zero.")],
+    )
+    solids = models.BooleanField("abrasive solids", default=False)
+    chlorides = models.BooleanField("chlorides / corrosive content", default=False)
+    scaling = models.BooleanField("hardness / scaling", default=False)
+    biofouling = models.BooleanField("biofouling (slime)", default=False)
+    sticky = models.BooleanField("sticky / coating", default=False)
+    entrained_gas = models.BooleanField(default=False)
+    temperature_c = models.FloatField(
+        "process temperature (°C)", null=True, blank=True,
+        validators=[MinValueValidator(-273.15, "Temperature is below absolute zero.")],
+    )
+    notes = models.TextField(blank=True)
+
+    class Meta:
+        ordering = ["name"]
+
+    def __str__(self):
+        return self.name
+
+    def props(self) -> risk.FluidProps:
+        return risk.FluidProps(
+            phase=self.phase,
+            conductivity_us_cm=self.conductivity_us_cm,
+            density_kg_m3=self.density_kg_m3,
+            viscosity_mpa_s=self.viscosity_mpa_s,
+            solids=self.solids,
+            chlorides=self.chlorides,
+            scaling=self.scaling,
+            biofouling=self.biofouling,
+            sticky=self.sticky,
+            entrained_gas=self.entrained_gas,
+            temperature_c=self.temperature_c,
+        )
+
+    def save(self, *args, **kwargs):
+        self.full_clean()
+        super().save(*args, **kwargs)
+
+
+class Meter(models.Model):
+    class Principle(models.TextChoices):
+        ELECTROMAGNETIC = "electromagnetic", "Electromagnetic"
+        CORIOLIS = "coriolis", "Coriolis"
+        VORTEX = "vortex", "Vortex"
+        TURBINE = "turbine", "Turbine"
+        ULTRASONIC_TRANSIT = "ultrasonic_transit", "Ultrasonic transit-time"
+        ULTRASONIC_CLAMPON = "ultrasonic_clampon", "Ultrasonic clamp-on"
+        ORIFICE = "orifice", "Orifice plate (DP)"
+        VENTURI = "venturi", "Venturi (DP)"
+        PITOT = "pitot", "Pitot tube"
+        AVERAGING_PITOT = "averaging_pitot", "Averaging pitot"
+        POSITIVE_DISPLACEMENT = "positive_displacement", "Positive displacement"
+        THERMAL_MASS = "thermal_mass", "Thermal mass"
+
+    class MpeBasis(models.TextChoices):
+        PERCENT_READING = "pct_reading", "% of reading"
+        PERCENT_SPAN = "pct_span", "% of span"
+        ABSOLUTE = "absolute", "absolute (flow units)"
+
+    class Status(models.TextChoices):
+        IN_SERVICE = "in_service", "In service"
+        SPARE = "spare", "Spare"
+        REMOVED = "removed", "Removed"
+
+    tag = models.CharField(max_length=40, unique=True, error_messages={"unique": "A meter with this tag already exists."})
+    principle = models.CharField(max_length=30, choices=Principle.choices)
+    area = models.ForeignKey(Area, on_delete=models.PROTECT, related_name="meters")
+    fluid = models.ForeignKey(Fluid, on_delete=models.PROTECT, related_name="meters")
+    line_size = models.CharField("line size (e.g. DN50)", max_length=20)
+    internal_diameter_mm = models.FloatField(
+        "internal diameter (mm)", validators=[MinValueValidator(0.1, "Internal diameter must be positive.")]
+    )
+    range_min = models.FloatField("calibrated range low", default=0.0)
+    range_max = models.FloatField("calibrated range high")
+    flow_units = models.CharField(max_length=20, default="m³/h")
+    normal_flow = models.FloatField("normal process flow", null=True, blank=True)
+    min_flow = models.FloatField("minimum process flow", null=True, blank=True)
+    wetted_material = models.CharField("wetted / electrode material", max_length=60, blank=True)
+    serial = models.CharField(max_length=60, blank=True)
+    maker = models.CharField(max_length=80, blank=True)
+    model = models.CharField(max_length=80, blank=True)
+    mpe_value = models.FloatField(
+        "MPE value", validators=[MinValueValidator(1e-9, "MPE must be greater than zero.")]
+    )
+    mpe_basis = models.CharField("MPE basis", max_length=12, choices=MpeBasis.choices, default=MpeBasis.PERCENT_READING)
+    base_interval_days = models.PositiveIntegerField(
+        "base calibration interval (days)", default=365,
+        validators=[MinValueValidator(1, "The interval must be at least one day.")],
+    )
+    status = models.CharField(max_length=12, choices=Status.choices, default=Status.IN_SERVICE)
+
+    class Meta:
+        ordering = ["tag"]
+
+    def __str__(self):
+        return self.tag
+
+    def get_absolute_url(self):
+        return reverse("plant:meter-detail", args=[self.tag])
+
+    def clean(self):
+        errors = {}
+        if self.range_max is not None and self.range_min is not None and self.range_max <= self.range_min:
+            errors["range_max"] = "The range high must be above the range low."
+        for field in ("normal_flow", "min_flow"):
+            value = getattr(self, field)
+            if value is None or self.range_max is None:
+                continue
+            if value < 0:
+                errors[field] = "A process flow cannot be negative."
+            elif value > self.range_max:
+                errors[field] = (
+                    f"{self._meta.get_field(field).verbose_name.capitalize()} ({value:g}) is above the "
+                    f"calibrated range high ({self.range_max:g} {self.flow_units})."
+                )
+        if (
+            "min_flow" not in errors and "normal_flow" not in errors
+            and self.min_flow is not None and self.normal_flow is not None
+            and self.min_flow > self.normal_flow
+        ):
+            errors["min_flow"] = "The minimum flow cannot be above the normal flow."
+        if errors:
+            raise ValidationError(errors)
+
+    def save(self, *args, **kwargs):
+        self.full_clean()
+        with transaction.atomic():
+            previous = None
+            if self.pk:
+                previous = Meter.objects.filter(pk=self.pk).values("area_id", "fluid_id").first()
+            super().save(*args, **kwargs)
+            if previous is None or previous["area_id"] != self.area_id or previous["fluid_id"] != self.fluid_id:
+                self._record_duty_change()
+
+    def _record_duty_change(self):
+        from django.utils import timezone
+
+        today = timezone.localdate()
+        self.duties.filter(until__isnull=True).update(until=today)
+        DutyPeriod.objects.create(meter=self, area_id=self.area_id, fluid_id=self.fluid_id, since=today)
+
+    # Risk ------------------------------------------------------------------------------------------
+    def findings(self):
+        return risk.assess(
+            self.principle, self.wetted_material, self.fluid.props(),
+            normal_flow_m3_h=self.normal_flow_m3_h(self.normal_flow),
+            min_flow_m3_h=self.normal_flow_m3_h(self.min_flow),
+            diameter_mm=self.internal_diameter_mm,
+        )
+
+    def normal_flow_m3_h(self, value):
+        """Volume flow in m³/h for the Reynolds check; None when the units are not volumetric."""
+        if value is None:
+            return None
+        factors = {"m³/h": 1.0, "m3/h": 1.0, "l/s": 3.6, "L/s": 3.6, "l/min": 0.06, "L/min": 0.06}
+        if self.flow_units in factors:
+            return value * factors[self.flow_units]
+        if self.flow_units in ("kg/h", "t/h") and self.fluid.density_kg_m3:
+            kg_h = value * (1000.0 if self.flow_units == "t/h" else 1.0)
+            return kg_h / self.fluid.density_kg_m3
+        return None
+
+    def risk_factor(self):
+        return risk.interval_factor(self.findings())
+
+    def effective_interval_days(self):
+        return max(1, round(self.base_interval_days * self.risk_factor()))
+
+
+class DutyPeriod(models.Model):
+    """Where and on what a meter served, so its risk can be judged from its whole service life."""
+
+    meter = models.ForeignKey(Meter, on_delete=models.CASCADE, related_name="duties")
+    area = models.ForeignKey(Area, on_delete=models.PROTECT)
+    fluid = models.ForeignKey(Fluid, on_delete=models.PROTECT)
+    since = models.DateField()
+    until = models.DateField(null=True, blank=True)
+
+    class Meta:
+        ordering = ["meter", "-since", "-id"]
+
+    def __str__(self):
+        return f"{self.meter.tag}: {self.fluid} in {self.area} from {self.since}"

@@ -1,0 +1,482 @@
+"""Principle x fluid risk rules for installed flow meters.
+
+Pure Python: no Django, no ORM. Other code calls :func:`assess`,
+:func:`interval_factor` and :func:`reynolds_number`.
+
+Each rule below is tagged with where its basis comes from:
+
+* "common practice" - a rule of thumb of the trade, no specific source.
+* "from memory"     - a number recalled from manufacturer literature /
+  handbooks that has NOT been checked against a document here; verify
+  before relying on it for anything contractual.
+
+Severity -> interval factor (the factor shortens the calibration /
+inspection interval; the smallest factor of all findings wins):
+
+* ``misapplied`` 0.25 - the principle should not be used on this fluid.
+* ``high``       0.5
+* ``medium``     0.75
+* ``low``        0.9, or 1.0 for purely informational notes.
+
+Chloride-resistant wetted materials
+-----------------------------------
+``wetted_material`` is free text. If it contains (case-insensitive
+substring) "hastelloy", "titanium", "tantalum" or "platinum", chloride
+attack is treated as *mitigated*: instead of the medium/high finding we
+emit a ``low`` note with factor 1.0 (code suffix ``_MITIGATED``) so the
+technician still sees that chlorides were considered and the material is
+what makes the installation acceptable. Rationale (common practice):
+these alloys/metals are the usual choices for brine service, but the
+material record may be wrong, so keeping a visible note is cheap.
+Plain substring matching means "Hastelloy C-276" and "titanium Gr2" match;
+"316L", "PTFE" etc. do not.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+PRINCIPLES = (
+    "electromagnetic",
+    "coriolis",
+    "vortex",
+    "turbine",
+    "ultrasonic_transit",
+    "ultrasonic_clampon",
+    "orifice",
+    "venturi",
+    "pitot",
+    "averaging_pitot",
+    "positive_displacement",
+    "thermal_mass",
+)
+
+PHASES = ("liquid", "gas", "steam", "slurry")
+
+SEVERITIES = ("misapplied", "high", "medium", "low")
+
+# Severity -> default interval factor (common practice scale for this tool).
+FACTOR_MISAPPLIED = 0.25
+FACTOR_HIGH = 0.5
+FACTOR_MEDIUM = 0.75
+FACTOR_LOW = 0.9
+FACTOR_NOTE = 1.0
+
+# Common practice: electromagnetic meters need a minimum fluid conductivity of
+# about 5 uS/cm (many manufacturers quote 5 uS/cm standard, some down to
+# ~0.05-1 uS/cm with special converters - from memory).
+EM_MIN_CONDUCTIVITY_US_CM = 5.0
+
+# From memory / common practice: manufacturers typically state a lower
+# linearity limit for vortex meters of roughly Re 10,000-20,000. We use the
+# conservative end, 20,000, for reliable linear vortex shedding measurement.
+VORTEX_MIN_RE = 20_000.0
+
+CHLORIDE_RESISTANT_MATERIALS = ("hastelloy", "titanium", "tantalum", "platinum")
+
+
+@dataclass(frozen=True)
+class FluidProps:
+    phase: str  # "liquid" | "gas" | "steam" | "slurry"
+    conductivity_us_cm: float | None = None
+    density_kg_m3: float | None = None
+    viscosity_mpa_s: float | None = None  # dynamic viscosity in mPa·s (cP)
+    solids: bool = False  # abrasive solids present
+    chlorides: bool = False  # chlorides/brine or other corrosive content
+    scaling: bool = False  # hardness / scaling
+    biofouling: bool = False  # slime
+    sticky: bool = False  # sticky / coating
+    entrained_gas: bool = False
+    temperature_c: float | None = None
+
+
+@dataclass(frozen=True)
+class Finding:
+    code: str  # e.g. "EM_LOW_CONDUCTIVITY"
+    severity: str  # "misapplied" | "high" | "medium" | "low"
+    reason: str  # plain-language reason shown to a technician
+    interval_factor: float  # <1 shortens interval; misapplied uses ~0.25
+
+
+def reynolds_number(density_kg_m3, viscosity_mpa_s, flow_m3_h, diameter_mm) -> float:
+    """Pipe Reynolds number Re = rho * v * D / mu.
+
+    v = Q / (pi * D^2 / 4). Units: density kg/m3, viscosity mPa·s (converted
+    to Pa·s by /1000), flow m3/h (converted to m3/s by /3600), diameter mm
+    (converted to m by /1000). Raises ValueError on missing or non-positive
+    inputs.
+    """
+    values = {
+        "density_kg_m3": density_kg_m3,
+        "viscosity_mpa_s": viscosity_mpa_s,
+        "flow_m3_h": flow_m3_h,
+        "diameter_mm": diameter_mm,
+    }
+    for name, value in values.items():
+        if value is None or isinstance(value, bool):
+            raise ValueError(f"{name} is required, got {value!r}")
+        try:
+            f = float(value)
+        except (TypeError, ValueError):
+            raise ValueError(f"{name} must be a number, got {value!r}") from None
+        if not math.isfinite(f) or f <= 0:
+            raise ValueError(f"{name} must be positive, got {value!r}")
+
+    rho = float(density_kg_m3)
+    mu = float(viscosity_mpa_s) / 1000.0  # Pa·s
+    q = float(flow_m3_h) / 3600.0  # m3/s
+    d = float(diameter_mm) / 1000.0  # m
+    area = math.pi * d * d / 4.0
+    v = q / area
+    return rho * v * d / mu
+
+
+def interval_factor(findings) -> float:
+    """Smallest interval factor among findings; 1.0 if there are none."""
+    factors = [f.interval_factor for f in findings]
+    return min(factors) if factors else 1.0
+
+
+def _chloride_resistant(wetted_material: str | None) -> bool:
+    m = (wetted_material or "").lower()
+    return any(name in m for name in CHLORIDE_RESISTANT_MATERIALS)
+
+
+def _chloride_finding(prefix: str, part: str, severity: str, factor: float,
+                      reason: str, wetted_material: str) -> Finding:
+    """Chloride finding, downgraded to a low note for resistant materials."""
+    if _chloride_resistant(wetted_material):
+        return Finding(
+            f"{prefix}_CHLORIDES_MITIGATED",
+            "low",
+            f"Chlorides present, but the {part} material ({wetted_material}) "
+            "is normally resistant to chloride attack. Check the material "
+            "record is correct.",
+            FACTOR_NOTE,
+        )
+    return Finding(f"{prefix}_CHLORIDES", severity, reason, factor)
+
+
+# --------------------------------------------------------------------------
+# Per-principle rules
+# --------------------------------------------------------------------------
+
+def _electromagnetic(mat, fl, **_):
+    out = []
+    # Common practice: a magmeter measures the voltage induced in a
+    # conducting fluid, so it cannot work on gas or steam at all.
+    if fl.phase in ("gas", "steam"):
+        out.append(Finding(
+            "EM_NOT_LIQUID", "misapplied",
+            "A magnetic flow meter needs a conductive liquid between its "
+            f"electrodes; it cannot measure {fl.phase}.",
+            FACTOR_MISAPPLIED))
+    # Common practice: minimum conductivity about 5 uS/cm.
+    elif (fl.conductivity_us_cm is not None
+          and fl.conductivity_us_cm < EM_MIN_CONDUCTIVITY_US_CM):
+        out.append(Finding(
+            "EM_LOW_CONDUCTIVITY", "misapplied",
+            f"Conductivity {fl.conductivity_us_cm:g} µS/cm is below the "
+            f"usual minimum of about {EM_MIN_CONDUCTIVITY_US_CM:g} µS/cm for a "
+            "magnetic flow meter; the reading will be noisy or wrong "
+            "(typical for demineralised water, condensate, hydrocarbons).",
+            FACTOR_MISAPPLIED))
+    # Common practice: chloride pitting of stainless (316L) electrodes.
+    if fl.chlorides:
+        out.append(_chloride_finding(
+            "EM", "electrode", "high", FACTOR_HIGH,
+            "Brine (chlorides) pits stainless electrodes; the zero and span "
+            "drift as the electrode surface changes.", mat))
+    # Common practice: coating insulates electrodes.
+    if fl.sticky:
+        out.append(Finding(
+            "EM_ELECTRODE_COATING", "medium",
+            "Sticky fluid coats the electrodes and insulates them from the "
+            "liquid; the signal drifts and can drop out. Plan electrode "
+            "cleaning.",
+            FACTOR_MEDIUM))
+    return out
+
+
+def _coriolis(mat, fl, **_):
+    out = []
+    # Common practice: thin-walled stainless tubes under vibration stress
+    # are prone to chloride stress corrosion cracking.
+    if fl.chlorides:
+        out.append(_chloride_finding(
+            "CORIOLIS", "tube", "high", FACTOR_HIGH,
+            "Chlorides cause stress corrosion cracking in thin stainless "
+            "measuring tubes; wall thinning shifts density and flow "
+            "calibration and a cracked tube can leak.", mat))
+    # Common practice: abrasive solids erode tubes, especially at bends.
+    if fl.solids or fl.phase == "slurry":
+        out.append(Finding(
+            "CORIOLIS_EROSION", "medium",
+            "Abrasive solids wear the inside of the measuring tubes, "
+            "especially at bends; the tube wall thins and the calibration "
+            "shifts. Watch the density reading and tube health diagnostics.",
+            FACTOR_MEDIUM))
+    return out
+
+
+def _mechanical_note(prefix):
+    # Common practice: any meter with moving parts in the flow wears.
+    return Finding(
+        f"{prefix}_MOVING_PARTS", "low",
+        "This meter has moving parts in the flow; bearings and rotor wear "
+        "over time even on clean fluid.",
+        FACTOR_LOW)
+
+
+def _turbine(mat, fl, **_):
+    out = [_mechanical_note("TURBINE")]
+    # Common practice: solids wear bearings and rotor blades.
+    if fl.solids or fl.phase == "slurry":
+        out.append(Finding(
+            "TURBINE_SOLIDS_WEAR", "high",
+            "Solids in the fluid wear the turbine bearings and rotor blades; "
+            "the meter slows down and reads low, then can seize.",
+            FACTOR_HIGH))
+    return out
+
+
+def _positive_displacement(mat, fl, **_):
+    out = [_mechanical_note("PD")]
+    # Common practice: sticky fluid builds up in close-clearance chambers.
+    if fl.sticky:
+        out.append(Finding(
+            "PD_STICKY", "medium",
+            "Sticky fluid builds up in the close clearances of the measuring "
+            "chamber; the rotors drag or jam and the reading drifts.",
+            FACTOR_MEDIUM))
+    # Common practice: solids jam/wear close clearances.
+    if fl.solids or fl.phase == "slurry":
+        out.append(Finding(
+            "PD_SOLIDS_WEAR", "high",
+            "Solids wear or jam the close clearances of a positive "
+            "displacement meter.",
+            FACTOR_HIGH))
+    return out
+
+
+def _impulse_line_blocking(prefix, fl):
+    # Common practice: small-bore impulse lines block with scale/slime/solids.
+    causes = []
+    if fl.scaling:
+        causes.append("scale")
+    if fl.biofouling:
+        causes.append("slime")
+    if fl.solids or fl.phase == "slurry":
+        causes.append("solids")
+    if not causes:
+        return []
+    return [Finding(
+        f"{prefix}_IMPULSE_LINE_BLOCKING", "medium",
+        "Impulse lines can block with " + ", ".join(causes) + "; a blocked "
+        "line gives a frozen or wrong differential pressure. Plan "
+        "blow-down / rodding.",
+        FACTOR_MEDIUM)]
+
+
+def _orifice(mat, fl, **_):
+    out = _impulse_line_blocking("ORIFICE", fl)
+    # Common practice (ISO 5167 requires a sharp square edge): solids round
+    # the edge and the meter then reads low.
+    if fl.solids or fl.phase == "slurry":
+        out.append(Finding(
+            "ORIFICE_EDGE_WEAR", "high",
+            "Solids wear the sharp edge of the orifice plate; a rounded edge "
+            "makes the meter read low. Inspect the plate edge.",
+            FACTOR_HIGH))
+    return out
+
+
+def _venturi(mat, fl, **_):
+    return _impulse_line_blocking("VENTURI", fl)
+
+
+def _pitot_ports(prefix, fl):
+    # Common practice: small sensing ports block with deposits.
+    causes = []
+    if fl.scaling:
+        causes.append("scale")
+    if fl.biofouling:
+        causes.append("slime")
+    if fl.solids or fl.phase == "slurry":
+        causes.append("solids")
+    if fl.sticky:
+        causes.append("sticky deposits")
+    if not causes:
+        return []
+    return [Finding(
+        f"{prefix}_PORT_BLOCKING", "high",
+        "The small sensing ports can block with " + ", ".join(causes) +
+        "; a blocked port gives a false differential pressure. Plan purging "
+        "or pull-and-clean.",
+        FACTOR_HIGH)]
+
+
+def _pitot(mat, fl, **_):
+    return _pitot_ports("PITOT", fl)
+
+
+def _averaging_pitot(mat, fl, **_):
+    return _pitot_ports("AVG_PITOT", fl)
+
+
+def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
+    out = []
+    # From memory / common practice: lower linearity limit Re ~10,000-20,000;
+    # we use 20,000 (VORTEX_MIN_RE). Checked at MINIMUM flow, the worst case.
+    inputs = (fl.density_kg_m3, fl.viscosity_mpa_s, min_flow_m3_h, diameter_mm)
+    usable = all(x is not None and x > 0 for x in inputs)
+    if not usable:
+        out.append(Finding(
+            "VORTEX_RE_UNKNOWN", "low",
+            "Cannot check the Reynolds number at minimum flow (density, "
+            "viscosity, minimum flow or pipe size missing); vortex meters "
+            "stop reading reliably at low Reynolds number.",
+            FACTOR_LOW))
+    else:
+        re = reynolds_number(fl.density_kg_m3, fl.viscosity_mpa_s,
+                             min_flow_m3_h, diameter_mm)
+        if re < VORTEX_MIN_RE:
+            out.append(Finding(
+                "VORTEX_LOW_RE", "high",
+                f"At minimum flow the Reynolds number is about {re:,.0f}, "
+                f"below about {VORTEX_MIN_RE:,.0f}; vortex shedding is not "
+                "regular there, so the meter reads wrong or drops to zero at "
+                "low flow.",
+                FACTOR_HIGH))
+    # Common practice: slurry erodes/clogs the bluff body and sensor.
+    if fl.phase == "slurry" or fl.solids:
+        out.append(Finding(
+            "VORTEX_SLURRY", "medium",
+            "Solids erode the bluff body and can clog the sensor; the "
+            "calibration depends on the bluff body shape.",
+            FACTOR_MEDIUM))
+    # Common practice: buildup changes bluff-body geometry.
+    if fl.sticky:
+        out.append(Finding(
+            "VORTEX_COATING", "medium",
+            "Sticky deposits build up on the bluff body and change its shape; "
+            "the meter factor shifts.",
+            FACTOR_MEDIUM))
+    return out
+
+
+def _thermal_mass(mat, fl, **_):
+    out = []
+    # Common practice: thermal dispersion/mass meters are for gases.
+    if fl.phase in ("liquid", "slurry"):
+        out.append(Finding(
+            "THERMAL_NOT_GAS", "misapplied",
+            "A thermal mass flow meter is calibrated for gas; on a liquid the "
+            "heat transfer is completely different and the reading is "
+            "meaningless.",
+            FACTOR_MISAPPLIED))
+    # Common practice: any coating on the heated sensor changes heat transfer.
+    causes = []
+    if fl.sticky:
+        causes.append("sticky deposits")
+    if fl.biofouling:
+        causes.append("slime")
+    # FluidProps has no "wet gas" flag, so liquid droplets are inferred only
+    # for steam (condensate); liquids are already flagged misapplied above.
+    if fl.phase == "steam":
+        causes.append("condensate droplets")
+    if causes:
+        out.append(Finding(
+            "THERMAL_SENSOR_COATING", "medium",
+            "The heated sensor gets coated or wetted by " + ", ".join(causes) +
+            "; this changes the heat transfer and the meter reads wrong. Plan "
+            "sensor cleaning.",
+            FACTOR_MEDIUM))
+    # Common practice: thin sensor sheaths corrode.
+    if fl.chlorides:
+        out.append(_chloride_finding(
+            "THERMAL", "sensor", "medium", FACTOR_MEDIUM,
+            "Chlorides or other corrosive gas corrode the thin sensor sheath; "
+            "the heat transfer changes and the reading drifts.", mat))
+    return out
+
+
+def _ultrasonic_transit(mat, fl, **_):
+    out = []
+    # Common practice: transit-time needs a clean acoustic path; solids and
+    # bubbles scatter/attenuate the signal.
+    if fl.phase in ("liquid", "slurry"):
+        causes = []
+        if fl.solids or fl.phase == "slurry":
+            causes.append("heavy solids")
+        if fl.entrained_gas:
+            causes.append("entrained gas bubbles")
+        if causes:
+            out.append(Finding(
+                "USONIC_SIGNAL_LOSS", "high",
+                "Transit-time ultrasonic needs a clean liquid; "
+                + " and ".join(causes) + " scatter the sound and the meter "
+                "loses signal or reads wrong. Watch signal strength "
+                "diagnostics.",
+                FACTOR_HIGH))
+    return out
+
+
+def _ultrasonic_clampon(mat, fl, **_):
+    out = []
+    # Common practice: clamp-on sensors sit outside the pipe.
+    if fl.chlorides:
+        out.append(Finding(
+            "CLAMPON_CORROSIVE_OK", "low",
+            "Corrosive fluid, but a clamp-on ultrasonic meter has nothing "
+            "wetted, so it is the low-risk choice here.",
+            FACTOR_NOTE))
+    # Same acoustic limitation as inline transit-time (common practice).
+    if fl.phase in ("liquid", "slurry") and (
+            fl.solids or fl.phase == "slurry" or fl.entrained_gas):
+        out.append(Finding(
+            "CLAMPON_SIGNAL_LOSS", "high",
+            "Solids or gas bubbles scatter the sound; a transit-time clamp-on "
+            "meter loses signal or reads wrong.",
+            FACTOR_HIGH))
+    return out
+
+
+_RULES = {
+    "electromagnetic": _electromagnetic,
+    "coriolis": _coriolis,
+    "vortex": _vortex,
+    "turbine": _turbine,
+    "ultrasonic_transit": _ultrasonic_transit,
+    "ultrasonic_clampon": _ultrasonic_clampon,
+    "orifice": _orifice,
+    "venturi": _venturi,
+    "pitot": _pitot,
+    "averaging_pitot": _averaging_pitot,
+    "positive_displacement": _positive_displacement,
+    "thermal_mass": _thermal_mass,
+}
+assert set(_RULES) == set(PRINCIPLES)
+
+
+def assess(principle: str, wetted_material: str, fluid: FluidProps,
+           normal_flow_m3_h: float | None = None,
+           min_flow_m3_h: float | None = None,
+           diameter_mm: float | None = None) -> list[Finding]:
+    """Return risk findings for a meter of ``principle`` on ``fluid``.
+
+    Raises ValueError for an unknown principle or phase. ``normal_flow_m3_h``
+    is accepted for API stability; the vortex Reynolds check deliberately
+    uses ``min_flow_m3_h`` (the worst case).
+    """
+    if principle not in _RULES:
+        raise ValueError(f"unknown principle {principle!r}; expected one of {PRINCIPLES}")
+    if fluid.phase not in PHASES:
+        raise ValueError(f"unknown phase {fluid.phase!r}; expected one of {PHASES}")
+    return _RULES[principle](
+        wetted_material or "", fluid,
+        normal_flow_m3_h=normal_flow_m3_h,
+        min_flow_m3_h=min_flow_m3_h,
+        diameter_mm=diameter_mm,
+    )

@@ -1,0 +1,29 @@
+from django.shortcuts import get_object_or_404, render
+from django_tables2 import RequestConfig
+
+from plant.filters import MeterFilter
+from plant.models import Meter
+from plant.tables import MeterTable
+
+
+def meter_list(request):
+    queryset = Meter.objects.select_related("area__site", "fluid")
+    meter_filter = MeterFilter(request.GET, queryset=queryset)
+    table = MeterTable(meter_filter.qs)
+    RequestConfig(request, paginate={"per_page": 50}).configure(table)
+    return render(request, "plant/meter_list.html", {"filter": meter_filter, "table": table})
+
+
+def meter_detail(request, tag):
+    meter = get_object_or_404(Meter.objects.select_related("area__site", "fluid"), tag=tag)
+    findings = meter.findings()
+    factor = min((f.interval_factor for f in findings), default=1.0)
+    deciding = [f for f in findings if f.interval_factor == factor and factor < 1.0]
+    return render(request, "plant/meter_detail.html", {
+        "meter": meter,
+        "findings": findings,
+        "factor": factor,
+        "deciding": deciding,
+        "effective_interval": meter.effective_interval_days(),
+        "duties": meter.duties.select_related("area__site", "fluid"),
+    })

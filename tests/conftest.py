@@ -1,0 +1,7 @@
+import pytest
+from django.core.management import call_command
+
+
+@pytest.fixture
+def demo_plant(db):
+    call_command("loaddata", "fixtures/demo_plant.json", verbosity=0)

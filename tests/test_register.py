@@ -1,0 +1,118 @@
+"""The register: validation at the field, nothing half-saved, duty history, and pages on the demo plant."""
+import pytest
+from django.core.exceptions import ValidationError
+
+from plant.forms import FluidForm, MeterForm
+from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+
+pytestmark = pytest.mark.django_db
+
+
+@pytest.fixture
+def site_area_fluid():
+    site = Site.objects.create(name="Test site")
+    area = Area.objects.create(site=site, name="Hall A")
+    fluid = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=500, density_kg_m3=998, viscosity_mpa_s=1.0)
+    return site, area, fluid
+
+
+def meter_data(area, fluid, **overrides):
+    data = {
+        "tag": "FT-1", "principle": "electromagnetic", "area": area.pk, "fluid": fluid.pk, "line_size": "DN50",
+        "internal_diameter_mm": 52.5, "range_min": 0, "range_max": 40, "flow_units": "m³/h", "normal_flow": 20,
+        "min_flow": 5, "wetted_material": "316L", "mpe_value": 0.5, "mpe_basis": "pct_reading",
+        "base_interval_days": 365, "status": "in_service",
+    }
+    data.update(overrides)
+    return data
+
+
+def test_negative_conductivity_rejected_at_field():
+    form = FluidForm(data={"name": "Bad", "phase": "liquid", "conductivity_us_cm": -3})
+    assert not form.is_valid()
+    assert form.errors["conductivity_us_cm"] == ["Conductivity cannot be negative."]
+    with pytest.raises(ValidationError):
+        Fluid.objects.create(name="Bad", phase="liquid", conductivity_us_cm=-3)
+    assert Fluid.objects.count() == 0
+
+
+def test_min_flow_above_range_rejected_at_field(site_area_fluid):
+    _, area, fluid = site_area_fluid
+    form = MeterForm(data=meter_data(area, fluid, min_flow=55, normal_flow=None))
+    assert not form.is_valid()
+    assert "above the calibrated range high (40 m³/h)" in form.errors["min_flow"][0]
+    assert Meter.objects.count() == 0
+    assert DutyPeriod.objects.count() == 0
+
+
+def test_duplicate_tag_rejected_at_field(site_area_fluid):
+    _, area, fluid = site_area_fluid
+    assert MeterForm(data=meter_data(area, fluid)).is_valid()
+    MeterForm(data=meter_data(area, fluid)).save()
+    form = MeterForm(data=meter_data(area, fluid))
+    assert not form.is_valid()
+    assert form.errors["tag"] == ["A meter with this tag already exists."]
+    assert Meter.objects.count() == 1
+    assert DutyPeriod.objects.count() == 1
+
+
+def test_duty_change_is_kept_in_history(site_area_fluid):
+    site, area, fluid = site_area_fluid
+    meter = MeterForm(data=meter_data(area, fluid)).save()
+    brine = Fluid.objects.create(name="Brine", phase="liquid", conductivity_us_cm=60000, chlorides=True)
+    meter.fluid = brine
+    meter.save()
+    duties = list(meter.duties.order_by("id"))
+    assert [d.fluid.name for d in duties] == ["Water", "Brine"]
+    assert duties[0].until is not None and duties[1].until is None
+    meter.tag_note = "unrelated save"
+    meter.save()
+    assert meter.duties.count() == 2
+
+
+def test_effective_interval_uses_smallest_factor(site_area_fluid):
+    _, area, _ = site_area_fluid
+    brine = Fluid.objects.create(name="Brine", phase="liquid", conductivity_us_cm=60000, chlorides=True)
+    meter = MeterForm(data=meter_data(area, brine, wetted_material="316L")).save()
+    findings = meter.findings()
+    assert findings, "EM with stainless electrodes on brine must be flagged"
+    factor = min(f.interval_factor for f in findings)
+    assert meter.effective_interval_days() == round(365 * factor)
+
+
+def test_demo_plant_size_and_mix(demo_plant):
+    assert Meter.objects.count() >= 40
+    assert Fluid.objects.count() >= 8
+    severities = {tag: {f.severity for f in m.findings()} for m in Meter.objects.select_related("fluid") for tag in [m.tag]}
+    assert any("misapplied" in s for s in severities.values())
+    assert any(not s for s in severities.values()), "some meters must be clean"
+    assert any("high" in s for s in severities.values())
+
+
+def test_meter_list_and_filters(client, demo_plant):
+    response = client.get("/meters/")
+    assert response.status_code == 200
+    assert b"FT-110" in response.content
+    response = client.get("/meters/", {"principle": "coriolis", "sort": "tag"})
+    body = response.content.decode()
+    assert "FT-112" in body and "FT-110" not in body
+    response = client.get("/meters/", {"q": "FT-70"})
+    body = response.content.decode()
+    assert "FT-701" in body and "FT-110" not in body
+
+
+def test_every_meter_page_renders(client, demo_plant):
+    for meter in Meter.objects.all():
+        response = client.get(f"/meters/{meter.tag}/")
+        assert response.status_code == 200, meter.tag
+        assert f"{meter.effective_interval_days()} days".encode() in response.content
+
+
+def test_misapplied_meter_page_says_why(client, demo_plant):
+    body = client.get("/meters/FT-401/").content.decode()  # EM meter on vegetable oil
+    assert "misapplied" in body
+    assert "Why:" in body
+
+
+def test_unknown_meter_is_404(client, demo_plant):
+    assert client.get("/meters/NOPE-1/").status_code == 404
