@@ -2,12 +2,14 @@ from django.contrib import admin
 from django.urls import include, path
 from django.views.generic import RedirectView
 
+from calibration import views as calibration_views
 from plant import views
 
 plant_patterns = (
     [
         path("", views.meter_list, name="meter-list"),
         path("<str:tag>/", views.meter_detail, name="meter-detail"),
+        path("<str:tag>/calibrate/", calibration_views.new_calibration, name="meter-calibrate"),
     ],
     "plant",
 )
@@ -15,5 +17,6 @@ plant_patterns = (
 urlpatterns = [
     path("", RedirectView.as_view(url="/meters/", permanent=False)),
     path("meters/", include(plant_patterns)),
+    path("calibrations/", include("calibration.urls")),
     path("admin/", admin.site.urls),
 ]

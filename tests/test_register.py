@@ -65,7 +65,7 @@ def test_duty_change_is_kept_in_history(site_area_fluid):
     duties = list(meter.duties.order_by("id"))
     assert [d.fluid.name for d in duties] == ["Water", "Brine"]
     assert duties[0].until is not None and duties[1].until is None
-    meter.tag_note = "unrelated save"
+    meter.serial = "SN-CHANGED"  # a save that is not a duty change adds no period
     meter.save()
     assert meter.duties.count() == 2
 

@@ -1,0 +1,172 @@
+"""Tablet entry of a calibration: the event header and two point grids (as-found, as-left)."""
+import math
+
+from django import forms
+from django.db import transaction
+
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+
+NOMINAL_POINTS = (10, 25, 50, 75, 100)
+NUMERIC = {"inputmode": "decimal", "autocomplete": "off"}
+
+
+class EventForm(forms.ModelForm):
+    reference_standards = forms.ModelMultipleChoiceField(
+        queryset=ReferenceStandard.objects.all(), widget=forms.CheckboxSelectMultiple,
+        error_messages={"required": "Choose the reference standard used."},
+    )
+
+    class Meta:
+        model = CalibrationEvent
+        fields = ["performed_on", "technician", "reference_standards", "procedure", "ambient_temp_c",
+                  "fluid_temp_c", "pressure_bar", "reason", "adjusted", "decision_rule", "notes"]
+        widgets = {
+            "performed_on": forms.DateInput(attrs={"type": "date"}),
+            "procedure": forms.Textarea(attrs={"rows": 3}),
+            "notes": forms.Textarea(attrs={"rows": 2}),
+            "ambient_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+            "fluid_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+            "pressure_bar": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+        }
+
+
+def _finite(value, label):
+    if value is not None and not math.isfinite(value):
+        raise forms.ValidationError(f"{label} must be a number.")
+    return value
+
+
+class PointRowForm(forms.Form):
+    nominal_pct = forms.FloatField(widget=forms.HiddenInput)
+    reference_value = forms.FloatField(
+        required=False, widget=forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+        error_messages={"invalid": "Enter the reference flow as a number."},
+    )
+    indicated_value = forms.FloatField(
+        required=False, widget=forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+        error_messages={"invalid": "Enter the meter's indication as a number."},
+    )
+    repeats = forms.CharField(required=False, help_text="optional repeat readings, separated by spaces or ;")
+    resolution = forms.FloatField(
+        required=False, min_value=0, widget=forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+        error_messages={"invalid": "Enter the resolution as a number.", "min_value": "Resolution cannot be negative."},
+    )
+
+    def __init__(self, *args, meter=None, **kwargs):
+        self.meter = meter
+        super().__init__(*args, **kwargs)
+
+    def clean_reference_value(self):
+        return _finite(self.cleaned_data.get("reference_value"), "The reference flow")
+
+    def clean_indicated_value(self):
+        return _finite(self.cleaned_data.get("indicated_value"), "The indication")
+
+    def clean_repeats(self):
+        text = (self.cleaned_data.get("repeats") or "").replace(";", " ").replace(",", " ")
+        try:
+            values = [float(v) for v in text.split()]
+        except ValueError:
+            raise forms.ValidationError("Repeat readings must be numbers separated by spaces.")
+        if any(not math.isfinite(v) for v in values):
+            raise forms.ValidationError("Repeat readings must be numbers.")
+        return values
+
+    def is_blank(self):
+        data = getattr(self, "cleaned_data", {})
+        return data.get("reference_value") is None and data.get("indicated_value") is None and not data.get("repeats")
+
+    def clean(self):
+        data = super().clean()
+        if self.errors or self.is_blank():
+            return data
+        ref, ind = data.get("reference_value"), data.get("indicated_value")
+        if ref is None:
+            self.add_error("reference_value", "Enter the reference flow.")
+        if ind is None and not data.get("repeats"):
+            self.add_error("indicated_value", "Enter the meter's indication.")
+        if ind is None and data.get("repeats"):
+            data["indicated_value"] = sum(data["repeats"]) / len(data["repeats"])
+        if ref is not None and self.meter is not None:
+            meter = self.meter
+            if ref < 0:
+                self.add_error("reference_value", "The reference flow cannot be negative.")
+            elif ref < meter.range_min or ref > meter.range_max:
+                self.add_error("reference_value",
+                               f"{ref:g} {meter.flow_units} is outside the meter's calibrated range "
+                               f"{meter.range_min:g}–{meter.range_max:g} {meter.flow_units}.")
+            elif ref == 0 and meter.mpe_basis == "pct_reading":
+                self.add_error("reference_value", "A % of reading error needs a reference flow above zero.")
+        return data
+
+
+class BasePointGrid(forms.BaseFormSet):
+    def __init__(self, *args, meter=None, **kwargs):
+        self.meter = meter
+        kwargs.setdefault("initial", [{"nominal_pct": n} for n in NOMINAL_POINTS])
+        super().__init__(*args, **kwargs)
+
+    def get_form_kwargs(self, index):
+        return {"meter": self.meter}
+
+    def filled_rows(self):
+        return [f.cleaned_data for f in self.forms if f.cleaned_data and not f.is_blank()]
+
+
+PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, min_num=0, max_num=20)
+
+
+class CalibrationEntry:
+    """The whole tablet form; validates everything first, then saves in one transaction."""
+
+    def __init__(self, meter, data=None):
+        self.meter = meter
+        bound = data is not None
+        self.event_form = EventForm(data, prefix="ev") if bound else EventForm(prefix="ev", initial={"decision_rule": "simple"})
+        self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)
+        self.as_left = PointGrid(data, prefix="al", meter=meter) if bound else PointGrid(prefix="al", meter=meter)
+        self.non_field_errors = []
+
+    def is_valid(self):
+        ok = all([self.event_form.is_valid(), self.as_found.is_valid(), self.as_left.is_valid()])
+        if not ok:
+            return False
+        found_rows = self.as_found.filled_rows()
+        if not found_rows:
+            self.non_field_errors.append("Enter at least one as-found point.")
+        for form in self.as_found.forms:
+            if form.is_blank():
+                form.add_error("reference_value", "Enter the reference flow at this point, or remove the row.")
+        adjusted = self.event_form.cleaned_data.get("adjusted")
+        if adjusted and not self.as_left.filled_rows():
+            self.non_field_errors.append("An adjustment was made: enter the as-left points.")
+            for form in self.as_left.forms:
+                form.add_error("reference_value", "As-left point required after an adjustment.")
+        date = self.event_form.cleaned_data.get("performed_on")
+        values = [r["reference_value"] for r in found_rows + self.as_left.filled_rows()]
+        problems = []
+        for standard in self.event_form.cleaned_data.get("reference_standards", []):
+            problems.extend(standard.problems(date, values))
+        for p in problems:
+            self.event_form.add_error("reference_standards", p)
+        return not (self.non_field_errors or problems or any(f.errors for f in self.as_found.forms)
+                    or any(f.errors for f in self.as_left.forms))
+
+    @transaction.atomic
+    def save(self):
+        event = self.event_form.save(commit=False)
+        event.meter = self.meter
+        event.save()
+        self.event_form.save_m2m()
+        standard = event.reference_standards.first()
+        for kind, grid in ((CalibrationPoint.Kind.AS_FOUND, self.as_found), (CalibrationPoint.Kind.AS_LEFT, self.as_left)):
+            for row in grid.filled_rows():
+                point = CalibrationPoint(
+                    event=event, kind=kind, nominal_pct=row["nominal_pct"], reference_value=row["reference_value"],
+                    indicated_value=row["indicated_value"], repeats=row["repeats"], resolution=row["resolution"] or 0.0,
+                )
+                point.compute(self.meter, standard, event.decision_rule)
+                point.save()
+        event.evaluate()
+        event.save()
+        return event

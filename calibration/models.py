@@ -1,0 +1,261 @@
+"""Reference standards, calibration events and their points.
+
+A signed event and its points are locked at the model level: save(), delete() and queryset
+update()/delete() on signed rows raise SignedRecordError and change nothing.
+"""
+import datetime as dt
+
+from django.conf import settings
+from django.core.exceptions import ValidationError
+from django.core.validators import MinValueValidator
+from django.db import models, transaction
+from django.urls import reverse
+from django.utils import timezone
+
+from calibration import decision, errors, uncertainty
+from plant.models import Meter
+
+
+class SignedRecordError(Exception):
+    """Raised on any attempt to change or delete a signed calibration record."""
+
+
+class ReferenceStandard(models.Model):
+    class UncertaintyBasis(models.TextChoices):
+        PERCENT_READING = "pct_reading", "% of reading"
+        ABSOLUTE = "absolute", "absolute (flow units)"
+
+    identification = models.CharField(max_length=60, unique=True)
+    description = models.CharField(max_length=200)
+    range_min = models.FloatField(default=0.0)
+    range_max = models.FloatField()
+    units = models.CharField(max_length=20, default="m³/h")
+    certificate_number = models.CharField(max_length=60)
+    due_date = models.DateField("calibration due date")
+    expanded_uncertainty = models.FloatField(
+        "expanded uncertainty U (k=2)", validators=[MinValueValidator(0.0, "Uncertainty cannot be negative.")]
+    )
+    uncertainty_basis = models.CharField(max_length=12, choices=UncertaintyBasis.choices, default=UncertaintyBasis.PERCENT_READING)
+
+    class Meta:
+        ordering = ["identification"]
+
+    def __str__(self):
+        return f"{self.identification} ({self.description})"
+
+    def clean(self):
+        if self.range_max is not None and self.range_min is not None and self.range_max <= self.range_min:
+            raise ValidationError({"range_max": "The range high must be above the range low."})
+
+    def save(self, *args, **kwargs):
+        self.full_clean()
+        super().save(*args, **kwargs)
+
+    def problems(self, on_date, values=()):
+        """Reasons this standard cannot be used on `on_date` for these reference values (empty = usable)."""
+        found = []
+        if on_date > self.due_date:
+            found.append(f"Reference standard {self.identification} was past its due date ({self.due_date}) on {on_date}.")
+        outside = [v for v in values if v < self.range_min or v > self.range_max]
+        if outside:
+            found.append(
+                f"Reference standard {self.identification} covers {self.range_min:g}–{self.range_max:g} {self.units}; "
+                f"{', '.join(f'{v:g}' for v in outside)} is outside its range."
+            )
+        return found
+
+
+class LockedQuerySet(models.QuerySet):
+    """Refuses bulk update/delete that would touch a signed record."""
+
+    signed_lookup = "state"
+
+    def _touches_signed(self):
+        return self.filter(**{self.signed_lookup: CalibrationEvent.State.SIGNED}).exists()
+
+    def update(self, **kwargs):
+        if self._touches_signed():
+            raise SignedRecordError("Signed calibration records cannot be changed.")
+        return super().update(**kwargs)
+
+    def delete(self):
+        if self._touches_signed():
+            raise SignedRecordError("Signed calibration records cannot be deleted.")
+        return super().delete()
+
+
+class PointQuerySet(LockedQuerySet):
+    signed_lookup = "event__state"
+
+
+class CalibrationEvent(models.Model):
+    class State(models.TextChoices):
+        DRAFT = "draft", "Draft"
+        SIGNED = "signed", "Signed"
+
+    class Reason(models.TextChoices):
+        SCHEDULED = "scheduled", "Scheduled"
+        AFTER_REPAIR = "after_repair", "After repair"
+        SUSPECTED_FAULT = "suspected_fault", "Suspected fault"
+        NEW_INSTALLATION = "new_installation", "New installation"
+
+    class Rule(models.TextChoices):
+        SIMPLE = "simple", "Simple acceptance (ILAC-G8, w = 0)"
+        GUARDED = "guarded", "Guarded acceptance (ILAC-G8, w = U)"
+
+    meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="calibrations")
+    performed_on = models.DateField("date of calibration")
+    technician = models.CharField(max_length=120)
+    reference_standards = models.ManyToManyField(ReferenceStandard, related_name="events")
+    procedure = models.TextField("method / procedure")
+    ambient_temp_c = models.FloatField("ambient temperature (°C)", null=True, blank=True)
+    fluid_temp_c = models.FloatField("fluid temperature (°C)", null=True, blank=True)
+    pressure_bar = models.FloatField("line pressure (bar g)", null=True, blank=True)
+    reason = models.CharField(max_length=20, choices=Reason.choices, default=Reason.SCHEDULED)
+    adjusted = models.BooleanField("adjustment made", default=False)
+    notes = models.TextField(blank=True)
+    decision_rule = models.CharField(max_length=10, choices=Rule.choices, default=Rule.SIMPLE)
+    state = models.CharField(max_length=10, choices=State.choices, default=State.DRAFT)
+    signed_by = models.CharField(max_length=120, blank=True)
+    signed_role = models.CharField(max_length=60, blank=True)
+    signed_at = models.DateTimeField(null=True, blank=True)
+    supersedes = models.OneToOneField("self", null=True, blank=True, on_delete=models.PROTECT, related_name="superseded_by")
+    as_found_in_tolerance = models.BooleanField(null=True)
+    as_left_in_tolerance = models.BooleanField(null=True)
+
+    objects = LockedQuerySet.as_manager()
+
+    class Meta:
+        ordering = ["-performed_on", "-id"]
+
+    def __str__(self):
+        return f"{self.meter.tag} {self.performed_on} ({self.get_state_display()})"
+
+    def get_absolute_url(self):
+        return reverse("calibration:event-detail", args=[self.pk])
+
+    @property
+    def is_signed(self):
+        return self.state == self.State.SIGNED
+
+    def _stored_state(self):
+        if not self.pk:
+            return None
+        return CalibrationEvent.objects.filter(pk=self.pk).values_list("state", flat=True).first()
+
+    def save(self, *args, **kwargs):
+        if self._stored_state() == self.State.SIGNED:
+            raise SignedRecordError(f"Calibration {self.pk} is signed and cannot be changed; record a correction instead.")
+        super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        if self._stored_state() == self.State.SIGNED:
+            raise SignedRecordError(f"Calibration {self.pk} is signed and cannot be deleted.")
+        return super().delete(*args, **kwargs)
+
+    # Computation ---------------------------------------------------------------------------------
+    def points_of(self, kind):
+        return [p for p in self.points.all() if p.kind == kind]
+
+    def problems(self):
+        """Everything that stops this event being signed, as messages."""
+        found = []
+        as_found = self.points_of(CalibrationPoint.Kind.AS_FOUND)
+        as_left = self.points_of(CalibrationPoint.Kind.AS_LEFT)
+        if not as_found:
+            found.append("No as-found points recorded.")
+        if self.adjusted and not as_left:
+            found.append("An adjustment was made, so as-left points are required.")
+        standards = list(self.reference_standards.all())
+        if not standards:
+            found.append("No reference standard selected.")
+        values = [p.reference_value for p in as_found + as_left]
+        for standard in standards:
+            found.extend(standard.problems(self.performed_on, values))
+        return found
+
+    def evaluate(self):
+        """Compute every point and the event verdicts; returns nothing, updates unsaved fields."""
+        standard = self.reference_standards.first()
+        for point in self.points.all():
+            point.compute(self.meter, standard, self.decision_rule)
+        as_found = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_FOUND)]
+        as_left = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_LEFT)] or as_found
+        self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
+        self.as_left_in_tolerance = decision.verdict_in_tolerance(as_left) if as_left else None
+
+    def sign(self, by, role="Technician"):
+        """Lock the event after checking it; one signer wins when two sign at once."""
+        with transaction.atomic():
+            fresh = CalibrationEvent.objects.select_for_update().get(pk=self.pk)
+            if fresh.is_signed:
+                raise SignedRecordError(f"Calibration {self.pk} is already signed by {fresh.signed_by}.")
+            problems = fresh.problems()
+            if problems:
+                raise ValidationError(problems)
+            for point in fresh.points.all():
+                point.compute(fresh.meter, fresh.reference_standards.first(), fresh.decision_rule)
+                point.save()
+            fresh.evaluate()
+            fresh.state = self.State.SIGNED
+            fresh.signed_by = by
+            fresh.signed_role = role
+            fresh.signed_at = timezone.now()
+            super(CalibrationEvent, fresh).save()
+        self.refresh_from_db()
+        return self
+
+
+class CalibrationPoint(models.Model):
+    class Kind(models.TextChoices):
+        AS_FOUND = "as_found", "As found"
+        AS_LEFT = "as_left", "As left"
+
+    event = models.ForeignKey(CalibrationEvent, on_delete=models.CASCADE, related_name="points")
+    kind = models.CharField(max_length=10, choices=Kind.choices)
+    nominal_pct = models.FloatField("nominal (% of range)")
+    reference_value = models.FloatField(validators=[MinValueValidator(0.0, "The reference flow cannot be negative.")])
+    indicated_value = models.FloatField()
+    repeats = models.JSONField(default=list, blank=True)
+    resolution = models.FloatField(default=0.0, validators=[MinValueValidator(0.0, "Resolution cannot be negative.")])
+    # computed at save, kept so certificates and fleet statistics read stored values
+    error = models.FloatField(null=True, blank=True)
+    mpe = models.FloatField(null=True, blank=True)
+    expanded_uncertainty = models.FloatField(null=True, blank=True)
+    decision = models.CharField(max_length=20, blank=True)
+
+    objects = PointQuerySet.as_manager()
+
+    class Meta:
+        ordering = ["event", "kind", "nominal_pct"]
+
+    def _event_signed(self):
+        return CalibrationEvent.objects.filter(pk=self.event_id, state=CalibrationEvent.State.SIGNED).exists()
+
+    def save(self, *args, **kwargs):
+        if self.event_id and self._event_signed():
+            raise SignedRecordError("Points of a signed calibration cannot be changed.")
+        super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        if self._event_signed():
+            raise SignedRecordError("Points of a signed calibration cannot be deleted.")
+        return super().delete(*args, **kwargs)
+
+    def compute(self, meter, standard, rule):
+        """Error, MPE, expanded uncertainty (all in the meter's error basis) and the decision."""
+        span = meter.range_max - meter.range_min
+        basis = meter.mpe_basis
+        indicated = sum(self.repeats) / len(self.repeats) if self.repeats else self.indicated_value
+        # rounded so that binary noise (10.05 vs 10 -> 0.50000000000007 %) cannot push an error at the MPE over it
+        self.error = round(errors.point_error(self.reference_value, indicated, basis, span), 9)
+        self.mpe = meter.mpe_value
+        if standard is not None:
+            budget = uncertainty.point_uncertainty(
+                self.reference_value, standard.expanded_uncertainty, standard.uncertainty_basis,
+                self.repeats, self.resolution,
+            )
+            self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)
+        else:
+            self.expanded_uncertainty = 0.0
+        self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)

@@ -1,0 +1,229 @@
+"""Tests for calibration.drift and calibration.intervals (pure math, no DB)."""
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+from scipy import optimize, stats
+
+from calibration.drift import HistoryEvent, fit_drift, linear_fit, predict_crossing
+from calibration.intervals import (
+    exponential_closed_form, exponential_mle, log_likelihood, recommended_interval,
+    reliability_interval, staircase, staircase_sequence,
+)
+
+DATA = Path(__file__).parent / "data"
+
+
+# ---------------------------------------------------------------- NIST Norris
+def _norris():
+    d = np.loadtxt(DATA / "norris.txt", comments="#")
+    return d[:, 1], d[:, 0]  # x, y
+
+
+def test_norris_certified_values():
+    x, y = _norris()
+    assert len(x) == 36
+    f = linear_fit(x, y)
+    rel = 1e-10
+    assert f.intercept == pytest.approx(-0.262323073774029, rel=rel)
+    assert f.se_intercept == pytest.approx(0.232818234301152, rel=rel)
+    assert f.slope == pytest.approx(1.00211681802045, rel=rel)
+    assert f.se_slope == pytest.approx(0.429796848199937e-03, rel=rel)
+    assert f.residual_sd == pytest.approx(0.884796396144373, rel=rel)
+    assert f.r_squared == pytest.approx(0.999993745883712, rel=rel)
+    assert f.n == 36
+
+
+def test_upper_prediction_formula_norris():
+    x, y = _norris()
+    f = linear_fit(x, y)
+    x0 = 1200.0
+    t = stats.t.ppf(0.95, 34)
+    assert f.t_crit_one_sided_95 == pytest.approx(t, rel=1e-14)
+    sxx = ((x - x.mean()) ** 2).sum()
+    expect = (f.intercept + f.slope * x0
+              + t * f.residual_sd * math.sqrt(1 + 1 / 36 + (x0 - x.mean()) ** 2 / sxx))
+    assert f.upper_prediction(x0) == pytest.approx(expect, rel=1e-12)
+    t99 = stats.t.ppf(0.99, 34)
+    assert f.upper_prediction(x0, 0.99) - f.predict(x0) == pytest.approx(
+        (expect - f.predict(x0)) * t99 / t, rel=1e-12)
+
+
+def test_zero_residual_prediction_is_line():
+    f = linear_fit([0, 1, 2, 3], [1, 3, 5, 7])
+    assert f.residual_sd == 0.0
+    assert f.upper_prediction(10) == pytest.approx(21.0, rel=1e-14)
+    assert f.p_slope == 0.0
+
+
+# ---------------------------------------------------------- synthetic meters
+RATE = 0.001  # % of reading per day
+YEAR = 365.0
+
+
+def _adjusted_history(n=5, last_left=0.0, last_adjusted=True):
+    """Exact drift, no noise; adjusted back to 0 at every calibration."""
+    evs = [HistoryEvent(0.0, 0.0, 0.0, False)]
+    for k in range(1, n):
+        evs.append(HistoryEvent(k * YEAR, RATE * YEAR, 0.0, True))
+    last = evs[-1]
+    evs[-1] = HistoryEvent(last.day, last.as_found,
+                           last_left if last_adjusted else None, last_adjusted)
+    return evs
+
+
+def test_exact_crossing_day():
+    evs = _adjusted_history()
+    dr = fit_drift(evs)
+    assert dr.status == "drifting" and dr.significant
+    assert dr.usable_events == 5
+    assert dr.slope_per_day == pytest.approx(RATE, rel=1e-12)
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "drifting"
+    # 0 + 0.001 * (t - 1460) = 0.5  ->  t = 1960
+    assert cr.day == pytest.approx(4 * YEAR + 500.0, rel=1e-12)
+
+
+def test_guard_band_brings_crossing_forward():
+    cr = predict_crossing(_adjusted_history(), mpe=0.5, guard=0.1)
+    assert cr.day == pytest.approx(4 * YEAR + 400.0, rel=1e-12)
+
+
+def test_adjustment_sets_baseline():
+    # last calibration left at +0.2 % -> only 0.3 % of headroom
+    cr = predict_crossing(_adjusted_history(last_left=0.2), mpe=0.5)
+    assert cr.day == pytest.approx(4 * YEAR + 300.0, rel=1e-12)
+    # last calibration NOT adjusted: baseline is its as-found 0.365 %
+    cr = predict_crossing(_adjusted_history(last_adjusted=False), mpe=0.5)
+    assert cr.day == pytest.approx(4 * YEAR + 135.0, rel=1e-12)
+
+
+def test_never_adjusted_cumulative_equals_as_found():
+    evs = [HistoryEvent(k * YEAR, RATE * YEAR * k, None, False) for k in range(4)]
+    assert fit_drift(evs).slope_per_day == pytest.approx(RATE, rel=1e-12)
+    cr = predict_crossing(evs, mpe=2.0)
+    assert cr.day == pytest.approx(3 * YEAR + (2.0 - 1.095) / RATE, rel=1e-12)
+
+
+def test_negative_drift_crosses_on_negative_side():
+    evs = [HistoryEvent(0.0, 0.0, 0.0)] + [
+        HistoryEvent(k * YEAR, -RATE * YEAR, 0.0, True) for k in range(1, 4)]
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "drifting"
+    assert cr.day == pytest.approx(3 * YEAR + 500.0, rel=1e-12)
+
+
+def test_noisy_drift_bound_is_earlier_than_central():
+    noise = [0.0, 0.01, -0.012, 0.008, -0.005, 0.011, -0.009]
+    evs = [HistoryEvent(k * YEAR, RATE * YEAR * k + e, None, False)
+           for k, e in enumerate(noise)]
+    dr = fit_drift(evs, mpe=5.0)
+    assert dr.status == "drifting"
+    b = evs[-1].as_found
+    cr = predict_crossing(evs, mpe=5.0)
+    central = evs[-1].day + (5.0 - b) / dr.slope_per_day
+    assert evs[-1].day < cr.day < central
+    # the root satisfies the stated bound equation
+    f = dr.fit
+    lhs = abs(b) + f.slope * (cr.day - evs[-1].day) + f.prediction_margin(cr.day)
+    assert lhs == pytest.approx(5.0, rel=1e-9)
+
+
+def test_insufficient():
+    evs = _adjusted_history(n=2)
+    assert fit_drift(evs).status == "insufficient"
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "insufficient" and cr.day is None
+
+
+def test_unknown_as_left_breaks_chain():
+    evs = _adjusted_history(n=6)
+    evs[2] = HistoryEvent(evs[2].day, evs[2].as_found, None, True)  # left unknown
+    dr = fit_drift(evs)
+    # drift over (2, 3] is unknown: the chain restarts at event 3 -> events 3, 4, 5
+    assert dr.usable_events == 3
+    assert dr.slope_per_day == pytest.approx(RATE, rel=1e-12)
+
+
+def test_flat_noisy_history():
+    vals = [0.05, -0.03, 0.02, -0.04, 0.01, 0.03, -0.02]
+    evs = [HistoryEvent(k * YEAR, v, None, False) for k, v in enumerate(vals)]
+    dr = fit_drift(evs)
+    assert dr.status == "flat" and not dr.significant
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "flat" and cr.day is None
+
+
+def test_improving():
+    evs = [HistoryEvent(k * YEAR, v, None, False) for k, v in enumerate([0.4, 0.3, 0.2, 0.1])]
+    dr = fit_drift(evs)
+    assert dr.status == "improving"
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "improving" and cr.day is None
+
+
+def test_already_out_of_tolerance():
+    evs = _adjusted_history()
+    evs.append(HistoryEvent(5 * YEAR, 0.6, 0.0, True))
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "out_of_tolerance"
+    assert cr.day == 5 * YEAR
+    # guard band counts: 0.45 > 0.5 - 0.1
+    evs[-1] = HistoryEvent(5 * YEAR, 0.45, 0.0, True)
+    assert predict_crossing(evs, mpe=0.5, guard=0.1).status == "out_of_tolerance"
+
+
+def test_accumulated_since_adjustment():
+    evs = [HistoryEvent(0.0, 0.0, 0.0, True),
+           HistoryEvent(YEAR, 0.1, None, False),
+           HistoryEvent(2 * YEAR, 0.25, None, False)]
+    assert fit_drift(evs).accumulated_since_adjustment == pytest.approx(0.25)
+    assert fit_drift(_adjusted_history()).accumulated_since_adjustment == 0.0
+
+
+# ---------------------------------------------------------------- intervals
+def test_staircase_worked_sequence():
+    # 365*1.25 = 456.25 -> 456; 456*1.25 = 570; 570*0.5 = 285; 285*1.25 = 356.25 -> 356
+    # (each step uses the previous rounded interval; round half up)
+    assert staircase_sequence(365, [True, True, False, True]) == [456, 570, 285, 356]
+
+
+def test_staircase_rounding_and_limits():
+    assert staircase(2, True, extend=1.25, min_days=0) == 3  # 2.5 -> 3 (half up)
+    assert staircase(1000, True) == 1095
+    assert staircase(40, False) == 30
+
+
+def test_exponential_mle_matches_closed_form():
+    T = 365.0
+    ok = [True] * 17 + [False] * 3
+    lam = exponential_mle([T] * 20, ok)
+    assert lam == pytest.approx(exponential_closed_form(T, 17, 20), rel=1e-12)
+    assert lam == pytest.approx(-math.log(0.85) / T, rel=1e-12)
+
+
+def test_exponential_mle_mixed_intervals_is_maximum():
+    t = [180, 365, 365, 540, 730, 730, 365, 180, 900, 540]
+    ok = [True, True, False, True, False, True, True, True, False, True]
+    lam = exponential_mle(t, ok)
+    res = optimize.minimize_scalar(lambda l: -log_likelihood(l, t, ok),
+                                   bounds=(1e-8, 0.05), method="bounded",
+                                   options={"xatol": 1e-14})
+    assert lam == pytest.approx(res.x, rel=1e-5)
+    for f in (0.99, 1.01):
+        assert log_likelihood(lam, t, ok) > log_likelihood(lam * f, t, ok)
+
+
+def test_exponential_edge_cases():
+    assert exponential_mle([365] * 4, [True] * 4) == 0.0
+    assert math.isinf(exponential_mle([365] * 4, [False] * 4))
+    assert reliability_interval(0.0) == math.inf
+    assert recommended_interval([365] * 4, [True] * 4) == 1095
+    assert recommended_interval([365] * 4, [False] * 4) == 30
+
+
+def test_reliability_interval():
+    lam = -math.log(0.85) / 365
+    assert reliability_interval(lam, 0.85) == pytest.approx(365.0, rel=1e-12)
+    assert reliability_interval(lam, 0.95) == pytest.approx(365 * math.log(0.95) / math.log(0.85))
