@@ -18,5 +18,6 @@ urlpatterns = [
     path("", RedirectView.as_view(url="/meters/", permanent=False)),
     path("meters/", include(plant_patterns)),
     path("calibrations/", include("calibration.urls")),
+    path("", include("reports.urls")),
     path("admin/", admin.site.urls),
 ]
