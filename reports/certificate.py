@@ -1,0 +1,157 @@
+"""Calibration certificate (ISO/IEC 17025:2017 §7.8.2.1 and §7.8.4.1): context, HTML and PDF.
+
+Only signed (locked) events get a certificate. Everything shown is read from the stored, signed
+records, and the drift history is limited to what was signed by the time this event was signed,
+so rendering the same certificate again gives the same content.
+"""
+from __future__ import annotations
+
+import io
+import zipfile
+
+from django.conf import settings
+from django.template.loader import render_to_string
+from django.utils import timezone
+from django.utils.safestring import mark_safe
+
+from calibration.models import CalibrationEvent, CalibrationPoint
+from reports.charts import drift_chart_svg
+
+DEFAULT_LAB = {
+    "name": "Marrowfield Preserves — Instrument Workshop",
+    "address": "Unit 4, Gullet Lane, Marrowfield (invented)",
+}
+
+
+def laboratory():
+    lab = dict(DEFAULT_LAB)
+    lab.update(getattr(settings, "CALIBRATION_LAB", None) or {})
+    return lab
+
+
+def certificate_number(event) -> str:
+    return f"MWP-CAL-{event.performed_on:%Y}-{event.pk:06d}"
+
+
+def certificate_filename(event) -> str:
+    return f"{certificate_number(event)}.pdf"
+
+
+def error_unit(meter) -> str:
+    """The unit errors, MPE and U are stated in (the meter's MPE basis)."""
+    if meter.mpe_basis == meter.MpeBasis.ABSOLUTE:
+        return meter.flow_units
+    return meter.get_mpe_basis_display()
+
+
+def worst_error(points):
+    """The signed error of largest magnitude, or None when there are no computed points."""
+    errors = [p.error for p in points if p.error is not None]
+    return max(errors, key=abs) if errors else None
+
+
+def signed_events():
+    return CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED)
+
+
+def drift_history(event):
+    """(date, worst as-found, worst as-left) of this meter's signed events up to and including `event`.
+
+    Limited to events signed no later than `event` and performed no later than it; an event
+    corrected by another signed in that window is replaced by its correction. With no as-left
+    points (no adjustment) the as-left condition is the as-found one, as in CalibrationEvent.evaluate.
+    """
+    candidates = (
+        signed_events()
+        .filter(meter=event.meter, signed_at__lte=event.signed_at, performed_on__lte=event.performed_on)
+        .prefetch_related("points")
+        .select_related("superseded_by")
+    )
+    history = []
+    for other in candidates:
+        correction = getattr(other, "superseded_by", None)
+        if (other.pk != event.pk and correction is not None and correction.is_signed
+                and correction.signed_at <= event.signed_at):
+            continue
+        found = worst_error(other.points_of(CalibrationPoint.Kind.AS_FOUND))
+        left = worst_error(other.points_of(CalibrationPoint.Kind.AS_LEFT))
+        history.append((other.performed_on, found, found if left is None else left))
+    history.sort(key=lambda row: row[0])
+    return history
+
+
+def _verdict(value):
+    return {True: "in tolerance", False: "out of tolerance"}.get(value, "not determined")
+
+
+def certificate_context(event) -> dict:
+    if not event.is_signed:
+        raise ValueError("Certificates are issued for signed calibrations only.")
+    meter = event.meter
+    points = list(event.points.all())
+    for p in points:
+        # the error was computed from the mean of the repeats when there are any (CalibrationPoint.compute)
+        p.indicated_mean = sum(p.repeats) / len(p.repeats) if p.repeats else p.indicated_value
+    as_found = [p for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
+    as_left = [p for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT]
+    history = drift_history(event)
+    unit = error_unit(meter)
+    conditional = any(p.decision.startswith("conditional") for p in points)
+    return {
+        "event": event,
+        "meter": meter,
+        "site": meter.area.site,
+        "area": meter.area,
+        "lab": laboratory(),
+        "number": certificate_number(event),
+        "issued_on": timezone.localdate(event.signed_at),
+        "as_found": as_found,
+        "as_left": as_left,
+        "error_unit": unit,
+        "standards": list(event.reference_standards.all()),
+        "as_found_verdict": _verdict(event.as_found_in_tolerance),
+        "as_left_verdict": _verdict(event.as_left_in_tolerance),
+        "conditional": conditional,
+        "supersedes": event.supersedes,
+        "supersedes_number": certificate_number(event.supersedes) if event.supersedes_id else "",
+        "history": history,
+        "drift_svg": mark_safe(drift_chart_svg(history, meter.mpe_value, width=640, height=230, unit=unit)),
+    }
+
+
+def certificate_html(event) -> str:
+    return render_to_string("reports/certificate.html", certificate_context(event))
+
+
+def certificate_pdf(event, base_url=None) -> bytes:
+    from weasyprint import HTML  # imported lazily: heavy, and only needed when printing
+
+    return HTML(string=certificate_html(event), base_url=base_url).write_pdf()
+
+
+def load_event(pk):
+    """The signed event with everything the certificate reads, or None."""
+    return (
+        signed_events()
+        .select_related("meter__area__site", "meter__fluid", "supersedes")
+        .filter(pk=pk)
+        .first()
+    )
+
+
+def events_signed_between(start, end):
+    """Signed events whose signing date (local time) lies in [start, end], oldest first."""
+    return (
+        signed_events()
+        .filter(signed_at__date__gte=start, signed_at__date__lte=end)
+        .select_related("meter__area__site", "meter__fluid", "supersedes")
+        .order_by("signed_at", "pk")
+    )
+
+
+def certificates_zip(events, base_url=None) -> bytes:
+    buffer = io.BytesIO()
+    with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_DEFLATED) as archive:
+        for event in events:
+            archive.writestr(certificate_filename(event), certificate_pdf(event, base_url=base_url))
+    return buffer.getvalue()

@@ -1,0 +1,258 @@
+"""Calibration certificates (ISO/IEC 17025:2017 §7.8.2.1 / §7.8.4.1): single PDF and the batch ZIP."""
+import datetime as dt
+import io
+import re
+import zipfile
+
+import pytest
+from django.urls import reverse
+from django.utils import timezone
+from pypdf import PdfReader
+
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.models import Area, Fluid, Meter, Site
+from reports.certificate import DEFAULT_LAB, certificate_number, drift_history
+from reports.charts import drift_chart_svg
+
+pytestmark = pytest.mark.django_db
+TODAY = dt.date(2026, 11, 20)
+FOUND = [(4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
+
+
+@pytest.fixture
+def meter():
+    site = Site.objects.create(name="Marrowfield Works", address="1 Brine Street\nMarrowfield MF1 2AB")
+    area = Area.objects.create(site=site, name="Pickling hall")
+    water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=500)
+    return Meter.objects.create(tag="FT-101", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+                                internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.5,
+                                mpe_basis="pct_reading", wetted_material="316L", serial="SN-778812",
+                                maker="Acme Flow", model="MagX 300")
+
+
+@pytest.fixture
+def standard():
+    return ReferenceStandard.objects.create(identification="RS-7", description="Portable master meter", range_min=0,
+                                            range_max=50, certificate_number="UKAS-0042-7781",
+                                            due_date=dt.date(2027, 6, 1), expanded_uncertainty=0.1,
+                                            uncertainty_basis="pct_reading")
+
+
+def entry_data(standard, performed_on=TODAY, adjusted=False, found=None, left=None, **event):
+    """POST data of the tablet form (copied from test_calibration_records to stay independent)."""
+    found = found if found is not None else FOUND
+    left = left if left is not None else [("", "")] * 5
+    data = {
+        "ev-performed_on": performed_on.isoformat(), "ev-technician": "A. Fieldtech",
+        "ev-reference_standards": [standard.pk],
+        "ev-procedure": "WI-CAL-07 comparison against portable master meter, five points", "ev-reason": "scheduled",
+        "ev-decision_rule": "simple", "ev-ambient_temp_c": "18", "ev-fluid_temp_c": "12", "ev-pressure_bar": "3",
+    }
+    if adjusted:
+        data["ev-adjusted"] = "on"
+    data.update(event)
+    for prefix, rows in (("af", found), ("al", left)):
+        data.update({f"{prefix}-TOTAL_FORMS": str(len(rows)), f"{prefix}-INITIAL_FORMS": "0",
+                     f"{prefix}-MIN_NUM_FORMS": "0", f"{prefix}-MAX_NUM_FORMS": "20"})
+        for i, (ref, ind) in enumerate(rows):
+            data[f"{prefix}-{i}-nominal_pct"] = str([10, 25, 50, 75, 100][i % 5])
+            data[f"{prefix}-{i}-reference_value"] = str(ref)
+            data[f"{prefix}-{i}-indicated_value"] = str(ind)
+    return data
+
+
+def enter(client, meter, standard, **kwargs):
+    before = set(CalibrationEvent.objects.values_list("pk", flat=True))
+    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, **kwargs))
+    assert response.status_code == 302, response.content.decode()[:2000]
+    return CalibrationEvent.objects.exclude(pk__in=before).get()
+
+
+def sign(client, event, at, monkeypatch, by="B. Signatory", role="Workshop supervisor"):
+    with monkeypatch.context() as m:
+        m.setattr(timezone, "now", lambda: at)
+        response = client.post(f"/calibrations/{event.pk}/sign/", {"signed_by": by, "signed_role": role})
+    assert response.status_code == 302
+    event.refresh_from_db()
+    assert event.is_signed
+    return event
+
+
+def at(day, hour=10):
+    return dt.datetime.combine(day, dt.time(hour), tzinfo=dt.timezone.utc)
+
+
+def pdf_text(content):
+    assert content[:5] == b"%PDF-"
+    reader = PdfReader(io.BytesIO(content))
+    return reader, "\n".join(page.extract_text() for page in reader.pages)
+
+
+def flat(text):
+    return re.sub(r"\s+", " ", text)
+
+
+def has(text, *parts):
+    """The parts appear in order, separated by nothing but (optional) whitespace: PDF text spacing varies."""
+    return re.search(r"\s*".join(re.escape(part) for part in parts), text) is not None
+
+
+@pytest.fixture
+def signed_event(client, meter, standard, monkeypatch):
+    left = [(4, 4.0), (10, 10.01), (20, 20.0), (30, 30.01), (40, 40.0)]
+    event = enter(client, meter, standard, adjusted=True, left=left)
+    return sign(client, event, at(dt.date(2026, 11, 23)), monkeypatch)
+
+
+def test_certificate_contains_every_required_element(client, signed_event, standard):
+    url = reverse("reports:certificate", args=[signed_event.pk])
+    assert url == f"/calibrations/{signed_event.pk}/certificate.pdf"
+    response = client.get(url)
+    assert response.status_code == 200
+    assert response["Content-Type"] == "application/pdf"
+    number = f"MWP-CAL-2026-{signed_event.pk:06d}"
+    assert number in response["Content-Disposition"]
+    reader, raw = pdf_text(response.content)
+    text = flat(raw)
+    assert "Calibration certificate" in text
+    assert DEFAULT_LAB["name"] in text and DEFAULT_LAB["address"] in text
+    assert has(text, "Certificate number:", number)
+    pages = len(reader.pages)
+    for i, page in enumerate(reader.pages, start=1):
+        assert f"Page {i} of {pages}" in flat(page.extract_text())
+        assert number in page.extract_text()  # identified on every page
+    assert "Page 1 of" in text
+    # customer / location
+    assert "Marrowfield Works" in text and "1 Brine Street" in text and "Pickling hall" in text
+    # item
+    assert "FT-101" in text and "SN-778812" in text and "Electromagnetic" in text and "DN50" in text
+    assert "Acme Flow / MagX 300" in text and has(text, "Calibrated range", "0 to 40 m³/h")
+    # dates: calibration and issue (= signing date)
+    assert has(text, "Date of calibration", "2026-11-20")
+    assert has(text, "Date of issue", "2026-11-23")
+    # method and conditions
+    assert "WI-CAL-07 comparison against portable master meter, five points" in text
+    assert has(text, "Ambient temperature", "18 °C") and has(text, "Fluid temperature", "12 °C")
+    assert has(text, "Line pressure", "3 bar g")
+    assert has(text, "Adjustment made", "Yes")
+    # results with units, each point's reference value, in both tables
+    assert "Results — as found" in text and "Results — as left" in text
+    assert "(m³/h)" in text and "(% of reading)" in text and "U, k=2" in text
+    for ref, _ in FOUND:
+        assert text.count(f"{ref:.4f}") >= 2, ref
+    found_20 = signed_event.points.get(kind="as_found", reference_value=20)
+    assert has(text, "20.0000 20.0500", f"{found_20.error:.3f} 0.500 {found_20.expanded_uncertainty:.3f}", "pass")
+    # statement of conformity with the decision rule
+    assert signed_event.get_decision_rule_display() in text
+    assert "Simple acceptance (ILAC-G8, w = 0)" in text
+    assert has(text, "As found", "IN TOLERANCE") and has(text, "As left", "IN TOLERANCE")
+    # traceability: reference standard, its certificate number and due date
+    assert has(text, "RS-7") and has(text, standard.certificate_number, "2027-06-01")
+    # signatory
+    assert has(text, "Authorised by", "B. Signatory") and has(text, "Role", "Workshop supervisor")
+    assert has(text, "Signed", "2026-11-23")
+    assert "Drift history of FT-101" in text
+    assert "supersedes" not in text
+    assert f"End of certificate {number}" in text
+
+
+def test_lab_identity_comes_from_settings(client, signed_event, settings):
+    settings.CALIBRATION_LAB = {"name": "Test Lab Ltd", "address": "9 Test Road, Testville"}
+    _, text = pdf_text(client.get(f"/calibrations/{signed_event.pk}/certificate.pdf").content)
+    assert "Test Lab Ltd" in text and "9 Test Road, Testville" in text
+    assert DEFAULT_LAB["name"] not in text
+
+
+def test_draft_has_no_certificate(client, meter, standard):
+    draft = enter(client, meter, standard)
+    assert client.get(f"/calibrations/{draft.pk}/certificate.pdf").status_code == 404
+    assert client.get("/calibrations/999999/certificate.pdf").status_code == 404
+
+
+def test_out_of_tolerance_guarded_and_no_adjustment(client, meter, standard, monkeypatch):
+    found = [(10, 10.05), (20, 20.2)]
+    event = enter(client, meter, standard, found=found, **{"ev-decision_rule": "guarded"})
+    sign(client, event, at(TODAY), monkeypatch)
+    _, raw = pdf_text(client.get(f"/calibrations/{event.pk}/certificate.pdf").content)
+    text = flat(raw)
+    assert "Guarded acceptance (ILAC-G8, w = U)" in text
+    assert "conditional pass" in text and "fail" in text
+    assert has(text, "As found", "OUT OF TOLERANCE")
+    assert has(text, "Adjustment made", "No")
+    assert "no adjustment was made, so the as-left condition is the as-found condition" in text
+
+
+def test_correction_says_what_it_supersedes(client, meter, standard, signed_event, monkeypatch):
+    correction = CalibrationEvent.objects.create(
+        meter=meter, performed_on=TODAY, technician="A. Fieldtech", procedure="Re-entry of WI-CAL-07 results",
+        supersedes=signed_event,
+    )
+    correction.reference_standards.add(standard)
+    for i, (ref, ind) in enumerate(FOUND):
+        CalibrationPoint.objects.create(event=correction, kind="as_found", nominal_pct=[10, 25, 50, 75, 100][i],
+                                        reference_value=ref, indicated_value=ind)
+    sign(client, correction, at(dt.date(2026, 11, 25)), monkeypatch)
+    _, text = pdf_text(client.get(f"/calibrations/{correction.pk}/certificate.pdf").content)
+    text = flat(text)
+    assert f"supersedes certificate {certificate_number(signed_event)}" in text
+    # the corrected event is replaced by its correction in the drift history
+    assert [row[0] for row in drift_history(correction)] == [TODAY]
+
+
+def test_drift_history_and_chart(client, meter, standard, monkeypatch):
+    first = sign(client, enter(client, meter, standard, performed_on=dt.date(2025, 11, 20),
+                               found=[(10, 10.02), (20, 20.02)]), at(dt.date(2025, 11, 21)), monkeypatch)
+    second = sign(client, enter(client, meter, standard, performed_on=TODAY, adjusted=True,
+                                found=[(10, 10.09), (20, 19.9)], left=[(10, 10.01), (20, 20.0)]),
+                  at(TODAY), monkeypatch)
+    enter(client, meter, standard, performed_on=dt.date(2026, 11, 30))  # draft: not in the history
+    history = drift_history(second)
+    assert [row[0] for row in history] == [first.performed_on, second.performed_on]
+    assert history[0][1] == pytest.approx(0.2) and history[0][2] == pytest.approx(0.2)  # no as-left: as found
+    assert history[1][1] == pytest.approx(0.9) and history[1][2] == pytest.approx(0.1)
+    assert [row[0] for row in drift_history(first)] == [first.performed_on]
+    svg = drift_chart_svg(history, 0.5, 640, 230, unit="% of reading")
+    assert svg.startswith("<svg") and svg.endswith("</svg>")
+    assert svg.count("<circle") == 3  # two as-found markers + legend
+    assert "2025-11-20" in svg and "2026-11-20" in svg and "+MPE 0.5" in svg
+    assert "<svg" in drift_chart_svg([], 1.0, 300, 150) and "No signed calibrations" in drift_chart_svg([], 1.0, 300, 150)
+    with pytest.raises(ValueError):
+        drift_chart_svg(history, 0, 300, 150)
+
+
+def test_zip_has_one_certificate_per_event_signed_in_range(client, meter, standard, monkeypatch):
+    before = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 10, 1)),
+                  at(dt.date(2026, 10, 2)), monkeypatch)
+    inside_a = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 11, 2)),
+                    at(dt.date(2026, 11, 3), hour=0), monkeypatch)
+    inside_b = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 11, 10)),
+                    at(dt.date(2026, 11, 30), hour=23), monkeypatch)
+    after = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 11, 30)),
+                 at(dt.date(2026, 12, 1)), monkeypatch)
+    enter(client, meter, standard, performed_on=dt.date(2026, 11, 15))  # draft in range: no certificate
+    response = client.get("/certificates.zip?start=2026-11-03&end=2026-11-30")
+    assert response.status_code == 200
+    assert response["Content-Type"] == "application/zip"
+    archive = zipfile.ZipFile(io.BytesIO(response.content))
+    names = sorted(archive.namelist())
+    assert names == sorted(f"{certificate_number(e)}.pdf" for e in (inside_a, inside_b))
+    for event in (inside_a, inside_b):
+        _, text = pdf_text(archive.read(f"{certificate_number(event)}.pdf"))
+        assert certificate_number(event) in text
+    assert f"{certificate_number(before)}.pdf" not in names and f"{certificate_number(after)}.pdf" not in names
+    empty = zipfile.ZipFile(io.BytesIO(client.get("/certificates.zip?start=2020-01-01&end=2020-12-31").content))
+    assert empty.namelist() == []
+
+
+@pytest.mark.parametrize("query,message", [
+    ("", "Missing 'start' date"),
+    ("?start=2026-11-01", "Missing 'end' date"),
+    ("?start=2026-11-01&end=tomorrow", "'end' must be a real date written YYYY-MM-DD"),
+    ("?start=2026-02-30&end=2026-03-01", "'start' must be a real date"),
+    ("?start=20261101&end=2026-11-30", "'start' must be a real date"),
+    ("?start=2026-12-01&end=2026-11-01", "'start' (2026-12-01) is after 'end' (2026-11-01)"),
+])
+def test_zip_rejects_bad_dates(client, query, message):
+    response = client.get(f"/certificates.zip{query}")
+    assert response.status_code == 400
+    assert message in response.content.decode()
