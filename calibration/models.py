@@ -184,7 +184,7 @@ class CalibrationEvent(models.Model):
         self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
         self.as_left_in_tolerance = decision.verdict_in_tolerance(as_left) if as_left else None
 
-    def sign(self, by, role="Technician"):
+    def sign(self, by, role="Technician", at=None):
         """Lock the event after checking it; one signer wins when two sign at once."""
         with transaction.atomic():
             fresh = CalibrationEvent.objects.select_for_update().get(pk=self.pk)
@@ -200,7 +200,7 @@ class CalibrationEvent(models.Model):
             fresh.state = self.State.SIGNED
             fresh.signed_by = by
             fresh.signed_role = role
-            fresh.signed_at = timezone.now()
+            fresh.signed_at = at or timezone.now()
             super(CalibrationEvent, fresh).save()
         self.refresh_from_db()
         return self

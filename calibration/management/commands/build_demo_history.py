@@ -1,0 +1,120 @@
+"""Invent 3–8 years of signed calibration history for the demo plant, with a fixed seed.
+
+Drift is invented for the demo: stable meters, meters drifting steadily, and meters that jump after
+fouling; the risk factor of each meter's duty scales how far it moves. Written to
+fixtures/demo_history.json (load it after fixtures/demo_plant.json).
+"""
+import datetime as dt
+import random
+from pathlib import Path
+
+from django.conf import settings
+from django.core.management import BaseCommand, call_command
+from django.db import transaction
+
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.models import Meter
+
+FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_history.json"
+NOMINALS = (10, 25, 50, 75, 100)
+TODAY = dt.date(2026, 11, 30)
+TECHNICIANS = ["R. Okonkwo-Hale", "M. Varga", "S. Lindqvist"]
+PROCEDURE = {
+    "flow": "In-situ comparison against a portable reference meter in series, five points up the range (WP-FL-03).",
+    "clampon": "Comparison against a clamp-on reference on a straight run, five points (WP-FL-07).",
+}
+
+
+def _standards():
+    return {
+        "liquid": ReferenceStandard.objects.create(
+            identification="RS-101", description="Portable Coriolis reference, liquids", range_min=0,
+            range_max=60000, units="per meter's units", certificate_number="EXT-24-5531",
+            due_date=dt.date(2027, 3, 31), expanded_uncertainty=0.1, uncertainty_basis="pct_reading"),
+        "gas": ReferenceStandard.objects.create(
+            identification="RS-102", description="Transfer standard for gases and steam", range_min=0,
+            range_max=10000, units="per meter's units", certificate_number="EXT-24-5532",
+            due_date=dt.date(2027, 1, 15), expanded_uncertainty=0.3, uncertainty_basis="pct_reading"),
+        "spare": ReferenceStandard.objects.create(
+            identification="RS-090", description="Old turbine master meter (withdrawn)", range_min=0,
+            range_max=100, units="m³/h", certificate_number="EXT-21-0410",
+            due_date=dt.date(2026, 8, 1), expanded_uncertainty=0.25, uncertainty_basis="pct_reading"),
+    }
+
+
+class Command(BaseCommand):
+    help = "Create signed demo calibration history for every demo meter and write fixtures/demo_history.json."
+
+    def add_arguments(self, parser):
+        parser.add_argument("--seed", type=int, default=7)
+
+    @transaction.atomic
+    def handle(self, *args, seed, **options):
+        rng = random.Random(seed)
+        standards = _standards()
+        events = 0
+        for meter in Meter.objects.select_related("fluid").order_by("tag"):
+            events += self._history(meter, rng, standards)
+        call_command("dumpdata", "calibration", indent=1, output=str(FIXTURE))
+        self.stdout.write(self.style.SUCCESS(f"{events} signed calibrations written to {FIXTURE}"))
+
+    def _history(self, meter, rng, standards):
+        factor = meter.risk_factor()
+        mpe = meter.mpe_value
+        behaviour = rng.choices(["stable", "steady", "fouling"], weights=[4, 4, 2] if factor >= 1 else [1, 4, 4])[0]
+        # invented drift in units of MPE per year; risky duties move more, per year and per (shorter) interval
+        rate = {"stable": 0.05, "steady": 0.35, "fouling": 0.15}[behaviour] * mpe / max(factor, 0.25) ** 2 * rng.choice([-1, 1])
+        years = rng.randint(3, 8)
+        cap = int(365.25 * years / 3.3)  # at least four events over the years of history
+        interval = min(meter.effective_interval_days(), cap)
+        day = TODAY - dt.timedelta(days=int(365.25 * years)) + dt.timedelta(days=rng.randint(0, 20))
+        baseline = rng.uniform(-0.1, 0.1) * mpe
+        standard = standards["gas"] if meter.fluid.phase in ("gas", "steam") else standards["liquid"]
+        count = 0
+        jumped = False
+        while day < TODAY - dt.timedelta(days=20):
+            elapsed_years = interval / 365.25
+            offset = baseline + rate * elapsed_years
+            if behaviour == "fouling" and not jumped and rng.random() < 0.35:
+                offset += rng.choice([-1, 1]) * rng.uniform(0.8, 1.6) * mpe
+                jumped = True
+            shape = rng.uniform(-0.3, 0.3)
+            found = [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
+            adjust = max(abs(e) for e in found) > 0.6 * mpe
+            event = CalibrationEvent.objects.create(
+                meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS),
+                procedure=PROCEDURE["clampon" if meter.principle == "ultrasonic_clampon" else "flow"],
+                ambient_temp_c=round(rng.uniform(8, 28), 1), fluid_temp_c=meter.fluid.temperature_c,
+                pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
+                decision_rule="simple",
+                notes="Zero and span adjusted." if adjust else "",
+            )
+            event.reference_standards.add(standard)
+            self._points(event, meter, CalibrationPoint.Kind.AS_FOUND, found, rng)
+            if adjust:
+                left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS]
+                self._points(event, meter, CalibrationPoint.Kind.AS_LEFT, left, rng)
+                baseline, jumped = sum(left) / len(left), False
+            else:
+                baseline = offset
+            event.sign(event.technician, "Instrument technician",
+                       at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc))
+            count += 1
+            interval = int(min(meter.effective_interval_days(), cap) * rng.uniform(0.9, 1.1))
+            day += dt.timedelta(days=interval)
+        return count
+
+    def _points(self, event, meter, kind, errors_in_basis, rng):
+        span = meter.range_max - meter.range_min
+        for nominal, error in zip(NOMINALS, errors_in_basis):
+            reference = round(meter.range_min + span * nominal / 100 * rng.uniform(0.97, 1.03), 4)
+            if meter.mpe_basis == "pct_reading":
+                indicated = reference * (1 + error / 100)
+            elif meter.mpe_basis == "pct_span":
+                indicated = reference + error * span / 100
+            else:
+                indicated = reference + error
+            point = CalibrationPoint(event=event, kind=kind, nominal_pct=nominal, reference_value=reference,
+                                     indicated_value=round(indicated, 5))
+            point.compute(meter, event.reference_standards.first(), event.decision_rule)
+            point.save()
