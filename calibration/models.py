@@ -202,6 +202,9 @@ class CalibrationEvent(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(CalibrationEvent, fresh).save()
+            from calibration.fleet import recompute_due_dates
+
+            recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
         self.refresh_from_db()
         return self
 

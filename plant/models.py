@@ -139,6 +139,13 @@ class Meter(models.Model):
         validators=[MinValueValidator(1, "The interval must be at least one day.")],
     )
     status = models.CharField(max_length=12, choices=Status.choices, default=Status.IN_SERVICE)
+    # kept by calibration.fleet.recompute_due_dates (bulk_update, so save() and duty history are not involved)
+    last_calibrated = models.DateField(null=True, blank=True, editable=False)
+    next_due_date = models.DateField(null=True, blank=True, editable=False)
+    due_rationale = models.JSONField(default=dict, blank=True, editable=False)
+    drift_status = models.CharField(max_length=20, blank=True, editable=False)
+    drift_rate_per_year = models.FloatField(null=True, blank=True, editable=False)
+    predicted_crossing = models.DateField(null=True, blank=True, editable=False)
 
     class Meta:
         ordering = ["tag"]

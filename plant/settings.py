@@ -76,3 +76,15 @@ STATICFILES_DIRS = [BASE_DIR / "static"]
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
 DJANGO_TABLES2_TEMPLATE = "django_tables2/table.html"
+
+# Calibration policy; every value here is a setting, recorded where it is used.
+CALIBRATION = {
+    "decision_rule": os.environ.get("CAL_DECISION_RULE", "simple"),  # ILAC-G8: "simple" or "guarded" (w = U)
+    "interval_method": "reliability",  # "reliability" (NCSL RP-1 exponential) or "staircase" (OIML D 10)
+    "reliability_target": 0.95,
+    "staircase_extend": 1.25,
+    "staircase_shorten": 0.5,
+    "min_interval_days": 30,
+    "max_interval_days": 1095,
+    "drift_margin_days": 30,
+}

@@ -1,6 +1,8 @@
 from django.shortcuts import get_object_or_404, render
 from django_tables2 import RequestConfig
 
+from calibration.due import rationale_text
+from calibration.trend import meter_drift_chart
 from plant.filters import MeterFilter
 from plant.models import Meter
 from plant.tables import MeterTable
@@ -26,4 +28,7 @@ def meter_detail(request, tag):
         "deciding": deciding,
         "effective_interval": meter.effective_interval_days(),
         "duties": meter.duties.select_related("area__site", "fluid"),
+        "rationale": rationale_text(meter.due_rationale).splitlines(),
+        "drift_chart": meter_drift_chart(meter),
+        "calibrations": meter.calibrations.all()[:20],
     })

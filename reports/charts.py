@@ -11,6 +11,20 @@ DriftPoint = Tuple[dt.date, Optional[float], Optional[float]]
 FOUND_COLOUR = "#b45309"
 LEFT_COLOUR = "#0b6e69"
 BAND_COLOUR = "#e6f2ea"
+TREND_COLOUR = "#444"
+BOUND_COLOUR = "#c0392b"
+LIMIT_COLOUR = "#7a4a9a"
+CROSSING_COLOUR = "#c0392b"
+
+Curve = Sequence[Tuple[dt.date, float]]
+
+
+def _clean(curve: Optional[Curve]) -> list:
+    """Sorted (date, value) pairs of a curve, dropping None / non-finite values."""
+    if not curve:
+        return []
+    return sorted(((d, float(v)) for d, v in curve if v is not None and math.isfinite(float(v))),
+                  key=lambda p: p[0])
 
 
 def _fmt(v: float) -> str:
@@ -28,18 +42,36 @@ def _nice_step(span: float, target: int = 4) -> float:
 
 
 def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, height: int = 260,
-                    unit: str = "") -> str:
+                    unit: str = "", *, trend: Optional[Curve] = None, bound: Optional[Curve] = None,
+                    crossing: Optional[dt.date] = None, limit: Optional[float] = None) -> str:
     """SVG of as-found and as-left worst error against date, over a shaded ±MPE band.
 
     `points` are (date, as_found_worst, as_left_worst); a None value is left out of its series.
     Errors and `mpe` share one basis (e.g. % of reading); `unit` only labels the y axis.
+
+    Optional forecast overlays (all keyword-only; when none is given the output is unchanged):
+    `trend` – the fitted drift line, (date, value) pairs, drawn solid dark grey;
+    `bound` – the one-sided 95 % prediction bound of |error|, drawn dotted red;
+    `crossing` – predicted date the bound reaches the limit, a dashed vertical line labelled
+    "predicted crossing YYYY-MM-DD";
+    `limit` – a guard-banded acceptance limit, drawn as thin dashed ±lines labelled "limit"
+    (only when it differs from `mpe`).
+    The date axis is extended to cover trend/bound/crossing dates and the y range their values.
     """
     if mpe is None or mpe <= 0:
         raise ValueError("mpe must be > 0")
     pts = sorted(points, key=lambda p: p[0])
+    trend_pts, bound_pts = _clean(trend), _clean(bound)
+    show_limit = limit is not None and math.isfinite(limit) and limit > 0 and not math.isclose(limit, mpe)
+    extras = bool(trend_pts or bound_pts or crossing is not None or show_limit)
     left, right, top, bottom = 62, 16, 28, 40
+    if extras:
+        top = 40  # room for a second legend row
     plot_w, plot_h = width - left - right, height - top - bottom
     values = [abs(v) for _, f, l in pts for v in (f, l) if v is not None]
+    values += [abs(v) for _, v in trend_pts + bound_pts]
+    if show_limit:
+        values.append(abs(limit))
     y_max = max([mpe] + values) * 1.25
     step = _nice_step(2 * y_max)
     y_max = step * -(-y_max // step)  # round up to a whole step
@@ -47,8 +79,11 @@ def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, 
     def y(v: float) -> float:
         return top + plot_h * (y_max - v) / (2 * y_max)
 
-    if pts:
-        d0, d1 = pts[0][0], pts[-1][0]
+    all_dates = [p[0] for p in pts] + [d for d, _ in trend_pts + bound_pts]
+    if crossing is not None:
+        all_dates.append(crossing)
+    if all_dates:
+        d0, d1 = min(all_dates), max(all_dates)
         days = (d1 - d0).days
     else:
         d0 = d1 = None
@@ -102,6 +137,31 @@ def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, 
                 out.append(f'<circle cx="{px:.1f}" cy="{py:.1f}" r="3.2" fill="{colour}"/>')
             else:
                 out.append(f'<rect x="{px - 3:.1f}" y="{py - 3:.1f}" width="6" height="6" fill="#fff" stroke="{colour}" stroke-width="1.4"/>')
+    # forecast overlays
+    if show_limit:
+        for sign in (1, -1):
+            out.append(f'<line x1="{left}" y1="{y(sign * limit):.1f}" x2="{left + plot_w}" y2="{y(sign * limit):.1f}" '
+                       f'stroke="{LIMIT_COLOUR}" stroke-width="0.7" stroke-dasharray="2 2"/>')
+        out.append(f'<text x="{left + 4}" y="{y(limit) - 3:.1f}" fill="{LIMIT_COLOUR}">limit {_fmt(limit)}</text>')
+    for curve, colour, style in ((trend_pts, TREND_COLOUR, ' stroke-width="1.4"'),
+                                 (bound_pts, BOUND_COLOUR, ' stroke-width="1.4" stroke-dasharray="1.5 2.5"')):
+        if not curve:
+            continue
+        if len(curve) == 1:  # a single point still gets a (zero-length) polyline, drawn as a dot
+            curve = curve * 2
+            style += ' stroke-linecap="round"'
+        path = " ".join(f"{x(d):.1f},{y(v):.1f}" for d, v in curve)
+        out.append(f'<polyline points="{path}" fill="none" stroke="{colour}"{style}/>')
+    if crossing is not None:
+        cx = x(crossing)
+        out.append(f'<line class="crossing" x1="{cx:.1f}" y1="{top}" x2="{cx:.1f}" y2="{top + plot_h}" '
+                   f'stroke="{CROSSING_COLOUR}" stroke-width="1" stroke-dasharray="5 3"/>')
+        anchor, tx = ("end", cx - 4) if cx > left + plot_w / 2 else ("start", cx + 4)
+        out.append(f'<line x1="{cx:.1f}" y1="{top + plot_h}" x2="{cx:.1f}" y2="{top + plot_h + 19}" '
+                   f'stroke="{CROSSING_COLOUR}" stroke-width="0.6"/>')
+        # label in the free row below the date labels, clear of the ±MPE labels inside the plot
+        out.append(f'<text x="{tx:.1f}" y="{top + plot_h + 28}" text-anchor="{anchor}" fill="{CROSSING_COLOUR}">'
+                   f'predicted crossing {crossing.isoformat()}</text>')
     # legend
     ly = 14
     out.append(f'<circle cx="{left + 6}" cy="{ly - 3}" r="3.2" fill="{FOUND_COLOUR}"/>')
@@ -110,5 +170,22 @@ def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, 
     out.append(f'<text x="{left + 162}" y="{ly}">as left (worst point)</text>')
     out.append(f'<rect x="{left + 290}" y="{ly - 7}" width="12" height="8" fill="{BAND_COLOUR}" stroke="#5a8f6a" stroke-width="0.6"/>')
     out.append(f'<text x="{left + 308}" y="{ly}">±MPE</text>')
+    if extras:
+        ly2, lx = 28, left
+        entries = []
+        if trend_pts:
+            entries.append((f'stroke="{TREND_COLOUR}" stroke-width="1.4"', "drift trend", 80))
+        if bound_pts:
+            entries.append((f'stroke="{BOUND_COLOUR}" stroke-width="1.4" stroke-dasharray="1.5 2.5"',
+                            "95 % bound of |error|", 140))
+        if show_limit:
+            entries.append((f'stroke="{LIMIT_COLOUR}" stroke-width="0.7" stroke-dasharray="2 2"', "limit", 60))
+        if crossing is not None:
+            entries.append((f'stroke="{CROSSING_COLOUR}" stroke-width="1" stroke-dasharray="5 3"',
+                            "predicted crossing", 120))
+        for style, text, advance in entries:
+            out.append(f'<line x1="{lx}" y1="{ly2 - 3}" x2="{lx + 14}" y2="{ly2 - 3}" {style}/>')
+            out.append(f'<text x="{lx + 18}" y="{ly2}">{escape(text)}</text>')
+            lx += advance
     out.append("</svg>")
     return "".join(out)

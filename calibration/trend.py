@@ -1,0 +1,56 @@
+"""The drift chart of one meter: history, fitted trend, prediction bound and predicted crossing."""
+from __future__ import annotations
+
+import datetime as dt
+
+from calibration import drift
+from calibration.fleet import load_history, point_histories
+from reports.charts import drift_chart_svg
+
+
+def _worst(frame, kind):
+    values = frame[frame["kind"] == kind]["error"].dropna()
+    return None if values.empty else float(values.loc[values.abs().idxmax()])
+
+
+def meter_drift_chart(meter, horizon_days=730) -> str:
+    from plant.models import Meter
+
+    events, points = load_history(Meter.objects.filter(pk=meter.pk))
+    history = []
+    for row in events.sort_values("performed_on").itertuples():
+        frame = points[points["event_id"] == row.id]
+        found, left = _worst(frame, "as_found"), _worst(frame, "as_left")
+        history.append((row.performed_on, found, left if left is not None else found))
+    trend = bound = None
+    crossing = meter.predicted_crossing
+    histories = point_histories(events, points) if not events.empty else {}
+    nominal = _chart_nominal(meter, histories)
+    if nominal is not None:
+        result = drift.fit_drift(histories[nominal], mpe=meter.mpe_value)
+        fit, baseline = result.fit, result.baseline
+        if fit is not None and baseline is not None and result.last_day is not None:
+            t_last = result.last_day
+            end = crossing.toordinal() + 60 if crossing else t_last + horizon_days
+            days = [t_last + (end - t_last) * i / 20 for i in range(21)]
+            sign = 1.0 if (baseline + fit.slope) >= 0 else -1.0
+            trend = [(dt.date.fromordinal(int(t)), baseline + fit.slope * (t - t_last)) for t in days]
+            bound = [(dt.date.fromordinal(int(t)),
+                      sign * (abs(baseline) + abs(fit.slope) * (t - t_last) + fit.prediction_margin(t, 0.95)))
+                     for t in days]
+    unit = meter.get_mpe_basis_display()
+    return drift_chart_svg(history, meter.mpe_value, width=720, height=300, unit=unit,
+                           trend=trend, bound=bound, crossing=crossing)
+
+
+def _chart_nominal(meter, histories):
+    """The point predicted to cross first, else the point with the largest last as-found."""
+    predicted = meter.due_rationale.get("drift_point_pct")
+    if predicted in histories:
+        return predicted
+    best = None
+    for nominal, events in histories.items():
+        found = [e.as_found for e in events if e.as_found is not None]
+        if found and (best is None or abs(found[-1]) > best[1]):
+            best = (nominal, abs(found[-1]))
+    return best[0] if best else None
