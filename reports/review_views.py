@@ -1,0 +1,45 @@
+import csv
+
+from django.http import HttpResponse
+from django.shortcuts import render
+from django_tables2 import RequestConfig
+
+from reports import review
+from reports.forms import ReviewFilterForm
+
+
+def _buckets(request):
+    form = ReviewFilterForm(request.GET or None)
+    if form.is_bound and form.is_valid():
+        filters, days = form.filters(), form.cleaned_data.get("days") or 14
+    else:
+        filters, days = {}, 14
+    return form, review.build(filters, days=days), days
+
+
+def weekly_review(request):
+    form, buckets, days = _buckets(request)
+    export = request.GET.get("export")
+    if export:
+        return _csv(buckets, export)
+    shown = []
+    for bucket in buckets:
+        table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-")
+        RequestConfig(request, paginate={"per_page": 25}).configure(table)
+        shown.append((bucket, table))
+    status = 400 if form.is_bound and not form.is_valid() else 200
+    return render(request, "reports/review.html", {"form": form, "buckets": shown, "days": days}, status=status)
+
+
+def _csv(buckets, key):
+    bucket = next((b for b in buckets if b.key == key), None)
+    if bucket is None:
+        return HttpResponse(f"Unknown review list {key!r}; use one of: " + ", ".join(b.key for b in buckets),
+                            status=400, content_type="text/plain; charset=utf-8")
+    table = bucket.table_class(bucket.rows)
+    response = HttpResponse(content_type="text/csv; charset=utf-8")
+    response["Content-Disposition"] = f'attachment; filename="review_{key}.csv"'
+    writer = csv.writer(response)
+    for row in table.as_values():
+        writer.writerow(row)
+    return response

@@ -1,0 +1,84 @@
+import django_tables2 as tables
+from django.utils import timezone
+
+
+class MeterColumns(tables.Table):
+    tag = tables.Column(linkify=lambda record: record.get_absolute_url())
+    principle = tables.Column()
+    site = tables.Column(accessor="area__site__name", verbose_name="Site", order_by=("area__site__name",))
+    area = tables.Column(accessor="area__name", verbose_name="Area", order_by=("area__name",))
+    fluid = tables.Column(accessor="fluid__name", verbose_name="Fluid", order_by=("fluid__name",))
+
+    class Meta:
+        attrs = {"class": "grid"}
+        orderable = True
+
+    def render_principle(self, record):
+        return record.get_principle_display()
+
+    def value_principle(self, record):
+        return record.get_principle_display()
+
+
+class OverdueTable(MeterColumns):
+    next_due_date = tables.Column(verbose_name="Due", default="never calibrated")
+    days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue", order_by=("next_due_date",))
+
+    def render_days_overdue(self, record):
+        if record.next_due_date is None:
+            return "—"
+        return (timezone.localdate() - record.next_due_date).days
+
+    def value_days_overdue(self, record):
+        return self.render_days_overdue(record)
+
+
+class DueTable(MeterColumns):
+    next_due_date = tables.Column(verbose_name="Due")
+    last_calibrated = tables.Column(verbose_name="Last calibrated")
+
+
+class DriftingTable(MeterColumns):
+    drift_rate_per_year = tables.Column(verbose_name="Worst drift / year")
+    predicted_crossing = tables.Column(verbose_name="Predicted crossing")
+    next_due_date = tables.Column(verbose_name="Due")
+
+    def render_drift_rate_per_year(self, value, record):
+        return f"{value:+.3f} {record.get_mpe_basis_display()}"
+
+
+class FailedTable(MeterColumns):
+    last_calibrated = tables.Column(verbose_name="Last calibrated")
+    next_due_date = tables.Column(verbose_name="Due")
+
+
+class RiskTable(tables.Table):
+    tag = tables.Column(linkify=lambda record: record["meter"].get_absolute_url())
+    principle = tables.Column()
+    fluid = tables.Column()
+    area = tables.Column()
+    severity = tables.Column()
+    codes = tables.Column(verbose_name="Findings")
+    reasons = tables.Column(verbose_name="Why", orderable=False)
+
+    class Meta:
+        attrs = {"class": "grid"}
+
+
+class StandardTable(tables.Table):
+    identification = tables.Column()
+    description = tables.Column()
+    certificate_number = tables.Column()
+    due_date = tables.Column()
+
+    class Meta:
+        attrs = {"class": "grid"}
+
+
+class DraftTable(tables.Table):
+    meter = tables.Column(accessor="meter__tag", verbose_name="Tag", order_by=("meter__tag",))
+    performed_on = tables.Column(linkify=lambda record: record.get_absolute_url(), verbose_name="Date")
+    technician = tables.Column()
+
+    class Meta:
+        attrs = {"class": "grid"}

@@ -1,0 +1,127 @@
+"""Weekly review: each bucket against a hand-built fleet whose answers are known; constant query count."""
+import csv
+import datetime as dt
+import io
+
+import pytest
+from django.utils import timezone
+
+from calibration.models import CalibrationEvent, ReferenceStandard
+from plant.models import Area, Fluid, Meter, Site
+
+pytestmark = pytest.mark.django_db
+
+
+def make_meter(tag, area, fluid, principle="electromagnetic", **due):
+    meter = Meter.objects.create(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
+                                 internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
+    if due:
+        Meter.objects.filter(pk=meter.pk).update(**due)
+    return meter
+
+
+@pytest.fixture
+def fleet():
+    today = timezone.localdate()
+    site = Site.objects.create(name="Review site")
+    area = Area.objects.create(site=site, name="Hall")
+    water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
+    oil = Fluid.objects.create(name="Oil", phase="liquid", conductivity_us_cm=0.0001, viscosity_mpa_s=50,
+                               density_kg_m3=900)
+    d = dt.timedelta
+    make_meter("OVERDUE-1", area, water, next_due_date=today - d(days=10), last_calibrated=today - d(days=375))
+    make_meter("NEVER-1", area, water)  # never calibrated: overdue now
+    make_meter("DUE-1", area, water, next_due_date=today + d(days=5), last_calibrated=today - d(days=360))
+    make_meter("LATER-1", area, water, next_due_date=today + d(days=100), last_calibrated=today - d(days=200))
+    make_meter("DRIFT-1", area, water, next_due_date=today + d(days=200), predicted_crossing=today + d(days=90),
+               drift_status="drifting")
+    failed = make_meter("FAILED-1", area, water, next_due_date=today + d(days=60))
+    CalibrationEvent.objects.create(meter=failed, performed_on=today - d(days=400), technician="T", procedure="p",
+                                    state="signed", as_found_in_tolerance=True)
+    CalibrationEvent.objects.create(meter=failed, performed_on=today - d(days=30), technician="T", procedure="p",
+                                    state="signed", as_found_in_tolerance=False)
+    recovered = make_meter("RECOVERED-1", area, water, next_due_date=today + d(days=300))
+    CalibrationEvent.objects.create(meter=recovered, performed_on=today - d(days=400), technician="T", procedure="p",
+                                    state="signed", as_found_in_tolerance=False)
+    CalibrationEvent.objects.create(meter=recovered, performed_on=today - d(days=30), technician="T", procedure="p",
+                                    state="signed", as_found_in_tolerance=True)
+    make_meter("MISAPPLIED-1", area, oil, next_due_date=today + d(days=300))
+    spare = make_meter("SPARE-1", area, water, next_due_date=today - d(days=50))
+    Meter.objects.filter(pk=spare.pk).update(status="spare")
+    CalibrationEvent.objects.create(meter=make_meter("DRAFT-1", area, water, next_due_date=today + d(days=300)),
+                                    performed_on=today, technician="T", procedure="p")
+    ReferenceStandard.objects.create(identification="RS-OLD", description="expired", range_max=10,
+                                     certificate_number="X", due_date=today - d(days=1), expanded_uncertainty=0.1)
+    ReferenceStandard.objects.create(identification="RS-SOON", description="soon", range_max=10,
+                                     certificate_number="Y", due_date=today + d(days=10), expanded_uncertainty=0.1)
+    ReferenceStandard.objects.create(identification="RS-OK", description="fine", range_max=10,
+                                     certificate_number="Z", due_date=today + d(days=200), expanded_uncertainty=0.1)
+    return today
+
+
+def export(client, key, **params):
+    response = client.get("/review/", {"export": key, **params})
+    assert response.status_code == 200
+    rows = list(csv.reader(io.StringIO(response.content.decode())))
+    return rows[0], rows[1:]
+
+
+def tags(client, key, **params):
+    header, rows = export(client, key, **params)
+    return sorted(r[0] for r in rows)
+
+
+def test_buckets_hold_exactly_the_known_meters(client, fleet):
+    assert tags(client, "overdue") == ["NEVER-1", "OVERDUE-1"]  # the spare is not in service
+    assert tags(client, "due") == ["DUE-1"]
+    assert tags(client, "drifting") == ["DRIFT-1"]
+    assert tags(client, "failed") == ["FAILED-1"]  # only the latest verdict counts
+    assert tags(client, "risk") == ["MISAPPLIED-1"]
+    assert tags(client, "standards") == ["RS-OLD", "RS-SOON"]
+    header, rows = export(client, "drafts")
+    assert [r[0] for r in rows] == ["DRAFT-1"]
+
+
+def test_look_ahead_parameter(client, fleet):
+    assert tags(client, "due", days=120) == ["DUE-1", "FAILED-1", "LATER-1"]
+    assert tags(client, "standards", days=5) == ["RS-OLD"]
+
+
+def test_days_overdue_and_counts_on_page(client, fleet):
+    header, rows = export(client, "overdue")
+    overdue = {r[0]: r[header.index("Days overdue")] for r in rows}
+    assert overdue["OVERDUE-1"] == "10"
+    body = client.get("/review/").content.decode()
+    assert 'id="count-overdue">2<' in body and 'id="count-risk">1<' in body
+
+
+def test_filters_and_bad_parameters(client, fleet):
+    oil = Fluid.objects.get(name="Oil")
+    assert tags(client, "risk", fluid=oil.pk) == ["MISAPPLIED-1"]
+    assert tags(client, "overdue", fluid=oil.pk) == []
+    assert tags(client, "overdue", principle="coriolis") == []
+    response = client.get("/review/", {"days": "-3"})
+    assert response.status_code == 400 and "Look ahead at least one day." in response.content.decode()
+    assert client.get("/review/", {"export": "nope"}).status_code == 400
+
+
+def test_sortable(client, fleet):
+    body = client.get("/review/", {"overdue-sort": "-tag"}).content.decode()
+    assert body.index("OVERDUE-1") < body.index("NEVER-1")
+
+
+def _grow(n, area, fluid):
+    for i in range(n):
+        make_meter(f"EXTRA-{i}", area, fluid, next_due_date=timezone.localdate() - dt.timedelta(days=i + 1))
+
+
+def test_query_count_does_not_grow_with_fleet(client, fleet, django_assert_max_num_queries):
+    from django.db import connection
+    from django.test.utils import CaptureQueriesContext
+
+    with CaptureQueriesContext(connection) as small:
+        assert client.get("/review/").status_code == 200
+    _grow(150, Area.objects.get(), Fluid.objects.get(name="Water"))
+    with django_assert_max_num_queries(len(small.captured_queries)):
+        assert client.get("/review/").status_code == 200
+    assert len(small.captured_queries) <= 25
