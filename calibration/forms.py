@@ -119,10 +119,15 @@ PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, 
 class CalibrationEntry:
     """The whole tablet form; validates everything first, then saves in one transaction."""
 
-    def __init__(self, meter, data=None):
+    def __init__(self, meter, data=None, user=None):
+        from django.conf import settings
+
         self.meter = meter
+        self.user = user
         bound = data is not None
-        self.event_form = EventForm(data, prefix="ev") if bound else EventForm(prefix="ev", initial={"decision_rule": "simple"})
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"],
+                   "technician": (user.get_full_name() or user.username) if user else ""}
+        self.event_form = EventForm(data, prefix="ev") if bound else EventForm(prefix="ev", initial=initial)
         self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)
         self.as_left = PointGrid(data, prefix="al", meter=meter) if bound else PointGrid(prefix="al", meter=meter)
         self.non_field_errors = []
@@ -156,6 +161,7 @@ class CalibrationEntry:
     def save(self):
         event = self.event_form.save(commit=False)
         event.meter = self.meter
+        event.created_by = self.user
         event.save()
         self.event_form.save_m2m()
         standard = event.reference_standards.first()

@@ -3,7 +3,6 @@
 A signed event and its points are locked at the model level: save(), delete() and queryset
 update()/delete() on signed rows raise SignedRecordError and change nothing.
 """
-import datetime as dt
 
 from django.conf import settings
 from django.core.exceptions import ValidationError
@@ -11,6 +10,7 @@ from django.core.validators import MinValueValidator
 from django.db import models, transaction
 from django.urls import reverse
 from django.utils import timezone
+from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty
 from plant.models import Meter
@@ -36,6 +36,7 @@ class ReferenceStandard(models.Model):
         "expanded uncertainty U (k=2)", validators=[MinValueValidator(0.0, "Uncertainty cannot be negative.")]
     )
     uncertainty_basis = models.CharField(max_length=12, choices=UncertaintyBasis.choices, default=UncertaintyBasis.PERCENT_READING)
+    history = HistoricalRecords()
 
     class Meta:
         ordering = ["identification"]
@@ -122,11 +123,19 @@ class CalibrationEvent(models.Model):
     supersedes = models.OneToOneField("self", null=True, blank=True, on_delete=models.PROTECT, related_name="superseded_by")
     as_found_in_tolerance = models.BooleanField(null=True)
     as_left_in_tolerance = models.BooleanField(null=True)
+    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                   related_name="calibrations_entered")
+    history = HistoricalRecords(m2m_fields=[reference_standards])
 
     objects = LockedQuerySet.as_manager()
 
     class Meta:
         ordering = ["-performed_on", "-id"]
+        permissions = [
+            ("sign_calibration", "Can sign own calibrations"),
+            ("countersign_calibration", "Can countersign calibrations"),
+            ("view_review", "Can see the weekly review and fleet statistics"),
+        ]
 
     def __str__(self):
         return f"{self.meter.tag} {self.performed_on} ({self.get_state_display()})"
@@ -262,3 +271,21 @@ class CalibrationPoint(models.Model):
         else:
             self.expanded_uncertainty = 0.0
         self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
+
+
+class Countersignature(models.Model):
+    """A reviewer's countersignature: a separate, append-only record, so the signed event stays untouched."""
+
+    event = models.OneToOneField(CalibrationEvent, on_delete=models.PROTECT, related_name="countersignature")
+    user = models.ForeignKey(settings.AUTH_USER_MODEL, on_delete=models.PROTECT)
+    name = models.CharField(max_length=120)
+    role = models.CharField(max_length=60)
+    at = models.DateTimeField(default=timezone.now)
+
+    def save(self, *args, **kwargs):
+        if self.pk:
+            raise SignedRecordError("A countersignature cannot be changed.")
+        super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        raise SignedRecordError("A countersignature cannot be deleted.")

@@ -6,4 +6,5 @@ app_name = "calibration"
 urlpatterns = [
     path("<int:pk>/", views.event_detail, name="event-detail"),
     path("<int:pk>/sign/", views.sign_event, name="event-sign"),
+    path("<int:pk>/countersign/", views.countersign_event, name="event-countersign"),
 ]

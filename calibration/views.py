@@ -1,16 +1,25 @@
-from django.core.exceptions import ValidationError
+from django.contrib.auth.decorators import permission_required
+from django.core.exceptions import PermissionDenied, ValidationError
+from django.db import IntegrityError, transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
 from calibration import errors, uncertainty
 from calibration.forms import CalibrationEntry
-from calibration.models import CalibrationEvent, CalibrationPoint, SignedRecordError
+from calibration.models import (
+    CalibrationEvent,
+    CalibrationPoint,
+    Countersignature,
+    SignedRecordError,
+)
 from plant.models import Meter
+from plant.roles import role_of
 
 
+@permission_required("calibration.add_calibrationevent", raise_exception=True)
 def new_calibration(request, tag):
     meter = get_object_or_404(Meter.objects.select_related("area__site", "fluid"), tag=tag)
-    entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None)
+    entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None, user=request.user)
     if request.method == "POST" and entry.is_valid():
         event = entry.save()
         return redirect(event)
@@ -35,6 +44,7 @@ def _result_rows(event, points, standard):
     return rows
 
 
+@permission_required("calibration.view_calibrationevent", raise_exception=True)
 def event_detail(request, pk, sign_error=None):
     event = get_object_or_404(
         CalibrationEvent.objects.select_related("meter__area__site", "meter__fluid", "supersedes"), pk=pk
@@ -49,19 +59,49 @@ def event_detail(request, pk, sign_error=None):
         "standards": standards,
         "problems": [] if event.is_signed else event.problems(),
         "sign_error": sign_error,
+        "can_sign": _can_sign(request.user, event),
+        "can_countersign": _can_countersign(request.user, event),
     }, status=400 if sign_error else 200)
 
 
+def _can_sign(user, event):
+    return (not event.is_signed and user.has_perm("calibration.sign_calibration")
+            and event.created_by_id == user.pk)
+
+
+def _can_countersign(user, event):
+    return (event.is_signed and user.has_perm("calibration.countersign_calibration")
+            and event.created_by_id != user.pk and not hasattr(event, "countersignature"))
+
+
 @require_POST
+@permission_required("calibration.sign_calibration", raise_exception=True)
 def sign_event(request, pk):
     event = get_object_or_404(CalibrationEvent, pk=pk)
-    signer = request.POST.get("signed_by", "").strip()
-    if not signer:
-        return event_detail(request, pk, sign_error="Enter the signatory's name.")
+    if event.created_by_id != request.user.pk:
+        raise PermissionDenied("Only the technician who entered a calibration can sign it.")
     try:
-        event.sign(by=signer, role=request.POST.get("signed_role", "").strip() or "Technician")
+        event.sign(by=request.user.get_full_name() or request.user.username, role=role_of(request.user) or "Technician")
     except ValidationError as exc:
         return event_detail(request, pk, sign_error=" ".join(exc.messages))
     except SignedRecordError as exc:
         return event_detail(request, pk, sign_error=str(exc))
+    return redirect(event)
+
+
+@require_POST
+@permission_required("calibration.countersign_calibration", raise_exception=True)
+def countersign_event(request, pk):
+    event = get_object_or_404(CalibrationEvent, pk=pk)
+    if not event.is_signed:
+        return event_detail(request, pk, sign_error="Only a signed calibration can be countersigned.")
+    if event.created_by_id == request.user.pk:
+        raise PermissionDenied("A calibration cannot be countersigned by the person who entered it.")
+    try:
+        with transaction.atomic():
+            Countersignature.objects.create(event=event, user=request.user,
+                                            name=request.user.get_full_name() or request.user.username,
+                                            role=role_of(request.user) or "Reviewer")
+    except IntegrityError:
+        return event_detail(request, pk, sign_error="This calibration is already countersigned.")
     return redirect(event)

@@ -3,6 +3,7 @@ from django.core.exceptions import ValidationError
 from django.core.validators import MinValueValidator
 from django.db import models, transaction
 from django.urls import reverse
+from simple_history.models import HistoricalRecords
 
 from plant import risk
 
@@ -61,6 +62,7 @@ class Fluid(models.Model):
         validators=[MinValueValidator(-273.15, "Temperature is below absolute zero.")],
     )
     notes = models.TextField(blank=True)
+    history = HistoricalRecords()
 
     class Meta:
         ordering = ["name"]
@@ -146,6 +148,8 @@ class Meter(models.Model):
     drift_status = models.CharField(max_length=20, blank=True, editable=False)
     drift_rate_per_year = models.FloatField(null=True, blank=True, editable=False)
     predicted_crossing = models.DateField(null=True, blank=True, editable=False)
+    history = HistoricalRecords(excluded_fields=["last_calibrated", "next_due_date", "due_rationale", "drift_status",
+                                                 "drift_rate_per_year", "predicted_crossing"])
 
     class Meta:
         ordering = ["tag"]

@@ -23,6 +23,7 @@ INSTALLED_APPS = [
     "django.contrib.staticfiles",
     "django_tables2",
     "django_filters",
+    "simple_history",
     "plant",
     "calibration",
     "reports",
@@ -35,6 +36,8 @@ MIDDLEWARE = [
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
     "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "django.contrib.auth.middleware.LoginRequiredMiddleware",
+    "simple_history.middleware.HistoryRequestMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
 ]
@@ -73,6 +76,10 @@ USE_TZ = True
 STATIC_URL = "static/"
 STATIC_ROOT = BASE_DIR / "staticfiles"
 STATICFILES_DIRS = [BASE_DIR / "static"]
+LOGIN_URL = "/accounts/login/"
+LOGIN_REDIRECT_URL = "/meters/"
+LOGOUT_REDIRECT_URL = "/accounts/login/"
+
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
 DJANGO_TABLES2_TEMPLATE = "django_tables2/table.html"

@@ -19,5 +19,6 @@ urlpatterns = [
     path("meters/", include(plant_patterns)),
     path("calibrations/", include("calibration.urls")),
     path("", include("reports.urls")),
+    path("accounts/", include("django.contrib.auth.urls")),
     path("admin/", admin.site.urls),
 ]

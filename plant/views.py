@@ -1,3 +1,4 @@
+from django.contrib.auth.decorators import permission_required
 from django.shortcuts import get_object_or_404, render
 from django_tables2 import RequestConfig
 
@@ -8,6 +9,7 @@ from plant.models import Meter
 from plant.tables import MeterTable
 
 
+@permission_required("plant.view_meter", raise_exception=True)
 def meter_list(request):
     queryset = Meter.objects.select_related("area__site", "fluid")
     meter_filter = MeterFilter(request.GET, queryset=queryset)
@@ -16,6 +18,7 @@ def meter_list(request):
     return render(request, "plant/meter_list.html", {"filter": meter_filter, "table": table})
 
 
+@permission_required("plant.view_meter", raise_exception=True)
 def meter_detail(request, tag):
     meter = get_object_or_404(Meter.objects.select_related("area__site", "fluid"), tag=tag)
     findings = meter.findings()
@@ -31,4 +34,20 @@ def meter_detail(request, tag):
         "rationale": rationale_text(meter.due_rationale).splitlines(),
         "drift_chart": meter_drift_chart(meter),
         "calibrations": meter.calibrations.all()[:20],
+        "audit": _audit_rows(meter),
     })
+
+
+def _audit_rows(meter, limit=30):
+    """Who changed what on this meter and its current fluid, newest first, with old and new values."""
+    rows = []
+    for label, records in (("meter", meter.history.select_related("history_user")[:limit]),
+                           (f"fluid {meter.fluid.name}", meter.fluid.history.select_related("history_user")[:limit])):
+        records = list(records)
+        for newer, older in zip(records, records[1:] + [None]):
+            changes = []
+            if older is not None:
+                changes = [(c.field, c.old, c.new) for c in newer.diff_against(older).changes]
+            rows.append({"what": label, "when": newer.history_date, "who": newer.history_user or "system",
+                         "kind": newer.get_history_type_display(), "changes": changes})
+    return sorted(rows, key=lambda r: r["when"], reverse=True)[:limit]

@@ -1,5 +1,6 @@
 import csv
 
+from django.contrib.auth.decorators import permission_required
 from django.http import HttpResponse
 from django.shortcuts import render
 from django_tables2 import RequestConfig
@@ -17,6 +18,7 @@ def _buckets(request):
     return form, review.build(filters, days=days), days
 
 
+@permission_required("calibration.view_review", raise_exception=True)
 def weekly_review(request):
     form, buckets, days = _buckets(request)
     export = request.GET.get("export")

@@ -3,6 +3,7 @@ import io
 
 import pandas as pd
 from django import forms
+from django.contrib.auth.decorators import permission_required
 from django.http import HttpResponse
 from django.shortcuts import render
 from django.utils import timezone
@@ -42,6 +43,7 @@ def _rows(table):
             for row in table.to_dict("records")]
 
 
+@permission_required("calibration.view_review", raise_exception=True)
 def fleet_stats(request):
     form, by_principle, by_fluid, today = _statistics(request)
     query = request.GET.urlencode()
@@ -59,6 +61,7 @@ def fleet_stats(request):
     }, status=400 if form.is_bound and not form.is_valid() else 200)
 
 
+@permission_required("calibration.view_review", raise_exception=True)
 def fleet_stats_csv(request):
     by = request.GET.get("by", "principle") or "principle"
     if by not in SHEETS:
@@ -73,6 +76,7 @@ def fleet_stats_csv(request):
     return response
 
 
+@permission_required("calibration.view_review", raise_exception=True)
 def fleet_stats_xlsx(request):
     form, by_principle, by_fluid, today = _statistics(request)
     if form.is_bound and not form.is_valid():

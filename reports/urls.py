@@ -1,10 +1,13 @@
 from django.urls import path
 
-from reports import review_views, views
+from reports import review_views, stats_views, views
 
 app_name = "reports"
 urlpatterns = [
     path("review/", review_views.weekly_review, name="review"),
+    path("stats/", stats_views.fleet_stats, name="stats"),
+    path("stats.csv", stats_views.fleet_stats_csv, name="stats-csv"),
+    path("stats.xlsx", stats_views.fleet_stats_xlsx, name="stats-xlsx"),
     path("calibrations/<int:pk>/certificate.pdf", views.certificate_pdf, name="certificate"),
     path("certificates.zip", views.certificates_zip, name="certificates-zip"),
 ]

@@ -2,11 +2,13 @@
 import datetime as dt
 import re
 
+from django.contrib.auth.decorators import permission_required
 from django.http import Http404, HttpResponse, HttpResponseBadRequest
 
 from reports import certificate
 
 
+@permission_required("calibration.view_calibrationevent", raise_exception=True)
 def certificate_pdf(request, pk):
     event = certificate.load_event(pk)
     if event is None:
@@ -32,6 +34,7 @@ def _date_param(request, name):
         raise ValueError(f"'{name}' must be a real date written YYYY-MM-DD; got {raw!r}.") from None
 
 
+@permission_required("calibration.view_calibrationevent", raise_exception=True)
 def certificates_zip(request):
     try:
         start = _date_param(request, "start")

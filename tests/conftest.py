@@ -1,5 +1,7 @@
 import pytest
+from django.contrib.auth.models import Group, User
 from django.core.management import call_command
+from django.test import Client
 
 
 @pytest.fixture
@@ -10,3 +12,22 @@ def demo_plant(db):
 @pytest.fixture
 def demo_history(demo_plant):
     call_command("loaddata", "fixtures/demo_history.json", verbosity=0)
+
+
+def user_with_role(role, username=None):
+    user = User.objects.create_user(username or role, password="pw", first_name=role.capitalize(), last_name="Tester")
+    user.groups.add(Group.objects.get(name=role))
+    return user
+
+
+@pytest.fixture
+def admin_user(db):
+    return user_with_role("administrator", "admin-tester")
+
+
+@pytest.fixture
+def client(admin_user):
+    """Most page tests act as an administrator; the permission matrix uses each role."""
+    c = Client()
+    c.force_login(admin_user)
+    return c

@@ -68,7 +68,22 @@ def enter(client, meter, standard, **kwargs):
     return CalibrationEvent.objects.exclude(pk__in=before).get()
 
 
-def sign(client, event, at, monkeypatch, by="B. Signatory", role="Workshop supervisor"):
+@pytest.fixture
+def client(db):
+    """The signatory is the logged-in technician who entered the calibration."""
+    from django.test import Client
+
+    from tests.conftest import user_with_role
+
+    user = user_with_role("technician", "b-signatory")
+    user.first_name, user.last_name = "B.", "Signatory"
+    user.save()
+    c = Client()
+    c.force_login(user)
+    return c
+
+
+def sign(client, event, at, monkeypatch, by="B. Signatory", role="Technician"):
     with monkeypatch.context() as m:
         m.setattr(timezone, "now", lambda: at)
         response = client.post(f"/calibrations/{event.pk}/sign/", {"signed_by": by, "signed_role": role})
@@ -149,7 +164,7 @@ def test_certificate_contains_every_required_element(client, signed_event, stand
     # traceability: reference standard, its certificate number and due date
     assert has(text, "RS-7") and has(text, standard.certificate_number, "2027-06-01")
     # signatory
-    assert has(text, "Authorised by", "B. Signatory") and has(text, "Role", "Workshop supervisor")
+    assert has(text, "Authorised by", "B. Signatory") and has(text, "Role", "Technician")
     assert has(text, "Signed", "2026-11-23")
     assert "Drift history of FT-101" in text
     assert "supersedes" not in text
@@ -185,7 +200,7 @@ def test_out_of_tolerance_guarded_and_no_adjustment(client, meter, standard, mon
 def test_correction_says_what_it_supersedes(client, meter, standard, signed_event, monkeypatch):
     correction = CalibrationEvent.objects.create(
         meter=meter, performed_on=TODAY, technician="A. Fieldtech", procedure="Re-entry of WI-CAL-07 results",
-        supersedes=signed_event,
+        supersedes=signed_event, created_by=signed_event.created_by,
     )
     correction.reference_standards.add(standard)
     for i, (ref, ind) in enumerate(FOUND):

@@ -5,29 +5,13 @@ import math
 
 import pandas as pd
 import pytest
-from django.urls import include, path
 from django.utils import timezone
 
-import plant.urls
-import reports.urls
 from calibration.models import CalibrationEvent
 from plant.models import Area, Fluid, Meter, Site
-from reports import stats, stats_views
+from reports import stats
 
-# Use the project's URLs; add the stats routes under "reports:" until reports/urls.py carries them.
-_names = {getattr(p, "name", None) for p in reports.urls.urlpatterns}
-if {"stats", "stats-csv", "stats-xlsx"} <= _names:
-    urlpatterns = plant.urls.urlpatterns
-else:
-    _reports = list(reports.urls.urlpatterns) + [
-        path("stats/", stats_views.fleet_stats, name="stats"),
-        path("stats.csv", stats_views.fleet_stats_csv, name="stats-csv"),
-        path("stats.xlsx", stats_views.fleet_stats_xlsx, name="stats-xlsx"),
-    ]
-    urlpatterns = [p for p in plant.urls.urlpatterns if getattr(p, "urlconf_name", None) is not reports.urls]
-    urlpatterns.append(path("", include((_reports, "reports"))))
-
-pytestmark = [pytest.mark.django_db, pytest.mark.urls(__name__)]
+pytestmark = pytest.mark.django_db
 
 TODAY = timezone.localdate()
 
