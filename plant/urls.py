@@ -3,11 +3,14 @@ from django.urls import include, path
 from django.views.generic import RedirectView
 
 from calibration import views as calibration_views
-from plant import views
+from plant import import_views, views
 
 plant_patterns = (
     [
         path("", views.meter_list, name="meter-list"),
+        path("import/", import_views.import_register, name="import"),
+        path("export.csv", import_views.export_register_csv, name="export-csv"),
+        path("export.xlsx", import_views.export_register_xlsx, name="export-xlsx"),
         path("<str:tag>/", views.meter_detail, name="meter-detail"),
         path("<str:tag>/calibrate/", calibration_views.new_calibration, name="meter-calibrate"),
     ],

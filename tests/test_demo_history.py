@@ -2,7 +2,7 @@
 import datetime as dt
 
 import pytest
-from django.db.models import Count, Max, Min
+from django.db.models import Count, Min
 
 from calibration.forms import EventForm
 from calibration.models import CalibrationEvent, SignedRecordError

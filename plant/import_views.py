@@ -1,0 +1,104 @@
+"""Bulk import (dry run, then apply) and export of the register as CSV / XLSX."""
+import base64
+import binascii
+import logging
+
+from django import forms
+from django.contrib.auth.decorators import permission_required
+from django.http import HttpResponse, HttpResponseBadRequest
+from django.shortcuts import render
+from django.views.decorators.http import require_GET, require_http_methods
+
+from plant import importer
+
+logger = logging.getLogger(__name__)
+
+KIND_CHOICES = [("meters", "Meters"), ("fluids", "Fluids (service duties)")]
+XLSX_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+
+
+class ImportForm(forms.Form):
+    kind = forms.ChoiceField(choices=KIND_CHOICES, initial="meters", label="Register")
+    file = forms.FileField(required=False, label="CSV or Excel (.xlsx) file")
+    dry_run = forms.BooleanField(required=False, initial=True, label="Dry run — check only, save nothing")
+    # after a clean dry run the page offers "Apply" without uploading again: the file travels back in these
+    payload = forms.CharField(required=False, widget=forms.HiddenInput)
+    filename = forms.CharField(required=False, widget=forms.HiddenInput)
+
+    def clean(self):
+        cleaned = super().clean()
+        upload = cleaned.get("file")
+        if upload:
+            cleaned["content"], cleaned["filename"] = upload.read(), upload.name
+        elif cleaned.get("payload"):
+            try:
+                cleaned["content"] = base64.b64decode(cleaned["payload"], validate=True)
+            except (binascii.Error, ValueError):
+                raise forms.ValidationError("The checked file could not be recovered; please upload it again.")
+        else:
+            self.add_error("file", "Choose a file to import.")
+        return cleaned
+
+
+@require_http_methods(["GET", "POST"])
+@permission_required(["plant.add_meter", "plant.change_meter", "plant.add_fluid", "plant.change_fluid"], raise_exception=True)
+def import_register(request):
+    if request.method == "GET":
+        return render(request, "plant/import.html", {"form": ImportForm()})
+
+    form = ImportForm(request.POST, request.FILES)
+    if not form.is_valid():
+        return render(request, "plant/import.html", {"form": form}, status=400)
+    kind, dry_run = form.cleaned_data["kind"], form.cleaned_data["dry_run"]
+    content, filename = form.cleaned_data["content"], form.cleaned_data["filename"]
+    context = {"form": form, "kind": kind, "dry_run": dry_run, "filename": filename}
+    try:
+        rows = importer.read_table(content, filename)
+    except importer.ImportFileError as exc:
+        context["file_error"] = str(exc)
+        return render(request, "plant/import.html", context, status=400)
+
+    plan = importer.plan_import(kind, rows)
+    if not dry_run and plan.ok:
+        try:
+            plan = importer.apply_import(plan)
+        except Exception as exc:  # the transaction has rolled back; say so rather than show a bare 500
+            logger.exception("Register import of %s failed and was rolled back", filename)
+            context.update(plan=plan, apply_failed=str(exc) or exc.__class__.__name__)
+            return render(request, "plant/import.html", context, status=500)
+    context["plan"] = plan
+    if plan.ok and dry_run and plan.changed_rows:
+        context["apply_form"] = ImportForm(initial={
+            "kind": kind, "dry_run": False, "filename": filename,
+            "payload": base64.b64encode(content).decode("ascii"),
+        })
+    return render(request, "plant/import.html", context, status=200 if plan.ok else 400)
+
+
+def _kind(request):
+    kind = request.GET.get("kind", "meters")
+    return kind if kind in importer.KINDS else None
+
+
+@require_GET
+@permission_required("plant.view_meter", raise_exception=True)
+def export_register_csv(request):
+    kind = _kind(request)
+    if kind is None:
+        return HttpResponseBadRequest("kind must be meters or fluids")
+    # BOM so Excel opens the UTF-8 file with m³/h and µS/cm intact
+    body = "\ufeff" + importer.export_rows(kind).to_csv(index=False, lineterminator="\r\n")
+    response = HttpResponse(body.encode("utf-8"), content_type="text/csv; charset=utf-8")
+    response["Content-Disposition"] = f'attachment; filename="{kind}-register.csv"'
+    return response
+
+
+@require_GET
+@permission_required("plant.view_meter", raise_exception=True)
+def export_register_xlsx(request):
+    kind = _kind(request)
+    if kind is None:
+        return HttpResponseBadRequest("kind must be meters or fluids")
+    response = HttpResponse(importer.export_xlsx_bytes(kind), content_type=XLSX_TYPE)
+    response["Content-Disposition"] = f'attachment; filename="{kind}-register.xlsx"'
+    return response
