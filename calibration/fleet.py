@@ -48,7 +48,9 @@ def interval_observations(events: pd.DataFrame):
     ordered = events.sort_values(["meter_id", "performed_on"])
     previous = ordered.groupby("meter_id")["performed_on"].shift()
     elapsed = (pd.to_datetime(ordered["performed_on"]) - pd.to_datetime(previous)).dt.days
-    return ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "as_found_in_tolerance"])
+    observed = ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "as_found_in_tolerance"])
+    # a second calibration on the same day is a repeat, not an interval
+    return observed[observed["elapsed"] > 0]
 
 
 def point_histories(meter_events: pd.DataFrame, meter_points: pd.DataFrame):

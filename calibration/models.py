@@ -196,9 +196,14 @@ class CalibrationEvent(models.Model):
     def sign(self, by, role="Technician", at=None):
         """Lock the event after checking it; one signer wins when two sign at once."""
         with transaction.atomic():
+            # Claim the draft with a conditional write first: it takes the row lock (PostgreSQL) or the
+            # database write lock (SQLite) before anything is read, so a second signer waits, then finds
+            # nothing left to claim.
+            claimed = CalibrationEvent.objects.filter(pk=self.pk, state=self.State.DRAFT).update(signed_by=by)
+            if not claimed:
+                current = CalibrationEvent.objects.filter(pk=self.pk).values_list("signed_by", flat=True).first()
+                raise SignedRecordError(f"Calibration {self.pk} is already signed by {current}.")
             fresh = CalibrationEvent.objects.select_for_update().get(pk=self.pk)
-            if fresh.is_signed:
-                raise SignedRecordError(f"Calibration {self.pk} is already signed by {fresh.signed_by}.")
             problems = fresh.problems()
             if problems:
                 raise ValidationError(problems)

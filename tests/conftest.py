@@ -17,6 +17,9 @@ def demo_history(demo_plant):
 def user_with_role(role, username=None):
     user = User.objects.create_user(username or role, password="pw", first_name=role.capitalize(), last_name="Tester")
     user.groups.add(Group.objects.get(name=role))
+    if role == "administrator":
+        user.is_staff = True
+        user.save()
     return user
 
 

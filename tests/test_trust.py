@@ -1,0 +1,198 @@
+"""Accounts and roles, CSRF, concurrent sign-off, audit trail, backup/restore, production settings."""
+import datetime as dt
+import os
+import subprocess
+import sys
+import threading
+
+import pytest
+from django.core import serializers
+from django.core.management import call_command
+from django.db import OperationalError, connection
+from django.test import Client
+
+from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard, SignedRecordError
+from plant.models import Area, Fluid, Meter, Site
+from tests.conftest import user_with_role
+from tests.test_calibration_records import entry_data
+
+pytestmark = pytest.mark.django_db
+
+
+@pytest.fixture
+def world(db):
+    site = Site.objects.create(name="Trust site")
+    area = Area.objects.create(site=site, name="Hall")
+    water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
+    meter = Meter.objects.create(tag="FT-T1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+                                 internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
+    standard = ReferenceStandard.objects.create(identification="RS-T", description="ref", range_max=50,
+                                                certificate_number="C-T", due_date=dt.date(2099, 1, 1),
+                                                expanded_uncertainty=0.1)
+    users = {role: user_with_role(role) for role in ("technician", "reviewer", "administrator")}
+    users["technician2"] = user_with_role("technician", "technician2")
+    from django.contrib.auth.models import User
+
+    users["norole"] = User.objects.create_user("norole", password="pw")
+    clients = {"anonymous": Client()}
+    for name, user in users.items():
+        clients[name] = Client()
+        clients[name].force_login(user)
+    clients["technician"].post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    draft = CalibrationEvent.objects.get()
+    clients["technician"].post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    signed = CalibrationEvent.objects.exclude(pk=draft.pk).get()
+    assert clients["technician"].post(f"/calibrations/{signed.pk}/sign/").status_code == 302
+    return {"meter": meter, "standard": standard, "users": users, "clients": clients, "draft": draft, "signed": signed}
+
+
+ROLES = ["anonymous", "norole", "technician", "reviewer", "administrator"]
+# (name, method, url template, expected status per role in ROLES order); 302 for anonymous = sent to log in
+MATRIX = [
+    ("meter list", "get", "/meters/", [302, 403, 200, 200, 200]),
+    ("meter page", "get", "/meters/FT-T1/", [302, 403, 200, 200, 200]),
+    ("calibration entry", "get", "/meters/FT-T1/calibrate/", [302, 403, 200, 403, 200]),
+    ("calibration page", "get", "/calibrations/{signed}/", [302, 403, 200, 200, 200]),
+    ("certificate", "get", "/calibrations/{signed}/certificate.pdf", [302, 403, 200, 200, 200]),
+    ("certificate zip", "get", "/certificates.zip?start=2020-01-01&end=2099-01-01", [302, 403, 200, 200, 200]),
+    ("weekly review", "get", "/review/", [302, 403, 403, 200, 200]),
+    ("statistics", "get", "/stats/", [302, 403, 403, 200, 200]),
+    ("statistics csv", "get", "/stats.csv", [302, 403, 403, 200, 200]),
+    ("import page", "get", "/meters/import/", [302, 403, 403, 200, 200]),
+    ("register export", "get", "/meters/export.csv?kind=meters", [302, 403, 200, 200, 200]),
+    ("admin site", "get", "/admin/", [302, 302, 302, 302, 200]),
+    ("countersign", "post", "/calibrations/{signed}/countersign/", [302, 403, 403, 302, None]),
+    # the technician entered the draft and may sign it; the administrator, not its author, may not
+    ("sign a technician's draft", "post", "/calibrations/{draft}/sign/", [302, 403, 302, 403, 403]),
+]
+
+
+@pytest.mark.parametrize("name,method,url,expected", MATRIX, ids=[m[0] for m in MATRIX])
+def test_permission_matrix(world, name, method, url, expected):
+    url = url.format(signed=world["signed"].pk, draft=world["draft"].pk)
+    for role, status in zip(ROLES, expected):
+        if status is None:
+            continue
+        response = getattr(world["clients"][role], method)(url)
+        assert response.status_code == status, f"{name} as {role}: {response.status_code}, expected {status}"
+        if role == "anonymous":
+            assert "/login/" in response["Location"]
+
+
+def test_only_the_author_signs_and_countersign_is_separate(world):
+    draft = world["draft"]
+    assert world["clients"]["technician2"].post(f"/calibrations/{draft.pk}/sign/").status_code == 403
+    assert not CalibrationEvent.objects.get(pk=draft.pk).is_signed
+    assert world["clients"]["technician"].post(f"/calibrations/{draft.pk}/sign/").status_code == 302
+    signed = CalibrationEvent.objects.get(pk=world["signed"].pk)
+    assert world["clients"]["reviewer"].post(f"/calibrations/{signed.pk}/countersign/").status_code == 302
+    counter = Countersignature.objects.get(event=signed)
+    assert counter.user == world["users"]["reviewer"] and counter.role == "Reviewer"
+    # the signed event itself is untouched by the countersignature
+    assert CalibrationEvent.objects.get(pk=signed.pk).signed_by == signed.signed_by
+    with pytest.raises(SignedRecordError):
+        counter.delete()
+
+
+def test_csrf_enforced_on_every_form(world):
+    strict = Client(enforce_csrf_checks=True)
+    strict.force_login(world["users"]["administrator"])
+    posts = [
+        f"/meters/{world['meter'].tag}/calibrate/",
+        f"/calibrations/{world['draft'].pk}/sign/",
+        f"/calibrations/{world['signed'].pk}/countersign/",
+        "/meters/import/",
+        "/accounts/logout/",
+        f"/admin/plant/meter/{world['meter'].pk}/change/",
+    ]
+    for url in posts:
+        assert strict.post(url, {}).status_code == 403, url
+    assert Client(enforce_csrf_checks=True).post("/accounts/login/", {"username": "x", "password": "y"}).status_code == 403
+    page = world["clients"]["technician"].get(f"/meters/{world['meter'].tag}/calibrate/").content.decode()
+    assert 'name="csrfmiddlewaretoken"' in page
+
+
+@pytest.mark.django_db(transaction=True)
+def test_two_sessions_signing_at_once_exactly_one_wins(world):
+    event = world["draft"]
+    barrier = threading.Barrier(2)
+    outcomes = []
+
+    def sign(name):
+        try:
+            barrier.wait()
+            CalibrationEvent.objects.get(pk=event.pk).sign(by=name)
+            outcomes.append(("signed", name))
+        except SignedRecordError:
+            outcomes.append(("refused", name))
+        except OperationalError as exc:  # SQLite may refuse the second writer outright ("locked")
+            assert "locked" in str(exc)
+            outcomes.append(("refused", name))
+        finally:
+            connection.close()
+
+    threads = [threading.Thread(target=sign, args=(n,)) for n in ("first", "second")]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    assert sorted(kind for kind, _ in outcomes) == ["refused", "signed"]
+    winner = next(name for kind, name in outcomes if kind == "signed")
+    assert CalibrationEvent.objects.get(pk=event.pk).signed_by == winner
+
+
+def test_audit_trail_records_who_and_what(world):
+    client = world["clients"]["administrator"]
+    meter = world["meter"]
+    data = {f.name: getattr(meter, f.attname) for f in Meter._meta.concrete_fields if f.editable and f.name != "id"}
+    data.update(area=meter.area_id, fluid=meter.fluid_id, mpe_value=0.75)
+    response = client.post(f"/admin/plant/meter/{meter.pk}/change/",
+                           {**{k: ("" if v is None else v) for k, v in data.items()},
+                            "duties-TOTAL_FORMS": 1, "duties-INITIAL_FORMS": 1,
+                            "duties-0-id": meter.duties.get().pk, "duties-0-meter": meter.pk,
+                            "duties-0-area": meter.area_id, "duties-0-fluid": meter.fluid_id,
+                            "duties-0-since": meter.duties.get().since})
+    assert response.status_code == 302, response.content.decode()[:3000]
+    latest = meter.history.first()
+    assert latest.history_user == world["users"]["administrator"]
+    change = latest.diff_against(latest.prev_record).changes
+    assert [(c.field, c.old, c.new) for c in change] == [("mpe_value", 0.5, 0.75)]
+    page = client.get(f"/meters/{meter.tag}/").content.decode()
+    assert "mpe_value: 0.5 → 0.75" in page and "Administrator Tester" in page
+    signed = world["signed"]
+    assert signed.history.filter(state="signed").exists()
+
+
+def snapshot():
+    models = [Site, Area, Fluid, Meter, ReferenceStandard, CalibrationEvent, CalibrationPoint, Countersignature,
+              Meter.history.model, CalibrationEvent.history.model]
+    return {m.__name__: serializers.serialize("json", m._base_manager.order_by("pk")) for m in models}
+
+
+def test_backup_restored_into_empty_database_is_identical(world, tmp_path):
+    world["clients"]["reviewer"].post(f"/calibrations/{world['signed'].pk}/countersign/")
+    before = snapshot()
+    path = tmp_path / "backup.json"
+    call_command("backup", str(path))
+    call_command("flush", interactive=False, verbosity=0)
+    assert Meter.objects.count() == 0 and CalibrationEvent.objects.count() == 0
+    call_command("restore", str(path))
+    after = snapshot()
+    for name in before:
+        assert after[name] == before[name], name
+    assert CalibrationEvent.objects.get(pk=world["signed"].pk).is_signed
+    with pytest.raises(Exception, match="not empty"):
+        call_command("restore", str(path))
+
+
+def test_production_settings_pass_deploy_check():
+    env = {**os.environ, "DJANGO_SETTINGS_MODULE": "plant.settings_production",
+           "DJANGO_SECRET_KEY": "k" * 20 + "-production-test-secret-with-enough-length-0123456789",
+           "DJANGO_ALLOWED_HOSTS": "cal.example.internal"}
+    result = subprocess.run([sys.executable, "manage.py", "check", "--deploy", "--fail-level", "WARNING"],
+                            capture_output=True, text=True, env=env)
+    assert result.returncode == 0, result.stdout + result.stderr
+    assert "no issues" in result.stdout
+    env.pop("DJANGO_SECRET_KEY")
+    result = subprocess.run([sys.executable, "manage.py", "check"], capture_output=True, text=True, env=env)
+    assert result.returncode != 0 and "DJANGO_SECRET_KEY" in result.stderr
