@@ -256,6 +256,13 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
                      "as-left chain; at least 3 are needed to estimate drift."),
             **common)
 
+    if min(series.days) == max(series.days):
+        return DriftResult(
+            slope_per_day=None, se_slope=None, p_value=None, significant=False,
+            status="insufficient",
+            message="Every usable calibration is on the same day; a drift rate needs time between them.",
+            **common)
+
     fit = linear_fit(series.days, series.cumulative)
     significant = fit.p_slope < alpha
     rate = fit.slope

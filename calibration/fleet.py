@@ -1,7 +1,10 @@
-"""Recompute next due dates for many meters from bulk queries (no per-meter query).
+"""Recompute next due dates for many meters from bulk queries and vectorised math.
 
-Reads meters, signed events and their points in three queries, groups them with pandas, and applies
-the pure functions of calibration/drift.py, calibration/intervals.py and calibration/due.py.
+Three reads (meters, signed events, their points) whatever the fleet size; drift fits and crossing
+predictions for every (meter, nominal point) series at once (calibration/drift_fleet.py); one
+reliability fit per group of like meters (calibration/intervals.py); the pure due-date rule per meter
+(calibration/due.py); one batched write. The same rules as the per-meter path of the meter page,
+which the benchmark keeps as its baseline and the tests compare with this one.
 """
 from __future__ import annotations
 
@@ -9,21 +12,31 @@ import datetime as dt
 import math
 from collections import defaultdict
 
+import numpy as np
 import pandas as pd
 from django.conf import settings
-from django.db import transaction
+from django.db import connections, transaction
+from django.db.models import Avg, Case, Q, Value, When
+from django.db.models.functions import Coalesce
 
-from calibration import drift, due, intervals
+from calibration import drift, drift_fleet, due, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint
+from plant.models import Fluid, Meter
 
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
                   "predicted_crossing"]
+# what the due-date rule reads of a meter (risk inputs, interval, MPE); the rest is not loaded
+METER_INPUTS = ["id", "principle", "fluid", "wetted_material", "internal_diameter_mm", "flow_units", "normal_flow",
+                "min_flow", "mpe_value", "base_interval_days"]
+STATUS_PRECEDENCE = ("out_of_tolerance", "drifting", "improving", "flat", "insufficient")
+_UNIX_EPOCH_ORDINAL = dt.date(1970, 1, 1).toordinal()
 
 
 def policy():
     return settings.CALIBRATION
 
 
+# Per-meter reads, for one meter's page and chart ---------------------------------------------------
 def load_history(meters_qs):
     """Signed, not superseded events and their points for the meters, as two DataFrames."""
     events = pd.DataFrame.from_records(
@@ -35,22 +48,11 @@ def load_history(meters_qs):
     points = pd.DataFrame.from_records(
         CalibrationPoint.objects.filter(event__meter__in=meters_qs, event__state=CalibrationEvent.State.SIGNED,
                                         event__superseded_by__isnull=True)
+        .order_by("event_id", "kind", "nominal_pct", "id")
         .values("event_id", "kind", "nominal_pct", "error", "expanded_uncertainty"),
         columns=["event_id", "kind", "nominal_pct", "error", "expanded_uncertainty"],
     )
     return events, points
-
-
-def interval_observations(events: pd.DataFrame):
-    """(days since previous calibration, as-found in tolerance) per event after each meter's first."""
-    if events.empty:
-        return events.assign(elapsed=[])
-    ordered = events.sort_values(["meter_id", "performed_on"])
-    previous = ordered.groupby("meter_id")["performed_on"].shift()
-    elapsed = (pd.to_datetime(ordered["performed_on"]) - pd.to_datetime(previous)).dt.days
-    observed = ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "as_found_in_tolerance"])
-    # a second calibration on the same day is a repeat, not an interval
-    return observed[observed["elapsed"] > 0]
 
 
 def point_histories(meter_events: pd.DataFrame, meter_points: pd.DataFrame):
@@ -71,135 +73,286 @@ def point_histories(meter_events: pd.DataFrame, meter_points: pd.DataFrame):
     return out
 
 
-def earliest_crossing(histories, mpe, guard):
-    """The nominal point predicted to leave tolerance first, with its result; also the worst drift rate."""
-    best = None
-    worst_rate = None
-    statuses = []
-    for nominal, events in sorted(histories.items()):
-        result = drift.predict_crossing(events, mpe=mpe, guard=guard)
-        statuses.append(result.status)
-        rate = result.drift.slope_per_day if result.drift else None
-        if rate is not None and result.drift.significant and (worst_rate is None or abs(rate) > abs(worst_rate)):
-            worst_rate = rate
-        if result.day is not None and (best is None or result.day < best[1].day):
-            best = (nominal, result)
-    return best, worst_rate, statuses
-
-
 def summarise_status(statuses):
-    for status in ("out_of_tolerance", "drifting", "improving", "flat", "insufficient"):
+    for status in STATUS_PRECEDENCE:
         if status in statuses:
             return status
     return "insufficient"
 
 
-def method_interval(meter, meter_obs: pd.DataFrame, group_obs: pd.DataFrame, cfg):
-    if cfg["interval_method"] == "staircase":
-        results = [bool(v) for v in meter_obs["as_found_in_tolerance"]]
-        if not results:
-            return None, ""
-        steps = intervals.staircase_sequence(meter.base_interval_days, results, extend=cfg["staircase_extend"],
+# Bulk reads ---------------------------------------------------------------------------------------
+def _frame(queryset, columns, numeric=False):
+    """Rows of a values_list queryset straight from the cursor (no per-row model or converter work).
+
+    numeric: every column is a number or NULL, so the rows go through one float array (NULL -> NaN),
+    much faster than column-by-column type inference for a million rows.
+    """
+    sql, params = queryset.values_list(*columns).query.sql_with_params()
+    with connections[queryset.db].cursor() as cursor:
+        cursor.execute(sql, params)
+        rows = cursor.fetchall()
+    if numeric:
+        return pd.DataFrame(np.array(rows, dtype=float).reshape(len(rows), len(columns)), columns=columns)
+    return pd.DataFrame.from_records(rows, columns=columns)
+
+
+def _ordinal_days(values: pd.Series) -> np.ndarray:
+    """Dates (date objects or ISO strings, as the database driver returns them) as proleptic ordinals."""
+    if values.empty:
+        return np.empty(0, dtype=float)
+    days = pd.to_datetime(values).to_numpy(dtype="datetime64[D]").astype(np.int64)
+    return (days + _UNIX_EPOCH_ORDINAL).astype(float)
+
+
+def _flag(values: pd.Series) -> pd.Series:
+    """Nullable booleans (SQLite gives 0/1) as True/False/None."""
+    return values.map({True: True, False: False, 1: True, 0: False}).astype(object)
+
+
+def signed_events(where: Q | None = None, with_group: bool = False):
+    """Signed, not superseded events (optionally narrowed by `where`): id, meter_id, day (ordinal),
+    adjusted, decision_rule, as_found_in_tolerance; and the meter's principle and phase `with_group`."""
+    qs = CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True)
+    if where is not None:
+        qs = qs.filter(where)
+    columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"]
+    events = _frame(qs.order_by(), columns + (["meter__principle", "meter__fluid__phase"] if with_group else []))
+    events["day"] = _ordinal_days(events["performed_on"])
+    events["adjusted"] = events["adjusted"].astype(bool)
+    events["as_found_in_tolerance"] = _flag(events["as_found_in_tolerance"])
+    return events.drop(columns="performed_on").rename(
+        columns={"meter__principle": "principle", "meter__fluid__phase": "phase"})
+
+
+def recorded_points(where: Q | None = None):
+    """Every recorded point (optionally narrowed by `where`): id, event_id, as_left (0/1), nominal_pct, error.
+
+    Read without joining the events: the caller keeps the points of the events it holds, which is cheaper
+    than filtering a million rows through a join.
+    """
+    qs = CalibrationPoint.objects.all() if where is None else CalibrationPoint.objects.filter(where)
+    qs = qs.order_by().annotate(as_left=Case(When(kind=CalibrationPoint.Kind.AS_LEFT, then=Value(1)), default=Value(0)))
+    points = _frame(qs, ["id", "event_id", "as_left", "nominal_pct", "error"], numeric=True)
+    return points.astype({"id": np.int64, "event_id": np.int64, "as_left": np.int8})
+
+
+def guard_uncertainty(where: Q | None = None) -> pd.Series:
+    """Mean expanded uncertainty of the points of each signed, guarded-acceptance event (event_id -> U)."""
+    qs = CalibrationPoint.objects.filter(event__state=CalibrationEvent.State.SIGNED,
+                                         event__decision_rule=CalibrationEvent.Rule.GUARDED)
+    if where is not None:
+        qs = qs.filter(where)
+    rows = qs.order_by().values_list("event_id").annotate(U=Avg(Coalesce("expanded_uncertainty", Value(0.0))))
+    return pd.Series(dict(rows), dtype=float)
+
+
+def interval_observations(events: pd.DataFrame):
+    """(days since previous calibration, as-found in tolerance) per event after each meter's first."""
+    if events.empty:
+        return events.assign(elapsed=pd.Series(dtype=float))
+    ordered = events.sort_values(["meter_id", "day", "id"], kind="stable")
+    elapsed = ordered.groupby("meter_id")["day"].diff()
+    observed = ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "as_found_in_tolerance"])
+    # a second calibration on the same day is a repeat, not an interval
+    return observed[observed["elapsed"] > 0]
+
+
+# Vectorised drift ---------------------------------------------------------------------------------
+def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -> pd.DataFrame:
+    """Per meter: earliest crossing (day and nominal point), worst significant drift rate and status.
+
+    limits: MPE minus guard band per meter_id. Ties go to the lower nominal point, as on the meter page.
+    """
+    columns = ["crossing_day", "crossing_nominal", "worst_slope", "status"]
+    if points.empty:
+        return pd.DataFrame(columns=columns, index=pd.Index([], name="meter_id"))
+    # one value per (event, kind, nominal): the last recorded wins, as in point_histories
+    pts = points[points["event_id"].isin(events["id"])]
+    if not pts["id"].is_monotonic_increasing:
+        pts = pts.sort_values("id", kind="stable")
+    pts = pts[~pts.duplicated(["event_id", "as_left", "nominal_pct"], keep="last")]
+    found = pts[pts["as_left"] == 0][["event_id", "nominal_pct", "error"]].rename(columns={"error": "as_found"})
+    left = pts[pts["as_left"] == 1][["event_id", "nominal_pct", "error"]].rename(columns={"error": "as_left"})
+    wide = found.merge(left, on=["event_id", "nominal_pct"], how="outer")
+    wide = wide.merge(events[["id", "meter_id", "day", "adjusted"]], left_on="event_id", right_on="id", how="inner")
+    series_codes = wide.groupby(["meter_id", "nominal_pct"], sort=False).ngroup().to_numpy()
+    rows = pd.DataFrame({"series": series_codes, "day": wide["day"].to_numpy(), "order": wide["event_id"].to_numpy(),
+                         "as_found": wide["as_found"].to_numpy(), "as_left": wide["as_left"].to_numpy(),
+                         "adjusted": wide["adjusted"].to_numpy()})
+    key_frame = wide[["meter_id", "nominal_pct"]].drop_duplicates().reset_index(drop=True)  # in ngroup order
+    limit = pd.Series(limits.reindex(key_frame["meter_id"]).to_numpy(), index=np.arange(len(key_frame)))
+    result = drift_fleet.predict_crossings(rows, limit)
+    result = pd.concat([key_frame, result.reset_index(drop=True)], axis=1)
+
+    crossing = (result.dropna(subset=["day"]).sort_values(["meter_id", "day", "nominal_pct"], kind="stable")
+                .drop_duplicates("meter_id").set_index("meter_id"))
+    rated = result[result["significant"].astype(bool) & result["slope"].notna()]
+    rated = rated.assign(magnitude=rated["slope"].abs())
+    worst = (rated.sort_values(["meter_id", "magnitude", "nominal_pct"], ascending=[True, False, True], kind="stable")
+             .drop_duplicates("meter_id").set_index("meter_id"))
+    rank = {status: i for i, status in enumerate(STATUS_PRECEDENCE)}
+    status = result.assign(rank=result["status"].map(rank)).groupby("meter_id")["rank"].min()
+    summary = pd.DataFrame(index=status.index)
+    summary["crossing_day"] = crossing["day"]
+    summary["crossing_nominal"] = crossing["nominal_pct"]
+    summary["worst_slope"] = worst["slope"]
+    summary["status"] = status.map(dict(enumerate(STATUS_PRECEDENCE)))
+    return summary[columns]
+
+
+# Interval method ----------------------------------------------------------------------------------
+def reliability_by_group(group_obs: pd.DataFrame, cfg) -> dict:
+    """{(principle, phase): (interval days, intervals seen, out of tolerance)} by the NCSL RP-1 model."""
+    chosen = {}
+    for key, frame in group_obs.groupby(["principle", "phase"]):
+        in_tol = frame["as_found_in_tolerance"].astype(bool).to_numpy()
+        days = intervals.recommended_interval(frame["elapsed"].astype(float).to_numpy(), in_tol,
+                                              target=cfg["reliability_target"], min_days=cfg["min_interval_days"],
+                                              max_days=cfg["max_interval_days"])
+        chosen[key] = (days, len(in_tol), int((~in_tol).sum()))
+    return chosen
+
+
+def staircase_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
+    """{meter_id: (interval days, results seen)} by the OIML D 10 staircase over each meter's results."""
+    chosen = {}
+    for meter_id, frame in meter_obs.groupby("meter_id"):
+        results = frame["as_found_in_tolerance"].astype(bool).tolist()
+        steps = intervals.staircase_sequence(base_intervals[meter_id], results, extend=cfg["staircase_extend"],
                                              shorten=cfg["staircase_shorten"], min_days=cfg["min_interval_days"],
                                              max_days=cfg["max_interval_days"])
-        return steps[-1], (f"staircase (OIML D 10) over {len(results)} as-found results, "
-                           f"×{cfg['staircase_extend']} in / ×{cfg['staircase_shorten']} out")
-    if group_obs.empty:
-        return None, ""
-    days = group_obs["elapsed"].astype(float).tolist()
-    in_tol = group_obs["as_found_in_tolerance"].astype(bool).tolist()
-    chosen = intervals.recommended_interval(days, in_tol, target=cfg["reliability_target"],
-                                            min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
-    failures = len(in_tol) - sum(in_tol)
-    return chosen, (f"reliability target {cfg['reliability_target']:.0%} (NCSL RP-1 exponential model) from "
-                    f"{len(in_tol)} intervals of {meter.get_principle_display()} on {meter.fluid.phase}, "
-                    f"{failures} out of tolerance")
+        chosen[meter_id] = (steps[-1], len(results))
+    return chosen
 
 
-def assess_meter(meter, meter_events, meter_points, group_obs, cfg, meter_obs=None):
-    """Set the due-date fields on one meter object (no query)."""
-    if meter_events.empty:
-        meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = None
-        meter.drift_status, meter.drift_rate_per_year = "insufficient", None
-        meter.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
-                               "note": "No signed calibration yet: due now."}
-        return meter
-    last_row = meter_events.sort_values("performed_on").iloc[-1]
-    last = last_row["performed_on"]
-    guarded = last_row["decision_rule"] == "guarded"
-    last_points = meter_points[(meter_points["event_id"] == last_row["id"])]
-    guard = float(last_points["expanded_uncertainty"].fillna(0).mean()) if guarded and not last_points.empty else 0.0
-    guard = min(guard, 0.9 * meter.mpe_value)
-    best, worst_rate, statuses = earliest_crossing(point_histories(meter_events, meter_points), meter.mpe_value, guard)
-    crossing = crossing_reason = None
-    if best is not None:
-        nominal, result = best
-        crossing = dt.date.fromordinal(max(int(math.floor(result.day)), last.toordinal()))
-        crossing_reason = f"drift at {nominal:g} % of range{' (guard band U)' if guarded else ''}:"
-    if meter_obs is None:
-        meter_obs = interval_observations(meter_events)
-    chosen, method_reason = method_interval(meter, meter_obs, group_obs, cfg)
-    decision = due.decide_due(last, meter.base_interval_days, meter.risk_factor(), crossing=crossing,
-                              crossing_reason=crossing_reason or "", margin_days=cfg["drift_margin_days"],
-                              method_interval_days=chosen, method_reason=method_reason,
-                              min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
-    meter.last_calibrated = last
-    meter.next_due_date = decision.due
-    meter.due_rationale = {**decision.rationale(), "drift_point_pct": best[0] if best else None}
-    meter.drift_status = summarise_status(statuses)
-    meter.drift_rate_per_year = worst_rate * 365.25 if worst_rate is not None else None
-    meter.predicted_crossing = crossing
-    return meter
+def _group_observations(groups):
+    """Interval observations of every meter in the given (principle, phase) groups, fleet-wide."""
+    if not groups:
+        return pd.DataFrame(columns=["principle", "phase", "elapsed", "as_found_in_tolerance"])
+    condition = Q()
+    for principle, phase in groups:
+        condition |= Q(meter__principle=principle, meter__fluid__phase=phase)
+    return interval_observations(signed_events(condition, with_group=True))
 
 
+# The recompute ------------------------------------------------------------------------------------
 def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     """Recompute and store the due-date fields of the meters (all when None); returns the count."""
-    from plant.models import Meter
 
     whole_fleet = meters_qs is None
     meters_qs = Meter.objects.all() if whole_fleet else meters_qs
     cfg = policy()
-    meters = list(meters_qs.select_related("fluid"))
-    events, points = load_history(meters_qs)
+    meters = list(meters_qs.only(*METER_INPUTS).order_by("pk"))
+    if not meters:
+        return 0
+    fluids = Fluid.objects.in_bulk({m.fluid_id for m in meters})
+    for meter in meters:  # a few fluid objects shared, rather than one copy per meter
+        meter.fluid = fluids[meter.fluid_id]
+    chosen_ids = None if whole_fleet else meters_qs.values("pk")
+    events = signed_events(None if whole_fleet else Q(meter__in=chosen_ids))
+    points = recorded_points(None if whole_fleet else Q(event__meter__in=chosen_ids))
+    by_meter = {m.pk: m for m in meters}
+    events["principle"] = events["meter_id"].map({pk: m.principle for pk, m in by_meter.items()})
+    events["phase"] = events["meter_id"].map({pk: m.fluid.phase for pk, m in by_meter.items()})
     obs = interval_observations(events)
-    kinds = {m.pk: (m.principle, m.fluid.phase) for m in meters}
-    if whole_fleet:
-        group_obs = {} if obs.empty else {key: frame for key, frame in obs.groupby(obs["meter_id"].map(kinds))}
-    else:  # a group pools every meter of that principle and phase, not only those being recomputed
-        group_obs = _group_observations_from_fleet(set(kinds.values()))
-    events_by_meter = dict(tuple(events.groupby("meter_id"))) if not events.empty else {}
-    point_event_meter = events.set_index("id")["meter_id"] if not events.empty else pd.Series(dtype=int)
-    points_by_meter = dict(tuple(points.groupby(points["event_id"].map(point_event_meter)))) if not points.empty else {}
-    obs_by_meter = dict(tuple(obs.groupby("meter_id"))) if not obs.empty else {}
-    empty_events, empty_points = events.iloc[0:0], points.iloc[0:0]
+
+    # guard band of the last calibration when it was judged by guarded acceptance (w = U)
+    last_events = events.sort_values(["meter_id", "day", "id"], kind="stable").drop_duplicates("meter_id", keep="last")
+    last_events = last_events.set_index("meter_id")
+    mean_u = guard_uncertainty(None if whole_fleet else Q(event__meter__in=chosen_ids))
+    guarded = last_events["decision_rule"] == CalibrationEvent.Rule.GUARDED
+    guard = pd.Series(np.where(guarded, last_events["id"].map(mean_u).fillna(0.0), 0.0), index=last_events.index)
+    mpe = pd.Series({pk: m.mpe_value for pk, m in by_meter.items()})
+    guard = np.minimum(guard, 0.9 * mpe.reindex(guard.index))
+    drift_summary = meter_drift(events, points, mpe.reindex(guard.index) - guard)
+
+    if cfg["interval_method"] == "staircase":
+        stair = staircase_by_meter(obs, {pk: m.base_interval_days for pk, m in by_meter.items()}, cfg)
+        reliability = {}
+    else:
+        stair = {}
+        groups = {(m.principle, m.fluid.phase) for m in meters}
+        reliability = reliability_by_group(obs if whole_fleet else _group_observations(groups), cfg)
+
+    last_by_meter = last_events[["id", "day", "decision_rule"]].to_dict("index")
+    drift_by_meter = drift_summary.to_dict("index")
     for meter in meters:
-        assess_meter(meter, events_by_meter.get(meter.pk, empty_events), points_by_meter.get(meter.pk, empty_points),
-                     group_obs.get(kinds[meter.pk], obs.iloc[0:0]), cfg, obs_by_meter.get(meter.pk, obs.iloc[0:0]))
+        if meter.pk not in last_by_meter:
+            _no_history(meter)
+        else:
+            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), stair.get(meter.pk),
+                    reliability.get((meter.principle, meter.fluid.phase)), cfg)
         if progress:
             progress(1)
-    with transaction.atomic():
-        Meter.objects.bulk_update(meters, UPDATED_FIELDS, batch_size=batch_size)
+    write_due_fields(meters, batch_size=batch_size)
     return len(meters)
 
 
-def _group_observations_from_fleet(groups):
-    """Interval observations of every meter in the given (principle, phase) groups."""
-    from django.db.models import Q
+def _no_history(meter):
+    meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = None
+    meter.drift_status, meter.drift_rate_per_year = "insufficient", None
+    meter.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
+                           "note": "No signed calibration yet: due now."}
 
-    from plant.models import Meter
 
-    condition = Q()
-    for principle, phase in groups:
-        condition |= Q(principle=principle, fluid__phase=phase)
-    if not groups:
-        return {}
-    fleet = Meter.objects.filter(condition)
-    events = pd.DataFrame.from_records(
-        CalibrationEvent.objects.filter(meter__in=fleet, state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True)
-        .values("id", "meter_id", "meter__principle", "meter__fluid__phase", "performed_on", "as_found_in_tolerance"),
-        columns=["id", "meter_id", "meter__principle", "meter__fluid__phase", "performed_on", "as_found_in_tolerance"],
-    )
-    obs = interval_observations(events)
-    if obs.empty:
-        return {}
-    return {key: frame for key, frame in obs.groupby(["meter__principle", "meter__fluid__phase"])}
+def method_reason(meter, stair, reliability, cfg):
+    """(interval days or None, the sentence that explains it)."""
+    if cfg["interval_method"] == "staircase":
+        if stair is None:
+            return None, ""
+        days, seen = stair
+        return days, (f"staircase (OIML D 10) over {seen} as-found results, "
+                      f"×{cfg['staircase_extend']} in / ×{cfg['staircase_shorten']} out")
+    if reliability is None:
+        return None, ""
+    days, seen, failures = reliability
+    return days, (f"reliability target {cfg['reliability_target']:.0%} (NCSL RP-1 exponential model) from "
+                  f"{seen} intervals of {Meter.Principle(meter.principle).label} on {meter.fluid.phase}, "
+                  f"{failures} out of tolerance")
+
+
+def _assess(meter, last_event, summary, stair, reliability, cfg):
+    last = dt.date.fromordinal(int(last_event["day"]))
+    guarded = last_event["decision_rule"] == CalibrationEvent.Rule.GUARDED
+    crossing = nominal = None
+    crossing_reason = ""
+    worst = None
+    status = "insufficient"
+    if summary is not None:
+        status = summary["status"]
+        if not pd.isna(summary["worst_slope"]):
+            worst = float(summary["worst_slope"])
+        if not pd.isna(summary["crossing_day"]):
+            nominal = float(summary["crossing_nominal"])
+            crossing = dt.date.fromordinal(max(int(math.floor(summary["crossing_day"])), last.toordinal()))
+            crossing_reason = f"drift at {nominal:g} % of range{' (guard band U)' if guarded else ''}:"
+    chosen, reason = method_reason(meter, stair, reliability, cfg)
+    decision = due.decide_due(last, meter.base_interval_days, meter.risk_factor(), crossing=crossing,
+                              crossing_reason=crossing_reason, margin_days=cfg["drift_margin_days"],
+                              method_interval_days=chosen, method_reason=reason,
+                              min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
+    meter.last_calibrated = last
+    meter.next_due_date = decision.due
+    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal}
+    meter.drift_status = status
+    meter.drift_rate_per_year = worst * 365.25 if worst is not None else None
+    meter.predicted_crossing = crossing
+
+
+def write_due_fields(meters, batch_size=1000):
+    """One UPDATE per meter sent in batches (executemany), values prepared by each field for the database."""
+
+    connection = connections[Meter.objects.db]
+    fields = [Meter._meta.get_field(name) for name in UPDATED_FIELDS]
+    quote = connection.ops.quote_name
+    sql = (f"UPDATE {quote(Meter._meta.db_table)} SET "
+           + ", ".join(f"{quote(f.column)} = %s" for f in fields)
+           + f" WHERE {quote(Meter._meta.pk.column)} = %s")
+    # the adapters get_db_prep_save would reach, looked up once rather than per value
+    ops = connection.ops
+    adapt = {"DateField": ops.adapt_datefield_value, "JSONField": lambda v: ops.adapt_json_value(v, None)}
+    preparers = [adapt.get(f.get_internal_type(), lambda v: v) for f in fields]
+    rows = [[prepare(getattr(m, f.attname)) for f, prepare in zip(fields, preparers)] + [m.pk] for m in meters]
+    with transaction.atomic(using=connection.alias), connection.cursor() as cursor:
+        for start in range(0, len(rows), batch_size):
+            cursor.executemany(sql, rows[start:start + batch_size])

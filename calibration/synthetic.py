@@ -1,0 +1,200 @@
+"""A large invented fleet with ten years of signed calibration history, for benchmarks and scale tests.
+
+Seeded and deterministic: the same seed and size give the same plant, tags, dates and errors. Meters are
+variations on the demo plant's installations (plant/management/commands/build_demo_plant.py); drift is
+invented as in the demo history (stable, steady drift, jumps after fouling), scaled by each duty's risk.
+Rows are written with bulk inserts in chunks of meters, so memory stays flat; the per-row save() checks
+are bypassed on purpose, the values being computed with the same functions those checks use.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import random
+
+from django.db import transaction
+
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.management.commands.build_demo_plant import FLUIDS, MAKERS, METERS
+from plant.models import Area, Fluid, Meter, Site
+
+TAG_PREFIX = "SYN-"
+NOMINALS = (10, 25, 50, 75, 100)
+YEARS = 10
+SITES = [
+    ("Brackenholm Dairy Works", "Mill Road, Brackenholm (invented)"),
+    ("Saltcote Water Treatment", "Estuary Lane, Saltcote (invented)"),
+    ("Wendle Chemical Park", "Plot 9, Wendle Industrial Estate (invented)"),
+    ("Copperdale Bottling", "Station Yard, Copperdale (invented)"),
+    ("Ferrow Sugar Refinery", "Quayside, Ferrow (invented)"),
+]
+AREAS = ["Intake", "Process A", "Process B", "CIP", "Boiler house", "Utilities", "Dosing", "Effluent"]
+TECHNICIANS = ["T. Arkwright-Nye", "L. Mbeki-Storr", "P. Halloran", "J. Vesterby", "K. Oduya"]
+PROCEDURE = "In-situ comparison against a portable reference meter in series, five points up the range (WP-SY-01)."
+
+
+def fluids():
+    """The demo fluids, created when missing (a synthetic fleet may share a database with the demo)."""
+    out = {}
+    for (name, phase, cond, dens, visc, solids, chl, scale, slime, sticky, gas, temp) in FLUIDS:
+        out[name], _ = Fluid.objects.get_or_create(name=name, defaults=dict(
+            phase=phase, conductivity_us_cm=cond, density_kg_m3=dens, viscosity_mpa_s=visc, solids=solids,
+            chlorides=chl, scaling=scale, biofouling=slime, sticky=sticky, entrained_gas=gas, temperature_c=temp))
+    return out
+
+
+def standards(today):
+    liquid, _ = ReferenceStandard.objects.get_or_create(identification="RS-SY-L", defaults=dict(
+        description="Portable reference meter, liquids (synthetic fleet)", range_min=0, range_max=100000,
+        units="per meter's units", certificate_number="SY-EXT-0001", due_date=today + dt.timedelta(days=200),
+        expanded_uncertainty=0.1, uncertainty_basis="pct_reading"))
+    gas, _ = ReferenceStandard.objects.get_or_create(identification="RS-SY-G", defaults=dict(
+        description="Transfer standard, gases and steam (synthetic fleet)", range_min=0, range_max=100000,
+        units="per meter's units", certificate_number="SY-EXT-0002", due_date=today + dt.timedelta(days=9),
+        expanded_uncertainty=0.3, uncertainty_basis="pct_reading"))
+    return {"liquid": liquid, "gas": gas}
+
+
+class FleetBuilder:
+    """Builds `count` meters and their history, chunk by chunk (call `build`)."""
+
+    def __init__(self, count, seed=20261202, today=None, chunk=250):
+        self.count = count
+        self.rng = random.Random(seed)
+        self.today = today or dt.date(2026, 11, 30)
+        self.chunk = chunk
+        self.totals = {"meters": 0, "events": 0, "points": 0, "drafts": 0}
+
+    def build(self, progress=None):
+        if Meter.objects.filter(tag__startswith=TAG_PREFIX).exists():
+            raise ValueError("This database already holds a synthetic fleet; build it into an empty database.")
+        with transaction.atomic():
+            self.fluids = fluids()
+            self.standards = standards(self.today)
+            self.areas = []
+            for name, address in SITES:
+                site, _ = Site.objects.get_or_create(name=name, defaults={"address": address})
+                self.areas += [Area.objects.get_or_create(site=site, name=area)[0] for area in AREAS]
+        for start in range(0, self.count, self.chunk):
+            size = min(self.chunk, self.count - start)
+            with transaction.atomic():
+                self._chunk(start, size)
+            if progress:
+                progress(size)
+        return self.totals
+
+    def _meter(self, number):
+        rng = self.rng
+        (_, principle, fluid, _, size, bore, rmax, units, material, mpe, basis) = rng.choice(METERS)
+        scale = rng.choice([0.5, 1, 1, 2])
+        rmax = round(rmax * scale, 3)
+        status = rng.choices(["in_service", "spare", "removed"], weights=[96, 3, 1])[0]
+        return Meter(
+            tag=f"{TAG_PREFIX}{number:06d}", principle=principle, area=rng.choice(self.areas),
+            fluid=self.fluids[fluid], line_size=size, internal_diameter_mm=bore, range_min=0, range_max=rmax,
+            flow_units=units, normal_flow=round(rmax * rng.uniform(0.4, 0.7), 3),
+            min_flow=round(rmax * rng.uniform(0.03, 0.15), 3), wetted_material=material,
+            serial=f"SN{rng.randint(1000000, 9999999)}", maker=rng.choice(MAKERS), model=f"M{rng.randint(10, 99)}",
+            mpe_value=mpe, mpe_basis=basis, base_interval_days=rng.choice([365, 365, 540, 730]), status=status,
+        )
+
+    def _chunk(self, start, size):
+        meters = [self._meter(start + i + 1) for i in range(size)]
+        for meter in meters:  # the model's own checks, less the per-row lookups of area and fluid
+            meter.clean_fields(exclude=["area", "fluid"])
+            meter.clean()
+        Meter.objects.bulk_create(meters)
+        # bulk_create skips save(), which opens the duty history: open it here, one row per meter
+        Meter.duties.rel.related_model.objects.bulk_create([
+            Meter.duties.rel.related_model(meter=m, area=m.area, fluid=m.fluid,
+                                           since=self.today - dt.timedelta(days=int(365.25 * YEARS)))
+            for m in meters])
+        plans = [(meter, self._history(meter)) for meter in meters]
+        events = [event for _, history in plans for event, _ in history]
+        CalibrationEvent.objects.bulk_create(events, batch_size=2000)
+        links = CalibrationEvent.reference_standards.through
+        links.objects.bulk_create([links(calibrationevent_id=event.pk, referencestandard_id=standard.pk)
+                                   for _, history in plans for event, (standard, _) in history], batch_size=5000)
+        points = []
+        for _, history in plans:
+            for event, (_, event_points) in history:
+                for point in event_points:
+                    point.event_id = event.pk
+                    points.append(point)
+        CalibrationPoint.objects.bulk_create(points, batch_size=5000)
+        self.totals["meters"] += len(meters)
+        self.totals["events"] += len(events)
+        self.totals["points"] += len(points)
+
+    def _history(self, meter):
+        """[(event, (standard, points))] over ten years; the event verdicts are computed here."""
+        rng = self.rng
+        factor = meter.risk_factor()
+        mpe = meter.mpe_value
+        behaviour = rng.choices(["stable", "steady", "fouling"], weights=[6, 3, 1] if factor >= 1 else [3, 4, 3])[0]
+        rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.5) * rng.choice([-1, 1])
+        interval = max(365, meter.effective_interval_days())
+        day = self.today - dt.timedelta(days=int(365.25 * YEARS) - rng.randint(0, 120))
+        standard = self.standards["gas" if meter.fluid.phase in ("gas", "steam") else "liquid"]
+        rule = "guarded" if rng.random() < 0.1 else "simple"
+        baseline = rng.uniform(-0.1, 0.1) * mpe
+        history = []
+        jumped = False
+        while day < self.today - dt.timedelta(days=10):
+            offset = baseline + rate * interval / 365.25
+            if behaviour == "fouling" and not jumped and rng.random() < 0.3:
+                offset += rng.choice([-1, 1]) * rng.uniform(0.8, 1.6) * mpe
+                jumped = True
+            shape = rng.uniform(-0.3, 0.3)
+            found = [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
+            adjust = max(abs(e) for e in found) > 0.6 * mpe
+            left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS] if adjust else []
+            event = CalibrationEvent(
+                meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
+                ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=meter.fluid.temperature_c,
+                pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
+                decision_rule=rule, notes="Zero and span adjusted." if adjust else "",
+                state=CalibrationEvent.State.SIGNED, signed_by="", signed_role="Instrument technician",
+                signed_at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc),
+            )
+            event.signed_by = event.technician
+            points = self._points(meter, standard, rule, CalibrationPoint.Kind.AS_FOUND, found)
+            points += self._points(meter, standard, rule, CalibrationPoint.Kind.AS_LEFT, left)
+            self._verdicts(event, points)
+            history.append((event, (standard, points)))
+            baseline = sum(left) / len(left) if adjust else offset
+            day += dt.timedelta(days=int(interval * rng.uniform(0.9, 1.1)))
+        if meter.status == "in_service" and rng.random() < 0.005:  # a few drafts left unsigned
+            event = CalibrationEvent(meter=meter, performed_on=self.today, technician=rng.choice(TECHNICIANS),
+                                     procedure=PROCEDURE, decision_rule=rule)
+            points = self._points(meter, standard, rule, CalibrationPoint.Kind.AS_FOUND,
+                                  [rng.gauss(0, 0.1 * mpe) for _ in NOMINALS])
+            self._verdicts(event, points)
+            history.append((event, (standard, points)))
+            self.totals["drafts"] += 1
+        return history
+
+    def _points(self, meter, standard, rule, kind, errors_in_basis):
+        span = meter.range_max - meter.range_min
+        out = []
+        for nominal, error in zip(NOMINALS, errors_in_basis):
+            reference = round(meter.range_min + span * nominal / 100 * self.rng.uniform(0.97, 1.0), 4)
+            if meter.mpe_basis == "pct_reading":
+                indicated = reference * (1 + error / 100)
+            elif meter.mpe_basis == "pct_span":
+                indicated = reference + error * span / 100
+            else:
+                indicated = reference + error
+            point = CalibrationPoint(kind=kind, nominal_pct=nominal, reference_value=reference,
+                                     indicated_value=round(indicated, 6))
+            point.compute(meter, standard, rule)
+            out.append(point)
+        return out
+
+    @staticmethod
+    def _verdicts(event, points):
+        from calibration import decision
+
+        found = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
+        left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
+        event.as_found_in_tolerance = decision.verdict_in_tolerance(found)
+        event.as_left_in_tolerance = decision.verdict_in_tolerance(left)

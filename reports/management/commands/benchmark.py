@@ -1,0 +1,148 @@
+"""Measure the fleet recompute (bulk and naive), the review page, a certificate and a calibration save."""
+import datetime as dt
+import os
+import platform
+
+from django.contrib.auth.models import Group, User
+from django.core.management import BaseCommand, CommandError
+from django.db import connection, transaction
+from django.db.models import Count
+from django.test import Client
+from tqdm import tqdm
+
+from calibration.fleet import recompute_due_dates
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.models import Meter, Site
+from plant.roles import REVIEWER, TECHNICIAN, ensure_roles
+from reports import benchmark, certificate
+
+TARGETS = {"recompute": 10.0, "ratio": 20.0, "review": 0.300, "certificate": 1.5}
+
+
+class _Rollback(Exception):
+    pass
+
+
+def machine():
+    cpu = platform.processor() or platform.machine()
+    try:
+        with open("/proc/cpuinfo") as info:
+            cpu = next(line.split(":", 1)[1].strip() for line in info if line.startswith("model name"))
+    except (OSError, StopIteration):
+        pass
+    return f"{cpu}, {os.cpu_count()} cores, Python {platform.python_version()}"
+
+
+def database():
+    with connection.cursor() as cursor:
+        cursor.execute("select sqlite_version()" if connection.vendor == "sqlite" else "show server_version")
+        version = cursor.fetchone()[0]
+    return f"{connection.vendor} {version}"
+
+
+class Command(BaseCommand):
+    help = "Benchmark on the configured database (build a fleet first with make_fleet); prints a table."
+
+    def add_arguments(self, parser):
+        parser.add_argument("--repeat", type=int, default=3, help="runs of each fast measurement (median shown)")
+        parser.add_argument("--naive-meters", type=int, default=0,
+                            help="time the naive recompute on the first N meters only and scale to the fleet "
+                                 "(0 = the whole fleet)")
+
+    def handle(self, *args, repeat, naive_meters, **options):
+        meters = Meter.objects.count()
+        if not meters:
+            raise CommandError("No meters: build a fleet first, e.g. python manage.py make_fleet --meters 20000")
+        events = CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED).count()
+        points = CalibrationPoint.objects.count()
+        self.stdout.write(f"Machine: {machine()}")
+        self.stdout.write(f"Database: {database()}; fleet: {meters} meters, {events} signed calibrations, "
+                          f"{points} points")
+        rows = []
+
+        fast, _ = benchmark.timed(recompute_due_dates, repeat=repeat)
+        rows.append(("Fleet recompute, bulk", f"{fast:.2f} s", f"< {TARGETS['recompute']:.0f} s",
+                     fast < TARGETS["recompute"]))
+        naive_qs = Meter.objects.order_by("pk")[:naive_meters] if naive_meters else None
+        measured = naive_meters if naive_meters else meters
+        with tqdm(total=measured, unit="meter", desc="naive", file=self.stderr, disable=None) as bar:
+            naive, _ = benchmark.timed(lambda: benchmark.naive_recompute(
+                Meter.objects.filter(pk__in=naive_qs.values("pk")) if naive_qs is not None else None,
+                progress=bar.update))
+        naive_fleet = naive * meters / measured
+        note = "" if measured == meters else f" (measured on {measured} meters, scaled)"
+        rows.append(("Fleet recompute, naive per meter", f"{naive_fleet:.1f} s{note}", "", None))
+        ratio = naive_fleet / fast
+        rows.append(("  naive / bulk", f"{ratio:.0f}×", f"≥ {TARGETS['ratio']:.0f}×", ratio >= TARGETS["ratio"]))
+        recompute_due_dates()  # leave the stored fields as the bulk recompute gives them
+
+        try:
+            with transaction.atomic():
+                rows += self._pages(repeat)
+                raise _Rollback
+        except _Rollback:
+            pass
+
+        width = max(len(r[0]) for r in rows) + 2
+        self.stdout.write("")
+        self.stdout.write(f"{'Measurement':<{width}}{'Result':<44}{'Target':<12}Met")
+        for name, value, target, met in rows:
+            flag = "" if met is None else ("yes" if met else "NO")
+            self.stdout.write(f"{name:<{width}}{value:<44}{target:<12}{flag}")
+
+    def _pages(self, repeat):
+        """Review page, certificate, calibration save and sign-off, inside a transaction rolled back after."""
+        ensure_roles()
+        rows = []
+        reviewer = User.objects.create_user("bench-reviewer", first_name="Bench", last_name="Reviewer")
+        reviewer.groups.add(Group.objects.get(name=REVIEWER))
+        technician = User.objects.create_user("bench-technician", first_name="Bench", last_name="Technician")
+        technician.groups.add(Group.objects.get(name=TECHNICIAN))
+        client = Client()
+        client.force_login(reviewer)
+        seconds, queries, status = benchmark.page(client, "/review/", repeat)
+        rows.append(("Review page, whole fleet", f"{seconds * 1000:.0f} ms, {queries} queries (HTTP {status})",
+                     f"< {TARGETS['review'] * 1000:.0f} ms", seconds < TARGETS["review"] and status == 200))
+        site = Site.objects.annotate(n=Count("areas__meters")).order_by("n").first()
+        seconds, site_queries, status = benchmark.page(client, f"/review/?site={site.pk}", repeat)
+        rows.append((f"Review page, one site ({site.n} meters)",
+                     f"{seconds * 1000:.0f} ms, {site_queries} queries (HTTP {status})",
+                     "same queries", site_queries == queries))
+
+        meter = Meter.objects.annotate(n=Count("calibrations")).order_by("-n", "pk").first()
+        event = certificate.load_event(meter.calibrations.filter(state="signed").order_by("-performed_on")
+                                       .values_list("pk", flat=True).first())
+        seconds, pdf = benchmark.timed(lambda: certificate.certificate_pdf(event), repeat=repeat)
+        rows.append((f"Certificate PDF ({meter.n} calibrations of history)", f"{seconds:.2f} s, {len(pdf) // 1024} KiB",
+                     f"< {TARGETS['certificate']} s", seconds < TARGETS["certificate"]))
+
+        client.force_login(technician)
+        standard = ReferenceStandard.objects.create(
+            identification="RS-BENCH", description="benchmark reference", range_min=0, range_max=10 ** 7,
+            certificate_number="BENCH", due_date=dt.date.today() + dt.timedelta(days=30), expanded_uncertainty=0.1)
+        data = _entry(meter, standard)
+        seconds, response = benchmark.timed(lambda: client.post(f"/meters/{meter.tag}/calibrate/", data))
+        if response.status_code != 302:
+            raise CommandError(f"The calibration form refused the benchmark entry ({response.status_code}).")
+        rows.append(("Calibration form save (5 as-found points)", f"{seconds * 1000:.0f} ms", "", None))
+        saved = CalibrationEvent.objects.filter(meter=meter, state="draft").latest("pk")
+        seconds, response = benchmark.timed(lambda: client.post(f"/calibrations/{saved.pk}/sign/"))
+        rows.append(("Sign-off incl. the meter's due-date recompute", f"{seconds * 1000:.0f} ms", "",
+                     None if response.status_code == 302 else False))
+        return rows
+
+
+def _entry(meter, standard):
+    """A valid tablet-form entry: five as-found points up the range, within 0.1 % of the reference."""
+    data = {"ev-performed_on": dt.date.today().isoformat(), "ev-technician": "Bench Technician",
+            "ev-reference_standards": [standard.pk], "ev-procedure": "Benchmark entry", "ev-reason": "scheduled",
+            "ev-decision_rule": "simple"}
+    span = meter.range_max - meter.range_min
+    for prefix, count in (("af", 5), ("al", 0)):
+        data.update({f"{prefix}-TOTAL_FORMS": str(count), f"{prefix}-INITIAL_FORMS": "0",
+                     f"{prefix}-MIN_NUM_FORMS": "0", f"{prefix}-MAX_NUM_FORMS": "20"})
+    for i, nominal in enumerate((10, 25, 50, 75, 100)):
+        reference = meter.range_min + span * nominal / 100
+        data.update({f"af-{i}-nominal_pct": str(nominal), f"af-{i}-reference_value": f"{reference:.6g}",
+                     f"af-{i}-indicated_value": f"{reference * 1.001:.6g}"})
+    return data

@@ -1,0 +1,176 @@
+"""The fleet at scale: the vectorised drift and due-date recompute against the scalar, per-meter way.
+
+The scalar functions of calibration/drift.py are the reference (they reproduce NIST StRD Norris, see
+test_drift_intervals.py); here the vectorised module must agree with them series by series, and the bulk
+recompute must give the naive per-meter baseline's due dates on a synthetic fleet.
+"""
+import datetime as dt
+import math
+import random
+from collections import Counter
+
+import numpy as np
+import pandas as pd
+import pytest
+from django.core.management import CommandError, call_command
+
+from calibration import drift
+from calibration.drift_fleet import predict_crossings
+from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
+from calibration.models import CalibrationEvent, CalibrationPoint
+from plant.models import Meter
+from reports.benchmark import naive_recompute
+
+
+def random_histories(count, seed):
+    """Invented histories exercising every branch: gaps, adjustments with and without as-left, same-day
+    repeats, exact lines, guard bands; returned as scalar events and as the rows of the vectorised call."""
+    rng = random.Random(seed)
+    rows, limits, scalar = [], {}, {}
+    for key in range(count):
+        mpe = rng.choice([0.2, 0.5, 1.0, 2.0])
+        guard = rng.choice([0.0, 0.0, 0.1 * mpe])
+        day = 739000 + rng.randint(0, 100)
+        rate = rng.choice([0.0, 0.0005, -0.001, 0.003]) * mpe
+        exact = rng.random() < 0.1
+        error = rng.uniform(-0.3, 0.3) * mpe
+        events = []
+        for order in range(rng.randint(0, 12)):
+            day += 0 if rng.random() < 0.03 else rng.randint(100, 400)
+            error += rate * 200 + (0.0 if exact else rng.gauss(0, 0.05 * mpe))
+            found = error if rng.random() > 0.05 else None
+            adjusted = rng.random() < 0.2
+            if adjusted:
+                left = rng.gauss(0, 0.05 * mpe) if rng.random() > 0.1 else None
+            else:
+                left = error if rng.random() < 0.2 else None
+            if adjusted and left is not None:
+                error = left
+            if found is None and left is None and rng.random() < 0.5:
+                continue
+            events.append(drift.HistoryEvent(day=float(day), as_found=found, as_left=left, adjusted=adjusted))
+            rows.append({"series": key, "day": float(day), "order": order,
+                         "as_found": np.nan if found is None else found,
+                         "as_left": np.nan if left is None else left, "adjusted": adjusted})
+        limits[key] = mpe - guard
+        scalar[key] = drift.predict_crossing(events, mpe=mpe, guard=guard)
+    return pd.DataFrame(rows), pd.Series(limits), scalar
+
+
+def test_vectorised_crossings_equal_the_scalar_method_series_by_series():
+    rows, limits, scalar = random_histories(2000, seed=11)
+    result = predict_crossings(rows, limits)
+    statuses = Counter()
+    for key, expected in scalar.items():
+        got = result.loc[key]
+        statuses[expected.status] += 1
+        assert got["status"] == expected.status, key
+        if expected.day is None:
+            assert math.isnan(got["day"]), key
+        else:
+            assert got["day"] == pytest.approx(expected.day, abs=1e-6), key
+        slope = expected.drift.slope_per_day if expected.drift else None
+        if slope is None:
+            assert math.isnan(got["slope"]), key
+        else:
+            assert got["slope"] == pytest.approx(slope, rel=1e-9, abs=1e-15), key
+            assert bool(got["significant"]) == bool(expected.drift.significant), key
+    # every branch of the method was exercised
+    assert set(statuses) == {"insufficient", "flat", "improving", "drifting", "out_of_tolerance"}, statuses
+
+
+def test_vectorised_crossing_of_a_known_line():
+    # error grows 0.002 %/day from 0 with no scatter, MPE 1.0: crossing exactly 500 days after the last event
+    rows = pd.DataFrame({"series": [0, 0, 0], "day": [0.0, 100.0, 200.0], "order": [0, 1, 2],
+                         "as_found": [0.0, 0.2, 0.4], "as_left": [np.nan] * 3, "adjusted": [False] * 3})
+    result = predict_crossings(rows, pd.Series({0: 1.0}))
+    assert result.loc[0, "status"] == "drifting"
+    assert result.loc[0, "day"] == pytest.approx(500.0)
+    assert result.loc[0, "slope"] == pytest.approx(0.002)
+
+
+def test_vectorised_crossings_of_nothing():
+    empty = pd.DataFrame(columns=["series", "day", "order", "as_found", "as_left", "adjusted"])
+    result = predict_crossings(empty, pd.Series({7: 1.0}))
+    assert result.loc[7, "status"] == "insufficient" and math.isnan(result.loc[7, "day"])
+
+
+def due_fields():
+    return {row["pk"]: row for row in Meter.objects.order_by("pk").values("pk", *UPDATED_FIELDS)}
+
+
+@pytest.mark.django_db
+@pytest.mark.parametrize("method", ["reliability", "staircase"])
+def test_bulk_recompute_gives_the_naive_due_dates(method, settings):
+    settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": method}
+    call_command("make_fleet", meters=60, seed=5, verbosity=0)
+    recompute_due_dates()
+    fast = due_fields()
+    Meter.objects.update(next_due_date=None, due_rationale={}, drift_status="", last_calibrated=None,
+                         drift_rate_per_year=None, predicted_crossing=None)
+    naive_recompute()
+    slow = due_fields()
+    assert fast.keys() == slow.keys() and len(fast) == 60
+    for pk in fast:
+        for name in UPDATED_FIELDS:
+            if name == "drift_rate_per_year" and fast[pk][name] is not None:
+                assert fast[pk][name] == pytest.approx(slow[pk][name], rel=1e-9), (pk, name)
+            else:
+                assert fast[pk][name] == slow[pk][name], (pk, name)
+    # the fleet is not trivial: several candidates win and several drift states occur
+    winners = Counter(row["due_rationale"]["winner"] for row in fast.values())
+    assert winners["risk"] and winners["drift"], winners
+    assert len({row["drift_status"] for row in fast.values()}) >= 3
+
+
+@pytest.mark.django_db
+def test_single_meter_recompute_pools_its_group_from_the_whole_fleet():
+    call_command("make_fleet", meters=40, seed=9, verbosity=0)
+    whole = due_fields()
+    some = [m.pk for m in Meter.objects.filter(calibrations__isnull=False).distinct().order_by("pk")[:3]]
+    Meter.objects.filter(pk__in=some).update(next_due_date=None, due_rationale={})
+    recompute_due_dates(Meter.objects.filter(pk__in=some))
+    again = due_fields()
+    for pk in some:
+        assert again[pk] == whole[pk]
+
+
+@pytest.mark.django_db
+def test_make_fleet_is_realistic_and_refuses_a_second_fleet():
+    call_command("make_fleet", meters=30, seed=3, verbosity=0)
+    tags = list(Meter.objects.order_by("tag").values_list("tag", flat=True))
+    assert tags[0] == "SYN-000001" and len(tags) == 30
+    events = CalibrationEvent.objects.filter(state="signed")
+    points = CalibrationPoint.objects.filter(event__state="signed")
+    assert 30 <= points.count() / 30 <= 80  # about 50 points per meter over ten years: 20,000 meters -> ~1,000,000
+    assert events.order_by("performed_on").first().performed_on <= dt.date(2016, 12, 31)
+    assert Meter.objects.filter(next_due_date__isnull=False).exists()  # due dates computed at the end
+    # every stored error and decision is what the point's own computation gives
+    for point in points.select_related("event__meter").order_by("pk")[:50]:
+        stored = (point.error, point.expanded_uncertainty, point.decision)
+        point.compute(point.event.meter, point.event.reference_standards.first(), point.event.decision_rule)
+        assert (point.error, point.expanded_uncertainty, point.decision) == stored
+    with pytest.raises(CommandError, match="already holds a synthetic fleet"):
+        call_command("make_fleet", meters=30, seed=3, verbosity=0)
+    assert Meter.objects.count() == 30
+
+
+@pytest.mark.django_db
+def test_make_fleet_same_seed_same_history():
+    from django.db import transaction
+
+    from calibration.synthetic import FleetBuilder
+
+    def build_and_read(seed):
+        with transaction.atomic():
+            FleetBuilder(12, seed=seed).build()
+            rows = list(CalibrationPoint.objects.order_by("event__meter__tag", "event__performed_on", "kind",
+                                                          "nominal_pct")
+                        .values_list("event__meter__tag", "event__performed_on", "kind", "nominal_pct", "error"))
+            transaction.set_rollback(True)
+        return rows
+
+    first = build_and_read(4)
+    assert len(first) > 100
+    assert build_and_read(4) == first
+    assert build_and_read(5) != first
