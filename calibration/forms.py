@@ -4,7 +4,9 @@ import math
 from django import forms
 from django.db import transaction
 
+from calibration.errors import point_error
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.forms import YesNoField
 
 NOMINAL_POINTS = (10, 25, 50, 75, 100)
 NUMERIC = {"inputmode": "decimal", "autocomplete": "off"}
@@ -15,13 +17,14 @@ class EventForm(forms.ModelForm):
         queryset=ReferenceStandard.objects.all(), widget=forms.CheckboxSelectMultiple,
         error_messages={"required": "Choose the reference standard used."},
     )
+    adjusted = YesNoField(label="Adjustment made", required=False)
 
     class Meta:
         model = CalibrationEvent
         fields = ["performed_on", "technician", "reference_standards", "procedure", "ambient_temp_c",
                   "fluid_temp_c", "pressure_bar", "reason", "adjusted", "decision_rule", "notes"]
         widgets = {
-            "performed_on": forms.DateInput(attrs={"type": "date"}),
+            "performed_on": forms.DateInput(attrs={"type": "date"}, format="%Y-%m-%d"),  # what type=date expects
             "procedure": forms.Textarea(attrs={"rows": 3}),
             "notes": forms.Textarea(attrs={"rows": 2}),
             "ambient_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
@@ -99,6 +102,41 @@ class PointRowForm(forms.Form):
                 self.add_error("reference_value", "A % of reading error needs a reference flow above zero.")
         return data
 
+    def check_results(self, standard, rule):
+        """Refuse a row whose results (error, U, decision) cannot be computed as finite numbers.
+
+        Runs the same computation as the save, on an unsaved point, so nothing can fail later with a server error.
+        """
+        data = self.cleaned_data
+        point = CalibrationPoint(
+            nominal_pct=data["nominal_pct"], reference_value=data["reference_value"],
+            indicated_value=data["indicated_value"], repeats=data["repeats"], resolution=data["resolution"] or 0.0,
+        )
+        try:
+            point.compute(self.meter, standard, rule)
+            if math.isfinite(point.error) and math.isfinite(point.expanded_uncertainty):
+                return
+        except (ValueError, ArithmeticError):
+            pass
+        repeats = data["repeats"]
+        if repeats and not math.isfinite(sum(repeats) / len(repeats)):
+            self.add_error("repeats", "The repeat readings are too large to average; check the values and units.")
+            return
+        indicated = sum(repeats) / len(repeats) if repeats else data["indicated_value"]
+        try:
+            error = point_error(data["reference_value"], indicated, self.meter.mpe_basis,
+                                self.meter.range_max - self.meter.range_min)
+        except (ValueError, ArithmeticError):
+            error = math.inf
+        if not math.isfinite(error):
+            self.add_error("repeats" if repeats else "indicated_value",
+                           "The indication is too far from the reference flow to give a finite error; "
+                           "check the value and its units.")
+            return
+        self.add_error("resolution" if data["resolution"] else ("repeats" if repeats else "reference_value"),
+                       "The uncertainty at this point cannot be computed from these values (a number is too large "
+                       "or too small); check the resolution, the repeat readings and the reference flow.")
+
 
 class BasePointGrid(forms.BaseFormSet):
     def __init__(self, *args, meter=None, **kwargs):
@@ -112,6 +150,13 @@ class BasePointGrid(forms.BaseFormSet):
     def filled_rows(self):
         return [f.cleaned_data for f in self.forms if f.cleaned_data and not f.is_blank()]
 
+    def clean(self):
+        # a negative row count would silently drop every row sent (the page never sends one)
+        if self.management_form.cleaned_data.get(forms.formsets.TOTAL_FORM_COUNT, 0) < 0:
+            raise forms.ValidationError(
+                "The number of rows sent is not valid; reload the page and enter the points again."
+            )
+
 
 PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, min_num=0, max_num=20)
 
@@ -121,11 +166,12 @@ class CalibrationEntry:
 
     def __init__(self, meter, data=None, user=None):
         from django.conf import settings
+        from django.utils import timezone
 
         self.meter = meter
         self.user = user
         bound = data is not None
-        initial = {"decision_rule": settings.CALIBRATION["decision_rule"],
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": timezone.localdate(),
                    "technician": (user.get_full_name() or user.username) if user else ""}
         self.event_form = EventForm(data, prefix="ev") if bound else EventForm(prefix="ev", initial=initial)
         self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)
@@ -154,6 +200,13 @@ class CalibrationEntry:
             problems.extend(standard.problems(date, values))
         for p in problems:
             self.event_form.add_error("reference_standards", p)
+        standards = self.event_form.cleaned_data.get("reference_standards")
+        if not problems and standards:
+            rule = self.event_form.cleaned_data.get("decision_rule")
+            for grid in (self.as_found, self.as_left):
+                for form in grid.forms:
+                    if not form.errors and not form.is_blank():
+                        form.check_results(standards.first(), rule)
         return not (self.non_field_errors or problems or any(f.errors for f in self.as_found.forms)
                     or any(f.errors for f in self.as_left.forms))
 

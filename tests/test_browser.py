@@ -1,0 +1,262 @@
+"""The field tablet flow in a real browser: log in, open a meter, enter a calibration, sign it, get the certificate.
+
+Playwright drives Debian's Chromium (/usr/bin/chromium, package `chromium`; .ci/run installs it). No browser is
+downloaded. The page is 820×1180 CSS pixels, a 10–11 inch tablet held upright. A screenshot of every step goes to
+test-artifacts/browser/ under the project root (ignored by git); the path is printed.
+"""
+import datetime as dt
+import io
+import re
+from pathlib import Path
+
+import pytest
+from django.conf import settings
+from django.db import connections
+from django.utils import timezone
+from playwright.sync_api import expect, sync_playwright  # in the "test" extra: pip install -e ".[test]"
+
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.models import Area, Fluid, Meter, Site
+from tests.conftest import user_with_role
+
+CHROMIUM = Path("/usr/bin/chromium")
+LAUNCH_ARGS = ["--no-sandbox", "--disable-gpu", "--disable-background-networking", "--disable-quic",
+               "--no-first-run", "--disable-component-update", "--disable-sync"]
+TABLET = {"width": 820, "height": 1180}
+ARTIFACTS = Path(settings.BASE_DIR) / "test-artifacts" / "browser"
+# Smallest touch target we accept, in CSS px (common practice: Apple's HIG asks 44 pt, Material 48 dp).
+MIN_TOUCH = 44
+TIMEOUT_MS = 15_000
+
+pytestmark = pytest.mark.django_db(transaction=True)
+
+
+@pytest.fixture
+def browser(monkeypatch):
+    # Playwright's sync API keeps an asyncio loop in this thread; Django's ORM refuses to run beside a running
+    # loop unless told otherwise. Scoped to this test by monkeypatch.
+    monkeypatch.setenv("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
+    if not CHROMIUM.exists():
+        pytest.fail(f"{CHROMIUM} not found: the browser test needs Debian's Chromium "
+                    f"(apt-get install chromium; .ci/run installs it when absent).", pytrace=False)
+    expect.set_options(timeout=TIMEOUT_MS)
+    with sync_playwright() as p:
+        chromium = p.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS)
+        try:
+            yield chromium
+        finally:
+            chromium.close()
+            # While Playwright's loop runs, Django keeps this thread's database connections apart from the usual
+            # ones (per async context); close them here, or PostgreSQL keeps a session open on the test database
+            # and refuses to drop it at the end of the run.
+            connections.close_all()
+
+
+@pytest.fixture
+def shots(request):
+    """Screenshot folder, emptied of the previous run's pictures and PDF."""
+    ARTIFACTS.mkdir(parents=True, exist_ok=True)
+    for old in [*ARTIFACTS.glob("*.png"), *ARTIFACTS.glob("*.pdf")]:
+        old.unlink()
+    line = f"browser screenshots: {ARTIFACTS}"
+    print(f"\n{line}")  # shown with -s, and in the report of a failure
+    try:  # the end-of-run summary, where the suite offers one
+        request.getfixturevalue("terminal_summary_lines").append(line)
+    except pytest.FixtureLookupError:
+        pass
+    return ARTIFACTS
+
+
+@pytest.fixture
+def small_plant():
+    today = timezone.localdate()
+    site = Site.objects.create(name="Browser test site")
+    area = Area.objects.create(site=site, name="Filling hall")
+    water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=450)
+    meter = Meter.objects.create(tag="FT-BRW-1", principle="electromagnetic", area=area, fluid=water,
+                                 line_size="DN50", internal_diameter_mm=52.5, range_min=0, range_max=40,
+                                 mpe_value=0.5, mpe_basis="pct_reading", wetted_material="316L")
+    standard = ReferenceStandard.objects.create(
+        identification="RS-BRW", description="Portable master meter", range_min=0, range_max=50,
+        certificate_number="C-BRW-1", due_date=today + dt.timedelta(days=365), expanded_uncertainty=0.1,
+        uncertainty_basis="pct_reading")
+    technician = user_with_role("technician", "fieldtech")
+    technician.set_password("tablet-pass-1")
+    technician.save()
+    return {"meter": meter, "standard": standard, "technician": technician, "password": "tablet-pass-1"}
+
+
+def counts():
+    return CalibrationEvent.objects.count(), CalibrationPoint.objects.count()
+
+
+def assert_touch_size(locator, what):
+    box = locator.bounding_box()
+    assert box is not None, f"{what} is not displayed"
+    assert box["height"] >= MIN_TOUCH, f"{what} is {box['height']:.0f} px high, below {MIN_TOUCH} px"
+
+
+def assert_no_sideways_scroll(page, where):
+    widths = page.evaluate("[document.documentElement.scrollWidth, document.documentElement.clientWidth]")
+    assert widths[0] <= widths[1], f"{where}: page is {widths[0]} px wide in a {widths[1]} px tablet viewport"
+
+
+def fill_points(page, prefix, rows):
+    for i, (ref, ind) in enumerate(rows):
+        page.locator(f'[name="{prefix}-{i}-reference_value"]').fill(str(ref))
+        page.locator(f'[name="{prefix}-{i}-indicated_value"]').fill(str(ind))
+
+
+def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
+    meter, standard = small_plant["meter"], small_plant["standard"]
+    context = browser.new_context(viewport=TABLET, device_scale_factor=1, has_touch=True, locale="en-GB",
+                                  accept_downloads=True)
+    context.set_default_timeout(TIMEOUT_MS)
+    page = context.new_page()
+    step = {"n": 0}
+
+    def shot(name):
+        step["n"] += 1
+        # After a full-page capture this Chromium delivered the next click about one scroll offset away from the
+        # button Playwright aimed at (it landed on the form). Scrolling the page (a nudge, then back to where it
+        # was) brings clicks back on target.
+        scrolled = page.evaluate("[window.scrollX, window.scrollY]")
+        page.screenshot(path=str(shots / f"{step['n']:02d}-{name}.png"), full_page=True)
+        page.evaluate("([x, y]) => { window.scrollTo(x, y + 1); window.scrollTo(x, y); }", scrolled)
+
+    try:
+        # Log in through the real form; the register redirects there first.
+        page.goto(f"{live_server.url}/meters/")
+        assert "/accounts/login/" in page.url
+        assert page.locator("link[rel=stylesheet]").count() == 1
+        # the stylesheet is served and applied (tablet sizes come from it)
+        assert page.evaluate("getComputedStyle(document.querySelector('button')).minHeight") == "48px"
+        shot("login")
+        page.get_by_label("Username").fill("fieldtech")
+        page.get_by_label("Password").fill("wrong password")
+        page.get_by_role("button", name="Log in").click()
+        expect(page.get_by_role("alert")).to_contain_text("correct username and password")
+        shot("login-refused")
+        page.get_by_label("Username").fill("fieldtech")
+        page.get_by_label("Password").fill(small_plant["password"])
+        assert_touch_size(page.get_by_role("button", name="Log in"), "Log in button")
+        page.get_by_role("button", name="Log in").click()
+        page.wait_for_url(re.compile(r"/meters/$"))
+        assert page.get_by_text("Technician Tester").is_visible()
+        assert page.get_by_text("1 meter", exact=True).is_visible()
+        # a technician is not offered pages they may not open
+        nav = page.get_by_role("navigation")
+        assert nav.get_by_role("link").all_inner_texts() == ["Meters"]
+        shot("register")
+
+        # Register -> meter page -> new calibration form.
+        meter_link = page.get_by_role("link", name=meter.tag, exact=True)
+        meter_link.click()
+        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/$"))
+        assert page.title().startswith(meter.tag) and "<" not in page.title()
+        shot("meter")
+        new_cal = page.get_by_role("link", name="New calibration")
+        assert_touch_size(new_cal, "New calibration link")
+        new_cal.click()
+        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/calibrate/$"))
+        assert_no_sideways_scroll(page, "calibration form")
+        shot("entry-empty")
+
+        # Tablet layout: decimal keypad on every number field, thumb-sized fields and buttons.
+        numbers = page.locator("input[type=number]")
+        assert numbers.count() >= 20  # 5 rows × (reference, indicated, resolution) × 2 grids, plus conditions
+        for i in range(numbers.count()):
+            field = numbers.nth(i)
+            assert field.get_attribute("inputmode") == "decimal", field.get_attribute("name")
+            assert_touch_size(field, f"input {field.get_attribute('name')}")
+        save = page.get_by_role("button", name="Save calibration")
+        assert_touch_size(save, "Save calibration button")
+        assert_touch_size(page.get_by_label("Date of calibration"), "date field")
+        assert_touch_size(page.get_by_label(str(standard)), "reference standard tick box")
+        assert_touch_size(page.get_by_label("Adjustment made"), "adjustment tick box")
+
+        # As-found with a reference flow above the meter's range (0–40): refused on the field, nothing saved.
+        today = timezone.localdate()
+        assert page.get_by_label("Date of calibration").input_value() == today.isoformat()  # today by default
+        assert page.get_by_label("Technician").input_value() == "Technician Tester"
+        page.get_by_label(str(standard)).check()
+        page.get_by_label("Method / procedure").fill("Comparison against portable master meter, five points")
+        page.get_by_label("Ambient temperature (°C)").fill("18")
+        page.get_by_label("Fluid temperature (°C)").fill("12.5")
+        page.get_by_label("Line pressure (bar g)").fill("3")
+        fill_points(page, "af", [(4, 4.01), (10, 10.02), (55, 55.1), (30, 30.30), (40, 40.04)])
+        before = counts()
+        with page.expect_response(lambda r: r.request.method == "POST") as posted:
+            save.click()
+        assert posted.value.status == 400
+        page.wait_for_load_state()
+        expect(page.locator("#not-saved")).to_be_visible()  # at the top: the marked row may be below the fold
+        message = page.locator('tr:has([name="af-2-reference_value"]) .errorlist')
+        expect(message).to_be_visible()
+        assert page.locator('[name="af-2-reference_value"]').get_attribute("aria-invalid") == "true"
+        assert "55 m³/h is outside the meter's calibrated range 0–40 m³/h." in message.inner_text()
+        message.scroll_into_view_if_needed()
+        shot("entry-refused")
+        assert counts() == before == (0, 0)
+        # what was typed is kept
+        assert page.locator('[name="af-0-indicated_value"]').input_value() == "4.01"
+        assert page.get_by_label(str(standard)).is_checked()
+
+        # Correct it, record an adjustment and the as-left points.
+        page.locator('[name="af-2-reference_value"]').fill("20")
+        page.locator('[name="af-2-indicated_value"]').fill("20.05")
+        page.get_by_label("Adjustment made").check()
+        fill_points(page, "al", [(4, 4.0), (10, 10.01), (20, 20.02), (30, 29.99), (40, 40.02)])
+        shot("entry-corrected")
+        page.get_by_role("button", name="Save calibration").click()
+        page.wait_for_url(re.compile(r"/calibrations/\d+/$"))
+        event = CalibrationEvent.objects.get()
+        assert page.url.endswith(f"/calibrations/{event.pk}/")
+        assert event.points.filter(kind="as_found").count() == 5 and event.points.filter(kind="as_left").count() == 5
+        assert event.adjusted and event.created_by == small_plant["technician"]
+        # 30.30 against 30 is 1 % of reading, twice the MPE: out of tolerance as found, in tolerance as left
+        assert page.locator("#as-found-verdict").inner_text() == "out of tolerance"
+        assert page.locator("#as-left-verdict").inner_text() == "in tolerance"
+        assert page.locator("table.results tr.decision-fail").count() == 1
+        assert_no_sideways_scroll(page, "results page")
+        shot("results")
+
+        # Sign it.
+        sign = page.get_by_role("button", name=re.compile("Sign and lock"))
+        assert_touch_size(sign, "Sign button")
+        sign.click()
+        expect(page.get_by_role("heading", level=1)).to_contain_text("Signed")
+        assert page.url.endswith(f"/calibrations/{event.pk}/")
+        event.refresh_from_db()
+        assert event.is_signed and event.signed_by == "Technician Tester" and event.signed_role == "Technician"
+        shot("signed")
+
+        # The certificate: fetched in the logged-in context (headless Chromium downloads PDFs instead of showing them).
+        certificate = page.get_by_role("link", name="Certificate (PDF)")
+        assert_touch_size(certificate, "Certificate link")
+        href = certificate.get_attribute("href")
+        assert href == f"/calibrations/{event.pk}/certificate.pdf"
+        response = page.request.get(f"{live_server.url}{href}")
+        assert response.status == 200
+        assert response.headers["content-type"] == "application/pdf"
+        body = response.body()
+        assert body.startswith(b"%PDF")
+        from pypdf import PdfReader
+
+        text = "".join(p.extract_text() for p in PdfReader(io.BytesIO(body)).pages)
+        assert meter.tag in text
+        (shots / "certificate.pdf").write_bytes(body)
+
+        # Back on the meter page the calibration is listed.
+        page.get_by_role("link", name=meter.tag, exact=True).first.click()
+        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/$"))
+        assert page.locator(f'table.grid a[href="/calibrations/{event.pk}/"]').is_visible()
+        shot("meter-after")
+    except BaseException:
+        try:
+            shot("failure")
+        except Exception as exc:  # the page may be gone; keep the original error
+            print(f"no failure screenshot: {exc}")
+        raise
+    finally:
+        context.close()
