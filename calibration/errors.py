@@ -67,6 +67,17 @@ def point_error(reference: float, indicated: float, basis: str, span: float | No
     return 100.0 * diff / span
 
 
+def indication_for_error(reference: float, error: float, basis: str, span: float | None = None) -> float:
+    """The indication that shows `error` at `reference` on the given basis (inverse of point_error)."""
+    _check_basis(basis)
+    if basis == "absolute":
+        return reference + error
+    if basis == "pct_reading":
+        return reference * (1 + error / 100.0)
+    _scale(basis, reference, span)  # validates span
+    return reference + error * span / 100.0
+
+
 def mpe_in_flow_units(mpe_value: float, basis: str, reference: float, span: float | None = None) -> float:
     """Convert a maximum permissible error (MPE) stated on ``basis`` to flow units.
 

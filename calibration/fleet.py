@@ -9,6 +9,7 @@ which the benchmark keeps as its baseline and the tests compare with this one.
 from __future__ import annotations
 
 import datetime as dt
+import json
 import math
 from collections import defaultdict
 
@@ -21,10 +22,11 @@ from django.db.models.functions import Coalesce
 
 from calibration import drift, drift_fleet, due, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint
+from plant import risk
 from plant.models import Fluid, Meter
 
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
-                  "predicted_crossing"]
+                  "predicted_crossing", "last_in_tolerance", "risk_severity"]
 # what the due-date rule reads of a meter (risk inputs, interval, MPE); the rest is not loaded
 METER_INPUTS = ["id", "principle", "fluid", "wetted_material", "internal_diameter_mm", "flow_units", "normal_flow",
                 "min_flow", "mpe_value", "base_interval_days"]
@@ -106,7 +108,8 @@ def _ordinal_days(values: pd.Series) -> np.ndarray:
 
 def _flag(values: pd.Series) -> pd.Series:
     """Nullable booleans (SQLite gives 0/1) as True/False/None."""
-    return values.map({True: True, False: False, 1: True, 0: False}).astype(object)
+    flags = values.map({True: True, False: False, 1: True, 0: False}).astype(object)
+    return flags.where(flags.notna(), None)
 
 
 def signed_events(where: Q | None = None, with_group: bool = False):
@@ -274,7 +277,7 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
         groups = {(m.principle, m.fluid.phase) for m in meters}
         reliability = reliability_by_group(obs if whole_fleet else _group_observations(groups), cfg)
 
-    last_by_meter = last_events[["id", "day", "decision_rule"]].to_dict("index")
+    last_by_meter = last_events[["id", "day", "decision_rule", "as_found_in_tolerance"]].to_dict("index")
     drift_by_meter = drift_summary.to_dict("index")
     for meter in meters:
         if meter.pk not in last_by_meter:
@@ -289,7 +292,8 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
 
 
 def _no_history(meter):
-    meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = None
+    meter.risk_severity = risk.worst_severity(meter.findings())
+    meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = meter.last_in_tolerance = None
     meter.drift_status, meter.drift_rate_per_year = "insufficient", None
     meter.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
                            "note": "No signed calibration yet: due now."}
@@ -327,7 +331,10 @@ def _assess(meter, last_event, summary, stair, reliability, cfg):
             crossing = dt.date.fromordinal(max(int(math.floor(summary["crossing_day"])), last.toordinal()))
             crossing_reason = f"drift at {nominal:g} % of range{' (guard band U)' if guarded else ''}:"
     chosen, reason = method_reason(meter, stair, reliability, cfg)
-    decision = due.decide_due(last, meter.base_interval_days, meter.risk_factor(), crossing=crossing,
+    findings = meter.findings()
+    meter.risk_severity = risk.worst_severity(findings)
+    meter.last_in_tolerance = last_event["as_found_in_tolerance"]
+    decision = due.decide_due(last, meter.base_interval_days, risk.interval_factor(findings), crossing=crossing,
                               crossing_reason=crossing_reason, margin_days=cfg["drift_margin_days"],
                               method_interval_days=chosen, method_reason=reason,
                               min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
@@ -340,19 +347,36 @@ def _assess(meter, last_event, summary, stair, reliability, cfg):
 
 
 def write_due_fields(meters, batch_size=1000):
-    """One UPDATE per meter sent in batches (executemany), values prepared by each field for the database."""
-
+    """Store the recomputed fields of the meters: batched statements, values prepared once per column."""
     connection = connections[Meter.objects.db]
     fields = [Meter._meta.get_field(name) for name in UPDATED_FIELDS]
     quote = connection.ops.quote_name
-    sql = (f"UPDATE {quote(Meter._meta.db_table)} SET "
-           + ", ".join(f"{quote(f.column)} = %s" for f in fields)
-           + f" WHERE {quote(Meter._meta.pk.column)} = %s")
-    # the adapters get_db_prep_save would reach, looked up once rather than per value
+    table, pk = quote(Meter._meta.db_table), quote(Meter._meta.pk.column)
     ops = connection.ops
-    adapt = {"DateField": ops.adapt_datefield_value, "JSONField": lambda v: ops.adapt_json_value(v, None)}
-    preparers = [adapt.get(f.get_internal_type(), lambda v: v) for f in fields]
-    rows = [[prepare(getattr(m, f.attname)) for f, prepare in zip(fields, preparers)] + [m.pk] for m in meters]
     with transaction.atomic(using=connection.alias), connection.cursor() as cursor:
-        for start in range(0, len(rows), batch_size):
-            cursor.executemany(sql, rows[start:start + batch_size])
+        if connection.vendor == "postgresql":
+            # one UPDATE ... FROM unnest(arrays) per batch: a round trip per batch rather than per meter
+            columns = ", ".join(f"{quote(f.column)} = v.{quote(f.column)}"
+                                + ("::jsonb" if f.get_internal_type() == "JSONField" else "") for f in fields)
+            arrays = ", ".join(["%s::bigint[]"] + [("%s::text[]" if f.get_internal_type() == "JSONField"
+                                                    else f"%s::{f.db_type(connection)}[]") for f in fields])
+            names = ", ".join(["id"] + [quote(f.column) for f in fields])
+            sql = f"UPDATE {table} AS m SET {columns} FROM unnest({arrays}) AS v({names}) WHERE m.{pk} = v.id"
+            dump = {"JSONField": json.dumps}
+            for start in range(0, len(meters), batch_size * 5):
+                batch = meters[start:start + batch_size * 5]
+                params = [[m.pk for m in batch]]
+                for f in fields:
+                    prepare = dump.get(f.get_internal_type(), lambda v: v)
+                    params.append([prepare(getattr(m, f.attname)) for m in batch])
+                cursor.execute(sql, params)
+        else:
+            # the adapters get_db_prep_save would reach, looked up once rather than per value
+            adapt = {"DateField": ops.adapt_datefield_value, "JSONField": lambda v: ops.adapt_json_value(v, None)}
+            preparers = [adapt.get(f.get_internal_type(), lambda v: v) for f in fields]
+            sql = (f"UPDATE {table} SET " + ", ".join(f"{quote(f.column)} = %s" for f in fields)
+                   + f" WHERE {pk} = %s")
+            rows = [[prepare(getattr(m, f.attname)) for f, prepare in zip(fields, preparers)] + [m.pk]
+                    for m in meters]
+            for start in range(0, len(rows), batch_size):
+                cursor.executemany(sql, rows[start:start + batch_size])

@@ -131,6 +131,8 @@ class CalibrationEvent(models.Model):
 
     class Meta:
         ordering = ["-performed_on", "-id"]
+        # drafts are few among hundreds of thousands of signed events: the review finds them by this index
+        indexes = [models.Index(fields=["meter"], condition=models.Q(state="draft"), name="calibration_draft_idx")]
         permissions = [
             ("sign_calibration", "Can sign own calibrations"),
             ("countersign_calibration", "Can countersign calibrations"),
@@ -139,6 +141,15 @@ class CalibrationEvent(models.Model):
 
     def __str__(self):
         return f"{self.meter.tag} {self.performed_on} ({self.get_state_display()})"
+
+    def clean(self):
+        errors = {}
+        for name in ("ambient_temp_c", "fluid_temp_c"):
+            value = getattr(self, name)
+            if isinstance(value, (int, float)) and not isinstance(value, bool) and value < -273.15:
+                errors[name] = "Temperature is below absolute zero."
+        if errors:
+            raise ValidationError(errors)
 
     def get_absolute_url(self):
         return reverse("calibration:event-detail", args=[self.pk])

@@ -13,6 +13,7 @@ import random
 
 from django.db import transaction
 
+from calibration import errors
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.management.commands.build_demo_plant import FLUIDS, MAKERS, METERS
 from plant.models import Area, Fluid, Meter, Site
@@ -30,6 +31,12 @@ SITES = [
 AREAS = ["Intake", "Process A", "Process B", "CIP", "Boiler house", "Utilities", "Dosing", "Effluent"]
 TECHNICIANS = ["T. Arkwright-Nye", "L. Mbeki-Storr", "P. Halloran", "J. Vesterby", "K. Oduya"]
 PROCEDURE = "In-situ comparison against a portable reference meter in series, five points up the range (WP-SY-01)."
+
+
+def invented_found_errors(rng, offset, mpe):
+    """As-found errors at the nominal points: a common offset tilted up or down the range, plus scatter."""
+    shape = rng.uniform(-0.3, 0.3)
+    return [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
 
 
 def fluids():
@@ -144,8 +151,7 @@ class FleetBuilder:
             if behaviour == "fouling" and not jumped and rng.random() < 0.3:
                 offset += rng.choice([-1, 1]) * rng.uniform(0.8, 1.6) * mpe
                 jumped = True
-            shape = rng.uniform(-0.3, 0.3)
-            found = [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
+            found = invented_found_errors(rng, offset, mpe)
             adjust = max(abs(e) for e in found) > 0.6 * mpe
             left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS] if adjust else []
             event = CalibrationEvent(
@@ -178,12 +184,7 @@ class FleetBuilder:
         out = []
         for nominal, error in zip(NOMINALS, errors_in_basis):
             reference = round(meter.range_min + span * nominal / 100 * self.rng.uniform(0.97, 1.0), 4)
-            if meter.mpe_basis == "pct_reading":
-                indicated = reference * (1 + error / 100)
-            elif meter.mpe_basis == "pct_span":
-                indicated = reference + error * span / 100
-            else:
-                indicated = reference + error
+            indicated = errors.indication_for_error(reference, error, meter.mpe_basis, span)
             point = CalibrationPoint(kind=kind, nominal_pct=nominal, reference_value=reference,
                                      indicated_value=round(indicated, 6))
             point.compute(meter, standard, rule)

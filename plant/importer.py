@@ -52,6 +52,8 @@ KINDS = {
 }
 TRUE_WORDS = {"yes", "y", "true", "t", "1"}
 FALSE_WORDS = {"no", "n", "false", "f", "0", ""}
+# PostgreSQL text cannot hold NUL, so such a cell is refused before it reaches a query (the forms say the same)
+NUL_MESSAGE = "Null characters are not allowed."
 
 
 class ImportFileError(ValueError):
@@ -139,6 +141,10 @@ def read_table(uploaded, filename: str | None = None) -> list[dict]:
             text = data.decode("utf-8-sig")
         except UnicodeDecodeError:
             text = data.decode("cp1252", errors="replace")  # Excel on Windows saves CSV in the ANSI code page
+        if "\x00" in text:  # the CSV parser would cut the cell short there and import the rest silently
+            line = text.count("\n", 0, text.index("\x00")) + 1
+            raise ImportFileError(f"Could not read {filename} as CSV: it contains a null character (line {line}). "
+                                  "Save it again as CSV (UTF-8).")
         try:
             header_line = text.split("\n", 1)[0]
             sep = ";" if header_line.count(";") > header_line.count(",") else ","  # Excel in comma-decimal locales
@@ -337,8 +343,9 @@ def _process(plan: Plan, save: bool) -> None:
 
 def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, save: bool) -> PlanRow:
     model, form_class, key_column = spec["model"], spec["form"], spec["key"]
+    field_errors: dict[str, str] = {column: NUL_MESSAGE for column in spec["columns"] if "\x00" in raw.get(column, "")}
     existing = None
-    if key:
+    if key and key_column not in field_errors:
         queryset = model.objects.all()
         if model is Meter:
             queryset = queryset.select_related("area__site", "fluid")
@@ -351,9 +358,8 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, s
 
     form_fields = list(form_class.base_fields)
     data = model_to_dict(instance, fields=form_fields)
-    field_errors: dict[str, str] = {}
     for column in spec["columns"]:
-        if column not in raw or column in ("site", "area", "fluid"):
+        if column not in raw or column in ("site", "area", "fluid") or column in field_errors:
             continue
         value = raw[column]
         model_field = model._meta.get_field(column)
@@ -380,8 +386,8 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, s
     if not form.is_valid():
         for name, messages in form.errors.items():
             column = "" if name == "__all__" else name
-            if column in field_errors:
-                continue  # already explained (e.g. unknown fluid) — don't add "This field is required."
+            if column in field_errors or (column == "area" and "site" in field_errors):
+                continue  # already explained (e.g. unknown fluid or site) — don't add "This field is required."
             for message in messages:
                 plan.errors.append(RowError(row_number, column, message))
         return plan_row
@@ -403,7 +409,9 @@ def _resolve_meter_relations(plan, plan_row, raw, data, field_errors, existing) 
     site_name, area_name = raw.get("site", "").strip(), raw.get("area", "").strip()
     fluid_name = raw.get("fluid", "").strip()
 
-    if not fluid_name:
+    if "fluid" in field_errors:
+        pass  # refused as it stands (null characters)
+    elif not fluid_name:
         field_errors["fluid"] = "This field is required."
     else:
         fluid = _find_by_name(Fluid.objects.all(), fluid_name)
@@ -413,10 +421,10 @@ def _resolve_meter_relations(plan, plan_row, raw, data, field_errors, existing) 
             data["fluid"] = fluid.pk
 
     if not site_name:
-        field_errors["site"] = "This field is required."
+        field_errors.setdefault("site", "This field is required.")
     if not area_name:
-        field_errors["area"] = "This field is required."
-    if not site_name or not area_name:
+        field_errors.setdefault("area", "This field is required.")
+    if "site" in field_errors or "area" in field_errors:
         return
     site = _find_by_name(Site.objects.all(), site_name)
     if site is None:

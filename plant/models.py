@@ -1,4 +1,6 @@
 """The installed-meter register: sites, areas, fluids (service duty), meters and their duty history."""
+import math
+
 from django.core.exceptions import ValidationError
 from django.core.validators import MinValueValidator
 from django.db import models, transaction
@@ -6,6 +8,32 @@ from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
 from plant import risk
+
+# A sanity bound, not a policy: the policy bounds of computed intervals are CALIBRATION min/max_interval_days.
+MAX_BASE_INTERVAL_DAYS = 3650
+
+
+def _number(value):
+    """The value if it is a real number (not a flag, not an unconverted string), else None."""
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return value
+    return None
+
+
+def unstorable_value_errors(instance) -> dict:
+    """Values the field validators let through but the register must not hold: NaN or infinity in a float field
+    (every comparison with them is False, so range checks pass) and null characters in text (PostgreSQL refuses
+    them with a server error)."""
+    errors = {}
+    for f in instance._meta.concrete_fields:
+        value = getattr(instance, f.attname)
+        if isinstance(f, models.FloatField):
+            value = _number(value)
+            if value is not None and not math.isfinite(value):
+                errors[f.name] = "Enter a finite number."
+        elif isinstance(f, (models.CharField, models.TextField)) and isinstance(value, str) and "\x00" in value:
+            errors[f.name] = "Null characters are not allowed."
+    return errors
 
 
 class Site(models.Model):
@@ -70,6 +98,14 @@ class Fluid(models.Model):
     def __str__(self):
         return self.name
 
+    def get_absolute_url(self):
+        return reverse("plant:meter-list") + f"?fluid={self.pk}"
+
+    def clean(self):
+        errors = unstorable_value_errors(self)
+        if errors:
+            raise ValidationError(errors)
+
     def props(self) -> risk.FluidProps:
         return risk.FluidProps(
             phase=self.phase,
@@ -87,7 +123,18 @@ class Fluid(models.Model):
 
     def save(self, *args, **kwargs):
         self.full_clean()
-        super().save(*args, **kwargs)
+        with transaction.atomic():
+            super().save(*args, **kwargs)
+            self.refresh_meter_risk()
+
+    def refresh_meter_risk(self):
+        """Re-judge the meters on this fluid (their stored risk severity) after its properties changed."""
+        by_severity = {}
+        for meter in self.meters.all():
+            meter.fluid = self
+            by_severity.setdefault(risk.worst_severity(meter.findings()), []).append(meter.pk)
+        for severity, pks in by_severity.items():
+            Meter.objects.filter(pk__in=pks).update(risk_severity=severity)
 
 
 class Meter(models.Model):
@@ -114,6 +161,13 @@ class Meter(models.Model):
         IN_SERVICE = "in_service", "In service"
         SPARE = "spare", "Spare"
         REMOVED = "removed", "Removed"
+
+    class DriftStatus(models.TextChoices):
+        INSUFFICIENT = "insufficient", "too little history to judge"
+        FLAT = "flat", "no significant drift"
+        IMPROVING = "improving", "drifting toward zero error"
+        DRIFTING = "drifting", "drifting"
+        OUT_OF_TOLERANCE = "out_of_tolerance", "last found out of tolerance"
 
     tag = models.CharField(max_length=40, unique=True, error_messages={"unique": "A meter with this tag already exists."})
     principle = models.CharField(max_length=30, choices=Principle.choices)
@@ -145,11 +199,16 @@ class Meter(models.Model):
     last_calibrated = models.DateField(null=True, blank=True, editable=False)
     next_due_date = models.DateField(null=True, blank=True, editable=False)
     due_rationale = models.JSONField(default=dict, blank=True, editable=False)
-    drift_status = models.CharField(max_length=20, blank=True, editable=False)
+    drift_status = models.CharField(max_length=20, blank=True, editable=False, choices=DriftStatus.choices)
     drift_rate_per_year = models.FloatField(null=True, blank=True, editable=False)
     predicted_crossing = models.DateField(null=True, blank=True, editable=False)
+    last_in_tolerance = models.BooleanField("last as-found in tolerance", null=True, editable=False)
+    # worst severity of the principle×fluid findings, kept so the review filters in the database; refreshed by
+    # save(), by Fluid.save() for the fluid's meters and by every due-date recompute
+    risk_severity = models.CharField(max_length=12, blank=True, editable=False)
     history = HistoricalRecords(excluded_fields=["last_calibrated", "next_due_date", "due_rationale", "drift_status",
-                                                 "drift_rate_per_year", "predicted_crossing"])
+                                                 "drift_rate_per_year", "predicted_crossing", "last_in_tolerance",
+                                                 "risk_severity"])
 
     class Meta:
         ordering = ["tag"]
@@ -161,31 +220,40 @@ class Meter(models.Model):
         return reverse("plant:meter-detail", args=[self.tag])
 
     def clean(self):
-        errors = {}
-        if self.range_max is not None and self.range_min is not None and self.range_max <= self.range_min:
-            errors["range_max"] = "The range high must be above the range low."
+        errors = unstorable_value_errors(self)
+        # fields that failed their own checks keep whatever was assigned; leave them to those messages
+        low, high = (None if f in errors else _number(getattr(self, f)) for f in ("range_min", "range_max"))
+        if high is not None and low is not None:
+            if high <= low:
+                errors["range_max"] = "The range high must be above the range low."
+            elif not math.isfinite(high - low):
+                errors["range_max"] = "The range is too wide: range high minus range low must be a finite number."
         for field in ("normal_flow", "min_flow"):
-            value = getattr(self, field)
-            if value is None or self.range_max is None:
+            value = None if field in errors else _number(getattr(self, field))
+            if value is None or high is None:
                 continue
             if value < 0:
                 errors[field] = "A process flow cannot be negative."
-            elif value > self.range_max:
+            elif value > high:
                 errors[field] = (
                     f"{self._meta.get_field(field).verbose_name.capitalize()} ({value:g}) is above the "
-                    f"calibrated range high ({self.range_max:g} {self.flow_units})."
+                    f"calibrated range high ({high:g} {self.flow_units})."
                 )
-        if (
-            "min_flow" not in errors and "normal_flow" not in errors
-            and self.min_flow is not None and self.normal_flow is not None
-            and self.min_flow > self.normal_flow
-        ):
+        normal = None if "normal_flow" in errors else _number(self.normal_flow)
+        minimum = None if "min_flow" in errors else _number(self.min_flow)
+        if minimum is not None and normal is not None and minimum > normal:
             errors["min_flow"] = "The minimum flow cannot be above the normal flow."
+        interval = _number(self.base_interval_days)
+        if interval is not None and interval > MAX_BASE_INTERVAL_DAYS:
+            errors["base_interval_days"] = (
+                f"The base interval cannot be longer than {MAX_BASE_INTERVAL_DAYS} days (ten years)."
+            )
         if errors:
             raise ValidationError(errors)
 
     def save(self, *args, **kwargs):
         self.full_clean()
+        self.risk_severity = risk.worst_severity(self.findings())
         with transaction.atomic():
             previous = None
             if self.pk:

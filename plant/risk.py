@@ -132,6 +132,12 @@ def reynolds_number(density_kg_m3, viscosity_mpa_s, flow_m3_h, diameter_mm) -> f
     return rho * v * d / mu
 
 
+def worst_severity(findings) -> str:
+    """The most serious severity among the findings ("" when there are none)."""
+    present = {f.severity for f in findings}
+    return next((s for s in SEVERITIES if s in present), "")
+
+
 def interval_factor(findings) -> float:
     """Smallest interval factor among findings; 1.0 if there are none."""
     factors = [f.interval_factor for f in findings]

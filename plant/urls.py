@@ -13,6 +13,7 @@ plant_patterns = (
         path("export.xlsx", import_views.export_register_xlsx, name="export-xlsx"),
         path("<str:tag>/", views.meter_detail, name="meter-detail"),
         path("<str:tag>/calibrate/", calibration_views.new_calibration, name="meter-calibrate"),
+        path("<str:tag>/edit/", views.meter_edit, name="meter-edit"),
     ],
     "plant",
 )
@@ -20,6 +21,7 @@ plant_patterns = (
 urlpatterns = [
     path("", RedirectView.as_view(url="/meters/", permanent=False)),
     path("meters/", include(plant_patterns)),
+    path("fluids/<int:pk>/edit/", views.fluid_edit, name="fluid-edit"),
     path("calibrations/", include("calibration.urls")),
     path("", include("reports.urls")),
     path("accounts/", include("django.contrib.auth.urls")),

@@ -1,11 +1,14 @@
+from django.contrib import messages
 from django.contrib.auth.decorators import permission_required
-from django.shortcuts import get_object_or_404, render
+from django.db import transaction
+from django.shortcuts import get_object_or_404, redirect, render
 from django_tables2 import RequestConfig
 
 from calibration.due import rationale_text
 from calibration.trend import meter_drift_chart
 from plant.filters import MeterFilter
-from plant.models import Meter
+from plant.forms import FluidForm, MeterForm
+from plant.models import Fluid, Meter
 from plant.tables import MeterTable
 
 
@@ -51,3 +54,27 @@ def _audit_rows(meter, limit=30):
             rows.append({"what": label, "when": newer.history_date, "who": newer.history_user or "system",
                          "kind": newer.get_history_type_display(), "changes": changes})
     return sorted(rows, key=lambda r: r["when"], reverse=True)[:limit]
+
+
+def _edit(request, instance, form_class, template, title):
+    """Change one register record: all fields checked by the model, saved whole or not at all."""
+    form = form_class(request.POST or None, instance=instance)
+    if request.method == "POST" and form.is_valid():
+        with transaction.atomic():
+            saved = form.save()
+        messages.success(request, f"{title} saved.")
+        return redirect(saved.get_absolute_url())
+    status = 400 if request.method == "POST" else 200
+    return render(request, template, {"form": form, "title": title, "instance": instance}, status=status)
+
+
+@permission_required("plant.change_meter", raise_exception=True)
+def meter_edit(request, tag):
+    meter = get_object_or_404(Meter, tag=tag)
+    return _edit(request, meter, MeterForm, "plant/record_form.html", f"Meter {meter.tag}")
+
+
+@permission_required("plant.change_fluid", raise_exception=True)
+def fluid_edit(request, pk):
+    fluid = get_object_or_404(Fluid, pk=pk)
+    return _edit(request, fluid, FluidForm, "plant/record_form.html", f"Fluid {fluid.name}")

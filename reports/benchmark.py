@@ -17,6 +17,7 @@ from django.test.utils import CaptureQueriesContext
 
 from calibration import drift, due, fleet, intervals
 from calibration.models import CalibrationEvent
+from plant import risk
 
 
 # The baseline -------------------------------------------------------------------------------------
@@ -113,6 +114,8 @@ def naive_recompute(meters_qs=None, progress=None):
             meter.drift_status = fleet.summarise_status(statuses)
             meter.drift_rate_per_year = worst_rate * 365.25 if worst_rate is not None else None
             meter.predicted_crossing = crossing
+            meter.last_in_tolerance = last_row.as_found_in_tolerance
+            meter.risk_severity = risk.worst_severity(meter.findings())
         Meter.objects.filter(pk=meter.pk).update(**{name: getattr(meter, name) for name in fleet.UPDATED_FIELDS})
         if progress:
             progress(1)
@@ -120,6 +123,11 @@ def naive_recompute(meters_qs=None, progress=None):
 
 
 # Measuring ----------------------------------------------------------------------------------------
+def refresh_statistics():
+    """What routine maintenance does after mass writes: reclaim dead rows (PostgreSQL) and refresh the
+    planner's statistics, so page queries are planned for the data actually there."""
+    with connection.cursor() as cursor:
+        cursor.execute("VACUUM ANALYZE" if connection.vendor == "postgresql" else "ANALYZE")
 def timed(function, repeat=1):
     """(median seconds over `repeat` runs, last result)."""
     times, result = [], None

@@ -7,29 +7,27 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass
 
-from django.db.models import F, OuterRef, Q, Subquery
+from django.db.models import Count, F, Q
 from django.utils import timezone
 
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant.models import Meter
+
+SEVERE, HIGH = "misapplied", "high"
 
 
 @dataclass
 class Bucket:
     key: str
     title: str
-    rows: object  # queryset or list
+    rows: object  # queryset
     table_class: type
+    count: int = 0
 
 
-def last_verdict_subquery():
-    signed = CalibrationEvent.objects.filter(meter=OuterRef("pk"), state=CalibrationEvent.State.SIGNED,
-                                             superseded_by__isnull=True).order_by("-performed_on", "-id")
-    return Subquery(signed.values("as_found_in_tolerance")[:1])
-
-
-def in_service(filters: dict):
-    qs = Meter.objects.filter(status=Meter.Status.IN_SERVICE).select_related("area__site", "fluid")
+def registered(filters: dict):
+    """In-service meters narrowed by the page's filters (site, area, principle, fluid)."""
+    qs = Meter.objects.filter(status=Meter.Status.IN_SERVICE)
     lookups = {"site": "area__site", "area": "area", "principle": "principle", "fluid": "fluid"}
     for name, value in filters.items():
         if value not in (None, ""):
@@ -37,37 +35,23 @@ def in_service(filters: dict):
     return qs
 
 
-def overdue(meters, today):
-    return meters.filter(Q(next_due_date__lt=today) | Q(next_due_date__isnull=True))
+def in_service(filters: dict):
+    return registered(filters).select_related("area__site", "fluid")
 
 
-def due_soon(meters, today, days):
-    return meters.filter(next_due_date__gte=today, next_due_date__lte=today + dt.timedelta(days=days))
-
-
-def drifting(meters):
-    return meters.filter(
-        Q(predicted_crossing__isnull=False, next_due_date__isnull=False, predicted_crossing__lt=F("next_due_date"))
-        | Q(drift_status="drifting")
-    )
-
-
-def last_out_of_tolerance(meters):
-    return meters.annotate(last_in_tolerance=last_verdict_subquery()).filter(last_in_tolerance=False)
-
-
-def risky(meters):
-    """Misapplied meters and high-risk duties (principle×fluid rules; computed in Python, one query)."""
-    rows = []
-    for meter in meters:
-        findings = [f for f in meter.findings() if f.severity in ("misapplied", "high")]
-        if findings:
-            worst = "misapplied" if any(f.severity == "misapplied" for f in findings) else "high"
-            rows.append({"meter": meter, "tag": meter.tag, "principle": meter.get_principle_display(),
-                         "fluid": meter.fluid.name, "area": meter.area.name, "severity": worst,
-                         "codes": ", ".join(f.code for f in findings),
-                         "reasons": " ".join(f.reason for f in findings)})
-    return rows
+def meter_conditions(today, days):
+    """The meter lists of the review, each as a condition on the fields stored on the meter."""
+    return {
+        "overdue": Q(next_due_date__lt=today) | Q(next_due_date__isnull=True),
+        "due": Q(next_due_date__gte=today, next_due_date__lte=today + dt.timedelta(days=days)),
+        # predicted to leave tolerance before it is next due, or drifting significantly
+        "drifting": (Q(predicted_crossing__isnull=False, next_due_date__isnull=False,
+                       predicted_crossing__lt=F("next_due_date")) | Q(drift_status=Meter.DriftStatus.DRIFTING)),
+        # the latest signed as-found was out of tolerance
+        "failed": Q(last_in_tolerance=False),
+        # misapplied meters and high-risk duties (principle×fluid rules)
+        "risk": Q(risk_severity__in=[SEVERE, HIGH]),
+    }
 
 
 def standards_expiring(today, days):
@@ -80,17 +64,25 @@ def unsigned_drafts(filters: dict):
 
 
 def build(filters: dict, days: int = 14, today: dt.date | None = None):
+    """The review's buckets with their counts: the meter lists are counted together in one query."""
     from reports import tables
 
     today = today or timezone.localdate()
     meters = in_service(filters)
-    return [
-        Bucket("overdue", "Overdue", overdue(meters, today), tables.OverdueTable),
-        Bucket("due", f"Due in the next {days} days", due_soon(meters, today, days), tables.DueTable),
-        Bucket("drifting", "Drifting", drifting(meters), tables.DriftingTable),
-        Bucket("failed", "Last as-found out of tolerance", last_out_of_tolerance(meters), tables.FailedTable),
-        Bucket("risk", "Misapplied meters and high-risk duties", risky(meters), tables.RiskTable),
-        Bucket("standards", f"Reference standards expired or due within {days} days", standards_expiring(today, days),
-               tables.StandardTable),
-        Bucket("drafts", "Draft calibrations not signed", unsigned_drafts(filters), tables.DraftTable),
-    ]
+    conditions = meter_conditions(today, days)
+    counts = registered(filters).aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
+    standards = standards_expiring(today, days)
+    drafts = unsigned_drafts(filters)
+    titles = {
+        "overdue": ("Overdue", tables.OverdueTable),
+        "due": (f"Due in the next {days} days", tables.DueTable),
+        "drifting": ("Drifting", tables.DriftingTable),
+        "failed": ("Last as-found out of tolerance", tables.FailedTable),
+        "risk": ("Misapplied meters and high-risk duties", tables.RiskTable),
+    }
+    buckets = [Bucket(key, title, meters.filter(conditions[key]), table, counts[key])
+               for key, (title, table) in titles.items()]
+    buckets.append(Bucket("standards", f"Reference standards expired or due within {days} days", standards,
+                          tables.StandardTable, standards.count()))
+    buckets.append(Bucket("drafts", "Draft calibrations not signed", drafts, tables.DraftTable, drafts.count()))
+    return buckets

@@ -1,12 +1,26 @@
 import csv
 
 from django.contrib.auth.decorators import permission_required
+from django.core.paginator import Paginator
 from django.http import HttpResponse
 from django.shortcuts import render
+from django.utils.functional import cached_property
 from django_tables2 import RequestConfig
 
 from reports import review
 from reports.forms import ReviewFilterForm
+
+
+class CountedPaginator(Paginator):
+    """A paginator told its count: the review counts all its lists in one query beforehand."""
+
+    def __init__(self, object_list, per_page, known_count=None, **kwargs):
+        super().__init__(object_list, per_page, **kwargs)
+        self.known_count = known_count
+
+    @cached_property
+    def count(self):
+        return super().count if self.known_count is None else self.known_count
 
 
 def _buckets(request):
@@ -27,7 +41,8 @@ def weekly_review(request):
     shown = []
     for bucket in buckets:
         table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-")
-        RequestConfig(request, paginate={"per_page": 25}).configure(table)
+        RequestConfig(request, paginate={"per_page": 10, "paginator_class": CountedPaginator,
+                                         "known_count": bucket.count}).configure(table)
         shown.append((bucket, table))
     status = 400 if form.is_bound and not form.is_valid() else 200
     return render(request, "reports/review.html", {"form": form, "buckets": shown, "days": days}, status=status)

@@ -2,6 +2,14 @@ import django_tables2 as tables
 from django.utils import timezone
 
 
+class IsoDateColumn(tables.DateColumn):
+    """Dates as YYYY-MM-DD on the page, as in the CSV export: unambiguous on any locale."""
+
+    def __init__(self, *args, **kwargs):
+        kwargs.setdefault("format", "Y-m-d")
+        super().__init__(*args, **kwargs)
+
+
 class MeterColumns(tables.Table):
     tag = tables.Column(linkify=lambda record: record.get_absolute_url())
     principle = tables.Column()
@@ -21,8 +29,11 @@ class MeterColumns(tables.Table):
 
 
 class OverdueTable(MeterColumns):
-    next_due_date = tables.Column(verbose_name="Due", default="never calibrated")
+    next_due_date = IsoDateColumn(verbose_name="Due", default="never calibrated")
     days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue", order_by=("next_due_date",))
+
+    def value_next_due_date(self, record, value):
+        return value if value is not None else "never calibrated"
 
     def render_days_overdue(self, record):
         if record.next_due_date is None:
@@ -34,42 +45,52 @@ class OverdueTable(MeterColumns):
 
 
 class DueTable(MeterColumns):
-    next_due_date = tables.Column(verbose_name="Due")
-    last_calibrated = tables.Column(verbose_name="Last calibrated")
+    next_due_date = IsoDateColumn(verbose_name="Due")
+    last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
 
 
 class DriftingTable(MeterColumns):
     drift_rate_per_year = tables.Column(verbose_name="Worst drift / year")
-    predicted_crossing = tables.Column(verbose_name="Predicted crossing")
-    next_due_date = tables.Column(verbose_name="Due")
+    predicted_crossing = IsoDateColumn(verbose_name="Predicted crossing")
+    next_due_date = IsoDateColumn(verbose_name="Due")
 
     def render_drift_rate_per_year(self, value, record):
         return f"{value:+.3f} {record.get_mpe_basis_display()}"
 
 
 class FailedTable(MeterColumns):
-    last_calibrated = tables.Column(verbose_name="Last calibrated")
-    next_due_date = tables.Column(verbose_name="Due")
+    last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
+    next_due_date = IsoDateColumn(verbose_name="Due")
 
 
-class RiskTable(tables.Table):
-    tag = tables.Column(linkify=lambda record: record["meter"].get_absolute_url())
-    principle = tables.Column()
-    fluid = tables.Column()
-    area = tables.Column()
-    severity = tables.Column()
-    codes = tables.Column(verbose_name="Findings")
-    reasons = tables.Column(verbose_name="Why", orderable=False)
+class RiskTable(MeterColumns):
+    severity = tables.Column(accessor="risk_severity", verbose_name="Severity")
+    codes = tables.Column(empty_values=(), verbose_name="Findings", orderable=False)
+    reasons = tables.Column(empty_values=(), verbose_name="Why", orderable=False)
 
-    class Meta:
-        attrs = {"class": "grid"}
+    @staticmethod
+    def _serious(record):
+        # only the rows shown (a page, or the export) are judged again in full, for their codes and reasons
+        return [f for f in record.findings() if f.severity in ("misapplied", "high")]
+
+    def render_codes(self, record):
+        return ", ".join(f.code for f in self._serious(record))
+
+    def render_reasons(self, record):
+        return " ".join(f.reason for f in self._serious(record))
+
+    def value_codes(self, record):
+        return self.render_codes(record)
+
+    def value_reasons(self, record):
+        return self.render_reasons(record)
 
 
 class StandardTable(tables.Table):
     identification = tables.Column()
     description = tables.Column()
     certificate_number = tables.Column()
-    due_date = tables.Column()
+    due_date = IsoDateColumn()
 
     class Meta:
         attrs = {"class": "grid"}
@@ -77,7 +98,7 @@ class StandardTable(tables.Table):
 
 class DraftTable(tables.Table):
     meter = tables.Column(accessor="meter__tag", verbose_name="Tag", order_by=("meter__tag",))
-    performed_on = tables.Column(linkify=lambda record: record.get_absolute_url(), verbose_name="Date")
+    performed_on = IsoDateColumn(linkify=lambda record: record.get_absolute_url(), verbose_name="Date")
     technician = tables.Column()
 
     class Meta:

@@ -34,3 +34,21 @@ def client(admin_user):
     c = Client()
     c.force_login(admin_user)
     return c
+
+
+# Lines a test module asks to show at the end of the run (visible with -q too), e.g. how many generated cases ran.
+_SUMMARY_LINES = pytest.StashKey[list]()
+
+
+def pytest_configure(config):
+    config.stash[_SUMMARY_LINES] = []
+
+
+@pytest.fixture(scope="session")
+def terminal_summary_lines(pytestconfig):
+    return pytestconfig.stash[_SUMMARY_LINES]
+
+
+def pytest_terminal_summary(terminalreporter, config):
+    for line in config.stash.get(_SUMMARY_LINES, []):
+        terminalreporter.write_line(line)

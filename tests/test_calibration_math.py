@@ -204,3 +204,10 @@ def test_verdict_in_tolerance():
     assert not decision.verdict_in_tolerance(["pass", "conditional fail"])
     assert not decision.verdict_in_tolerance(["fail"])
     assert decision.verdict_in_tolerance([])
+
+
+@pytest.mark.parametrize("basis,span", [("pct_reading", None), ("pct_span", 40.0), ("absolute", None)])
+def test_indication_for_error_inverts_point_error(basis, span):
+    for reference, error in [(4.0, 0.25), (10.0, -1.5), (37.5, 0.0), (0.5, 2.0)]:
+        indicated = errors.indication_for_error(reference, error, basis, span)
+        assert errors.point_error(reference, indicated, basis, span) == pytest.approx(error, abs=1e-12)

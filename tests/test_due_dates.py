@@ -100,3 +100,21 @@ def test_recompute_command_on_demo_fleet(demo_history, client):
     assert winners == {"risk", "drift", "method"}
     page = client.get(f"/meters/{meters[0].tag}/").content.decode()
     assert "chosen:" in page and "<svg" in page
+
+
+def test_recompute_stores_the_latest_verdict_and_the_duty_risk(drifting_meter):
+    meter, standard = drifting_meter
+    add_event(meter, standard, dt.date(2025, 1, 1), found_error=2.0, left_error=0.0)  # out of tolerance
+    meter.refresh_from_db()
+    assert meter.last_in_tolerance is False
+    add_event(meter, standard, dt.date(2026, 1, 1), found_error=0.1)  # the latest one counts
+    meter.refresh_from_db()
+    assert meter.last_in_tolerance is True and meter.risk_severity == ""
+    # the fluid turns out to be demineralised water: an electromagnetic meter on it is misapplied
+    meter.fluid.conductivity_us_cm = 0.5
+    meter.fluid.save()
+    meter.refresh_from_db()
+    assert meter.risk_severity == "misapplied"
+    Meter.objects.filter(pk=meter.pk).update(risk_severity="")
+    call_command("recompute_due_dates")
+    assert Meter.objects.get(pk=meter.pk).risk_severity == "misapplied"

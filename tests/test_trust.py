@@ -59,6 +59,9 @@ MATRIX = [
     ("statistics", "get", "/stats/", [302, 403, 403, 200, 200]),
     ("statistics csv", "get", "/stats.csv", [302, 403, 403, 200, 200]),
     ("import page", "get", "/meters/import/", [302, 403, 403, 200, 200]),
+    ("meter edit", "get", "/meters/FT-T1/edit/", [302, 403, 403, 200, 200]),
+    ("fluid edit", "get", "/fluids/{fluid}/edit/", [302, 403, 403, 200, 200]),
+    ("meter edit save", "post", "/meters/FT-T1/edit/", [302, 403, 403, 400, 400]),
     ("register export", "get", "/meters/export.csv?kind=meters", [302, 403, 200, 200, 200]),
     ("admin site", "get", "/admin/", [302, 302, 302, 302, 200]),
     ("countersign", "post", "/calibrations/{signed}/countersign/", [302, 403, 403, 302, None]),
@@ -69,7 +72,7 @@ MATRIX = [
 
 @pytest.mark.parametrize("name,method,url,expected", MATRIX, ids=[m[0] for m in MATRIX])
 def test_permission_matrix(world, name, method, url, expected):
-    url = url.format(signed=world["signed"].pk, draft=world["draft"].pk)
+    url = url.format(signed=world["signed"].pk, draft=world["draft"].pk, fluid=world["meter"].fluid_id)
     for role, status in zip(ROLES, expected):
         if status is None:
             continue
@@ -104,6 +107,8 @@ def test_csrf_enforced_on_every_form(world):
         "/meters/import/",
         "/accounts/logout/",
         f"/admin/plant/meter/{world['meter'].pk}/change/",
+        f"/meters/{world['meter'].tag}/edit/",
+        f"/fluids/{world['meter'].fluid_id}/edit/",
     ]
     for url in posts:
         assert strict.post(url, {}).status_code == 403, url

@@ -12,11 +12,12 @@ from django.conf import settings
 from django.core.management import BaseCommand, call_command
 from django.db import transaction
 
+from calibration import errors
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from calibration.synthetic import NOMINALS, invented_found_errors
 from plant.models import Meter
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_history.json"
-NOMINALS = (10, 25, 50, 75, 100)
 TODAY = dt.date(2026, 11, 30)
 TECHNICIANS = ["R. Okonkwo-Hale", "M. Varga", "S. Lindqvist"]
 PROCEDURE = {
@@ -78,8 +79,7 @@ class Command(BaseCommand):
             if behaviour == "fouling" and not jumped and rng.random() < 0.35:
                 offset += rng.choice([-1, 1]) * rng.uniform(0.8, 1.6) * mpe
                 jumped = True
-            shape = rng.uniform(-0.3, 0.3)
-            found = [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
+            found = invented_found_errors(rng, offset, mpe)
             adjust = max(abs(e) for e in found) > 0.6 * mpe
             event = CalibrationEvent.objects.create(
                 meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS),
@@ -108,12 +108,7 @@ class Command(BaseCommand):
         span = meter.range_max - meter.range_min
         for nominal, error in zip(NOMINALS, errors_in_basis):
             reference = round(meter.range_min + span * nominal / 100 * rng.uniform(0.97, 1.03), 4)
-            if meter.mpe_basis == "pct_reading":
-                indicated = reference * (1 + error / 100)
-            elif meter.mpe_basis == "pct_span":
-                indicated = reference + error * span / 100
-            else:
-                indicated = reference + error
+            indicated = errors.indication_for_error(reference, error, meter.mpe_basis, span)
             point = CalibrationPoint(event=event, kind=kind, nominal_pct=nominal, reference_value=reference,
                                      indicated_value=round(indicated, 5))
             point.compute(meter, event.reference_standards.first(), event.decision_rule)

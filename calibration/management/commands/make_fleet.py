@@ -2,6 +2,7 @@
 import time
 
 from django.core.management import BaseCommand, CommandError
+from django.db import connection
 from tqdm import tqdm
 
 from calibration.fleet import recompute_due_dates
@@ -30,6 +31,8 @@ class Command(BaseCommand):
         built = time.perf_counter() - started
         with tqdm(total=meters, unit="meter", desc="due dates", file=self.stderr, disable=None) as bar:
             recompute_due_dates(progress=bar.update)
+        with connection.cursor() as cursor:  # planner statistics for the new rows
+            cursor.execute("ANALYZE")
         self.stdout.write(self.style.SUCCESS(
             f"{totals['meters']} meters, {totals['events']} calibrations ({totals['drafts']} drafts), "
             f"{totals['points']} points written in {built:.0f} s; due dates computed."))
