@@ -174,6 +174,7 @@ def snapshot():
     return {m.__name__: serializers.serialize("json", m._base_manager.order_by("pk")) for m in models}
 
 
+@pytest.mark.django_db(transaction=True)  # flush truncates tables: not inside the test's own transaction
 def test_backup_restored_into_empty_database_is_identical(world, tmp_path):
     world["clients"]["reviewer"].post(f"/calibrations/{world['signed'].pk}/countersign/")
     before = snapshot()
