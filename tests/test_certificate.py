@@ -27,7 +27,7 @@ def meter():
     return Meter.objects.create(tag="FT-101", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                 internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.5,
                                 mpe_basis="pct_reading", wetted_material="316L", serial="SN-778812",
-                                maker="Acme Flow", model="MagX 300")
+                                maker="Ternwell Flow", model="TW-300")
 
 
 @pytest.fixture
@@ -141,7 +141,7 @@ def test_certificate_contains_every_required_element(client, signed_event, stand
     assert "Marrowfield Works" in text and "1 Brine Street" in text and "Pickling hall" in text
     # item
     assert "FT-101" in text and "SN-778812" in text and "Electromagnetic" in text and "DN50" in text
-    assert "Acme Flow / MagX 300" in text and has(text, "Calibrated range", "0 to 40 m³/h")
+    assert "Ternwell Flow / TW-300" in text and has(text, "Calibrated range", "0 to 40 m³/h")
     # dates: calibration and issue (= signing date)
     assert has(text, "Date of calibration", "2026-11-20")
     assert has(text, "Date of issue", "2026-11-23")
