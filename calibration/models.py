@@ -3,6 +3,7 @@
 A signed event and its points are locked at the model level: save(), delete() and queryset
 update()/delete() on signed rows raise SignedRecordError and change nothing.
 """
+import datetime as dt
 
 from django.conf import settings
 from django.core.exceptions import ValidationError
@@ -14,6 +15,13 @@ from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty
 from plant.models import Meter
+
+
+FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
+
+
+def _is_number(value):
+    return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
 class SignedRecordError(Exception):
@@ -146,8 +154,14 @@ class CalibrationEvent(models.Model):
         errors = {}
         for name in ("ambient_temp_c", "fluid_temp_c"):
             value = getattr(self, name)
-            if isinstance(value, (int, float)) and not isinstance(value, bool) and value < -273.15:
+            if _is_number(value) and value < -273.15:
                 errors[name] = "Temperature is below absolute zero."
+        if _is_number(self.pressure_bar) and self.pressure_bar < FULL_VACUUM_BAR_G:
+            errors["pressure_bar"] = f"A gauge pressure cannot be below full vacuum ({FULL_VACUUM_BAR_G} bar g)."
+        # a day's slack: the tablet's local date may be a day ahead of the server's (UTC)
+        if (isinstance(self.performed_on, dt.date) and self._state.adding
+                and self.performed_on > timezone.localdate() + dt.timedelta(days=1)):
+            errors["performed_on"] = "The date of calibration is in the future."
         if errors:
             raise ValidationError(errors)
 

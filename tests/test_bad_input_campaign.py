@@ -727,7 +727,7 @@ ROW_FIELDS = ("nominal_pct", "reference_value", "indicated_value", "repeats", "r
 EVENT_SPEC = {
     "technician": Text(120, required=True), "procedure": Text(required=True), "notes": Text(),
     "reason": Choice(CalibrationEvent.Reason), "decision_rule": Choice(CalibrationEvent.Rule), "adjusted": Flag(),
-    "ambient_temp_c": Num(-273.15), "fluid_temp_c": Num(-273.15), "pressure_bar": Num(),
+    "ambient_temp_c": Num(-273.15), "fluid_temp_c": Num(-273.15), "pressure_bar": Num(-1.01325),
 }
 DATE_JUNK = ["", "2026-02-30", "30/02/2026", "2026-13-01", "someday", "0000-01-01", "2031-05-01", "9999-12-31",
              "2019-06-01"]
@@ -945,7 +945,7 @@ def judge_calibration(case, base):
             break
         except ValueError:
             pass
-    if performed_on is None:
+    if performed_on is None or performed_on > dt.date.today() + dt.timedelta(days=1):  # unreadable or in the future
         bad.add(("ev", "performed_on"))
     event["performed_on"] = performed_on
     standards = [base["standards"][s] for s in case["standards"] if s in base["standards"]]

@@ -96,6 +96,18 @@ def test_bad_points_rejected_nothing_saved(client, meter, standard, found, field
     assert counts() == before
 
 
+@pytest.mark.parametrize("event,field_message", [
+    ({"ev-performed_on": "2099-01-01"}, "The date of calibration is in the future."),
+    ({"ev-pressure_bar": "-1.5"}, "A gauge pressure cannot be below full vacuum (-1.01325 bar g)."),
+    ({"ev-ambient_temp_c": "-300"}, "Temperature is below absolute zero."),
+])
+def test_bad_header_rejected_nothing_saved(client, meter, standard, event, field_message):
+    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, **event))
+    assert response.status_code == 400
+    assert field_message in html.unescape(response.content.decode())
+    assert counts() == (0, 0)
+
+
 def test_adjustment_without_as_left_rejected(client, meter, standard):
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, adjusted=True))
     assert response.status_code == 400
