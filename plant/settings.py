@@ -83,6 +83,7 @@ LOGOUT_REDIRECT_URL = "/accounts/login/"
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 
 DJANGO_TABLES2_TEMPLATE = "django_tables2/table.html"
+DJANGO_TABLES2_TABLE_ATTRS = {"class": "grid"}  # every table, subclasses included, gets the one look
 
 # Calibration policy; every value here is a setting, recorded where it is used.
 CALIBRATION = {

@@ -7,6 +7,7 @@ class IsoDateColumn(tables.DateColumn):
 
     def __init__(self, *args, **kwargs):
         kwargs.setdefault("format", "Y-m-d")
+        kwargs.setdefault("attrs", {"td": {"class": "nowrap"}, "th": {"class": "nowrap"}})
         super().__init__(*args, **kwargs)
 
 
@@ -66,7 +67,7 @@ class FailedTable(MeterColumns):
 class RiskTable(MeterColumns):
     severity = tables.Column(accessor="risk_severity", verbose_name="Severity")
     codes = tables.Column(empty_values=(), verbose_name="Findings", orderable=False)
-    reasons = tables.Column(empty_values=(), verbose_name="Why", orderable=False)
+    reasons = tables.Column(empty_values=(), verbose_name="Why", orderable=False, attrs={"td": {"class": "prose"}})
 
     @staticmethod
     def _serious(record):
