@@ -260,3 +260,34 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         raise
     finally:
         context.close()
+
+
+def test_weekly_review_fits_a_tablet(demo_history, live_server, browser):
+    """The reviewer's page with the demo fleet: every list readable at 820 px without the page sliding sideways."""
+    from django.core.management import call_command
+
+    call_command("recompute_due_dates", verbosity=0)
+    reviewer = user_with_role("reviewer", "deskreviewer")
+    reviewer.set_password("review-pass-1")
+    reviewer.save()
+    context = browser.new_context(viewport=TABLET, device_scale_factor=1, has_touch=True, locale="en-GB")
+    context.set_default_timeout(TIMEOUT_MS)
+    page = context.new_page()
+    try:
+        page.goto(f"{live_server.url}/accounts/login/")
+        page.locator('[name="username"]').fill("deskreviewer")
+        page.locator('[name="password"]').fill("review-pass-1")
+        page.get_by_role("button", name="Log in").click()
+        page.goto(f"{live_server.url}/review/")
+        expect(page.locator("h1")).to_have_text("Weekly review")
+        overdue = page.locator("#count-overdue")
+        expect(overdue).to_be_visible()
+        assert int(overdue.inner_text()) == Meter.objects.filter(
+            status="in_service", next_due_date__lt=timezone.localdate()).count()
+        assert page.locator("section table.grid").count() >= 5
+        assert_no_sideways_scroll(page, "weekly review")
+        folder = ARTIFACTS / "review"
+        folder.mkdir(parents=True, exist_ok=True)
+        page.screenshot(path=str(folder / "weekly-review.png"), full_page=True)
+    finally:
+        context.close()
