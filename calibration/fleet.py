@@ -352,7 +352,6 @@ def write_due_fields(meters, batch_size=1000):
     fields = [Meter._meta.get_field(name) for name in UPDATED_FIELDS]
     quote = connection.ops.quote_name
     table, pk = quote(Meter._meta.db_table), quote(Meter._meta.pk.column)
-    ops = connection.ops
     with transaction.atomic(using=connection.alias), connection.cursor() as cursor:
         if connection.vendor == "postgresql":
             # one UPDATE ... FROM unnest(arrays) per batch: a round trip per batch rather than per meter
@@ -372,6 +371,7 @@ def write_due_fields(meters, batch_size=1000):
                 cursor.execute(sql, params)
         else:
             # the adapters get_db_prep_save would reach, looked up once rather than per value
+            ops = connection.ops
             adapt = {"DateField": ops.adapt_datefield_value, "JSONField": lambda v: ops.adapt_json_value(v, None)}
             preparers = [adapt.get(f.get_internal_type(), lambda v: v) for f in fields]
             sql = (f"UPDATE {table} SET " + ", ".join(f"{quote(f.column)} = %s" for f in fields)

@@ -158,6 +158,20 @@ class BasePointGrid(forms.BaseFormSet):
             )
 
 
+def entry_post_data(header: dict, as_found=(), as_left=()) -> dict:
+    """The POST body of the tablet form: header fields by name, point rows as (reference, indicated),
+    row i at the nominal NOMINAL_POINTS[i % 5]. For scripted entries (the benchmark, the tests)."""
+    data = {f"ev-{name}": value for name, value in header.items()}
+    for prefix, rows in (("af", as_found), ("al", as_left)):
+        data.update({f"{prefix}-TOTAL_FORMS": str(len(rows)), f"{prefix}-INITIAL_FORMS": "0",
+                     f"{prefix}-MIN_NUM_FORMS": "0", f"{prefix}-MAX_NUM_FORMS": "20"})
+        for i, (reference, indicated) in enumerate(rows):
+            data[f"{prefix}-{i}-nominal_pct"] = str(NOMINAL_POINTS[i % len(NOMINAL_POINTS)])
+            data[f"{prefix}-{i}-reference_value"] = str(reference)
+            data[f"{prefix}-{i}-indicated_value"] = str(indicated)
+    return data
+
+
 PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, min_num=0, max_num=20)
 
 

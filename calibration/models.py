@@ -14,14 +14,10 @@ from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty
-from plant.models import Meter
+from plant.models import Meter, number_or_none
 
 
 FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
-
-
-def _is_number(value):
-    return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 
 class SignedRecordError(Exception):
@@ -153,10 +149,11 @@ class CalibrationEvent(models.Model):
     def clean(self):
         errors = {}
         for name in ("ambient_temp_c", "fluid_temp_c"):
-            value = getattr(self, name)
-            if _is_number(value) and value < -273.15:
+            value = number_or_none(getattr(self, name))
+            if value is not None and value < -273.15:
                 errors[name] = "Temperature is below absolute zero."
-        if _is_number(self.pressure_bar) and self.pressure_bar < FULL_VACUUM_BAR_G:
+        pressure = number_or_none(self.pressure_bar)
+        if pressure is not None and pressure < FULL_VACUUM_BAR_G:
             errors["pressure_bar"] = f"A gauge pressure cannot be below full vacuum ({FULL_VACUUM_BAR_G} bar g)."
         # a day's slack: the tablet's local date may be a day ahead of the server's (UTC)
         if (isinstance(self.performed_on, dt.date) and self._state.adding

@@ -13,7 +13,7 @@ from plant import risk
 MAX_BASE_INTERVAL_DAYS = 3650
 
 
-def _number(value):
+def number_or_none(value):
     """The value if it is a real number (not a flag, not an unconverted string), else None."""
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         return value
@@ -28,7 +28,7 @@ def unstorable_value_errors(instance) -> dict:
     for f in instance._meta.concrete_fields:
         value = getattr(instance, f.attname)
         if isinstance(f, models.FloatField):
-            value = _number(value)
+            value = number_or_none(value)
             if value is not None and not math.isfinite(value):
                 errors[f.name] = "Enter a finite number."
         elif isinstance(f, (models.CharField, models.TextField)) and isinstance(value, str) and "\x00" in value:
@@ -222,14 +222,14 @@ class Meter(models.Model):
     def clean(self):
         errors = unstorable_value_errors(self)
         # fields that failed their own checks keep whatever was assigned; leave them to those messages
-        low, high = (None if f in errors else _number(getattr(self, f)) for f in ("range_min", "range_max"))
+        low, high = (None if f in errors else number_or_none(getattr(self, f)) for f in ("range_min", "range_max"))
         if high is not None and low is not None:
             if high <= low:
                 errors["range_max"] = "The range high must be above the range low."
             elif not math.isfinite(high - low):
                 errors["range_max"] = "The range is too wide: range high minus range low must be a finite number."
         for field in ("normal_flow", "min_flow"):
-            value = None if field in errors else _number(getattr(self, field))
+            value = None if field in errors else number_or_none(getattr(self, field))
             if value is None or high is None:
                 continue
             if value < 0:
@@ -239,11 +239,11 @@ class Meter(models.Model):
                     f"{self._meta.get_field(field).verbose_name.capitalize()} ({value:g}) is above the "
                     f"calibrated range high ({high:g} {self.flow_units})."
                 )
-        normal = None if "normal_flow" in errors else _number(self.normal_flow)
-        minimum = None if "min_flow" in errors else _number(self.min_flow)
+        normal = None if "normal_flow" in errors else number_or_none(self.normal_flow)
+        minimum = None if "min_flow" in errors else number_or_none(self.min_flow)
         if minimum is not None and normal is not None and minimum > normal:
             errors["min_flow"] = "The minimum flow cannot be above the normal flow."
-        interval = _number(self.base_interval_days)
+        interval = number_or_none(self.base_interval_days)
         if interval is not None and interval > MAX_BASE_INTERVAL_DAYS:
             errors["base_interval_days"] = (
                 f"The base interval cannot be longer than {MAX_BASE_INTERVAL_DAYS} days (ten years)."

@@ -6,6 +6,7 @@ import pytest
 from django.contrib.auth.models import User
 from django.core.exceptions import ValidationError
 
+from calibration.forms import entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, SignedRecordError
 from plant.models import Area, Fluid, Meter, Site
 
@@ -31,24 +32,18 @@ def standard():
 
 
 def entry_data(standard, adjusted=False, found=None, left=None, **event):
-    """POST data of the tablet form: 5 as-found rows, 5 as-left rows."""
+    """POST data of the tablet form: 5 as-found rows, 5 as-left rows; `event` overrides "ev-..." keys."""
     found = found if found is not None else [(4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
     left = left if left is not None else [("", "")] * 5
-    data = {
-        "ev-performed_on": TODAY.isoformat(), "ev-technician": "A. Fieldtech", "ev-reference_standards": [standard.pk],
-        "ev-procedure": "Comparison against portable master meter, five points", "ev-reason": "scheduled",
-        "ev-decision_rule": "simple", "ev-ambient_temp_c": "18", "ev-fluid_temp_c": "12", "ev-pressure_bar": "3",
+    header = {
+        "performed_on": TODAY.isoformat(), "technician": "A. Fieldtech", "reference_standards": [standard.pk],
+        "procedure": "Comparison against portable master meter, five points", "reason": "scheduled",
+        "decision_rule": "simple", "ambient_temp_c": "18", "fluid_temp_c": "12", "pressure_bar": "3",
     }
     if adjusted:
-        data["ev-adjusted"] = "on"
+        header["adjusted"] = "on"
+    data = entry_post_data(header, found, left)
     data.update(event)
-    for prefix, rows in (("af", found), ("al", left)):
-        data.update({f"{prefix}-TOTAL_FORMS": str(len(rows)), f"{prefix}-INITIAL_FORMS": "0",
-                     f"{prefix}-MIN_NUM_FORMS": "0", f"{prefix}-MAX_NUM_FORMS": "20"})
-        for i, (ref, ind) in enumerate(rows):
-            data[f"{prefix}-{i}-nominal_pct"] = str([10, 25, 50, 75, 100][i % 5])
-            data[f"{prefix}-{i}-reference_value"] = str(ref)
-            data[f"{prefix}-{i}-indicated_value"] = str(ind)
     return data
 
 

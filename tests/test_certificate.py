@@ -13,10 +13,12 @@ from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStan
 from plant.models import Area, Fluid, Meter, Site
 from reports.certificate import DEFAULT_LAB, certificate_number, drift_history
 from reports.charts import drift_chart_svg
+from tests.test_calibration_records import entry_data as tablet_entry
 
 pytestmark = pytest.mark.django_db
 TODAY = dt.date(2026, 11, 20)
-FOUND = [(4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
+FOUND = [(4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]  # tablet_entry's default rows
+PROCEDURE = "WI-CAL-07 comparison against portable master meter, five points"
 
 
 @pytest.fixture
@@ -38,27 +40,9 @@ def standard():
                                             uncertainty_basis="pct_reading")
 
 
-def entry_data(standard, performed_on=TODAY, adjusted=False, found=None, left=None, **event):
-    """POST data of the tablet form (copied from test_calibration_records to stay independent)."""
-    found = found if found is not None else FOUND
-    left = left if left is not None else [("", "")] * 5
-    data = {
-        "ev-performed_on": performed_on.isoformat(), "ev-technician": "A. Fieldtech",
-        "ev-reference_standards": [standard.pk],
-        "ev-procedure": "WI-CAL-07 comparison against portable master meter, five points", "ev-reason": "scheduled",
-        "ev-decision_rule": "simple", "ev-ambient_temp_c": "18", "ev-fluid_temp_c": "12", "ev-pressure_bar": "3",
-    }
-    if adjusted:
-        data["ev-adjusted"] = "on"
-    data.update(event)
-    for prefix, rows in (("af", found), ("al", left)):
-        data.update({f"{prefix}-TOTAL_FORMS": str(len(rows)), f"{prefix}-INITIAL_FORMS": "0",
-                     f"{prefix}-MIN_NUM_FORMS": "0", f"{prefix}-MAX_NUM_FORMS": "20"})
-        for i, (ref, ind) in enumerate(rows):
-            data[f"{prefix}-{i}-nominal_pct"] = str([10, 25, 50, 75, 100][i % 5])
-            data[f"{prefix}-{i}-reference_value"] = str(ref)
-            data[f"{prefix}-{i}-indicated_value"] = str(ind)
-    return data
+def entry_data(standard, performed_on=TODAY, **kwargs):
+    """POST data of the tablet form, with this file's procedure text and date."""
+    return tablet_entry(standard, **{"ev-performed_on": performed_on.isoformat(), "ev-procedure": PROCEDURE, **kwargs})
 
 
 def enter(client, meter, standard, **kwargs):

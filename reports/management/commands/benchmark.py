@@ -11,6 +11,7 @@ from django.test import Client
 from tqdm import tqdm
 
 from calibration.fleet import recompute_due_dates
+from calibration.forms import NOMINAL_POINTS, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Meter
 from plant.roles import REVIEWER, TECHNICIAN, ensure_roles
@@ -140,15 +141,9 @@ class Command(BaseCommand):
 
 def _entry(meter, standard):
     """A valid tablet-form entry: five as-found points up the range, within 0.1 % of the reference."""
-    data = {"ev-performed_on": dt.date.today().isoformat(), "ev-technician": "Bench Technician",
-            "ev-reference_standards": [standard.pk], "ev-procedure": "Benchmark entry", "ev-reason": "scheduled",
-            "ev-decision_rule": "simple"}
+    header = {"performed_on": dt.date.today().isoformat(), "technician": "Bench Technician",
+              "reference_standards": [standard.pk], "procedure": "Benchmark entry", "reason": "scheduled",
+              "decision_rule": "simple"}
     span = meter.range_max - meter.range_min
-    for prefix, count in (("af", 5), ("al", 0)):
-        data.update({f"{prefix}-TOTAL_FORMS": str(count), f"{prefix}-INITIAL_FORMS": "0",
-                     f"{prefix}-MIN_NUM_FORMS": "0", f"{prefix}-MAX_NUM_FORMS": "20"})
-    for i, nominal in enumerate((10, 25, 50, 75, 100)):
-        reference = meter.range_min + span * nominal / 100
-        data.update({f"af-{i}-nominal_pct": str(nominal), f"af-{i}-reference_value": f"{reference:.6g}",
-                     f"af-{i}-indicated_value": f"{reference * 1.001:.6g}"})
-    return data
+    references = [meter.range_min + span * nominal / 100 for nominal in NOMINAL_POINTS]
+    return entry_post_data(header, [(f"{r:.6g}", f"{r * 1.001:.6g}") for r in references])
