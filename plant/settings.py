@@ -1,6 +1,6 @@
 """Settings for the flow-meter calibration tracker.
 
-SQLite is the embedded default; set DATABASE_URL (e.g. postgres://postgres@127.0.0.1:5432/flowcal)
+SQLite is the embedded default; set DATABASE_URL (e.g. postgres://postgres@127.0.0.1:5432/quenby)
 for PostgreSQL, the production path.
 """
 import os
@@ -76,6 +76,12 @@ USE_TZ = True
 STATIC_URL = "static/"
 STATIC_ROOT = BASE_DIR / "staticfiles"
 STATICFILES_DIRS = [BASE_DIR / "static"]
+# the product's own name on everything it sets in a browser or sends out
+PRODUCT_NAME = "Quenby"
+SESSION_COOKIE_NAME = "quenby_session"
+CSRF_COOKIE_NAME = "quenby_csrftoken"
+EMAIL_SUBJECT_PREFIX = "[Quenby] "
+
 LOGIN_URL = "/accounts/login/"
 LOGIN_REDIRECT_URL = "/meters/"
 LOGOUT_REDIRECT_URL = "/accounts/login/"

@@ -3,7 +3,7 @@
     DJANGO_SETTINGS_MODULE=plant.settings_production
     DJANGO_SECRET_KEY=...            (required, at least 50 random characters)
     DJANGO_ALLOWED_HOSTS=cal.example.internal
-    DATABASE_URL=postgres://user@dbhost:5432/flowcal
+    DATABASE_URL=postgres://user@dbhost:5432/quenby
     DJANGO_SECURE_SSL_REDIRECT=1     (0 when TLS ends at a proxy that already redirects)
 """
 import os

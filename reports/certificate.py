@@ -103,6 +103,7 @@ def certificate_context(event) -> dict:
         "site": meter.area.site,
         "area": meter.area,
         "lab": laboratory(),
+        "product": settings.PRODUCT_NAME,
         "number": certificate_number(event),
         "issued_on": timezone.localdate(event.signed_at),
         "as_found": as_found,

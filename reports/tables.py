@@ -30,7 +30,7 @@ class MeterColumns(tables.Table):
 
 
 class OverdueTable(MeterColumns):
-    next_due_date = IsoDateColumn(verbose_name="Due", default="never calibrated")
+    next_due_date = IsoDateColumn(verbose_name="Due date", default="never calibrated")
     days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue", order_by=("next_due_date",))
 
     def value_next_due_date(self, record, value):
@@ -46,14 +46,14 @@ class OverdueTable(MeterColumns):
 
 
 class DueTable(MeterColumns):
-    next_due_date = IsoDateColumn(verbose_name="Due")
+    next_due_date = IsoDateColumn(verbose_name="Due date")
     last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
 
 
 class DriftingTable(MeterColumns):
     drift_rate_per_year = tables.Column(verbose_name="Worst drift / year")
     predicted_crossing = IsoDateColumn(verbose_name="Predicted crossing")
-    next_due_date = IsoDateColumn(verbose_name="Due")
+    next_due_date = IsoDateColumn(verbose_name="Due date")
 
     def render_drift_rate_per_year(self, value, record):
         return f"{value:+.3f} {record.get_mpe_basis_display()}"
@@ -61,7 +61,7 @@ class DriftingTable(MeterColumns):
 
 class FailedTable(MeterColumns):
     last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
-    next_due_date = IsoDateColumn(verbose_name="Due")
+    next_due_date = IsoDateColumn(verbose_name="Due date")
 
 
 class RiskTable(MeterColumns):
