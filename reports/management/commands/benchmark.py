@@ -56,7 +56,7 @@ class Command(BaseCommand):
             raise CommandError("No meters: build a fleet first, e.g. python manage.py make_fleet --meters 20000")
         events = CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED).count()
         points = CalibrationPoint.objects.count()
-        self.stdout.write(f"Machine: {machine()}")
+        self.stdout.write(f"Quenby benchmark. Machine: {machine()}")
         self.stdout.write(f"Database: {database()}; fleet: {meters} meters, {events} signed calibrations, "
                           f"{points} points")
         rows = []
