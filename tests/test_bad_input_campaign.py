@@ -43,7 +43,7 @@ from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
 from calibration import due
 from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard
-from plant import importer
+from plant import importer, spreadsheet
 from plant.forms import FluidForm, MeterForm
 from plant.models import MAX_BASE_INTERVAL_DAYS, Area, DutyPeriod, Fluid, Meter, Site
 
@@ -1211,6 +1211,8 @@ def judge_import(kind, table, base):
     bad, expected, seen = set(), {}, set()
     for index, raw in enumerate(table):
         row_number = index + 2
+        # the reader strips each cell and undoes an export's formula-guard apostrophe (plant/spreadsheet.py)
+        raw = {c: spreadsheet.restore(v.strip()) for c, v in raw.items()}
         if not any(v.strip() for v in raw.values()):
             continue
         row_bad = {c for c in columns if "\x00" in raw.get(c, "")}
