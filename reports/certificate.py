@@ -16,6 +16,7 @@ from django.utils.safestring import mark_safe
 
 from calibration import decision
 from calibration.models import CalibrationEvent, CalibrationPoint
+from reports import pdf_fetch
 from reports.charts import drift_chart_svg
 
 DEFAULT_LAB = {
@@ -150,10 +151,12 @@ def certificate_html(event) -> str:
     return render_to_string("reports/certificate.html", certificate_context(event))
 
 
-def certificate_pdf(event, base_url=None) -> bytes:
+def certificate_pdf(event) -> bytes:
+    """The PDF; the renderer may load the project's static files and nothing else (reports/pdf_fetch.py)."""
     from weasyprint import HTML  # imported lazily: heavy, and only needed when printing
 
-    return HTML(string=certificate_html(event), base_url=base_url).write_pdf()
+    return HTML(string=certificate_html(event), base_url=pdf_fetch.BASE_URL,
+                url_fetcher=pdf_fetch.static_only).write_pdf()
 
 
 def load_event(pk):
@@ -176,9 +179,9 @@ def events_signed_between(start, end):
     )
 
 
-def certificates_zip(events, base_url=None) -> bytes:
+def certificates_zip(events) -> bytes:
     buffer = io.BytesIO()
     with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_DEFLATED) as archive:
         for event in events:
-            archive.writestr(certificate_filename(event), certificate_pdf(event, base_url=base_url))
+            archive.writestr(certificate_filename(event), certificate_pdf(event))
     return buffer.getvalue()
