@@ -3,12 +3,22 @@
 
 * ``"simple"``  - simple acceptance, guard band w = 0 (ILAC-G8:09/2019 §4.2.1):
   |E| <= MPE -> "pass", else "fail".
-* ``"guarded"`` - guard band w = U (ILAC-G8:09/2019 §4.2.2 and its figure of
-  pass / conditional pass / conditional fail / fail zones):
+* ``"guarded"`` - guarded acceptance, guard band w = U (ILAC-G8:09/2019 §4.2.2; the
+  four zones pass / conditional pass / conditional fail / fail are ILAC-G8's non-binary
+  statement with a guard band):
   |E| <= MPE - U            -> "pass"
-  MPE - U < |E| <= MPE      -> "conditional pass"
+  MPE - U < |E| <= MPE      -> "conditional pass"   (in the guard band)
   MPE < |E| < MPE + U       -> "conditional fail"
   |E| >= MPE + U            -> "fail"
+
+The binary verdict of a set of points (``verdict_in_tolerance``) is "in tolerance" only when
+every point is a plain "pass". Under simple acceptance that is |E| <= MPE at every point, as
+before; under guarded acceptance the acceptance limit is MPE - U, so a point in the guard band
+(conditional pass) does not show conformity and counts as not conforming - for the stored
+verdict, the interval methods, the drift status and the due date. With U at k = 2 (about 95 %
+coverage, normal distribution) a measured |E| = MPE - U leaves a risk of about 2.5 % that the
+true error is beyond the MPE (ILAC-G8:09/2019 §4.2.2, figure quoted from memory); inside the
+guard band that risk grows to about 50 % at |E| = MPE.
 
 error, mpe and U must be on the same basis (use calibration.errors.to_error_units).
 """
@@ -23,7 +33,9 @@ CONDITIONAL_PASS = "conditional pass"
 CONDITIONAL_FAIL = "conditional fail"
 FAIL = "fail"
 RULES = ("simple", "guarded")
-IN_TOLERANCE = frozenset({PASS, CONDITIONAL_PASS})
+# decisions that show conformity; a conditional pass (guard band) does not
+IN_TOLERANCE = frozenset({PASS})
+LIMIT_DECIMALS = 9
 
 
 def decide(error: float, mpe: float, U: float, rule: str) -> str:
@@ -40,15 +52,52 @@ def decide(error: float, mpe: float, U: float, rule: str) -> str:
     e = abs(error)
     if rule == "simple":
         return PASS if e <= mpe else FAIL
-    if e <= mpe - U:
+    # The limits MPE - U and MPE + U are taken to 9 decimals, the resolution the stored error is rounded
+    # to (CalibrationPoint.compute): U carries binary noise (0.1 % of reading comes back as
+    # 0.09999999999999999), which must not move a point lying exactly on a limit across it.
+    if e <= round(mpe - U, LIMIT_DECIMALS):
         return PASS
     if e <= mpe:
         return CONDITIONAL_PASS
-    if e < mpe + U:
+    if e < round(mpe + U, LIMIT_DECIMALS):
         return CONDITIONAL_FAIL
     return FAIL
 
 
 def verdict_in_tolerance(decisions: Iterable[str]) -> bool:
-    """True if every point decision is "pass" or "conditional pass"."""
+    """Binary verdict: True only if every point decision is a plain "pass" (ILAC-G8:09/2019 §4.2.1/§4.2.2).
+
+    A "conditional pass" (guard band of the guarded rule) is not conforming; simple acceptance
+    gives only "pass" or "fail", so its verdicts are unchanged by this.
+    """
     return all(d in IN_TOLERANCE for d in decisions)
+
+
+def guard_band_only(decisions: Iterable[str]) -> bool:
+    """True when the points are not all "pass" only because of guard-band points: at least one
+    "conditional pass" and nothing worse (no "conditional fail" or "fail")."""
+    decisions = list(decisions)
+    return CONDITIONAL_PASS in decisions and all(d in (PASS, CONDITIONAL_PASS) for d in decisions)
+
+
+def verdict_text(in_tolerance: bool | None, decisions: Iterable[str] = ()) -> str:
+    """The binary statement in words: "in tolerance", "out of tolerance", "not conforming (guard band)"
+    when only guard-band points stand in the way, or "not determined" when there is no verdict."""
+    if in_tolerance is None:
+        return "not determined"
+    if in_tolerance:
+        return "in tolerance"
+    return "not conforming (guard band)" if guard_band_only(decisions) else "out of tolerance"
+
+
+def drift_status_given_verdict(status: str, last_as_found_in_tolerance: bool | None) -> str:
+    """The drift status a meter shows, given its last as-found verdict.
+
+    A last as-found verdict that is not conforming makes the status "out_of_tolerance", whatever the
+    fitted trend says: under guarded acceptance a guard-band point (conditional pass) is not
+    conforming, and a fit against the mean guard band of the event need not see it. Under simple
+    acceptance the fit already reports any point beyond the MPE, so this changes nothing there.
+    """
+    if last_as_found_in_tolerance is False:
+        return "out_of_tolerance"
+    return status

@@ -20,6 +20,7 @@ from django.db import connections, transaction
 from django.db.models import Avg, Case, Q, Value, When
 from django.db.models.functions import Coalesce
 
+from calibration import decision as decision_rules
 from calibration import drift, drift_fleet, due, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint
 from plant import risk
@@ -315,6 +316,27 @@ def method_reason(meter, stair, reliability, cfg):
                   f"{failures} out of tolerance")
 
 
+def stored_verdict(value):
+    """A stored verdict as True/False/None (pandas may hand back NaN or numpy booleans)."""
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return None
+    return bool(value)
+
+
+def not_conforming_crossing(last, as_found_in_tolerance, crossing, nominal, crossing_reason, guarded=False):
+    """(crossing, nominal, reason) once the last as-found verdict is taken into account.
+
+    A last as-found verdict that is not conforming puts the crossing at the last calibration, as a point
+    found beyond the limit does: under guarded acceptance this is how a guard-band point (conditional
+    pass, ILAC-G8:09/2019 §4.2.2) brings the due date in. Under simple acceptance a failed point has
+    already put the crossing there, so nothing changes.
+    """
+    if stored_verdict(as_found_in_tolerance) is False and (crossing is None or crossing > last):
+        return last, None, ("last as-found not conforming (a guard-band point counts as not conforming):" if guarded
+                            else "last as-found out of tolerance:")
+    return crossing, nominal, crossing_reason
+
+
 def _assess(meter, last_event, summary, stair, reliability, cfg):
     last = dt.date.fromordinal(int(last_event["day"]))
     guarded = last_event["decision_rule"] == CalibrationEvent.Rule.GUARDED
@@ -330,10 +352,13 @@ def _assess(meter, last_event, summary, stair, reliability, cfg):
             nominal = float(summary["crossing_nominal"])
             crossing = dt.date.fromordinal(max(int(math.floor(summary["crossing_day"])), last.toordinal()))
             crossing_reason = f"drift at {nominal:g} % of range{' (guard band U)' if guarded else ''}:"
+    crossing, nominal, crossing_reason = not_conforming_crossing(last, last_event["as_found_in_tolerance"],
+                                                                 crossing, nominal, crossing_reason, guarded)
+    status = decision_rules.drift_status_given_verdict(status, stored_verdict(last_event["as_found_in_tolerance"]))
     chosen, reason = method_reason(meter, stair, reliability, cfg)
     findings = meter.findings()
     meter.risk_severity = risk.worst_severity(findings)
-    meter.last_in_tolerance = last_event["as_found_in_tolerance"]
+    meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
     decision = due.decide_due(last, meter.base_interval_days, risk.interval_factor(findings), crossing=crossing,
                               crossing_reason=crossing_reason, margin_days=cfg["drift_margin_days"],
                               method_interval_days=chosen, method_reason=reason,

@@ -4,7 +4,7 @@ from django.db import IntegrityError, transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
-from calibration import errors, uncertainty
+from calibration import decision, errors, uncertainty
 from calibration.forms import CalibrationEntry
 from calibration.models import (
     CalibrationEvent,
@@ -52,8 +52,12 @@ def event_detail(request, pk, sign_error=None):
     points = list(event.points.all())
     standards = list(event.reference_standards.all())
     rows = _result_rows(event, points, standards[0] if standards else None)
+    found = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
+    left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
     return render(request, "calibration/event_detail.html", {
         "event": event,
+        "as_found_verdict": decision.verdict_text(event.as_found_in_tolerance, found),
+        "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance, left),
         "as_found": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_FOUND],
         "as_left": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_LEFT],
         "standards": standards,

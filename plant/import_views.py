@@ -9,7 +9,7 @@ from django.http import HttpResponse, HttpResponseBadRequest
 from django.shortcuts import render
 from django.views.decorators.http import require_GET, require_http_methods
 
-from plant import importer
+from plant import importer, spreadsheet
 
 logger = logging.getLogger(__name__)
 
@@ -87,7 +87,7 @@ def export_register_csv(request):
     if kind is None:
         return HttpResponseBadRequest("kind must be meters or fluids")
     # BOM so Excel opens the UTF-8 file with m³/h and µS/cm intact
-    body = "\ufeff" + importer.export_rows(kind).to_csv(index=False, lineterminator="\r\n")
+    body = "\ufeff" + spreadsheet.frame_csv_text(importer.export_rows(kind), lineterminator="\r\n")
     response = HttpResponse(body.encode("utf-8"), content_type="text/csv; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="{kind}-register.csv"'
     return response

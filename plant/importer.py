@@ -28,6 +28,7 @@ from django.core.exceptions import ValidationError
 from django.db import models, transaction
 from django.forms.models import model_to_dict
 
+from plant import spreadsheet
 from plant.forms import FluidForm, MeterForm
 from plant.models import Area, Fluid, Meter, Site
 
@@ -175,7 +176,8 @@ def read_table(uploaded, filename: str | None = None) -> list[dict]:
         row = {}
         for header, value in zip(headers, values):
             if header:
-                row[header] = "" if value is None else str(value).strip()
+                # undo the apostrophe an export puts before text that a spreadsheet would run as a formula
+                row[header] = "" if value is None else spreadsheet.restore(str(value).strip())
         rows.append(row)
     return rows
 
@@ -229,10 +231,7 @@ def export_xlsx_bytes(kind: str) -> bytes:
     frame = export_rows(kind)
     for column in numeric_columns(kind):
         frame[column] = pd.to_numeric(frame[column].replace("", None), errors="coerce")
-    buffer = io.BytesIO()
-    with pd.ExcelWriter(buffer, engine="openpyxl") as writer:
-        frame.to_excel(writer, index=False, sheet_name=kind)
-    return buffer.getvalue()
+    return spreadsheet.frames_xlsx_bytes({kind: frame})
 
 
 # Planning / applying ---------------------------------------------------------------------------------------------

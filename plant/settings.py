@@ -3,6 +3,7 @@
 SQLite is the embedded default; set DATABASE_URL (e.g. postgres://postgres@127.0.0.1:5432/quenby)
 for PostgreSQL, the production path.
 """
+import datetime as dt
 import os
 from pathlib import Path
 
@@ -24,6 +25,7 @@ INSTALLED_APPS = [
     "django_tables2",
     "django_filters",
     "simple_history",
+    "axes",
     "plant",
     "calibration",
     "reports",
@@ -40,6 +42,8 @@ MIDDLEWARE = [
     "simple_history.middleware.HistoryRequestMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    # last, as django-axes asks: turns a locked-out login into the lockout page
+    "axes.middleware.AxesMiddleware",
 ]
 
 ROOT_URLCONF = "plant.urls"
@@ -67,7 +71,29 @@ DATABASES = {
     )
 }
 
-AUTH_PASSWORD_VALIDATORS = []
+# Django's own validators: not too like the account's names, long enough, not a common password, not all digits
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator", "OPTIONS": {"min_length": 10}},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+    {"NAME": "django.contrib.auth.password_validation.NumericPasswordValidator"},
+]
+
+# Failed logins are throttled (django-axes): after AXES_FAILURE_LIMIT failures for one account, or from one
+# address, logging in there is refused until the cool-off has passed or an administrator unlocks it
+# (/accounts/lockouts/ or `manage.py axes_reset_username NAME` / `axes_reset_ip ADDRESS`).
+AUTHENTICATION_BACKENDS = [
+    "axes.backends.AxesStandaloneBackend",  # first: refuses a locked-out login before the password is checked
+    "django.contrib.auth.backends.ModelBackend",
+]
+AXES_FAILURE_LIMIT = int(os.environ.get("QUENBY_LOGIN_FAILURE_LIMIT", "5"))
+AXES_COOLOFF_TIME = dt.timedelta(minutes=int(os.environ.get("QUENBY_LOGIN_COOLOFF_MINUTES", "30")))
+AXES_LOCKOUT_PARAMETERS = ["username", "ip_address"]  # each on its own: per account and per address
+AXES_RESET_ON_SUCCESS = True  # a successful login clears that account's failures
+AXES_LOCKOUT_CALLABLE = "plant.accounts.lockout_response"
+AXES_CLIENT_IP_CALLABLE = "plant.accounts.client_ip"
+# number of reverse proxies in front of the application that append to X-Forwarded-For (0: use REMOTE_ADDR)
+TRUSTED_PROXY_COUNT = int(os.environ.get("DJANGO_TRUSTED_PROXY_COUNT", "0"))
 LANGUAGE_CODE = "en-gb"
 TIME_ZONE = "UTC"
 USE_I18N = True

@@ -3,7 +3,7 @@ from django.urls import include, path
 from django.views.generic import RedirectView
 
 from calibration import views as calibration_views
-from plant import import_views, views
+from plant import accounts, import_views, views
 
 plant_patterns = (
     [
@@ -24,6 +24,7 @@ urlpatterns = [
     path("fluids/<int:pk>/edit/", views.fluid_edit, name="fluid-edit"),
     path("calibrations/", include("calibration.urls")),
     path("", include("reports.urls")),
+    path("accounts/lockouts/", accounts.lockout_list, name="lockouts"),
     path("accounts/", include("django.contrib.auth.urls")),
     path("admin/", admin.site.urls),
 ]

@@ -15,6 +15,7 @@ import time
 from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
+from calibration import decision as decision_rules
 from calibration import drift, due, fleet, intervals
 from calibration.models import CalibrationEvent
 from plant import risk
@@ -92,6 +93,8 @@ def naive_recompute(meters_qs=None, progress=None):
             if best is not None:
                 crossing = dt.date.fromordinal(max(int(math.floor(best[1].day)), last.toordinal()))
                 crossing_reason = f"drift at {best[0]:g} % of range{' (guard band U)' if guarded else ''}:"
+            crossing, nominal, crossing_reason = fleet.not_conforming_crossing(
+                last, last_row.as_found_in_tolerance, crossing, best[0] if best else None, crossing_reason, guarded)
             if cfg["interval_method"] == "staircase":
                 results = [ok for _, ok in _naive_observations(events)]
                 stair = None
@@ -110,11 +113,13 @@ def naive_recompute(meters_qs=None, progress=None):
                                       min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
             meter.last_calibrated = last
             meter.next_due_date = decision.due
-            meter.due_rationale = {**decision.rationale(), "drift_point_pct": float(best[0]) if best else None}
-            meter.drift_status = fleet.summarise_status(statuses)
+            meter.due_rationale = {**decision.rationale(),
+                                   "drift_point_pct": float(nominal) if nominal is not None else None}
+            meter.drift_status = decision_rules.drift_status_given_verdict(
+                fleet.summarise_status(statuses), fleet.stored_verdict(last_row.as_found_in_tolerance))
             meter.drift_rate_per_year = worst_rate * 365.25 if worst_rate is not None else None
             meter.predicted_crossing = crossing
-            meter.last_in_tolerance = last_row.as_found_in_tolerance
+            meter.last_in_tolerance = fleet.stored_verdict(last_row.as_found_in_tolerance)
             meter.risk_severity = risk.worst_severity(meter.findings())
         Meter.objects.filter(pk=meter.pk).update(**{name: getattr(meter, name) for name in fleet.UPDATED_FIELDS})
         if progress:

@@ -14,7 +14,9 @@ from django.template.loader import render_to_string
 from django.utils import timezone
 from django.utils.safestring import mark_safe
 
+from calibration import decision
 from calibration.models import CalibrationEvent, CalibrationPoint
+from reports import pdf_fetch
 from reports.charts import drift_chart_svg
 
 DEFAULT_LAB = {
@@ -80,8 +82,32 @@ def drift_history(event):
     return history
 
 
-def _verdict(value):
-    return {True: "in tolerance", False: "out of tolerance"}.get(value, "not determined")
+def nominal_list(points) -> str:
+    """"10 %, 50 % and 100 %" for the points, in nominal order."""
+    values = [f"{p.nominal_pct:g} %" for p in sorted(points, key=lambda p: p.nominal_pct)]
+    return values[0] if len(values) == 1 else ", ".join(values[:-1]) + " and " + values[-1]
+
+
+def conformity_notes(points) -> dict:
+    """What the statement of conformity must say beyond the verdicts, from the stored point decisions.
+
+    guard_band: the "as found"/"as left" labelled nominals of points in the guard band (conditional pass);
+    conditional_fail: likewise for conditional fails; u_above_mpe: points whose U exceeds the MPE, where
+    the guarded rule has no "pass" zone at all (ILAC-G8:09/2019 §4.2.2).
+    """
+    def labelled(selected):
+        groups = []
+        for kind, label in ((CalibrationPoint.Kind.AS_FOUND, "as found"), (CalibrationPoint.Kind.AS_LEFT, "as left")):
+            chosen = [p for p in selected if p.kind == kind]
+            if chosen:
+                groups.append(f"{label} at {nominal_list(chosen)}")
+        return "; ".join(groups)
+
+    guard = [p for p in points if p.decision == decision.CONDITIONAL_PASS]
+    cond_fail = [p for p in points if p.decision == decision.CONDITIONAL_FAIL]
+    wide = [p for p in points if p.expanded_uncertainty is not None and p.mpe is not None
+            and p.expanded_uncertainty > p.mpe]
+    return {"guard_band": labelled(guard), "conditional_fail": labelled(cond_fail), "u_above_mpe": labelled(wide)}
 
 
 def certificate_context(event) -> dict:
@@ -96,7 +122,7 @@ def certificate_context(event) -> dict:
     as_left = [p for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT]
     history = drift_history(event)
     unit = error_unit(meter)
-    conditional = any(p.decision.startswith("conditional") for p in points)
+    left_or_found = as_left or as_found  # no as-left points: the as-left condition is the as-found one
     return {
         "event": event,
         "meter": meter,
@@ -110,9 +136,10 @@ def certificate_context(event) -> dict:
         "as_left": as_left,
         "error_unit": unit,
         "standards": list(event.reference_standards.all()),
-        "as_found_verdict": _verdict(event.as_found_in_tolerance),
-        "as_left_verdict": _verdict(event.as_left_in_tolerance),
-        "conditional": conditional,
+        "as_found_verdict": decision.verdict_text(event.as_found_in_tolerance, [p.decision for p in as_found]),
+        "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance, [p.decision for p in left_or_found]),
+        "guarded": event.decision_rule == CalibrationEvent.Rule.GUARDED,
+        "notes": conformity_notes(points),
         "supersedes": event.supersedes,
         "supersedes_number": certificate_number(event.supersedes) if event.supersedes_id else "",
         "history": history,
@@ -124,10 +151,12 @@ def certificate_html(event) -> str:
     return render_to_string("reports/certificate.html", certificate_context(event))
 
 
-def certificate_pdf(event, base_url=None) -> bytes:
+def certificate_pdf(event) -> bytes:
+    """The PDF; the renderer may load the project's static files and nothing else (reports/pdf_fetch.py)."""
     from weasyprint import HTML  # imported lazily: heavy, and only needed when printing
 
-    return HTML(string=certificate_html(event), base_url=base_url).write_pdf()
+    return HTML(string=certificate_html(event), base_url=pdf_fetch.BASE_URL,
+                url_fetcher=pdf_fetch.static_only).write_pdf()
 
 
 def load_event(pk):
@@ -150,9 +179,9 @@ def events_signed_between(start, end):
     )
 
 
-def certificates_zip(events, base_url=None) -> bytes:
+def certificates_zip(events) -> bytes:
     buffer = io.BytesIO()
     with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_DEFLATED) as archive:
         for event in events:
-            archive.writestr(certificate_filename(event), certificate_pdf(event, base_url=base_url))
+            archive.writestr(certificate_filename(event), certificate_pdf(event))
     return buffer.getvalue()

@@ -1,5 +1,3 @@
-import csv
-
 from django.contrib.auth.decorators import permission_required
 from django.core.paginator import Paginator
 from django.http import HttpResponse
@@ -7,6 +5,7 @@ from django.shortcuts import render
 from django.utils.functional import cached_property
 from django_tables2 import RequestConfig
 
+from plant import spreadsheet
 from reports import review
 from reports.forms import ReviewFilterForm
 
@@ -54,9 +53,6 @@ def _csv(buckets, key):
         return HttpResponse(f"Unknown review list {key!r}; use one of: " + ", ".join(b.key for b in buckets),
                             status=400, content_type="text/plain; charset=utf-8")
     table = bucket.table_class(bucket.rows)
-    response = HttpResponse(content_type="text/csv; charset=utf-8")
+    response = HttpResponse(spreadsheet.csv_text(table.as_values()), content_type="text/csv; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="review_{key}.csv"'
-    writer = csv.writer(response)
-    for row in table.as_values():
-        writer.writerow(row)
     return response

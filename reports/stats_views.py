@@ -1,6 +1,4 @@
 """Fleet statistics page (/stats/) and its CSV / XLSX exports."""
-import io
-
 import pandas as pd
 from django import forms
 from django.contrib.auth.decorators import permission_required
@@ -8,6 +6,7 @@ from django.http import HttpResponse
 from django.shortcuts import render
 from django.utils import timezone
 
+from plant import spreadsheet
 from plant.models import Site
 from reports import stats
 
@@ -71,7 +70,7 @@ def fleet_stats_csv(request):
     if form.is_bound and not form.is_valid():
         return _bad_filter(form)
     table = by_principle if by == "principle" else by_fluid
-    response = HttpResponse(table.to_csv(index=False), content_type="text/csv; charset=utf-8")
+    response = HttpResponse(spreadsheet.frame_csv_text(table, lineterminator="\n"), content_type="text/csv; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="fleet_stats_by_{by}_{today}.csv"'
     return response
 
@@ -81,10 +80,7 @@ def fleet_stats_xlsx(request):
     form, by_principle, by_fluid, today = _statistics(request)
     if form.is_bound and not form.is_valid():
         return _bad_filter(form)
-    buffer = io.BytesIO()
-    with pd.ExcelWriter(buffer, engine="openpyxl") as writer:
-        by_principle.to_excel(writer, sheet_name=SHEETS["principle"], index=False)
-        by_fluid.to_excel(writer, sheet_name=SHEETS["fluid"], index=False)
-    response = HttpResponse(buffer.getvalue(), content_type=XLSX_TYPE)
+    workbook = spreadsheet.frames_xlsx_bytes({SHEETS["principle"]: by_principle, SHEETS["fluid"]: by_fluid})
+    response = HttpResponse(workbook, content_type=XLSX_TYPE)
     response["Content-Disposition"] = f'attachment; filename="fleet_stats_{today}.xlsx"'
     return response

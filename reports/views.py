@@ -13,7 +13,7 @@ def certificate_pdf(request, pk):
     event = certificate.load_event(pk)
     if event is None:
         raise Http404("No signed calibration with this number; drafts have no certificate.")
-    pdf = certificate.certificate_pdf(event, base_url=request.build_absolute_uri("/"))
+    pdf = certificate.certificate_pdf(event)
     response = HttpResponse(pdf, content_type="application/pdf")
     response["Content-Disposition"] = f'inline; filename="{certificate.certificate_filename(event)}"'
     return response
@@ -44,7 +44,7 @@ def certificates_zip(request):
     except ValueError as exc:
         return HttpResponseBadRequest(str(exc), content_type="text/plain; charset=utf-8")
     events = certificate.events_signed_between(start, end)
-    archive = certificate.certificates_zip(events, base_url=request.build_absolute_uri("/"))
+    archive = certificate.certificates_zip(events)
     response = HttpResponse(archive, content_type="application/zip")
     response["Content-Disposition"] = f'attachment; filename="certificates_{start}_{end}.zip"'
     return response

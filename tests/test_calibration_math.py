@@ -200,10 +200,28 @@ def test_decide_invalid(args):
 
 
 def test_verdict_in_tolerance():
-    assert decision.verdict_in_tolerance(["pass", "conditional pass", "pass"])
+    # ILAC-G8:09/2019 §4.2.2: under guarded acceptance the acceptance limit is MPE - U, so only a plain
+    # "pass" shows conformity; a guard-band point (conditional pass) does not.
+    assert decision.verdict_in_tolerance(["pass", "pass", "pass"])
+    assert not decision.verdict_in_tolerance(["pass", "conditional pass", "pass"])
     assert not decision.verdict_in_tolerance(["pass", "conditional fail"])
     assert not decision.verdict_in_tolerance(["fail"])
     assert decision.verdict_in_tolerance([])
+
+
+def test_verdict_text_names_the_guard_band():
+    assert decision.verdict_text(True, ["pass"]) == "in tolerance"
+    assert decision.verdict_text(False, ["pass", "conditional pass"]) == "not conforming (guard band)"
+    assert decision.verdict_text(False, ["conditional pass", "conditional fail"]) == "out of tolerance"
+    assert decision.verdict_text(False, ["fail"]) == "out of tolerance"
+    assert decision.verdict_text(None, []) == "not determined"
+
+
+def test_a_verdict_not_conforming_makes_the_drift_status_out_of_tolerance():
+    for status in ("insufficient", "flat", "improving", "drifting", "out_of_tolerance"):
+        assert decision.drift_status_given_verdict(status, False) == "out_of_tolerance"
+        assert decision.drift_status_given_verdict(status, True) == status
+        assert decision.drift_status_given_verdict(status, None) == status
 
 
 @pytest.mark.parametrize("basis,span", [("pct_reading", None), ("pct_span", 40.0), ("absolute", None)])

@@ -64,6 +64,7 @@ MATRIX = [
     ("meter edit save", "post", "/meters/FT-T1/edit/", [302, 403, 403, 400, 400]),
     ("register export", "get", "/meters/export.csv?kind=meters", [302, 403, 200, 200, 200]),
     ("admin site", "get", "/admin/", [302, 302, 302, 302, 200]),
+    ("login lockouts", "get", "/accounts/lockouts/", [302, 403, 403, 403, 200]),
     ("countersign", "post", "/calibrations/{signed}/countersign/", [302, 403, 403, 302, None]),
     # the technician entered the draft and may sign it; the administrator, not its author, may not
     ("sign a technician's draft", "post", "/calibrations/{draft}/sign/", [302, 403, 302, 403, 403]),

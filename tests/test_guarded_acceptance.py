@@ -1,0 +1,239 @@
+"""Guarded acceptance that guards: hand-worked boundary cases from the point decision to the due date and
+the certificate text, under simple acceptance (w = 0, ILAC-G8:09/2019 §4.2.1) and guarded acceptance
+(w = U, ILAC-G8:09/2019 §4.2.2, with the zones of its non-binary statement).
+
+Every case: one meter (electromagnetic on water, no risk finding, so the risk factor is 1), MPE ±1.0 % of
+reading, one as-found point at 20 m³/h, reference standard U = 0.25 % of reading at k = 2 (or 1.5 % for
+U > MPE). The point's U is then the standard's alone (no repeats, no resolution), so the limits are
+MPE - U = 0.75 %, MPE = 1.0 %, MPE + U = 1.25 %. Indications are chosen so that
+error = 100 × (indicated - 20) / 20 lands on each limit: 20.15 -> 0.75 %, 20.2 -> 1.0 %, 20.25 -> 1.25 %.
+
+Due dates, worked by hand from calibration/due.py with the default policy (min 30 d, max 1095 d, drift
+margin 30 d) and a single calibration on 2026-11-20, so no interval method has an observation:
+- in tolerance: candidates are risk only: 2026-11-20 + 365 d × 1.0 = 2027-11-20;
+- not conforming: the crossing is the calibration day itself; drift candidate 2026-11-20 - 30 d =
+  2026-10-21, earlier than the risk candidate, then bounded by the minimum interval: 2026-11-20 + 30 d =
+  2026-12-20.
+"""
+import datetime as dt
+import re
+
+import pytest
+
+from calibration import decision
+from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from plant.models import Area, Fluid, Meter, Site
+from reports.benchmark import naive_recompute
+from reports.certificate import certificate_html
+
+pytestmark = pytest.mark.django_db
+DAY = dt.date(2026, 11, 20)
+IN_TOLERANCE_DUE = dt.date(2027, 11, 20)   # DAY + 365 d (risk candidate)
+NOT_CONFORMING_DUE = dt.date(2026, 12, 20)  # DAY + 30 d (drift candidate bounded by the minimum interval)
+
+# indicated value at a reference of 20 m³/h for each hand-worked error (% of reading)
+INDICATED = {0.0: "20", 0.5: "20.1", 0.75: "20.15", 0.875: "20.175", 1.0: "20.2", 1.125: "20.225", 1.25: "20.25",
+             -0.5: "19.9", -0.75: "19.85", -0.875: "19.825", -1.0: "19.8", -1.25: "19.75"}
+
+
+@pytest.fixture
+def meter():
+    site = Site.objects.create(name="Guard test site")
+    area = Area.objects.create(site=site, name="Hall G")
+    water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=500)
+    meter = Meter.objects.create(tag="FT-G1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+                                 internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=1.0,
+                                 mpe_basis="pct_reading", wetted_material="316L", base_interval_days=365)
+    assert meter.risk_factor() == 1.0  # no finding for this duty: the risk candidate is the base interval
+    return meter
+
+
+def standard(U):
+    return ReferenceStandard.objects.create(identification=f"RS-U{U}", description="Master meter", range_min=0,
+                                            range_max=50, certificate_number=f"C-{U}", due_date=dt.date(2027, 6, 1),
+                                            expanded_uncertainty=U, uncertainty_basis="pct_reading")
+
+
+def calibrate(meter, ref_standard, rule, errors, day=DAY):
+    """Record and sign one calibration with as-found points at 20 m³/h (50 %), or at several nominals."""
+    event = CalibrationEvent.objects.create(meter=meter, performed_on=day, technician="A. Tester",
+                                            procedure="Comparison against the master meter", decision_rule=rule)
+    event.reference_standards.add(ref_standard)
+    for i, error in enumerate(errors):
+        CalibrationPoint.objects.create(event=event, kind="as_found", nominal_pct=50 + i, reference_value=20,
+                                        indicated_value=float(INDICATED[error]))
+    event.sign(by="A. Tester", role="Technician",
+               at=dt.datetime.combine(day, dt.time(12), tzinfo=dt.timezone.utc))
+    return event
+
+
+def certificate_text(event):
+    """The certificate's HTML as text, every tag a space."""
+    return re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", certificate_html(event)))
+
+
+def stored_due_fields(meter):
+    return Meter.objects.filter(pk=meter.pk).values(*UPDATED_FIELDS).get()
+
+
+# (error %, U %, rule) -> (point decision, verdict text) — hand-worked against ILAC-G8:09/2019 §4.2.1/§4.2.2
+CASES = [
+    # |E| = MPE - U: on the acceptance limit, inclusive: a plain pass under both rules
+    (0.75, 0.25, "simple", "pass", "in tolerance"),
+    (0.75, 0.25, "guarded", "pass", "in tolerance"),
+    # inside the guard band
+    (0.875, 0.25, "simple", "pass", "in tolerance"),
+    (0.875, 0.25, "guarded", "conditional pass", "not conforming (guard band)"),
+    # |E| = MPE: simple acceptance passes (inclusive); guarded: last point of the guard band
+    (1.0, 0.25, "simple", "pass", "in tolerance"),
+    (1.0, 0.25, "guarded", "conditional pass", "not conforming (guard band)"),
+    # |E| = MPE + U: fail under both (the conditional-fail zone is open at MPE + U)
+    (1.25, 0.25, "simple", "fail", "out of tolerance"),
+    (1.25, 0.25, "guarded", "fail", "out of tolerance"),
+    # U > MPE: no "pass" zone under the guarded rule, even for a zero error
+    (0.5, 1.5, "simple", "pass", "in tolerance"),
+    (0.5, 1.5, "guarded", "conditional pass", "not conforming (guard band)"),
+    (0.0, 1.5, "simple", "pass", "in tolerance"),
+    (0.0, 1.5, "guarded", "conditional pass", "not conforming (guard band)"),
+]
+
+
+@pytest.mark.parametrize("sign", [1, -1], ids=["positive", "negative"])
+@pytest.mark.parametrize("error,U,rule,expected_decision,expected_verdict", CASES)
+def test_boundary_case_from_decision_to_due_date_and_certificate(meter, sign, error, U, rule, expected_decision,
+                                                                  expected_verdict):
+    error = sign * error if error else 0.0
+    event = calibrate(meter, standard(U), rule, [error])
+    point = event.points.get()
+    # the point: error and U as hand-worked, then its decision
+    assert point.error == error
+    assert point.expanded_uncertainty == pytest.approx(U, rel=1e-12)
+    assert point.decision == expected_decision
+    # the stored binary verdict: in tolerance only when every point is a plain pass
+    conforming = expected_verdict == "in tolerance"
+    assert event.as_found_in_tolerance is conforming
+    assert event.as_left_in_tolerance is conforming  # no adjustment: as left = as found
+    # the meter: last verdict, drift status and due date (hand-worked in the module docstring)
+    meter.refresh_from_db()
+    assert meter.last_in_tolerance is conforming
+    assert meter.last_calibrated == DAY
+    if conforming:
+        assert meter.drift_status == "insufficient"  # one calibration: no trend yet
+        assert meter.next_due_date == IN_TOLERANCE_DUE
+        assert meter.due_rationale["winner"] == "risk" and meter.due_rationale["bounded"] == ""
+        assert meter.predicted_crossing is None
+    else:
+        assert meter.drift_status == "out_of_tolerance"
+        assert meter.next_due_date == NOT_CONFORMING_DUE
+        assert meter.due_rationale["winner"] == "drift" and meter.due_rationale["bounded"] == "minimum"
+        assert meter.predicted_crossing == DAY
+    # the naive per-meter recompute (the benchmark's baseline) stores the same fields
+    bulk = stored_due_fields(meter)
+    naive_recompute(Meter.objects.filter(pk=meter.pk))
+    assert stored_due_fields(meter) == bulk
+    # the certificate states the verdict and, under the guarded rule, the guard band in ILAC-G8's terms
+    text = certificate_text(event)
+    assert f"As found {expected_verdict}" in text
+    guard_band_note = "Guard band (as found at 50 %): the measured error is within the MPE but less than U from it"
+    if expected_decision == "conditional pass":
+        assert guard_band_note in text
+        assert "more than about 2.5 %" in text and "about 50 % where the measured error equals the MPE" in text
+        assert "under guarded acceptance these points count as not conforming (ILAC-G8:09/2019)" in text
+    else:
+        assert "Guard band (" not in text
+    if rule == "guarded":
+        assert "a point in the guard band (conditional pass) does not show conformity and counts as not conforming" in text
+    else:
+        # simple acceptance: the statement as it was, and nothing about guard bands
+        assert "the measurement uncertainty is reported but not deducted (guard band w = 0)" in text
+        assert "guard band (conditional pass)" not in text
+    u_above = "The expanded uncertainty U exceeds the MPE (as found at 50 %)"
+    assert (u_above in text) == (rule == "guarded" and U > 1.0)
+
+
+def test_a_zero_error_with_u_above_mpe_is_caught_by_the_verdict_not_the_fit(meter):
+    # The drift fit's limit is MPE minus the event's mean U capped at 0.9 MPE: 1.0 - 0.9 = 0.1 %, and the
+    # error 0 % is inside it, so the fit alone says "insufficient"; the stored verdict (conditional pass,
+    # ILAC-G8:09/2019 §4.2.2) makes the status out of tolerance and brings the due date in.
+    calibrate(meter, standard(1.5), "guarded", [0.0])
+    meter.refresh_from_db()
+    assert meter.drift_status == "out_of_tolerance"
+    assert meter.due_rationale["drift_point_pct"] is None
+    drift = [c for c in meter.due_rationale["candidates"] if c["name"] == "drift"]
+    assert drift[0]["reason"].startswith("last as-found not conforming (a guard-band point counts as not conforming):")
+    assert drift[0]["due"] == "2026-10-21"  # 2026-11-20 - 30 d, then bounded to 2026-12-20
+    assert meter.next_due_date == NOT_CONFORMING_DUE
+
+
+def test_one_guard_band_point_among_passes_makes_the_event_not_conforming(meter):
+    event = calibrate(meter, standard(0.25), "guarded", [0.5, -0.875, 0.75])
+    assert [p.decision for p in event.points.order_by("nominal_pct")] == ["pass", "conditional pass", "pass"]
+    assert event.as_found_in_tolerance is False
+    text = certificate_text(event)
+    assert "As found not conforming (guard band)" in text
+    assert "Guard band (as found at 51 %)" in text  # only the guard-band point is named
+
+
+def test_conditional_fail_is_out_of_tolerance_with_its_probability_wording(meter):
+    # |E| = 1.125 %: MPE < |E| < MPE + U -> conditional fail (ILAC-G8:09/2019), out of tolerance
+    event = calibrate(meter, standard(0.25), "guarded", [1.125])
+    assert event.points.get().decision == "conditional fail"
+    text = certificate_text(event)
+    assert "As found out of tolerance" in text
+    assert "Conditional fail (as found at 50 %)" in text and "less than about 50 %" in text
+
+
+@pytest.mark.parametrize("method", ["staircase", "reliability"])
+@pytest.mark.parametrize("rule", ["simple", "guarded"])
+def test_a_guard_band_result_counts_as_out_of_tolerance_for_the_interval_methods(meter, settings, method, rule):
+    """Two calibrations a year apart: the first a plain pass (0.5 %), the second at |E| = MPE (1.0 %).
+
+    Hand-worked method candidates from the second calibration (2027-11-20), default policy:
+    - staircase (OIML D 10): base 365 d; in tolerance -> 365 × 1.25 = 456.25 -> 456 d (half up);
+      not conforming -> 365 × 0.5 = 182.5 -> 183 d;
+    - reliability (NCSL RP-1 exponential model): one interval of 365 d; all in tolerance -> lambda = 0 ->
+      the maximum 1095 d; all out -> lambda infinite -> the minimum 30 d.
+    Due date: simple -> in tolerance, two calibrations (no trend yet): the risk candidate 365 d wins, or
+    the method's if earlier (none is); guarded -> not conforming: drift candidate bounded to 30 d.
+    """
+    settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": method}
+    first = dt.date(2026, 11, 20) - dt.timedelta(days=365)
+    ref = ReferenceStandard.objects.create(identification="RS-Y", description="Master meter", range_min=0,
+                                           range_max=50, certificate_number="C-Y", due_date=dt.date(2027, 6, 1),
+                                           expanded_uncertainty=0.25, uncertainty_basis="pct_reading")
+    calibrate(meter, ref, rule, [0.5], day=first)
+    last = calibrate(meter, ref, rule, [1.0])
+    meter.refresh_from_db()
+    method_days = {("staircase", "simple"): 456, ("staircase", "guarded"): 183,
+                   ("reliability", "simple"): 1095, ("reliability", "guarded"): 30}[(method, rule)]
+    candidates = {c["name"]: c for c in meter.due_rationale["candidates"]}
+    assert candidates["method"]["due"] == (DAY + dt.timedelta(days=method_days)).isoformat()
+    if method == "reliability":
+        failures = 0 if rule == "simple" else 1
+        assert f"from 1 intervals of Electromagnetic on liquid, {failures} out of tolerance" in candidates["method"]["reason"]
+    if rule == "simple":
+        assert last.as_found_in_tolerance is True
+        assert meter.next_due_date == IN_TOLERANCE_DUE and meter.due_rationale["winner"] == "risk"
+        assert meter.drift_status == "insufficient"
+    else:
+        assert last.as_found_in_tolerance is False
+        assert meter.next_due_date == NOT_CONFORMING_DUE and meter.due_rationale["winner"] == "drift"
+        assert meter.drift_status == "out_of_tolerance"
+    bulk = stored_due_fields(meter)
+    naive_recompute(Meter.objects.filter(pk=meter.pk))
+    assert stored_due_fields(meter) == bulk
+    recompute_due_dates()
+    assert stored_due_fields(meter) == bulk
+
+
+def test_decide_is_not_moved_by_binary_noise_in_U():
+    # U = 0.1 % of reading at 20 m³/h comes back from the budget as 0.09999999999999999; the limits are taken
+    # to the 9 decimals of the stored error, so |E| = MPE - U = 0.4 stays a pass and |E| = MPE + U = 0.6 a fail
+    # (ILAC-G8:09/2019 §4.2.2: pass up to and including MPE - U; fail from MPE + U).
+    noisy_U = 0.09999999999999999
+    assert decision.decide(0.4, 0.5, noisy_U, "guarded") == "pass"
+    assert decision.decide(-0.4, 0.5, noisy_U, "guarded") == "pass"
+    assert decision.decide(0.6, 0.5, noisy_U, "guarded") == "fail"
+    assert decision.decide(0.5, 0.5, noisy_U, "guarded") == "conditional pass"
+    assert decision.decide(0.3, 0.4, 0.1, "guarded") == "pass"  # 0.4 - 0.1 = 0.30000000000000004 in binary
