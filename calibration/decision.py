@@ -11,6 +11,9 @@
   |E| >= MPE + U            -> "fail"
 
 error, mpe and U must be on the same basis (use calibration.errors.to_error_units).
+
+Limits are compared with a tolerance (LIMIT_TOLERANCE, see at_limit): an error that lies on a
+limit but for binary rounding (10.05 vs 10 -> 0.50000000000007 %) counts as on it.
 """
 
 from __future__ import annotations
@@ -37,7 +40,7 @@ def decide(error: float, mpe: float, U: float, rule: str) -> str:
         raise ValueError("mpe must be > 0")
     if U < 0:
         raise ValueError("U must be >= 0")
-    e = abs(error)
+    e = at_limit(abs(error), (mpe - U, mpe, mpe + U))
     if rule == "simple":
         return PASS if e <= mpe else FAIL
     if e <= mpe - U:
@@ -52,3 +55,20 @@ def decide(error: float, mpe: float, U: float, rule: str) -> str:
 def verdict_in_tolerance(decisions: Iterable[str]) -> bool:
     """True if every point decision is "pass" or "conditional pass"."""
     return all(d in IN_TOLERANCE for d in decisions)
+
+
+#: Relative tolerance of the limit comparisons: one part in 1e9 of the limit (at least 1e-12 in the
+#: error's units). Far below the three decimals an error is shown with, far above the rounding of a
+#: double (about 1e-16 relative, amplified by ind - ref to at most ~1e-13 at the readings entered).
+LIMIT_TOLERANCE = 1e-9
+
+
+def at_limit(e: float, limits) -> float:
+    """`e` moved onto the nearest limit when within LIMIT_TOLERANCE of it, else unchanged.
+
+    Floating-point comparison with a stated tolerance (common practice; cf. Python's math.isclose):
+    the reported error is left as computed, only the comparison uses this value."""
+    for limit in limits:
+        if abs(e - limit) <= LIMIT_TOLERANCE * max(abs(limit), 1e-3):
+            return limit
+    return e

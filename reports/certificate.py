@@ -37,11 +37,7 @@ def certificate_filename(event) -> str:
     return f"{certificate_number(event)}.pdf"
 
 
-def error_unit(meter) -> str:
-    """The unit errors, MPE and U are stated in (the meter's MPE basis)."""
-    if meter.mpe_basis == meter.MpeBasis.ABSOLUTE:
-        return meter.flow_units
-    return meter.get_mpe_basis_display()
+from calibration.errors import error_unit  # noqa: E402  (kept importable from here)
 
 
 def worst_error(points):

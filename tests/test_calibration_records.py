@@ -36,8 +36,9 @@ def entry_data(standard, adjusted=False, found=None, left=None, **event):
     found = found if found is not None else [(4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
     left = left if left is not None else [("", "")] * 5
     header = {
-        "performed_on": TODAY.isoformat(), "technician": "A. Fieldtech", "reference_standards": [standard.pk],
+        "performed_on": TODAY.isoformat(), "reference_standards": [standard.pk],
         "procedure": "Comparison against portable master meter, five points", "reason": "scheduled",
+        "condition_received": "Installed, in service, no visible damage",
         "decision_rule": "simple", "ambient_temp_c": "18", "fluid_temp_c": "12", "pressure_bar": "3",
     }
     if adjusted:
@@ -58,8 +59,11 @@ def test_entry_computes_errors_and_verdicts(client, meter, standard):
     points = sorted(event.points.filter(kind="as_found"), key=lambda p: p.nominal_pct)
     # 20.05 vs 20: error = 100*(0.05/20) = 0.25 % of reading
     assert points[2].error == pytest.approx(0.25)
-    # U: reference 0.1 % (k=2) only, no repeats or resolution -> U = 0.1 % of reading
-    assert points[2].expanded_uncertainty == pytest.approx(0.1)
+    # U: reference 0.1 % (k=2) only, no repeats or resolution -> u = 0.05 % of reading, Type B with infinite
+    # degrees of freedom, so k = z(0.975) = 1.960 (JCGM 100:2008 Table G.2, nu = inf, p = 95 %; from memory)
+    # and U = 1.95996 x 0.05 = 0.0980 % of reading
+    assert points[2].coverage_factor == pytest.approx(1.95996, abs=1e-5) and points[2].dof_effective is None
+    assert points[2].expanded_uncertainty == pytest.approx(0.0980, abs=1e-4)
     assert [p.decision for p in points] == ["pass"] * 5
     assert event.as_found_in_tolerance is True
     page = client.get(event.get_absolute_url()).content.decode()
@@ -115,9 +119,12 @@ def test_expired_or_out_of_range_standard_refused(client, meter, standard):
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 400
     assert "was past its due date (2026-01-01)" in response.content.decode()
+    # a standard whose range (0–30) does not cover the meter's (0–40) is neither offered nor accepted
     ReferenceStandard.objects.filter(pk=standard.pk).update(due_date=dt.date(2027, 6, 1), range_max=30)
+    assert f'value="{standard.pk}"' not in client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
-    assert "40 is outside its range" in response.content.decode()
+    assert response.status_code == 400
+    assert "is withdrawn or does not suit this meter (phase or range)" in html.unescape(response.content.decode())
     assert counts() == (0, 0)
 
 
