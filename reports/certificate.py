@@ -14,6 +14,8 @@ from django.template.loader import render_to_string
 from django.utils import timezone
 from django.utils.safestring import mark_safe
 
+from calibration import uncertainty
+from calibration.errors import error_unit  # noqa: F401  (kept importable from here)
 from calibration.models import CalibrationEvent, CalibrationPoint
 from reports.charts import drift_chart_svg
 
@@ -37,7 +39,6 @@ def certificate_filename(event) -> str:
     return f"{certificate_number(event)}.pdf"
 
 
-from calibration.errors import error_unit  # noqa: E402  (kept importable from here)
 
 
 def worst_error(points):
@@ -87,7 +88,11 @@ def certificate_context(event) -> dict:
     points = list(event.points.all())
     for p in points:
         # the error was computed from the mean of the repeats when there are any (CalibrationPoint.compute)
-        p.indicated_mean = sum(p.repeats) / len(p.repeats) if p.repeats else p.indicated_value
+        p.indicated_mean = p.indication_used
+        tur = p.tur
+        p.tur_shown = tur if tur is not None and tur != float("inf") else None
+        p.low_tur = p.tur_warning is not None
+    countersignature = getattr(event, "countersignature", None)
     as_found = [p for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
     as_left = [p for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT]
     history = drift_history(event)
@@ -105,7 +110,11 @@ def certificate_context(event) -> dict:
         "as_found": as_found,
         "as_left": as_left,
         "error_unit": unit,
-        "standards": list(event.reference_standards.all()),
+        "standards": event.standards_as_signed(),
+        "low_tur": any(p.low_tur for p in points),
+        "tur_limit": uncertainty.TUR_WARNING,
+        "coverage_pct": uncertainty.COVERAGE_PROBABILITY * 100,
+        "countersignature": countersignature,
         "as_found_verdict": _verdict(event.as_found_in_tolerance),
         "as_left_verdict": _verdict(event.as_left_in_tolerance),
         "conditional": conditional,
@@ -130,7 +139,7 @@ def load_event(pk):
     """The signed event with everything the certificate reads, or None."""
     return (
         signed_events()
-        .select_related("meter__area__site", "meter__fluid", "supersedes")
+        .select_related("meter__area__site", "meter__fluid", "supersedes", "countersignature")
         .filter(pk=pk)
         .first()
     )
