@@ -321,7 +321,11 @@ class CalibrationEvent(models.Model):
             from calibration.fleet import recompute_due_dates
 
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
-        self.refresh_from_db()
+        # take the signed values from `fresh` rather than reading them back: a read here could itself meet a lock,
+        # and a retry after a committed sign-off would wrongly report "already signed"
+        for field in self._meta.concrete_fields:
+            setattr(self, field.attname, getattr(fresh, field.attname))
+        self._prefetched_objects_cache = {}
         return self
 
 
