@@ -57,8 +57,16 @@ class EventForm(forms.ModelForm):
         if meter is not None:
             from django.utils import timezone
 
-            self.fields["reference_standards"].queryset = ReferenceStandard.offered_for(
-                meter, None if self.is_bound else timezone.localdate())
+            # accepted: any suitable standard, so one expired on the date of calibration gets its own message;
+            # listed: those in date today, and whatever was ticked
+            field = self.fields["reference_standards"]
+            field.queryset = ReferenceStandard.offered_for(meter)
+            key = self.add_prefix("reference_standards")
+            sent = (self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound else []
+            ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
+            today = timezone.localdate()
+            field.widget.choices = [(value, label) for value, label in field.choices
+                                    if value.instance.due_date >= today or str(value) in ticked]
 
 
 def _finite(value, label):
