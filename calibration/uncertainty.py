@@ -17,6 +17,7 @@ from __future__ import annotations
 import math
 import statistics
 from dataclasses import dataclass
+from functools import lru_cache
 from typing import Iterable, Sequence
 
 from scipy import special
@@ -112,6 +113,7 @@ def effective_dof(components: Iterable[tuple[float, float]]) -> float:
     return 1.0 / denominator  # (u_c^4 / sum(u_i^4/nu_i)), scaled by u_c^4 to stay in range
 
 
+@lru_cache(maxsize=4096)  # most points have nu_eff = inf or a few repeats: the same k again and again
 def coverage_factor(dof: float, p: float = COVERAGE_PROBABILITY) -> float:
     """Coverage factor k = t_p(nu): the two-sided Student-t quantile for coverage
     probability p (JCGM 100:2008 G.3.2, G.4.1 step d, Table G.2). A non-integer nu is
