@@ -168,10 +168,10 @@ def point_uncertainty(
     u_rep = repeatability_u(values)
     u_res = resolution_u(resolution)
     u_c = combine(u_ref, u_rep, u_res)
-    components = [(u, math.inf) for u in u_refs] + [(u_res, math.inf)]
-    if len(values) >= 2:
-        components.append((u_rep, len(values) - 1))
-    nu_eff = effective_dof(components)
+    if len(values) >= 2:  # the only component with finite degrees of freedom
+        nu_eff = effective_dof([(u, math.inf) for u in u_refs] + [(u_res, math.inf), (u_rep, len(values) - 1)])
+    else:
+        nu_eff = math.inf
     k = coverage_factor(nu_eff, p)
     return PointUncertainty(u_ref=u_ref, u_rep=u_rep, u_res=u_res, u_c=u_c, U=k * u_c, k=k, nu_eff=nu_eff, p=p)
 
