@@ -24,7 +24,7 @@ class PointInline(LockedWhenSigned, admin.TabularInline):
 
 @admin.register(CalibrationEvent)
 class CalibrationEventAdmin(LockedWhenSigned, admin.ModelAdmin):
-    list_display = ("meter", "performed_on", "technician", "state", "as_found_in_tolerance")
+    list_display = ("meter", "performed_on", "technician", "contractor", "state", "as_found_in_tolerance")
     list_filter = ("state", "reason")
     inlines = [PointInline]
     actions = None  # no bulk delete of calibration records
@@ -32,4 +32,6 @@ class CalibrationEventAdmin(LockedWhenSigned, admin.ModelAdmin):
 
 @admin.register(ReferenceStandard)
 class ReferenceStandardAdmin(admin.ModelAdmin):
-    list_display = ("identification", "description", "due_date", "certificate_number")
+    list_display = ("identification", "description", "phase", "range_min", "range_max", "due_date",
+                    "certificate_number", "issuer", "withdrawn")
+    list_filter = ("withdrawn", "phase")

@@ -21,6 +21,9 @@ true error is beyond the MPE (ILAC-G8:09/2019 §4.2.2, figure quoted from memory
 guard band that risk grows to about 50 % at |E| = MPE.
 
 error, mpe and U must be on the same basis (use calibration.errors.to_error_units).
+
+Limits are compared with a tolerance (LIMIT_TOLERANCE, see at_limit): an error that lies on a
+limit but for binary rounding (10.05 vs 10 -> 0.50000000000007 %) counts as on it.
 """
 
 from __future__ import annotations
@@ -49,17 +52,16 @@ def decide(error: float, mpe: float, U: float, rule: str) -> str:
         raise ValueError("mpe must be > 0")
     if U < 0:
         raise ValueError("U must be >= 0")
-    e = abs(error)
+    e = at_limit(abs(error), (mpe - U, mpe, mpe + U))
     if rule == "simple":
         return PASS if e <= mpe else FAIL
-    # The limits MPE - U and MPE + U are taken to 9 decimals, the resolution the stored error is rounded
-    # to (CalibrationPoint.compute): U carries binary noise (0.1 % of reading comes back as
-    # 0.09999999999999999), which must not move a point lying exactly on a limit across it.
-    if e <= round(mpe - U, LIMIT_DECIMALS):
+    # U carries binary noise (0.1 % of reading comes back as 0.09999999999999999) and the stored error
+    # is rounded to LIMIT_DECIMALS; at_limit keeps a point lying on a limit from crossing it.
+    if e <= mpe - U:
         return PASS
     if e <= mpe:
         return CONDITIONAL_PASS
-    if e < round(mpe + U, LIMIT_DECIMALS):
+    if e < mpe + U:
         return CONDITIONAL_FAIL
     return FAIL
 
@@ -101,3 +103,20 @@ def drift_status_given_verdict(status: str, last_as_found_in_tolerance: bool | N
     if last_as_found_in_tolerance is False:
         return "out_of_tolerance"
     return status
+
+
+#: Relative tolerance of the limit comparisons: one part in 1e9 of the limit (at least 1e-12 in the
+#: error's units). Far below the three decimals an error is shown with, far above the rounding of a
+#: double (about 1e-16 relative, amplified by ind - ref to at most ~1e-13 at the readings entered).
+LIMIT_TOLERANCE = 1e-9
+
+
+def at_limit(e: float, limits) -> float:
+    """`e` moved onto the nearest limit when within LIMIT_TOLERANCE of it, else unchanged.
+
+    Floating-point comparison with a stated tolerance (common practice; cf. Python's math.isclose):
+    the reported error is left as computed, only the comparison uses this value."""
+    for limit in limits:
+        if abs(e - limit) <= LIMIT_TOLERANCE * max(abs(limit), 1e-3):
+            return limit
+    return e

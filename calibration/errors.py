@@ -97,3 +97,10 @@ def to_error_units(value_in_flow_units: float, basis: str, reference: float, spa
     _check_finite(value_in_flow_units=value_in_flow_units)
     s = _scale(basis, reference, span)
     return value_in_flow_units if s is None else value_in_flow_units / s
+
+
+def error_unit(meter) -> str:
+    """The unit errors, MPE and U of `meter` are stated in: its MPE basis, or its flow units for an absolute MPE."""
+    if meter.mpe_basis == "absolute":
+        return meter.flow_units
+    return meter.get_mpe_basis_display()

@@ -1,9 +1,11 @@
 """Tablet entry of a calibration: the event header and two point grids (as-found, as-left)."""
 import math
+from decimal import Decimal, InvalidOperation
 
 from django import forms
 from django.db import transaction
 
+from calibration import uncertainty
 from calibration.errors import point_error
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.forms import YesNoField
@@ -13,24 +15,58 @@ NUMERIC = {"inputmode": "decimal", "autocomplete": "off"}
 
 
 class EventForm(forms.ModelForm):
+    """The header. Who performed the work is the logged-in user, unless an outside contractor is named.
+
+    The reference standards offered are those suited to the meter (ReferenceStandard.offered_for): on the empty
+    form, also in date today; on a POST, one out of date on the date of calibration is refused at the field
+    with its due date (CalibrationEntry.is_valid)."""
+
     reference_standards = forms.ModelMultipleChoiceField(
         queryset=ReferenceStandard.objects.all(), widget=forms.CheckboxSelectMultiple,
-        error_messages={"required": "Choose the reference standard used."},
+        error_messages={"required": "Choose the reference standard used.",
+                        "invalid_choice": "Reference standard %(value)s is withdrawn or does not suit this meter "
+                                          "(phase or range); choose one of those listed."},
     )
     adjusted = YesNoField(label="Adjustment made", required=False)
 
     class Meta:
         model = CalibrationEvent
-        fields = ["performed_on", "technician", "reference_standards", "procedure", "ambient_temp_c",
-                  "fluid_temp_c", "pressure_bar", "reason", "adjusted", "decision_rule", "notes"]
+        fields = ["performed_on", "contractor", "reference_standards", "procedure", "condition_received",
+                  "deviations", "ambient_temp_c", "fluid_temp_c", "pressure_bar", "reason", "adjusted",
+                  "decision_rule", "notes"]
+        labels = {"contractor": "Outside contractor (only if a contractor did the work)",
+                  "deviations": "Deviations from the method (blank: none)"}
+        help_texts = {"contractor": "Leave blank when you did the work yourself: you are recorded as the performer."}
         widgets = {
             "performed_on": forms.DateInput(attrs={"type": "date"}, format="%Y-%m-%d"),  # what type=date expects
             "procedure": forms.Textarea(attrs={"rows": 3}),
+            "condition_received": forms.Textarea(attrs={"rows": 2}),
+            "deviations": forms.Textarea(attrs={"rows": 2}),
             "notes": forms.Textarea(attrs={"rows": 2}),
             "ambient_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
             "fluid_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
             "pressure_bar": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
         }
+
+    def __init__(self, *args, meter=None, **kwargs):
+        super().__init__(*args, **kwargs)
+        condition = self.fields["condition_received"]
+        condition.required = True
+        condition.error_messages["required"] = ("Describe the meter's condition as received (e.g. installed, in "
+                                                "service, no visible damage).")
+        if meter is not None:
+            from django.utils import timezone
+
+            # accepted: any suitable standard, so one expired on the date of calibration gets its own message;
+            # listed: those in date today, and whatever was ticked
+            field = self.fields["reference_standards"]
+            field.queryset = ReferenceStandard.offered_for(meter)
+            key = self.add_prefix("reference_standards")
+            sent = (self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound else []
+            ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
+            today = timezone.localdate()
+            field.widget.choices = [(value, label) for value, label in field.choices
+                                    if value.instance.due_date >= today or str(value) in ticked]
 
 
 def _finite(value, label):
@@ -79,17 +115,39 @@ class PointRowForm(forms.Form):
         data = getattr(self, "cleaned_data", {})
         return data.get("reference_value") is None and data.get("indicated_value") is None and not data.get("repeats")
 
+    def _typed_half_digit(self):
+        """Half a unit in the last digit of the indication as typed (50.4 -> 0.05, 50 -> 0.5)."""
+        raw = (self.data.get(self.add_prefix("indicated_value")) or "").strip()
+        try:
+            exponent = Decimal(raw).as_tuple().exponent
+        except InvalidOperation:
+            return 0.0
+        return 0.5 * 10.0 ** exponent if isinstance(exponent, int) else 0.0
+
     def clean(self):
+        """One rule for repeat readings: when there are any, the indication used is their mean. The indicated
+        value may then be left blank, or must be that mean to the digits typed (50.03 for 50.0, 50.0, 50.1);
+        what is stored as the indicated value is the mean itself, and the pages say it is a mean."""
         data = super().clean()
         if self.errors or self.is_blank():
             return data
         ref, ind = data.get("reference_value"), data.get("indicated_value")
+        repeats = data.get("repeats")
         if ref is None:
             self.add_error("reference_value", "Enter the reference flow.")
-        if ind is None and not data.get("repeats"):
+        if ind is None and not repeats:
             self.add_error("indicated_value", "Enter the meter's indication.")
-        if ind is None and data.get("repeats"):
-            data["indicated_value"] = sum(data["repeats"]) / len(data["repeats"])
+        if repeats:
+            mean = sum(repeats) / len(repeats)
+            if (ind is not None and math.isfinite(mean)
+                    and abs(ind - mean) > self._typed_half_digit() + 1e-12 * max(abs(mean), 1.0)):
+                self.add_error(
+                    "indicated_value",
+                    f"The indication {ind:g} is not the mean of the repeat readings ({mean:.6g}); with repeat "
+                    "readings the mean is used: leave the indication blank, or correct the indication or the "
+                    "readings.")
+            else:
+                data["indicated_value"] = mean
         if ref is not None and self.meter is not None:
             meter = self.meter
             if ref < 0:
@@ -102,8 +160,9 @@ class PointRowForm(forms.Form):
                 self.add_error("reference_value", "A % of reading error needs a reference flow above zero.")
         return data
 
-    def check_results(self, standard, rule):
-        """Refuse a row whose results (error, U, decision) cannot be computed as finite numbers.
+    def check_results(self, standards, rule):
+        """Refuse a row whose results (error, U, decision) cannot be computed as finite numbers; return the computed
+        (unsaved) point when they can, else None.
 
         Runs the same computation as the save, on an unsaved point, so nothing can fail later with a server error.
         """
@@ -113,9 +172,9 @@ class PointRowForm(forms.Form):
             indicated_value=data["indicated_value"], repeats=data["repeats"], resolution=data["resolution"] or 0.0,
         )
         try:
-            point.compute(self.meter, standard, rule)
+            point.compute(self.meter, standards, rule)
             if math.isfinite(point.error) and math.isfinite(point.expanded_uncertainty):
-                return
+                return point
         except (ValueError, ArithmeticError):
             pass
         repeats = data["repeats"]
@@ -136,6 +195,7 @@ class PointRowForm(forms.Form):
         self.add_error("resolution" if data["resolution"] else ("repeats" if repeats else "reference_value"),
                        "The uncertainty at this point cannot be computed from these values (a number is too large "
                        "or too small); check the resolution, the repeat readings and the reference flow.")
+        return None
 
 
 class BasePointGrid(forms.BaseFormSet):
@@ -185,9 +245,10 @@ class CalibrationEntry:
         self.meter = meter
         self.user = user
         bound = data is not None
-        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": timezone.localdate(),
-                   "technician": (user.get_full_name() or user.username) if user else ""}
-        self.event_form = EventForm(data, prefix="ev") if bound else EventForm(prefix="ev", initial=initial)
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": timezone.localdate()}
+        self.low_tur_policy = settings.CALIBRATION.get("low_tur_policy", "require_guarded")
+        self.event_form = (EventForm(data, prefix="ev", meter=meter) if bound
+                           else EventForm(prefix="ev", initial=initial, meter=meter))
         self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)
         self.as_left = PointGrid(data, prefix="al", meter=meter) if bound else PointGrid(prefix="al", meter=meter)
         self.non_field_errors = []
@@ -217,11 +278,20 @@ class CalibrationEntry:
         standards = self.event_form.cleaned_data.get("reference_standards")
         if not problems and standards:
             rule = self.event_form.cleaned_data.get("decision_rule")
+            computed = []
             for grid in (self.as_found, self.as_left):
                 for form in grid.forms:
                     if not form.errors and not form.is_blank():
-                        form.check_results(standards.first(), rule)
-        return not (self.non_field_errors or problems or any(f.errors for f in self.as_found.forms)
+                        computed.append(form.check_results(list(standards), rule))
+            low = [p for p in computed if p is not None and p.tur < uncertainty.TUR_WARNING]
+            if low and uncertainty.low_tur_requires_guarded(rule, [p.tur for p in low], self.low_tur_policy):
+                where = ", ".join(f"{p.reference_value:g} {self.meter.flow_units} ({p.tur:.1f}:1)" for p in low)
+                self.event_form.add_error(
+                    "decision_rule",
+                    f"The test uncertainty ratio is below {uncertainty.TUR_WARNING:g}:1 at {where}: the "
+                    "decision-rule policy requires guarded acceptance (ILAC-G8, w = U) then. Choose guarded "
+                    "acceptance, or use a better reference standard.")
+        return not (self.non_field_errors or self.event_form.errors or any(f.errors for f in self.as_found.forms)
                     or any(f.errors for f in self.as_left.forms))
 
     @transaction.atomic
@@ -229,16 +299,21 @@ class CalibrationEntry:
         event = self.event_form.save(commit=False)
         event.meter = self.meter
         event.created_by = self.user
+        if event.contractor:
+            event.performed_by, event.technician = None, event.contractor
+        else:
+            event.performed_by = self.user
+            event.technician = (self.user.get_full_name() or self.user.username) if self.user else ""
         event.save()
         self.event_form.save_m2m()
-        standard = event.reference_standards.first()
+        standards = list(event.reference_standards.all())
         for kind, grid in ((CalibrationPoint.Kind.AS_FOUND, self.as_found), (CalibrationPoint.Kind.AS_LEFT, self.as_left)):
             for row in grid.filled_rows():
                 point = CalibrationPoint(
                     event=event, kind=kind, nominal_pct=row["nominal_pct"], reference_value=row["reference_value"],
                     indicated_value=row["indicated_value"], repeats=row["repeats"], resolution=row["resolution"] or 0.0,
                 )
-                point.compute(self.meter, standard, event.decision_rule)
+                point.compute(self.meter, standards, event.decision_rule)
                 point.save()
         event.evaluate()
         event.save()

@@ -4,17 +4,19 @@ A signed event and its points are locked at the model level: save(), delete() an
 update()/delete() on signed rows raise SignedRecordError and change nothing.
 """
 import datetime as dt
+import random
+import time
 
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MinValueValidator
-from django.db import models, transaction
+from django.db import OperationalError, models, transaction
 from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty
-from plant.models import Meter, number_or_none
+from plant.models import Fluid, Meter, number_or_none
 
 
 FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
@@ -40,6 +42,11 @@ class ReferenceStandard(models.Model):
         "expanded uncertainty U (k=2)", validators=[MinValueValidator(0.0, "Uncertainty cannot be negative.")]
     )
     uncertainty_basis = models.CharField(max_length=12, choices=UncertaintyBasis.choices, default=UncertaintyBasis.PERCENT_READING)
+    issuer = models.CharField("certificate issued by", max_length=120, blank=True,
+                              help_text="the laboratory that calibrated this standard and issued its certificate")
+    phase = models.CharField("for fluids of phase", max_length=10, choices=Fluid.Phase.choices, blank=True,
+                             help_text="blank: not tied to one phase")
+    withdrawn = models.BooleanField("withdrawn from use", default=False)
     history = HistoricalRecords()
 
     class Meta:
@@ -56,9 +63,32 @@ class ReferenceStandard(models.Model):
         self.full_clean()
         super().save(*args, **kwargs)
 
+    @classmethod
+    def offered_for(cls, meter, on_date=None):
+        """Standards the tablet form offers for `meter`: not withdrawn, of the meter's fluid phase (or of none
+        stated), a range covering the meter's calibrated range, and, when `on_date` is given, in date then."""
+        qs = cls.objects.filter(withdrawn=False, range_min__lte=meter.range_min, range_max__gte=meter.range_max)
+        qs = qs.filter(models.Q(phase="") | models.Q(phase=meter.fluid.phase))
+        if on_date is not None:
+            qs = qs.filter(due_date__gte=on_date)
+        return qs
+
+    def snapshot(self):
+        """What a calibration record keeps of this standard at sign-off, as it was that day."""
+        return {
+            "identification": self.identification, "description": self.description,
+            "certificate_number": self.certificate_number, "issuer": self.issuer,
+            "expanded_uncertainty": self.expanded_uncertainty, "uncertainty_basis": self.uncertainty_basis,
+            "uncertainty_basis_display": self.get_uncertainty_basis_display(),
+            "range_min": self.range_min, "range_max": self.range_max, "units": self.units,
+            "due_date": self.due_date.isoformat(),
+        }
+
     def problems(self, on_date, values=()):
         """Reasons this standard cannot be used on `on_date` for these reference values (empty = usable)."""
         found = []
+        if self.withdrawn:
+            found.append(f"Reference standard {self.identification} is withdrawn from use.")
         if on_date > self.due_date:
             found.append(f"Reference standard {self.identification} was past its due date ({self.due_date}) on {on_date}.")
         outside = [v for v in values if v < self.range_min or v > self.range_max]
@@ -110,7 +140,17 @@ class CalibrationEvent(models.Model):
 
     meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="calibrations")
     performed_on = models.DateField("date of calibration")
+    # the name printed as "performed by": the performing user's name, or the outside contractor's
     technician = models.CharField(max_length=120)
+    performed_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                     related_name="calibrations_performed",
+                                     help_text="the logged-in technician who performed the work (none for a contractor)")
+    contractor = models.CharField("outside contractor", max_length=120, blank=True,
+                                  help_text="only when an outside contractor performed the work: name and company")
+    condition_received = models.TextField("condition of the item as received", blank=True)
+    deviations = models.TextField("deviations from the method", blank=True)
+    # each reference standard as it was at sign-off (ReferenceStandard.snapshot); certificates print this
+    standards_snapshot = models.JSONField(default=list, blank=True)
     reference_standards = models.ManyToManyField(ReferenceStandard, related_name="events")
     procedure = models.TextField("method / procedure")
     ambient_temp_c = models.FloatField("ambient temperature (°C)", null=True, blank=True)
@@ -159,6 +199,8 @@ class CalibrationEvent(models.Model):
         if (isinstance(self.performed_on, dt.date) and self._state.adding
                 and self.performed_on > timezone.localdate() + dt.timedelta(days=1)):
             errors["performed_on"] = "The date of calibration is in the future."
+        if self.contractor and self.performed_by_id:
+            errors["contractor"] = "Work is performed either by the logged-in technician or by an outside contractor, not both."
         if errors:
             raise ValidationError(errors)
 
@@ -205,22 +247,58 @@ class CalibrationEvent(models.Model):
             found.extend(standard.problems(self.performed_on, values))
         return found
 
+    def standards_as_signed(self):
+        """The reference standards as recorded: the sign-off snapshot; for a record signed before snapshots were
+        kept, each standard's audit-trail version as of the signing time (the current one if there is none)."""
+        if self.standards_snapshot:
+            return [dict(s, due_date=dt.date.fromisoformat(s["due_date"])) for s in self.standards_snapshot]
+        found = []
+        for standard in self.reference_standards.all():
+            version = None
+            if self.signed_at is not None:
+                version = standard.history.filter(history_date__lte=self.signed_at).order_by("-history_date").first()
+            snap = (version.instance if version is not None else standard).snapshot()
+            found.append(dict(snap, due_date=dt.date.fromisoformat(snap["due_date"])))
+        return found
+
     def evaluate(self):
         """Compute every point and the event verdicts; returns nothing, updates unsaved fields."""
-        standard = self.reference_standards.first()
+        standards = list(self.reference_standards.all())
         for point in self.points.all():
-            point.compute(self.meter, standard, self.decision_rule)
+            point.compute(self.meter, standards, self.decision_rule)
         as_found = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_FOUND)]
         as_left = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_LEFT)] or as_found
         self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
         self.as_left_in_tolerance = decision.verdict_in_tolerance(as_left) if as_left else None
 
+    #: How long a sign-off keeps retrying while SQLite reports the database locked by another writer.
+    SIGN_RETRY_SECONDS = 20.0
+
     def sign(self, by, role="Technician", at=None):
-        """Lock the event after checking it; one signer wins when two sign at once."""
+        """Lock the event after checking it; one signer wins when two sign at once.
+
+        PostgreSQL: the conditional UPDATE takes the row lock; a second signer waits for it, then finds no draft
+        left and is told who signed. SQLite: a second writer may be refused at once ("database is locked", or
+        "table is locked" with a shared-cache database) instead of waiting; the whole sign-off is then retried
+        from the start, with a short random pause, until it runs alone, so it too ends with "already signed".
+        Not retried inside a caller's transaction (its state is the caller's to roll back)."""
+        deadline = time.monotonic() + self.SIGN_RETRY_SECONDS
+        pause = 0.01
+        while True:
+            try:
+                return self._sign_once(by, role, at)
+            except OperationalError as exc:
+                if ("locked" not in str(exc) or transaction.get_connection().in_atomic_block
+                        or time.monotonic() > deadline):
+                    raise
+            time.sleep(pause * (0.5 + random.random()))
+            pause = min(pause * 2, 0.2)
+
+    def _sign_once(self, by, role, at):
         with transaction.atomic():
             # Claim the draft with a conditional write first: it takes the row lock (PostgreSQL) or the
-            # database write lock (SQLite) before anything is read, so a second signer waits, then finds
-            # nothing left to claim.
+            # database write lock (SQLite) before anything else is written, so a second signer waits (or, on
+            # SQLite, is refused and retries), then finds nothing left to claim.
             claimed = CalibrationEvent.objects.filter(pk=self.pk, state=self.State.DRAFT).update(signed_by=by)
             if not claimed:
                 current = CalibrationEvent.objects.filter(pk=self.pk).values_list("signed_by", flat=True).first()
@@ -229,10 +307,12 @@ class CalibrationEvent(models.Model):
             problems = fresh.problems()
             if problems:
                 raise ValidationError(problems)
+            standards = list(fresh.reference_standards.all())
             for point in fresh.points.all():
-                point.compute(fresh.meter, fresh.reference_standards.first(), fresh.decision_rule)
+                point.compute(fresh.meter, standards, fresh.decision_rule)
                 point.save()
             fresh.evaluate()
+            fresh.standards_snapshot = [s.snapshot() for s in standards]
             fresh.state = self.State.SIGNED
             fresh.signed_by = by
             fresh.signed_role = role
@@ -241,7 +321,11 @@ class CalibrationEvent(models.Model):
             from calibration.fleet import recompute_due_dates
 
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
-        self.refresh_from_db()
+        # take the signed values from `fresh` rather than reading them back: a read here could itself meet a lock,
+        # and a retry after a committed sign-off would wrongly report "already signed"
+        for field in self._meta.concrete_fields:
+            setattr(self, field.attname, getattr(fresh, field.attname))
+        self._prefetched_objects_cache = {}
         return self
 
 
@@ -261,6 +345,10 @@ class CalibrationPoint(models.Model):
     error = models.FloatField(null=True, blank=True)
     mpe = models.FloatField(null=True, blank=True)
     expanded_uncertainty = models.FloatField(null=True, blank=True)
+    # k and nu_eff of U (GUM G.4); records computed before k was evaluated per point used k = 2
+    coverage_factor = models.FloatField("coverage factor k", default=2.0)
+    dof_effective = models.FloatField("effective degrees of freedom", null=True, blank=True,
+                                      help_text="Welch–Satterthwaite; blank: infinite (no Type A component)")
     decision = models.CharField(max_length=20, blank=True)
 
     objects = PointQuerySet.as_manager()
@@ -281,22 +369,47 @@ class CalibrationPoint(models.Model):
             raise SignedRecordError("Points of a signed calibration cannot be deleted.")
         return super().delete(*args, **kwargs)
 
-    def compute(self, meter, standard, rule):
-        """Error, MPE, expanded uncertainty (all in the meter's error basis) and the decision."""
+    @property
+    def indication_used(self):
+        """The indication the error is computed from: the mean of the repeat readings when there are any
+        (the tablet form then stores that mean as the indicated value), else the indicated value."""
+        return sum(self.repeats) / len(self.repeats) if self.repeats else self.indicated_value
+
+    @property
+    def tur(self):
+        """Test uncertainty ratio of this point (ANSI/NCSL Z540.3: MPE / the point's own 95 % U), or None."""
+        if self.mpe is None or self.expanded_uncertainty is None:
+            return None
+        return uncertainty.test_uncertainty_ratio(abs(self.mpe), self.expanded_uncertainty)
+
+    @property
+    def tur_warning(self):
+        tur = self.tur
+        return None if tur is None else uncertainty.tur_warning(tur)
+
+    def compute(self, meter, standards, rule):
+        """Error, MPE, expanded uncertainty (all in the meter's error basis), k, nu_eff and the decision.
+
+        `standards`: the reference standards used (all of them enter U), or one standard, or None."""
+        if standards is None:
+            standards = []
+        elif isinstance(standards, ReferenceStandard):
+            standards = [standards]
         span = meter.range_max - meter.range_min
         basis = meter.mpe_basis
-        indicated = sum(self.repeats) / len(self.repeats) if self.repeats else self.indicated_value
-        # rounded so that binary noise (10.05 vs 10 -> 0.50000000000007 %) cannot push an error at the MPE over it
-        self.error = round(errors.point_error(self.reference_value, indicated, basis, span), 9)
+        self.error = errors.point_error(self.reference_value, self.indication_used, basis, span)
         self.mpe = meter.mpe_value
-        if standard is not None:
+        if standards:
             budget = uncertainty.point_uncertainty(
-                self.reference_value, standard.expanded_uncertainty, standard.uncertainty_basis,
+                self.reference_value, [(s.expanded_uncertainty, s.uncertainty_basis) for s in standards],
                 self.repeats, self.resolution,
             )
             self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)
+            self.coverage_factor = budget.k
+            self.dof_effective = budget.nu_eff if budget.nu_eff != float("inf") else None
         else:
             self.expanded_uncertainty = 0.0
+            self.coverage_factor, self.dof_effective = uncertainty.coverage_factor(float("inf")), None
         self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
 
 

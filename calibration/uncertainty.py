@@ -1,11 +1,15 @@
 """Measurement uncertainty of a calibration point, per the GUM
 (JCGM 100:2008, "Evaluation of measurement data - Guide to the expression
-of uncertainty in measurement"). Pure Python, no Django imports.
+of uncertainty in measurement"). Pure Python and scipy's special functions,
+no Django imports.
 
 All quantities are in flow units unless stated otherwise. The model is
 E = ind - ref with unit sensitivity coefficients, so the combined standard
 uncertainty is the root-sum-square of the components (GUM 5.1.2, eq. 10,
-uncorrelated inputs).
+uncorrelated inputs). The coverage factor is not fixed at 2: it is the
+Student-t quantile for the effective degrees of freedom of the point's budget
+(Welch-Satterthwaite, GUM G.4.1, eq. G.2b), at the coverage probability
+COVERAGE_PROBABILITY (95 %).
 """
 
 from __future__ import annotations
@@ -13,10 +17,24 @@ from __future__ import annotations
 import math
 import statistics
 from dataclasses import dataclass
-from typing import Iterable
+from functools import lru_cache
+from typing import Iterable, Sequence
 
-#: Common-practice minimum test uncertainty ratio (4:1), e.g. ANSI/NCSL Z540.
+from scipy import special
+
+#: Minimum test uncertainty ratio, 4:1 (ANSI/NCSL Z540.3-2006 §5.3 b, where no
+#: false-accept risk is computed; Z540.3 Handbook).
 TUR_WARNING = 4.0
+
+#: Coverage probability of every expanded uncertainty U (and of the TUR's U): 95 %
+#: (ANSI/NCSL Z540.3 defines TUR with the 95 % expanded uncertainty; GUM 6.2.2, G.3).
+COVERAGE_PROBABILITY = 0.95
+
+#: What the decision-rule policy can say about a point whose TUR is below TUR_WARNING:
+#: "warn" - state it on the results page and the certificate only;
+#: "require_guarded" - also refuse simple acceptance for that calibration (ILAC-G8:09/2019 §4.2.2
+#: guarded acceptance, w = U, must be chosen).
+LOW_TUR_POLICIES = ("warn", "require_guarded")
 
 
 def _nonneg(name: str, v: float) -> float:
@@ -75,9 +93,47 @@ def combine(*components: float) -> float:
     return math.sqrt(sum(_nonneg("component", c) ** 2 for c in components))
 
 
+def effective_dof(components: Iterable[tuple[float, float]]) -> float:
+    """Effective degrees of freedom of u_c by the Welch-Satterthwaite formula
+    (JCGM 100:2008 G.4.1, eq. G.2b): nu_eff = u_c^4 / sum(u_i^4 / nu_i).
+
+    `components` are (u_i, nu_i) pairs with unit sensitivity; nu_i = inf for a
+    component known exactly enough (Type B from a certificate or a rectangular
+    bound, GUM G.4.2-G.4.3) contributes nothing to the sum. Returns inf when every
+    nu_i is infinite or u_c is 0 (nothing uncertain: the normal quantile applies).
+    """
+    pairs = [(_nonneg("u", u), float(nu)) for u, nu in components]
+    for _, nu in pairs:
+        if not (nu > 0):  # also refuses NaN
+            raise ValueError(f"degrees of freedom must be > 0, got {nu!r}")
+    u_c = math.sqrt(sum(u * u for u, _ in pairs))
+    denominator = sum((u / u_c) ** 4 / nu for u, nu in pairs if math.isfinite(nu)) if u_c > 0 else 0.0
+    if denominator == 0:
+        return math.inf
+    return 1.0 / denominator  # (u_c^4 / sum(u_i^4/nu_i)), scaled by u_c^4 to stay in range
+
+
+@lru_cache(maxsize=4096)  # most points have nu_eff = inf or a few repeats: the same k again and again
+def coverage_factor(dof: float, p: float = COVERAGE_PROBABILITY) -> float:
+    """Coverage factor k = t_p(nu): the two-sided Student-t quantile for coverage
+    probability p (JCGM 100:2008 G.3.2, G.4.1 step d, Table G.2). A non-integer nu is
+    used as it is (interpolation in Table G.2, which G.4.1 note 1 allows); nu = inf gives
+    the normal quantile (1.960 for p = 95 %)."""
+    p = float(p)
+    if not 0 < p < 1:
+        raise ValueError(f"coverage probability must lie between 0 and 1, got {p!r}")
+    dof = float(dof)
+    if not (dof > 0):
+        raise ValueError(f"degrees of freedom must be > 0, got {dof!r}")
+    q = 0.5 + p / 2
+    if math.isinf(dof):
+        return float(special.ndtri(q))
+    return float(special.stdtrit(dof, q))
+
+
 @dataclass(frozen=True)
 class PointUncertainty:
-    """Uncertainty budget of one point, all in flow units."""
+    """Uncertainty budget of one point, all in flow units (nu_eff = inf when no component has finite dof)."""
 
     u_ref: float
     u_rep: float
@@ -85,37 +141,52 @@ class PointUncertainty:
     u_c: float
     U: float
     k: float
+    nu_eff: float
+    p: float = COVERAGE_PROBABILITY
 
 
 def point_uncertainty(
     reference_value: float,
-    U_ref: float,
-    ref_basis: str,
+    references: Sequence[tuple[float, str]],
     repeats: Iterable[float],
     resolution: float,
-    k: float = 2,
+    p: float = COVERAGE_PROBABILITY,
 ) -> PointUncertainty:
-    """Budget for E = ind - ref: reference standard (Type B, certificate U_ref at k=2),
-    repeatability of the indications (Type A), resolution of the DUT (Type B,
-    rectangular); u_c by RSS and U = k * u_c (GUM 6.2.1)."""
-    k = float(k)
-    if not math.isfinite(k) or k <= 0:
-        raise ValueError("coverage factor k must be > 0")
-    u_ref = reference_standard_u(reference_value, U_ref, ref_basis)
-    u_rep = repeatability_u(repeats)
+    """Budget for E = ind - ref (GUM 5.1.2, unit sensitivities, uncorrelated):
+
+    * every reference standard used, each a Type B component from its certificate U at k=2,
+      nu = inf (GUM 4.3.3, G.4.2), combined by RSS into u_ref (all standards used enter);
+    * repeatability of the indications, Type A, u = s/sqrt(n), nu = n - 1 (GUM 4.2.3, G.3.3);
+    * resolution of the indication, Type B rectangular, nu = inf (GUM F.2.2.1, G.4.3);
+
+    u_c by RSS, nu_eff by Welch-Satterthwaite (GUM G.4.1), k = t_p(nu_eff) and U = k u_c
+    (GUM 6.2.1, G.4.1). `references` is a sequence of (U_ref, basis) pairs.
+    """
+    u_refs = [reference_standard_u(reference_value, U_ref, basis) for U_ref, basis in references]
+    u_ref = combine(*u_refs)
+    values = [float(x) for x in repeats]
+    u_rep = repeatability_u(values)
     u_res = resolution_u(resolution)
     u_c = combine(u_ref, u_rep, u_res)
-    return PointUncertainty(u_ref=u_ref, u_rep=u_rep, u_res=u_res, u_c=u_c, U=k * u_c, k=k)
+    if len(values) >= 2:  # the only component with finite degrees of freedom
+        nu_eff = effective_dof([(u, math.inf) for u in u_refs] + [(u_res, math.inf), (u_rep, len(values) - 1)])
+    else:
+        nu_eff = math.inf
+    k = coverage_factor(nu_eff, p)
+    return PointUncertainty(u_ref=u_ref, u_rep=u_rep, u_res=u_res, u_c=u_c, U=k * u_c, k=k, nu_eff=nu_eff, p=p)
 
 
-def test_uncertainty_ratio(mpe_flow_units: float, U_ref_flow_units: float) -> float:
-    """Test uncertainty ratio TUR = MPE / U_ref (tolerance half-width over the
-    expanded uncertainty of the reference). Returns inf when U_ref is 0."""
-    mpe = _nonneg("mpe_flow_units", mpe_flow_units)
-    U = _nonneg("U_ref_flow_units", U_ref_flow_units)
+def test_uncertainty_ratio(mpe: float, U: float) -> float:
+    """Test uncertainty ratio per ANSI/NCSL Z540.3-2006 §3.11: the span of the tolerance
+    (-MPE..+MPE) over the span of the 95 % expanded uncertainty of the *calibration process*
+    (-U..+U), i.e. (2 MPE) / (2 U) = MPE / U, where U is the point's own U (reference standards,
+    repeatability, resolution), not the reference standard's alone. MPE and U on the same basis.
+    Returns inf when U is 0."""
+    mpe = _nonneg("mpe", mpe)
+    U = _nonneg("U", U)
     if U == 0:
         return math.inf
-    return mpe / U
+    return (2 * mpe) / (2 * U)
 
 
 # Keep pytest from collecting the function above as a test when imported.
@@ -123,10 +194,18 @@ test_uncertainty_ratio.__test__ = False
 
 
 def tur_warning(tur: float) -> str | None:
-    """Message if TUR is below the common-practice 4:1 (TUR_WARNING), else None."""
+    """Message if TUR is below 4:1 (TUR_WARNING, ANSI/NCSL Z540.3 §5.3 b), else None."""
     if tur < TUR_WARNING:
         return (
-            f"Test uncertainty ratio {tur:.2f}:1 is below {TUR_WARNING:g}:1; "
-            "the reference standard may be inadequate for this tolerance."
+            f"Test uncertainty ratio {tur:.2f}:1 is below {TUR_WARNING:g}:1: the uncertainty of the calibration "
+            "is large against this tolerance, so the risk of a false accept is higher."
         )
     return None
+
+
+def low_tur_requires_guarded(rule: str, turs: Iterable[float], policy: str) -> bool:
+    """True when the decision-rule policy refuses `rule` for a calibration with these TURs:
+    policy "require_guarded" and simple acceptance with any TUR below TUR_WARNING."""
+    if policy not in LOW_TUR_POLICIES:
+        raise ValueError(f"unknown low-TUR policy {policy!r}; expected one of {LOW_TUR_POLICIES}")
+    return policy == "require_guarded" and rule == "simple" and any(t < TUR_WARNING for t in turs)

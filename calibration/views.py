@@ -1,10 +1,13 @@
+import math
+
 from django.contrib.auth.decorators import permission_required
 from django.core.exceptions import PermissionDenied, ValidationError
-from django.db import IntegrityError, transaction
+from django.db import IntegrityError, OperationalError, transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
-from calibration import decision, errors, uncertainty
+from calibration import decision
+from calibration.errors import error_unit
 from calibration.forms import CalibrationEntry
 from calibration.models import (
     CalibrationEvent,
@@ -27,31 +30,25 @@ def new_calibration(request, tag):
     return render(request, "calibration/entry.html", {"meter": meter, "entry": entry}, status=status)
 
 
-def _result_rows(event, points, standard):
-    """Each point with its test uncertainty ratio (MPE / U of the reference) and any TUR warning."""
-    meter = event.meter
-    span = meter.range_max - meter.range_min
+def _result_rows(points):
+    """Each point with its test uncertainty ratio (ANSI/NCSL Z540.3: MPE over the point's own 95 % U) and any
+    warning below 4:1; both from the stored MPE and U, so a signed record shows what was signed."""
     rows = []
     for p in points:
-        tur = warning = None
-        if standard is not None:
-            mpe_flow = errors.mpe_in_flow_units(meter.mpe_value, meter.mpe_basis, p.reference_value, span)
-            U_ref = 2 * uncertainty.reference_standard_u(p.reference_value, standard.expanded_uncertainty,
-                                                          standard.uncertainty_basis)
-            tur = uncertainty.test_uncertainty_ratio(mpe_flow, U_ref)
-            warning = uncertainty.tur_warning(tur)
-        rows.append((p, tur, warning))
+        tur = p.tur
+        rows.append((p, tur if tur is not None and math.isfinite(tur) else None, p.tur_warning))
     return rows
 
 
 @permission_required("calibration.view_calibrationevent", raise_exception=True)
 def event_detail(request, pk, sign_error=None):
     event = get_object_or_404(
-        CalibrationEvent.objects.select_related("meter__area__site", "meter__fluid", "supersedes"), pk=pk
+        CalibrationEvent.objects.select_related("meter__area__site", "meter__fluid", "supersedes", "performed_by",
+                                                "created_by"), pk=pk
     )
     points = list(event.points.all())
-    standards = list(event.reference_standards.all())
-    rows = _result_rows(event, points, standards[0] if standards else None)
+    rows = _result_rows(points)
+    standards = event.standards_as_signed() if event.is_signed else [s.snapshot() for s in event.reference_standards.all()]
     found = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
     left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
     return render(request, "calibration/event_detail.html", {
@@ -60,7 +57,10 @@ def event_detail(request, pk, sign_error=None):
         "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance, left),
         "as_found": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_FOUND],
         "as_left": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_LEFT],
+        "low_tur": any(warning for _, _, warning in rows),
+        "error_unit": error_unit(event.meter),
         "standards": standards,
+        "countersignature": getattr(event, "countersignature", None),
         "problems": [] if event.is_signed else event.problems(),
         "sign_error": sign_error,
         "can_sign": _can_sign(request.user, event),
@@ -90,6 +90,8 @@ def sign_event(request, pk):
         return event_detail(request, pk, sign_error=" ".join(exc.messages))
     except SignedRecordError as exc:
         return event_detail(request, pk, sign_error=str(exc))
+    except OperationalError:  # SQLite still locked after sign()'s retries
+        return event_detail(request, pk, sign_error="The database is busy; nothing was signed. Try again.")
     return redirect(event)
 
 

@@ -127,4 +127,7 @@ CALIBRATION = {
     "min_interval_days": 30,
     "max_interval_days": 1095,
     "drift_margin_days": 30,
+    # a point's TUR (MPE / its own 95 % U, ANSI/NCSL Z540.3) below 4:1: "warn" (results page and certificate only)
+    # or "require_guarded" (the tablet form also refuses simple acceptance then; ILAC-G8 guarded, w = U)
+    "low_tur_policy": os.environ.get("CAL_LOW_TUR_POLICY", "require_guarded"),
 }

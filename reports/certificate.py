@@ -14,7 +14,8 @@ from django.template.loader import render_to_string
 from django.utils import timezone
 from django.utils.safestring import mark_safe
 
-from calibration import decision
+from calibration import decision, uncertainty
+from calibration.errors import error_unit  # noqa: F401  (kept importable from here)
 from calibration.models import CalibrationEvent, CalibrationPoint
 from reports import pdf_fetch
 from reports.charts import drift_chart_svg
@@ -39,11 +40,6 @@ def certificate_filename(event) -> str:
     return f"{certificate_number(event)}.pdf"
 
 
-def error_unit(meter) -> str:
-    """The unit errors, MPE and U are stated in (the meter's MPE basis)."""
-    if meter.mpe_basis == meter.MpeBasis.ABSOLUTE:
-        return meter.flow_units
-    return meter.get_mpe_basis_display()
 
 
 def worst_error(points):
@@ -117,7 +113,11 @@ def certificate_context(event) -> dict:
     points = list(event.points.all())
     for p in points:
         # the error was computed from the mean of the repeats when there are any (CalibrationPoint.compute)
-        p.indicated_mean = sum(p.repeats) / len(p.repeats) if p.repeats else p.indicated_value
+        p.indicated_mean = p.indication_used
+        tur = p.tur
+        p.tur_shown = tur if tur is not None and tur != float("inf") else None
+        p.low_tur = p.tur_warning is not None
+    countersignature = getattr(event, "countersignature", None)
     as_found = [p for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
     as_left = [p for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT]
     history = drift_history(event)
@@ -135,7 +135,11 @@ def certificate_context(event) -> dict:
         "as_found": as_found,
         "as_left": as_left,
         "error_unit": unit,
-        "standards": list(event.reference_standards.all()),
+        "standards": event.standards_as_signed(),
+        "low_tur": any(p.low_tur for p in points),
+        "tur_limit": uncertainty.TUR_WARNING,
+        "coverage_pct": uncertainty.COVERAGE_PROBABILITY * 100,
+        "countersignature": countersignature,
         "as_found_verdict": decision.verdict_text(event.as_found_in_tolerance, [p.decision for p in as_found]),
         "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance, [p.decision for p in left_or_found]),
         "guarded": event.decision_rule == CalibrationEvent.Rule.GUARDED,
@@ -163,7 +167,7 @@ def load_event(pk):
     """The signed event with everything the certificate reads, or None."""
     return (
         signed_events()
-        .select_related("meter__area__site", "meter__fluid", "supersedes")
+        .select_related("meter__area__site", "meter__fluid", "supersedes", "countersignature")
         .filter(pk=pk)
         .first()
     )

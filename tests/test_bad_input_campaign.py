@@ -29,6 +29,7 @@ import re
 import statistics
 from collections import Counter
 from contextlib import contextmanager
+from decimal import Decimal
 
 import openpyxl
 import pytest
@@ -39,6 +40,7 @@ from django.utils.html import escape
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
+from scipy import stats as scipy_stats
 
 from calibration import due
 from calibration.forms import CalibrationEntry
@@ -725,7 +727,8 @@ def test_models_validate_on_save(base):
 NOMINALS = (10, 25, 50, 75, 100)
 ROW_FIELDS = ("nominal_pct", "reference_value", "indicated_value", "repeats", "resolution")
 EVENT_SPEC = {
-    "technician": Text(120, required=True), "procedure": Text(required=True), "notes": Text(),
+    "contractor": Text(120), "procedure": Text(required=True), "notes": Text(),
+    "condition_received": Text(required=True), "deviations": Text(),
     "reason": Choice(CalibrationEvent.Reason), "decision_rule": Choice(CalibrationEvent.Rule), "adjusted": Flag(),
     "ambient_temp_c": Num(-273.15), "fluid_temp_c": Num(-273.15), "pressure_bar": Num(-1.01325),
 }
@@ -743,8 +746,10 @@ ROW_JUNK = {
 }
 EVENT_JUNK = {
     "performed_on": st.sampled_from(DATE_JUNK),
-    "technician": st.sampled_from(TEXT_JUNK),
+    "contractor": st.sampled_from(TEXT_JUNK),
     "procedure": st.sampled_from(["", "  ", "p\x00"]),
+    "condition_received": st.sampled_from(["", "  ", "c\x00"]),
+    "deviations": st.sampled_from(["d\x00", "", "none"]),
     "notes": st.just("n\x00"),
     "reason": st.sampled_from(["", "whim", "Scheduled"]),
     "decision_rule": st.sampled_from(["", "strict", "Guarded"]),
@@ -761,13 +766,16 @@ def good_row(draw, tag, index):
     ref = low + (high - low) * draw(st.floats(0.05, 1))
     ind = ref * (1 + draw(st.floats(-0.03, 0.03)))
     repeats = ""
+    indicated = f"{ind:.6g}"
     if draw(st.booleans()):
-        readings = [ind * (1 + draw(st.floats(-0.002, 0.002))) for _ in range(draw(st.integers(1, 4)))]
+        readings = [float(f"{ind * (1 + draw(st.floats(-0.002, 0.002))):.6g}") for _ in range(draw(st.integers(1, 4)))]
         repeats = draw(st.sampled_from([" ", "; ", ", "])).join(f"{r:.6g}" for r in readings)
+        # with repeats the indication is blank or their mean (rounded to 6 digits as a technician would type it)
+        indicated = draw(st.sampled_from(["", f"{sum(readings) / len(readings):.6g}"]))
     return {
         "nominal_pct": str(NOMINALS[index % 5]),
         "reference_value": draw(st.sampled_from([repr(ref), f"{ref:.4g}", f"{ref:.2f}"])),
-        "indicated_value": "" if repeats and draw(st.booleans()) else f"{ind:.6g}",
+        "indicated_value": indicated,
         "repeats": repeats,
         "resolution": draw(st.sampled_from(["", "", "0.001", "0.01", "0"])),
     }
@@ -784,7 +792,10 @@ def calibration_case(draw):
     when = draw(st.dates(dt.date(2021, 1, 1), dt.date(2029, 12, 31)))
     event = {
         "performed_on": draw(st.sampled_from([when.isoformat(), when.strftime("%d/%m/%Y")])),
-        "technician": draw(name_like("T. ")), "procedure": draw(st.sampled_from(["Five points vs master", "p"])),
+        "contractor": draw(st.sampled_from(["", "", "", "C. Outside, Flowfix"])),
+        "condition_received": draw(st.sampled_from(["In service, clean", "Installed; display dim"])),
+        "deviations": draw(st.sampled_from(["", "", "Four points only"])),
+        "procedure": draw(st.sampled_from(["Five points vs master", "p"])),
         "notes": draw(st.text(max_size=20)),
         "reason": draw(st.sampled_from([v for v, _ in CalibrationEvent.Reason.choices])),
         "decision_rule": draw(st.sampled_from(["simple", "guarded"])),
@@ -887,17 +898,26 @@ def judge_row(index, raw, meter):
         bad.add("reference_value")
     if ind is None and not repeats:
         bad.add("indicated_value")
+    if repeats:
+        # one rule (issue 17 item 6): the indication used is the mean of the repeats; one typed beside them must be
+        # that mean to within half a unit of its last digit as typed
+        mean = sum(repeats) / len(repeats)
+        if ind is not None and math.isfinite(mean):
+            exponent = Decimal(raw["indicated_value"].strip()).as_tuple().exponent
+            if abs(ind - mean) > 0.5 * 10.0 ** exponent + 1e-12 * max(abs(mean), 1.0):
+                bad.add("indicated_value")
     if bad:
         return "bad", bad, {}
-    if ind is None:
+    if repeats:
         ind = sum(repeats) / len(repeats)
     return "filled", set(), {"nominal_pct": nominal, "reference_value": ref, "indicated_value": ind,
                              "repeats": repeats, "resolution": res or 0.0}
 
 
-def expected_results(meter, standard, row):
-    """Error (VIM 4.31: indication - reference, on the meter's MPE basis) and U at k=2 (GUM budget: reference
-    standard Type B, repeatability Type A, resolution rectangular), or None if they are not finite numbers."""
+def expected_results(meter, standards, row):
+    """Error (VIM 4.31: indication - reference, on the meter's MPE basis) and U at 95 % (GUM budget: every reference
+    standard used, Type B; repeatability Type A with n - 1 degrees of freedom; resolution rectangular; k the t
+    quantile at the Welch-Satterthwaite nu_eff, GUM G.4), or None if they are not finite numbers."""
     ref, reps = row["reference_value"], row["repeats"]
     indicated = sum(reps) / len(reps) if reps else row["indicated_value"]
     span = meter.range_max - meter.range_min
@@ -905,23 +925,31 @@ def expected_results(meter, standard, row):
         diff = indicated - ref
         error = {"absolute": diff, "pct_reading": 100.0 * diff / ref if ref else math.inf,
                  "pct_span": 100.0 * diff / span}[meter.mpe_basis]
-        u_ref = (standard.expanded_uncertainty * abs(ref) / 100.0 if standard.uncertainty_basis == "pct_reading"
-                 else standard.expanded_uncertainty) / 2
+        u_ref2 = sum(((s.expanded_uncertainty * abs(ref) / 100.0 if s.uncertainty_basis == "pct_reading"
+                       else s.expanded_uncertainty) / 2) ** 2 for s in standards)
         u_rep = statistics.stdev(reps) / math.sqrt(len(reps)) if len(reps) >= 2 else 0.0
         u_res = row["resolution"] / math.sqrt(12)
-        U_flow = 2 * math.sqrt(u_ref ** 2 + u_rep ** 2 + u_res ** 2)
+        u_c = math.sqrt(u_ref2 + u_rep ** 2 + u_res ** 2)
+        nu = (len(reps) - 1) * (u_c / u_rep) ** 4 if u_rep > 0 else math.inf
+        k = scipy_stats.norm.ppf(0.975) if math.isinf(nu) else scipy_stats.t.ppf(0.975, nu)
+        U_flow = k * u_c
         U = {"absolute": U_flow, "pct_reading": 100.0 * U_flow / abs(ref) if ref else math.inf,
              "pct_span": 100.0 * U_flow / span}[meter.mpe_basis]
     except (ArithmeticError, ValueError):
         return None
     if not (math.isfinite(error) and math.isfinite(U)):
         return None
-    return round(error, 9), U
+    return error, U
 
 
 def ilac_decision(error, mpe, U, rule):
-    """ILAC-G8:09/2019: simple acceptance (w = 0) or guarded acceptance (w = U)."""
+    """ILAC-G8:09/2019: simple acceptance (w = 0) or guarded acceptance (w = U); a value within one part in 1e9 of
+    a limit (at least 1e-12) is on it (the documented tolerance of calibration.decision)."""
     e = abs(error)
+    for limit in (mpe - U, mpe, mpe + U):
+        if abs(e - limit) <= 1e-9 * max(abs(limit), 1e-3):
+            e = limit
+            break
     if rule == "simple":
         return "pass" if e <= mpe else "fail"
     # the acceptance and rejection limits MPE -/+ U to 9 decimals, the resolution of the stored error
@@ -979,16 +1007,20 @@ def judge_calibration(case, base):
             bad.add(("ev", "reference_standards"))
     if ("ev", "reference_standards") in bad:
         return bad, event, []
-    first = sorted(standards, key=lambda s: s.identification)[0]
     points = []
     for prefix, kind in (("af", "as_found"), ("al", "as_left")):
         for i, (status, _, values) in enumerate(rows[prefix]):
             if status != "filled":
                 continue
-            results = expected_results(meter, first, values)
+            results = expected_results(meter, standards, values)
             if results is None:
                 bad.add((prefix, i, "results"))
             points.append({**values, "kind": kind, "results": results})
+    # the decision-rule policy (plant.settings, "require_guarded"): simple acceptance is refused when a point's TUR,
+    # MPE / its own U (ANSI/NCSL Z540.3), is below 4:1
+    if event["decision_rule"] == "simple" and any(
+            p["results"] is not None and p["results"][1] > 0 and meter.mpe_value / p["results"][1] < 4 for p in points):
+        bad.add(("ev", "decision_rule"))
     return bad, event, points
 
 
@@ -1024,6 +1056,11 @@ def check_rejected_entry(entry, bad, body, case):
 def check_accepted_entry(meter, event, expected_event, points, case):
     for name, value in expected_event.items():
         assert stored(event, name) == value, (name, value, stored(event, name))
+    # who performed it: the logged-in user, unless an outside contractor is named (issue 15 item 7)
+    if expected_event["contractor"]:
+        assert event.performed_by is None and event.technician == expected_event["contractor"]
+    else:
+        assert event.performed_by == event.created_by and event.technician == event.created_by.get_full_name()
     stored_points = list(event.points.order_by("pk"))
     assert len(stored_points) == len(points)
     rule = expected_event["decision_rule"]

@@ -79,7 +79,13 @@ def small_plant():
     standard = ReferenceStandard.objects.create(
         identification="RS-BRW", description="Portable master meter", range_min=0, range_max=50,
         certificate_number="C-BRW-1", due_date=today + dt.timedelta(days=365), expanded_uncertainty=0.1,
-        uncertainty_basis="pct_reading")
+        uncertainty_basis="pct_reading", phase="liquid", issuer="Invented Flow Laboratory")
+    for ident, changes in (("RS-BRW-OLD", {"withdrawn": True}), ("RS-BRW-GAS", {"phase": "gas"}),
+                           ("RS-BRW-EXP", {"due_date": today - dt.timedelta(days=1)})):
+        ReferenceStandard.objects.create(**{
+            "identification": ident, "description": "Not for this meter", "range_min": 0, "range_max": 50,
+            "certificate_number": "C-X", "due_date": today + dt.timedelta(days=365), "expanded_uncertainty": 0.1,
+            **changes})
     technician = user_with_role("technician", "fieldtech")
     technician.set_password("tablet-pass-1")
     technician.save()
@@ -178,9 +184,15 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         # As-found with a reference flow above the meter's range (0–40): refused on the field, nothing saved.
         today = timezone.localdate()
         assert page.get_by_label("Date of calibration").input_value() == today.isoformat()  # today by default
-        assert page.get_by_label("Technician").input_value() == "Technician Tester"
+        # the performer is the logged-in technician: no name to type, only a contractor's if one did the work
+        assert page.locator('[name="ev-technician"]').count() == 0
+        assert page.get_by_label(re.compile("Outside contractor")).input_value() == ""
+        # only the standards that suit this meter are offered (withdrawn, gas-phase and expired ones are not)
+        offered = page.locator('[name="ev-reference_standards"]')
+        assert offered.count() == 1
         page.get_by_label(str(standard)).check()
         page.get_by_label("Method / procedure").fill("Comparison against portable master meter, five points")
+        page.get_by_label("Condition of the item as received").fill("Installed, in service, display readable")
         page.get_by_label("Ambient temperature (°C)").fill("18")
         page.get_by_label("Fluid temperature (°C)").fill("12.5")
         page.get_by_label("Line pressure (bar g)").fill("3")
@@ -207,6 +219,10 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         page.locator('[name="af-2-indicated_value"]').fill("20.05")
         page.get_by_label("Adjustment made").check()
         fill_points(page, "al", [(4, 4.0), (10, 10.01), (20, 20.02), (30, 29.99), (40, 40.02)])
+        # three repeat readings at 20 m³/h as left: the indication used is their mean, 20.02
+        page.locator('[name="al-2-indicated_value"]').fill("")
+        page.locator('[name="al-2-repeats"]').fill("20.00 20.02 20.04")
+        page.get_by_label("Decision rule").select_option("guarded")  # 3 repeats give a TUR below 4:1 (k = 4.3)
         shot("entry-corrected")
         page.get_by_role("button", name="Save calibration").click()
         page.wait_for_url(re.compile(r"/calibrations/\d+/$"))
@@ -218,6 +234,11 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         assert page.locator("#as-found-verdict").inner_text() == "out of tolerance"
         assert page.locator("#as-left-verdict").inner_text() == "in tolerance"
         assert page.locator("table.results tr.decision-fail").count() == 1
+        # k and TUR per point; the as-left point with three repeats has nu_eff 2, k 4.3, TUR below 4:1
+        assert page.locator("table.results tr.low-tur").count() == 1
+        assert "mean of 3" in page.locator("table.results tr.low-tur").inner_text()
+        expect(page.locator("#low-tur")).to_be_visible()
+        assert page.locator("#performed-by").inner_text() == "Technician Tester"
         assert_no_sideways_scroll(page, "results page")
         shot("results")
 
@@ -245,6 +266,7 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
 
         text = "".join(p.extract_text() for p in PdfReader(io.BytesIO(body)).pages)
         assert meter.tag in text
+        assert "Performed by" in text and "Technician Tester" in text and "C-BRW-1" in text
         (shots / "certificate.pdf").write_bytes(body)
 
         # Back on the meter page the calibration is listed.

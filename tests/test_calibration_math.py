@@ -101,13 +101,81 @@ def test_combine_rss():
 
 
 def test_point_uncertainty_budget():
-    pu = unc.point_uncertainty(100.0, 0.2, "pct_reading", [99.0, 100.0, 101.0], 0.1)
+    # reference 0.2 % of reading at 100 (k=2) -> u_ref = 0.1; repeats 99, 100, 101 -> s = 1, u_rep = 1/sqrt(3), nu = 2;
+    # resolution 0.1 -> u_res = 0.1/sqrt(12) (GUM 4.3.3, 4.2.3, F.2.2.1)
+    pu = unc.point_uncertainty(100.0, [(0.2, "pct_reading")], [99.0, 100.0, 101.0], 0.1)
     assert pu.u_ref == pytest.approx(0.1)
     assert pu.u_rep == pytest.approx(1 / math.sqrt(3))
     assert pu.u_res == pytest.approx(0.1 / math.sqrt(12))
-    assert pu.u_c == pytest.approx(math.sqrt(0.01 + 1 / 3 + 0.01 / 12))
-    assert pu.U == pytest.approx(2 * pu.u_c)
-    assert pu.k == 2
+    u_c2 = 0.01 + 1 / 3 + 0.01 / 12
+    assert pu.u_c == pytest.approx(math.sqrt(u_c2))
+    # Welch-Satterthwaite (GUM G.2b): only the repeatability has finite dof: nu_eff = 2 (u_c^2 / u_rep^2)^2
+    assert pu.nu_eff == pytest.approx(2 * (u_c2 * 3) ** 2)
+    assert pu.U == pytest.approx(pu.k * pu.u_c) and pu.p == 0.95
+
+
+def test_issue_example_three_repeats_and_a_005_pct_reference():
+    """Issue 17 item 1, worked by hand: repeats 50.0, 50.3, 50.6 at reference 50, reference U 0.05 % (k=2).
+
+    u_rep = s/sqrt(3) = 0.3/sqrt(3) = 0.173205, nu = 2 (GUM 4.2.3, G.3.3); u_ref = 0.05 % x 50 / 2 = 0.0125 (nu = inf);
+    u_c = sqrt(0.03 + 0.00015625) = 0.173656; nu_eff = 2 (u_c/u_rep)^4 = 2 x 1.0052083^2 = 2.0209 (GUM G.2b);
+    k = t_0.975(2.0209) = 4.2603 (t of GUM Table G.2 at nu = 2 is 4.30, from memory);
+    U = 4.2603 x 0.173656 = 0.7398 -> 0.740, not k = 2: 0.347. In % of span for a 0-100 span: 0.740 %."""
+    pu = unc.point_uncertainty(50.0, [(0.05, "pct_reading")], [50.0, 50.3, 50.6], 0.0)
+    assert pu.u_rep == pytest.approx(0.173205, abs=1e-6)
+    assert pu.u_ref == pytest.approx(0.0125)
+    assert pu.u_c == pytest.approx(0.173656, abs=1e-6)
+    assert pu.nu_eff == pytest.approx(2.0209, abs=1e-4)
+    assert pu.k == pytest.approx(4.2603, abs=1e-4)
+    assert round(pu.U, 3) == 0.740
+    assert round(2 * pu.u_c, 3) == 0.347  # what the fixed k = 2 gave
+    assert errors.to_error_units(pu.U, "pct_span", 50.0, 100.0) == pytest.approx(0.740, abs=5e-4)
+
+
+@pytest.mark.parametrize("nu,p,k", [
+    # JCGM 100:2008 Table G.2, t_p(nu) (values from memory)
+    (1, 0.95, 12.71), (2, 0.95, 4.30), (3, 0.95, 3.18), (10, 0.95, 2.23), (16, 0.99, 2.92), (50, 0.95, 2.01),
+    (math.inf, 0.95, 1.960), (math.inf, 0.9545, 2.000), (math.inf, 0.99, 2.576), (2, 0.9545, 4.53),
+])
+def test_coverage_factor_gum_table_g2(nu, p, k):
+    assert unc.coverage_factor(nu, p) == pytest.approx(k, abs=0.006)
+
+
+def test_gum_h1_end_gauge_effective_dof_and_U99():
+    """JCGM 100:2008 H.1.6 (end-gauge calibration; numbers from memory): components |c_i| u(x_i) with their dof
+    25 nm (18), 9.7 nm (25.6), 2.9 nm (50), 16.6 nm (2), the two zero terms aside -> u_c = 32 nm,
+    nu_eff = 16.7, truncated to 16 as H.1.6 does; t_99(16) = 2.92 and U_99 = 2.92 x 32 nm = 93 nm."""
+    components = [(25.0, 18), (9.7, 25.6), (2.9, 50), (16.6, 2), (0.0, math.inf)]
+    nu = unc.effective_dof(components)
+    assert nu == pytest.approx(16.7, abs=0.1)
+    k = unc.coverage_factor(math.floor(nu), 0.99)
+    assert k == pytest.approx(2.92, abs=0.005)
+    assert round(k * round(unc.combine(*(u for u, _ in components)))) == 93
+
+
+def test_effective_dof_edge_cases():
+    # every component Type B with infinite dof -> inf (normal quantile); nothing uncertain -> inf
+    assert unc.effective_dof([(0.1, math.inf), (0.2, math.inf)]) == math.inf
+    assert unc.effective_dof([(0.0, 2)]) == math.inf
+    # one component alone keeps its own dof (G.2b with N = 1)
+    assert unc.effective_dof([(0.3, 4)]) == pytest.approx(4)
+    with pytest.raises(ValueError):
+        unc.effective_dof([(0.1, 0)])
+    with pytest.raises(ValueError):
+        unc.coverage_factor(float("nan"))
+    with pytest.raises(ValueError):
+        unc.coverage_factor(3, 1.0)
+
+
+def test_every_reference_standard_enters_u():
+    """Issue 17 item 8: two standards used, 0.2 % of reading and 0.1 flow units absolute (each U at k=2) at 50:
+    u = 0.05 and 0.05, combined by RSS: u_ref = sqrt(0.0025 + 0.0025) = 0.070711 (GUM 5.1.2); no Type A -> k = 1.96."""
+    pu = unc.point_uncertainty(50.0, [(0.2, "pct_reading"), (0.1, "absolute")], [], 0.0)
+    assert pu.u_ref == pytest.approx(0.070711, abs=1e-6)
+    assert pu.nu_eff == math.inf and pu.k == pytest.approx(1.95996, abs=1e-5)
+    assert pu.U == pytest.approx(1.95996 * 0.070711, abs=1e-5)
+    single = unc.point_uncertainty(50.0, [(0.2, "pct_reading")], [], 0.0)
+    assert single.U < pu.U
 
 
 @pytest.mark.parametrize("seed", range(10))
@@ -117,9 +185,8 @@ def test_combined_matches_uncertainties_package(seed):
     U_ref_pct = rng.uniform(0.05, 1.0)
     resolution = rng.choice([0.001, 0.01, 0.1, 1.0])
     repeats = [ref_value * (1 + rng.gauss(0, 0.003)) for _ in range(rng.randint(2, 8))]
-    k = rng.choice([2, 2.5, 3])
 
-    pu = unc.point_uncertainty(ref_value, U_ref_pct, "pct_reading", repeats, resolution, k=k)
+    pu = unc.point_uncertainty(ref_value, [(U_ref_pct, "pct_reading")], repeats, resolution)
 
     # Independent propagation: E = (mean indication + resolution term) - reference
     ref = ufloat(ref_value, U_ref_pct * ref_value / 100 / 2)
@@ -128,17 +195,38 @@ def test_combined_matches_uncertainties_package(seed):
     err = (mean_ind + res) - ref
 
     assert pu.u_c == pytest.approx(err.std_dev, rel=1e-12)
-    assert pu.U == pytest.approx(k * err.std_dev, rel=1e-12)
+    # nu_eff from G.2b written out here, k from scipy's t quantile
+    from scipy import stats
+
+    nu = err.std_dev ** 4 / (mean_ind.std_dev ** 4 / (len(repeats) - 1))
+    assert pu.nu_eff == pytest.approx(nu, rel=1e-9)
+    assert pu.U == pytest.approx(stats.t.ppf(0.975, nu) * err.std_dev, rel=1e-9)
 
 
-def test_tur():
-    assert unc.test_uncertainty_ratio(1.0, 0.25) == pytest.approx(4.0)
+def test_tur_is_tolerance_span_over_the_points_own_U_span():
+    """ANSI/NCSL Z540.3 §3.11 (from memory): TUR = span of the tolerance / span of the 95 % U of the calibration
+    process. MPE +-0.5 %, U 0.125 % -> (1.0) / (0.25) = 4.0; issue 15 item 5: the point's U, not the reference's."""
+    assert unc.test_uncertainty_ratio(0.5, 0.125) == pytest.approx(4.0)
     assert unc.test_uncertainty_ratio(1.0, 0.0) == math.inf
+    # the issue's example: the reference alone, 0.05 % of 50 = 0.025 (k=2), would give 0.5 / 0.025 = 20:1 on a
+    # 0-100 span; with the repeats the point's own U is 0.740 % of span: 0.5 / 0.7398 = 0.676:1
+    pu = unc.point_uncertainty(50.0, [(0.05, "pct_reading")], [50.0, 50.3, 50.6], 0.0)
+    assert unc.test_uncertainty_ratio(0.5, errors.to_error_units(pu.U, "pct_span", 50.0, 100.0)) == pytest.approx(
+        0.676, abs=1e-3)
     assert unc.TUR_WARNING == 4.0
     assert unc.tur_warning(4.0) is None
     assert unc.tur_warning(10.0) is None
     msg = unc.tur_warning(3.0)
     assert msg and "3.00:1" in msg
+
+
+def test_low_tur_policy():
+    assert unc.low_tur_requires_guarded("simple", [5.0, 3.9], "require_guarded")
+    assert not unc.low_tur_requires_guarded("guarded", [3.9], "require_guarded")
+    assert not unc.low_tur_requires_guarded("simple", [3.9], "warn")
+    assert not unc.low_tur_requires_guarded("simple", [4.0, math.inf], "require_guarded")  # 4:1 itself is enough
+    with pytest.raises(ValueError):
+        unc.low_tur_requires_guarded("simple", [3.0], "ignore")
 
 
 # ---------------------------------------------------------------- decision
@@ -229,3 +317,24 @@ def test_indication_for_error_inverts_point_error(basis, span):
     for reference, error in [(4.0, 0.25), (10.0, -1.5), (37.5, 0.0), (0.5, 2.0)]:
         indicated = errors.indication_for_error(reference, error, basis, span)
         assert errors.point_error(reference, indicated, basis, span) == pytest.approx(error, abs=1e-12)
+
+
+@pytest.mark.parametrize("reference,indicated,basis,span,mpe", [
+    # 10.05 against 10 is 0.5 % of reading exactly, 0.50000000000007 in binary
+    (10.0, 10.05, "pct_reading", None, 0.5),
+    # 2000.1 against 2000 is 0.1 flow units, 0.09999999999990905 in binary
+    (2000.0, 2000.1, "absolute", None, 0.1),
+    # 0.1 + 0.2 above 0 on a span of 3 is 10 % of span, 10.000000000000002 in binary
+    (0.0, 0.1 + 0.2, "pct_span", 3.0, 10.0),
+])
+def test_errors_on_the_limit_are_on_it(reference, indicated, basis, span, mpe):
+    """Issue 17 item 8: limits compared with the documented tolerance (decision.LIMIT_TOLERANCE, 1e-9 relative),
+    not with raw binary noise; a real excess of 1e-6 relative still fails (ILAC-G8 §4.2.1 simple acceptance,
+    §4.2.2 guarded zones)."""
+    error = errors.point_error(reference, indicated, basis, span)
+    assert error != mpe and error == pytest.approx(mpe, rel=1e-12)  # binary noise is there
+    assert decision.decide(error, mpe, 0.0, "simple") == "pass"
+    assert decision.decide(mpe * (1 + 1e-6), mpe, 0.0, "simple") == "fail"
+    assert decision.decide(error, mpe, mpe / 4, "guarded") == "conditional pass"
+    assert decision.decide(mpe * 0.75 * (1 + 1e-13), mpe, mpe / 4, "guarded") == "pass"
+    assert decision.decide(mpe * 1.25 * (1 - 1e-13), mpe, mpe / 4, "guarded") == "fail"

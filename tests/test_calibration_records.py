@@ -36,8 +36,9 @@ def entry_data(standard, adjusted=False, found=None, left=None, **event):
     found = found if found is not None else [(4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
     left = left if left is not None else [("", "")] * 5
     header = {
-        "performed_on": TODAY.isoformat(), "technician": "A. Fieldtech", "reference_standards": [standard.pk],
+        "performed_on": TODAY.isoformat(), "reference_standards": [standard.pk],
         "procedure": "Comparison against portable master meter, five points", "reason": "scheduled",
+        "condition_received": "Installed, in service, no visible damage",
         "decision_rule": "simple", "ambient_temp_c": "18", "fluid_temp_c": "12", "pressure_bar": "3",
     }
     if adjusted:
@@ -58,8 +59,11 @@ def test_entry_computes_errors_and_verdicts(client, meter, standard):
     points = sorted(event.points.filter(kind="as_found"), key=lambda p: p.nominal_pct)
     # 20.05 vs 20: error = 100*(0.05/20) = 0.25 % of reading
     assert points[2].error == pytest.approx(0.25)
-    # U: reference 0.1 % (k=2) only, no repeats or resolution -> U = 0.1 % of reading
-    assert points[2].expanded_uncertainty == pytest.approx(0.1)
+    # U: reference 0.1 % (k=2) only, no repeats or resolution -> u = 0.05 % of reading, Type B with infinite
+    # degrees of freedom, so k = z(0.975) = 1.960 (JCGM 100:2008 Table G.2, nu = inf, p = 95 %; from memory)
+    # and U = 1.95996 x 0.05 = 0.0980 % of reading
+    assert points[2].coverage_factor == pytest.approx(1.95996, abs=1e-5) and points[2].dof_effective is None
+    assert points[2].expanded_uncertainty == pytest.approx(0.0980, abs=1e-4)
     assert [p.decision for p in points] == ["pass"] * 5
     assert event.as_found_in_tolerance is True
     page = client.get(event.get_absolute_url()).content.decode()
@@ -115,9 +119,12 @@ def test_expired_or_out_of_range_standard_refused(client, meter, standard):
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 400
     assert "was past its due date (2026-01-01)" in response.content.decode()
+    # a standard whose range (0–30) does not cover the meter's (0–40) is neither offered nor accepted
     ReferenceStandard.objects.filter(pk=standard.pk).update(due_date=dt.date(2027, 6, 1), range_max=30)
+    assert f'value="{standard.pk}"' not in client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
-    assert "40 is outside its range" in response.content.decode()
+    assert response.status_code == 400
+    assert "is withdrawn or does not suit this meter (phase or range)" in html.unescape(response.content.decode())
     assert counts() == (0, 0)
 
 
@@ -213,3 +220,124 @@ def test_entry_page_is_tablet_ready(client, meter, standard):
     assert 'inputmode="decimal"' in body
     assert "permit to work" in body
     assert 'name="viewport"' in body
+
+
+def test_only_suitable_standards_are_offered(client, meter, standard):
+    """Issue 15 item 6: withdrawn, expired today, another phase, or a range not covering the meter: not offered."""
+    def make(ident, **kw):
+        values = dict(identification=ident, description="ref", range_min=0, range_max=50, certificate_number="C",
+                      due_date=dt.date(2099, 1, 1), expanded_uncertainty=0.1)
+        values.update(kw)
+        return ReferenceStandard.objects.create(**values)
+
+    withdrawn = make("RS-WD", withdrawn=True)
+    expired = make("RS-EXP", due_date=dt.date(2020, 1, 1))
+    gas = make("RS-GAS", phase="gas")
+    liquid = make("RS-LIQ", phase="liquid")
+    short = make("RS-SHORT", range_max=30)
+    offset = make("RS-OFF", range_min=5)
+    body = client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    offered = {s.identification for s in ReferenceStandard.objects.all() if f'value="{s.pk}"' in body}
+    assert offered == {standard.identification, liquid.identification}
+    for refused in (withdrawn, gas, short, offset):
+        before = counts()
+        response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(refused))
+        assert response.status_code == 400
+        assert "is withdrawn or does not suit this meter" in html.unescape(response.content.decode())
+        assert counts() == before
+    # expired on the date of calibration: refused at the field with its due date, nothing saved
+    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(expired))
+    assert response.status_code == 400
+    assert "Reference standard RS-EXP was past its due date (2020-01-01) on 2026-11-20." in response.content.decode()
+    assert response.context["entry"].event_form.errors["reference_standards"]
+    assert counts() == (0, 0)
+
+
+def test_repeats_rule_the_indication_is_their_mean(client, meter, standard):
+    """Issue 17 item 6: with repeat readings the indication used is their mean; an indication typed beside them
+    must be that mean to the digits typed, else it is refused at the field and nothing is saved."""
+    # indicated 20.4, repeats 20, 20, 20: mean 20 is not 20.4 (+-0.05) -> refused
+    data = entry_data(standard, found=[(20, 20.4)], **{"af-0-repeats": "20 20 20"})
+    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    assert response.status_code == 400
+    assert ("The indication 20.4 is not the mean of the repeat readings (20); with repeat readings the mean is "
+            "used") in html.unescape(response.content.decode())
+    assert counts() == (0, 0)
+    # 20.03 typed for repeats 20.0, 20.0, 20.1 (mean 20.0333, within +-0.005 of 20.03) -> accepted; the mean is used
+    # and stored: error = 100 x 0.0333.. / 20 = 0.16667 % of reading
+    # (guarded acceptance: its TUR is below 4:1, 3 repeats give k = 4.3)
+    data = entry_data(standard, found=[(20, 20.03)], **{"af-0-repeats": "20.0; 20.0; 20.1", "ev-decision_rule": "guarded"})
+    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    assert response.status_code == 302
+    point = CalibrationPoint.objects.get()
+    assert point.repeats == [20.0, 20.0, 20.1] and point.indicated_value == pytest.approx(20.033333, abs=1e-6)
+    assert point.error == pytest.approx(0.166667, abs=1e-6)
+    page = html.unescape(client.get(point.event.get_absolute_url()).content.decode())
+    assert "20.0333" in page and "mean of 3: 20.0, 20.0, 20.1" in page
+
+
+def test_results_page_shows_k_tur_and_units(client, meter, standard):
+    """Issue 17 item 1 / issue 15 item 5 on the results page (hand-worked in test_certificate's k test): repeats
+    20.00, 20.04, 20.08 at 20 with the 0.1 % standard: nu_eff 2.8, k 3.30, U 0.415 % of reading, TUR 1.2:1 < 4:1."""
+    data = entry_data(standard, found=[(20, "")], **{"af-0-repeats": "20.00 20.04 20.08", "ev-decision_rule": "guarded"})
+    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    event = CalibrationEvent.objects.get()
+    body = html.unescape(client.get(event.get_absolute_url()).content.decode())
+    assert "Error<br>(% of reading)" in body and "MPE<br>(± % of reading)" in body
+    assert "U, 95\xa0%<br>(% of reading)" in body and "Reference<br>(m³/h)" in body
+    assert ">0.415<" in body and "3.30<br><small>(2.8)" in body and "1.2:1<br>" in body and "⚠ below 4:1" in body
+    assert 'id="low-tur"' in body and "Guarded acceptance (w = U) was used." in body
+
+
+def test_low_tur_policy_refuses_simple_acceptance(client, meter, standard, settings):
+    """Issue 15 item 5: the decision-rule policy says what a TUR below 4:1 means. With "require_guarded" a simple
+    acceptance is refused at the decision-rule field, nothing saved; with "warn" it is accepted and marked."""
+    data = entry_data(standard, found=[(20, "")], **{"af-0-repeats": "20.00 20.04 20.08"})
+    settings.CALIBRATION = {**settings.CALIBRATION, "low_tur_policy": "require_guarded"}
+    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    assert response.status_code == 400
+    message = response.context["entry"].event_form.errors["decision_rule"][0]
+    assert message.startswith("The test uncertainty ratio is below 4:1 at 20 m³/h (1.2:1): the decision-rule policy "
+                              "requires guarded acceptance")
+    assert counts() == (0, 0)
+    settings.CALIBRATION = {**settings.CALIBRATION, "low_tur_policy": "warn"}
+    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    body = client.get(CalibrationEvent.objects.get().get_absolute_url()).content.decode()
+    assert "Simple acceptance was used." in body
+
+
+def test_every_standard_used_enters_u(client, meter, standard):
+    """Issue 17 item 8: two standards ticked, 0.1 % of reading and 0.02 m³/h absolute (both U at k=2), point 20:
+    u = 0.01 and 0.01 m³/h -> u_ref = 0.014142 (RSS, GUM 5.1.2), k = 1.96, U = 0.027718 m³/h = 0.13859 % of reading
+    (TUR 0.5 / 0.13859 = 3.6:1, so guarded acceptance, as the policy asks)."""
+    second = ReferenceStandard.objects.create(identification="RS-2", description="Flow computer", range_min=0,
+                                              range_max=50, certificate_number="C-2", due_date=dt.date(2027, 6, 1),
+                                              expanded_uncertainty=0.02, uncertainty_basis="absolute", issuer="Lab B")
+    data = entry_data(standard, found=[(20, 20.05)], **{"ev-reference_standards": [standard.pk, second.pk],
+                                                                "ev-decision_rule": "guarded"})
+    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    point = CalibrationPoint.objects.get()
+    assert point.expanded_uncertainty == pytest.approx(0.13859, abs=1e-5)
+    event = point.event
+    event.sign("Administrator Tester")
+    assert [s["identification"] for s in CalibrationEvent.objects.get(pk=event.pk).standards_snapshot] == ["RS-1", "RS-2"]
+    assert CalibrationPoint.objects.get().expanded_uncertainty == pytest.approx(0.13859, abs=1e-5)
+
+
+def test_performer_is_the_logged_in_user_and_item_condition_required(client, meter, standard, admin_user):
+    """Issue 15 item 7: no free-text performer for staff; the condition as received is required (ISO/IEC 17025
+    §7.8.2.1), deviations from the method are kept."""
+    body = client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    assert 'name="ev-technician"' not in body and 'name="ev-contractor"' in body
+    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, **{"ev-condition_received": " "}))
+    assert response.status_code == 400
+    assert "Describe the meter's condition as received" in html.unescape(response.content.decode())
+    assert counts() == (0, 0)
+    data = entry_data(standard, **{"ev-technician": "Somebody Else", "ev-deviations": "Four points only: 100 % "
+                                   "not reachable in service"})
+    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    event = CalibrationEvent.objects.get()
+    assert event.performed_by == admin_user and event.technician == "Administrator Tester" and not event.contractor
+    assert event.deviations.startswith("Four points only")
+    body = html.unescape(client.get(event.get_absolute_url()).content.decode())
+    assert "Installed, in service, no visible damage" in body and "Four points only" in body

@@ -43,13 +43,15 @@ def test_risky_duties_drift_more(demo_history):
 def test_signed_event_refuses_a_model_form_edit(demo_history):
     event = CalibrationEvent.objects.first()
     original = event.technician
-    form = EventForm(data={"performed_on": event.performed_on, "technician": "Someone", "procedure": "x",
+    form = EventForm(data={"performed_on": event.performed_on, "contractor": "Someone", "procedure": "x",
+                           "condition_received": "x",
                            "reference_standards": [s.pk for s in event.reference_standards.all()],
                            "reason": "scheduled", "decision_rule": "simple"}, instance=event)
     assert form.is_valid(), form.errors
     with pytest.raises(SignedRecordError):
         form.save()
     assert CalibrationEvent.objects.get(pk=event.pk).technician == original
+    assert CalibrationEvent.objects.get(pk=event.pk).contractor == ""
 
 
 def test_demo_meter_page_and_event_page_render(client, demo_history):
