@@ -397,7 +397,8 @@ class CalibrationPoint(models.Model):
             standards = [standards]
         span = meter.range_max - meter.range_min
         basis = meter.mpe_basis
-        self.error = errors.point_error(self.reference_value, self.indication_used, basis, span)
+        # stored to 9 decimals (far below the 3 shown): 20.15 vs 20 is 0.75 %, not 0.7499999999999929 %
+        self.error = round(errors.point_error(self.reference_value, self.indication_used, basis, span), 9)
         self.mpe = meter.mpe_value
         if standards:
             budget = uncertainty.point_uncertainty(

@@ -16,11 +16,13 @@ margin 30 d) and a single calibration on 2026-11-20, so no interval method has a
   2026-12-20.
 """
 import datetime as dt
+import math
 import re
 
 import pytest
 
 from calibration import decision
+from calibration.uncertainty import coverage_factor
 from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
@@ -50,9 +52,12 @@ def meter():
 
 
 def standard(U):
+    """A standard whose certificate states U_ref at k = 2 such that the point's own U (the reference is its only
+    component, nu_eff = inf, so k = 1.960 for 95 %, JCGM 100:2008 G.3.2) comes out as `U`: U_ref = U * 2 / 1.960."""
+    u_ref = U * 2 / coverage_factor(math.inf)
     return ReferenceStandard.objects.create(identification=f"RS-U{U}", description="Master meter", range_min=0,
                                             range_max=50, certificate_number=f"C-{U}", due_date=dt.date(2027, 6, 1),
-                                            expanded_uncertainty=U, uncertainty_basis="pct_reading")
+                                            expanded_uncertainty=u_ref, uncertainty_basis="pct_reading")
 
 
 def calibrate(meter, ref_standard, rule, errors, day=DAY):
