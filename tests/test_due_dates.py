@@ -223,7 +223,7 @@ def test_recompute_command_on_demo_fleet(demo_history, client):
     winners = {m.due_rationale["winner"] for m in meters}
     assert winners == {"risk", "drift", "method"}
     page = client.get(f"/meters/{meters[0].tag}/").content.decode()
-    assert "chosen:" in page and "<svg" in page
+    assert "(chosen)" in page and "<svg" in page
 
 
 def test_recompute_stores_the_latest_verdict_and_the_duty_risk(drifting_meter):
@@ -262,3 +262,19 @@ def test_another_meters_failures_do_not_pull_a_meter_that_always_passed(drifting
     assert "2 of 2 intervals in tolerance (n = 2)" in good.due_rationale["candidates"][0]["reason"]
     bad.refresh_from_db()
     assert bad.last_in_tolerance is False and bad.next_due_date < good.next_due_date
+
+
+def test_meter_page_shows_one_truth(demo_history, client):
+    """The heading's interval is the one the due date uses (due - last calibrated), and every candidate is
+    listed beside it with its date, days and reason; findings are said in words."""
+    call_command("recompute_due_dates")
+    for meter in Meter.objects.exclude(next_due_date=None):
+        body = client.get(f"/meters/{meter.tag}/").content.decode()
+        used = (meter.next_due_date - meter.last_calibrated).days
+        assert f'<strong id="used-interval">{used} days</strong>' in body, meter.tag
+        assert meter.due_rationale["interval_days"] == used
+        for candidate in meter.due_rationale["candidates"]:
+            assert f"<td>{candidate['due']}</td><td>{candidate['days']}</td>" in body, meter.tag
+        for finding in meter.due_rationale["findings"]:
+            assert finding.split(";")[0] in body.replace("&#x27;", "'"), meter.tag
+        assert "effective interval" not in body

@@ -70,10 +70,10 @@ class Command(BaseCommand):
         """
         factor = meter.risk_factor()
         mpe = meter.mpe_value
-        behaviour = rng.choices(["stable", "steady", "fouling"], weights=[7, 2, 1] if factor >= 1 else [2, 4, 4])[0]
+        behaviour = rng.choices(["stable", "steady", "fouling"], weights=[8, 2, 0] if factor >= 1 else [4, 4, 2])[0]
         # invented drift in units of MPE per year; risky duties move more
         rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.25) * rng.choice([-1, 1])
-        years = rng.randint(4, 8)
+        years = rng.randint(5, 8)
         day = TODAY - dt.timedelta(days=int(365.25 * years)) + dt.timedelta(days=rng.randint(0, 20))
         baseline = rng.uniform(-0.1, 0.1) * mpe
         standard = standards["gas"] if meter.fluid.phase in ("gas", "steam") else standards["liquid"]
