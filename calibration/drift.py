@@ -25,7 +25,8 @@ Methods
   |E(t)| + t_{0.95,n-2} * s * sqrt(1 + 1/n + (t - xbar)^2 / Sxx).
 * A slope that is not significant is not "flat" when that bound already
   reaches the limit at the last calibration: scatter alone can take the
-  meter out of tolerance (status "scatter").
+  meter out of tolerance (status "scatter"; judged from SCATTER_MIN_EVENTS
+  calibrations or more).
 """
 from __future__ import annotations
 
@@ -37,6 +38,10 @@ import numpy as np
 from scipy import optimize, stats
 
 HORIZON_DAYS = 20 * 365.25
+# "Scatter exceeds tolerance" is judged from at least this many calibrations in the chain (3 degrees of
+# freedom, t = 2.35): with 3 or 4 the bound mostly reflects how few points there are (t = 6.31 at one
+# degree of freedom), not the meter. Our choice, not a published figure.
+SCATTER_MIN_EVENTS = 5
 
 
 # --------------------------------------------------------------------------
@@ -319,7 +324,7 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
                 anchor_day=float(series.days[anchor]), current=current, **common)
     per_year = rate * 365.25
     if not significant or abs(rate) <= negligible_rate:
-        if mpe is not None and current is not None:
+        if mpe is not None and current is not None and n >= SCATTER_MIN_EVENTS:
             reach = abs(current) + fit.prediction_margin(float(last.day), confidence)
             if reach >= mpe - guard:
                 return DriftResult(status="scatter", message=(

@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from calibration.drift import HORIZON_DAYS
+from calibration.drift import HORIZON_DAYS, SCATTER_MIN_EVENTS
 
 RESULT_COLUMNS = ["status", "day", "slope", "significant", "usable"]
 _BISECTIONS = 64  # 20 years / 2**64 is far below the 1e-9 day tolerance of the scalar root finder
@@ -143,7 +143,8 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
         return np.where(s > 0.0, t_crit * s * np.sqrt(1.0 + 1.0 / n + (t - xbar) ** 2 / sxx_safe), 0.0)
 
     not_significant = ~significant | (np.abs(slope) <= negligible_rate)
-    scatter = not_significant & ~np.isnan(current) & (np.abs(current) + bound_margin(t_last) >= lim)
+    scatter = (not_significant & ~np.isnan(current) & (n >= SCATTER_MIN_EVENTS)
+               & (np.abs(current) + bound_margin(t_last) >= lim))
     status = np.where(not_significant, np.where(scatter, "scatter", "flat"),
                       np.where(~np.isnan(current) & (current * slope < 0), "improving", "drifting"))
     status = np.where(degenerate, "insufficient", status)

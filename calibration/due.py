@@ -124,12 +124,14 @@ def _summary(d: DueDecision, interval: int) -> str:
     """One sentence: which interval the due date uses and why."""
     days = d.interval_days
     who = {"risk": "The duty risk", "drift": "The predicted drift"}.get(d.winner)
+    shortened = " (already shortened for the drift finding)" if any("shorten by the method" in f for f in d.findings) else ""
     if d.winner == "method":
-        text = f"The interval method sets {interval} days and nothing shortens it"
+        text = f"The interval method sets {interval} days{shortened} and nothing shortens it further"
     elif d.bounded == "minimum":
-        text = f"{who} would shorten the method's {interval} days below the minimum, so the minimum {days} days hold"
+        text = (f"{who} would shorten the method's {interval} days{shortened} below the minimum, so the minimum "
+                f"{days} days hold")
     else:
-        text = f"{who} shortens the method's {interval} days to {days} days"
+        text = f"{who} shortens the method's {interval} days{shortened} to {days} days"
     return f"{text}: due {d.due.isoformat()}, {days} days after the last calibration on {d.last.isoformat()}."
 
 

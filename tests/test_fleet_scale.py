@@ -33,11 +33,12 @@ def random_histories(count, seed):
         day = 739000 + rng.randint(0, 100)
         rate = rng.choice([0.0, 0.0005, -0.001, 0.003]) * mpe
         exact = rng.random() < 0.1
+        scatter = rng.choice([0.05, 0.05, 0.05, 0.4]) * mpe  # some meters scatter more than their tolerance
         error = rng.uniform(-0.3, 0.3) * mpe
         events = []
         for order in range(rng.randint(0, 12)):
             day += 0 if rng.random() < 0.03 else rng.randint(100, 400)
-            error += rate * 200 + (0.0 if exact else rng.gauss(0, 0.05 * mpe))
+            error += rate * 200 + (0.0 if exact else rng.gauss(0, scatter))
             found = error if rng.random() > 0.05 else None
             adjusted = rng.random() < 0.2
             if adjusted:
