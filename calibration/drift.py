@@ -385,8 +385,9 @@ def predict_crossing(events: Sequence[HistoryEvent], mpe: float, guard: float = 
     t_last = dr.last_day
     rate = abs(fit.slope)
     if b > limit:
-        return CrossingResult(t_last, "out_of_tolerance",
-                              f"Fitted error {dr.current:.4g} already exceeds the limit {limit:g}.", dr)
+        return CrossingResult(t_last, "drifting",
+                              f"The fitted error path is already at {dr.current:.4g}, beyond the limit {limit:g}, "
+                              "at the last calibration.", dr)
 
     if fit.residual_sd == 0.0:
         day = t_last + (limit - b) / rate

@@ -155,8 +155,7 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
     b = np.abs(current)
     rate = np.abs(slope)
     drifting = status == "drifting"
-    already = drifting & (b > lim)
-    status = np.where(already, "out_of_tolerance", status)
+    already = drifting & (b > lim)  # the fitted path is beyond the limit on the last day: still "drifting"
     crossing[already] = t_last[already]
 
     exact = drifting & ~already & (s == 0.0)

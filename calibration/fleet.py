@@ -211,6 +211,28 @@ def method_settings(cfg) -> dict:
                 min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
 
 
+def staircase_steps(meter_ids, starts, in_tol, base_intervals, kw) -> np.ndarray:
+    """intervals.staircase_sequence for every meter at once: one array op per step of the longest record.
+
+    meter_ids/in_tol: the observations ordered by meter and date; starts: where each meter's rows begin.
+    Returns the interval after each observation (aligned with the rows). The arithmetic is the scalar one
+    (x × factor + 0.5, floored, held to the bounds) on whole-day floats, so the days are the same.
+    """
+    steps = np.zeros(meter_ids.size, dtype=np.int64)
+    if not meter_ids.size:
+        return steps
+    counts = np.diff(np.r_[starts, meter_ids.size])
+    base = np.array([base_intervals.get(int(m), 1) for m in meter_ids[starts]], dtype=float)
+    current = np.clip(base, kw["min_days"], kw["max_days"])
+    for k in range(int(counts.max())):
+        active = counts > k
+        rows = starts[active] + k
+        factor = np.where(in_tol[rows], kw["extend"], kw["shorten"])
+        current[active] = np.clip(np.floor(current[active] * factor + 0.5), kw["min_days"], kw["max_days"])
+        steps[rows] = current[active]
+    return steps
+
+
 def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     """{meter_id: intervals.MethodInterval} from each meter's own record, for every meter in base_intervals.
 
@@ -228,6 +250,7 @@ def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     below, above = intervals.binomial_tails(counts, passes, cfg["reliability_target"])
     settings_kw = method_settings(cfg)
     method = cfg["interval_method"]
+    steps = staircase_steps(meter_ids, starts, in_tol, base_intervals, settings_kw)
     chosen = {}
     for k, start in enumerate(starts):
         meter_id = int(meter_ids[start])
@@ -236,7 +259,7 @@ def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
         stop = bounds[k + 1]
         chosen[meter_id] = intervals.interval_by_method(
             method, base_intervals[meter_id], elapsed[start:stop].tolist(), in_tol[start:stop].tolist(),
-            tails=(below[k], above[k]), **settings_kw)
+            tails=(below[k], above[k]), steps=steps[start:stop].tolist(), **settings_kw)
     for meter_id, base in base_intervals.items():
         if meter_id not in chosen:
             chosen[meter_id] = intervals.interval_by_method(method, base, [], [], **settings_kw)

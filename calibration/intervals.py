@@ -58,10 +58,17 @@ def staircase(interval_days: float, in_tolerance: bool, extend: float = 1.25,
 def staircase_sequence(initial: float, results: Iterable[bool], **kwargs) -> List[int]:
     """Apply ``staircase`` in turn; each step starts from the previous
     (already rounded) interval.  Returns the intervals after each result."""
+    extend = kwargs.get("extend", 1.25)
+    shorten = kwargs.get("shorten", 0.5)
+    min_days = kwargs.get("min_days", 30)
+    max_days = kwargs.get("max_days", 1095)
     out: List[int] = []
     cur = initial
-    for ok in results:
-        cur = staircase(cur, bool(ok), **kwargs)
+    floor = math.floor
+    for ok in results:  # the arithmetic of ``staircase``, inlined: the fleet recompute runs it for every meter
+        if cur <= 0:
+            raise ValueError("interval_days must be positive")
+        cur = int(min(max(int(floor(cur * (extend if ok else shorten) + 0.5)), min_days), max_days))
         out.append(cur)
     return out
 
@@ -207,8 +214,7 @@ class MethodInterval:
 
 
 def _staircase_reason(base: int, steps: List[int], ok: List[bool], extend: float, shorten: float) -> str:
-    path = [base] + steps
-    shown = " → ".join(str(d) for d in path) if len(path) <= 7 else "… → " + " → ".join(str(d) for d in path[-6:])
+    shown = " → ".join(map(str, [base] + steps)) if len(steps) <= 6 else "… → " + " → ".join(map(str, steps[-6:]))
     passes = sum(ok)
     return (f"staircase (OIML D 10 / ILAC-G24) from the base {base} d over {len(ok)} as-found results "
             f"({passes} in, {len(ok) - passes} out of tolerance; ×{extend:g} in, ×{shorten:g} out): {shown} d")
@@ -217,7 +223,7 @@ def _staircase_reason(base: int, steps: List[int], ok: List[bool], extend: float
 def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in_tol: Sequence[bool], *,
                        target: float = 0.95, min_observations: int = 8, extend: float = 1.25,
                        shorten: float = 0.5, min_days: int = 30, max_days: int = 1095,
-                       tails=None) -> MethodInterval:
+                       tails=None, steps=None) -> MethodInterval:
     """The interval the interval method sets for one meter from its own record (pure).
 
     ``elapsed``/``in_tol``: the meter's observed intervals (days between calibrations) and whether the
@@ -228,13 +234,16 @@ def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in
       staircase (a simple-response method) does, so an out-of-tolerance result still shortens by one
       step and a run of in-tolerance results still lengthens, one step at a time.
     With no observed interval the base interval holds, within [min_days, max_days].
+    ``tails``/``steps``: ``binomial_tails`` and ``staircase_sequence`` already computed for this record
+    (the fleet recompute computes them for all meters at once).
     """
     ok = [bool(v) for v in in_tol]
     base = int(min(max(int(base_days), min_days), max_days))
     bounded = "" if base == int(base_days) else f" (the set {int(base_days)} d held to the bounds)"
     if not ok:
         return MethodInterval(base, f"no interval observed yet: the meter's base interval {base} d{bounded}", 0)
-    steps = staircase_sequence(base, ok, extend=extend, shorten=shorten, min_days=min_days, max_days=max_days)
+    if steps is None:
+        steps = staircase_sequence(base, ok, extend=extend, shorten=shorten, min_days=min_days, max_days=max_days)
     stair = _staircase_reason(base, steps, ok, extend, shorten)
     if method == "staircase":
         return MethodInterval(steps[-1], stair, len(ok))

@@ -175,3 +175,22 @@ def test_make_fleet_same_seed_same_history():
     assert len(first) > 100
     assert build_and_read(4) == first
     assert build_and_read(5) != first
+
+
+def test_vectorised_staircase_equals_the_scalar_sequence():
+    """fleet.staircase_steps (all meters at once) against intervals.staircase_sequence meter by meter, with
+    base intervals inside and outside the bounds and records of every length (OIML D 10 method 1)."""
+    from calibration import fleet, intervals
+
+    rng = random.Random(3)
+    kw = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)
+    bases = {m: rng.choice([1, 29, 45, 180, 365, 730, 1000, 3650]) for m in range(1, 301)}
+    records = {m: [rng.random() < 0.8 for _ in range(rng.randint(1, 25))] for m in bases}
+    meter_ids = np.array([m for m in bases for _ in records[m]])
+    in_tol = np.array([ok for m in bases for ok in records[m]])
+    starts = np.flatnonzero(np.r_[True, meter_ids[1:] != meter_ids[:-1]])
+    steps = fleet.staircase_steps(meter_ids, starts, in_tol, bases, kw)
+    for start, m in zip(starts, bases):
+        base = min(max(bases[m], 30), 1095)
+        expected = intervals.staircase_sequence(base, records[m], **kw)
+        assert steps[start:start + len(expected)].tolist() == expected, m
