@@ -2,9 +2,10 @@
 
 Three reads (meters, signed events, their points) whatever the fleet size; drift fits and crossing
 predictions for every (meter, nominal point) series at once (calibration/drift_fleet.py); the interval
-method over each meter's own record, its binomial test for all meters at once (calibration/intervals.py);
-the pure due-date rule per meter (calibration/due.py); one batched write. The same rules as the per-meter path of the meter page,
-which the benchmark keeps as its baseline and the tests compare with this one.
+method over each meter's own record, its staircase steps and binomial tests for all meters at once
+(calibration/intervals.py); the pure due-date rule per meter (calibration/due.py); one batched write. The
+same rules as the per-meter path of the meter page, which the benchmark keeps as its baseline and the tests
+compare with this one.
 """
 from __future__ import annotations
 
@@ -236,8 +237,8 @@ def staircase_steps(meter_ids, starts, in_tol, base_intervals, kw) -> np.ndarray
 def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     """{meter_id: intervals.MethodInterval} from each meter's own record, for every meter in base_intervals.
 
-    The binomial tails of the reliability test are computed for all meters at once; the rest is the pure
-    per-meter rule (a short loop over each meter's results, no query).
+    The staircase steps and the binomial tails of the reliability test are computed for all meters at once;
+    what remains per meter is the pure rule's choice and its sentence (intervals.interval_by_method, no query).
     """
     ordered = meter_obs.sort_values(["meter_id", "day", "id"], kind="stable")
     meter_ids = ordered["meter_id"].to_numpy()

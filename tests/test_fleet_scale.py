@@ -125,7 +125,7 @@ def test_bulk_recompute_gives_the_naive_due_dates(method, settings):
 
 
 @pytest.mark.django_db
-def test_single_meter_recompute_pools_its_group_from_the_whole_fleet():
+def test_single_meter_recompute_equals_the_whole_fleet_recompute():
     call_command("make_fleet", meters=40, seed=9, verbosity=0)
     whole = due_fields()
     some = [m.pk for m in Meter.objects.filter(calibrations__isnull=False).distinct().order_by("pk")[:3]]
