@@ -14,8 +14,19 @@ Methods
   *cumulative* sum of inter-calibration drifts on time removes the resets
   caused by adjustments, leaving the underlying drift rate.
 * Predicted crossing of the maximum permissible error (MPE): the error path
-  after the last calibration is as-left(last) + rate * (t - t_last); the
-  conservative date uses the one-sided 95 % prediction bound of the drift fit.
+  is the fitted path from the last as-left: a line with the fitted drift
+  rate through the errors since the last reset (the as-left of the last
+  adjustment in the chain, else of its first calibration, and the as-found
+  results after it), placed by least squares.  Just after an adjustment it
+  starts at that as-left; with no adjustment it is the regression line of the
+  errors.  It is not anchored on the last as-found observation, whose
+  residual would move the date by residual / rate.  The conservative date
+  uses the one-sided 95 % prediction bound of the drift fit about the path:
+  |E(t)| + t_{0.95,n-2} * s * sqrt(1 + 1/n + (t - xbar)^2 / Sxx).
+* A slope that is not significant is not "flat" when that bound already
+  reaches the limit at the last calibration: scatter alone can take the
+  meter out of tolerance (status "scatter"; judged from SCATTER_MIN_EVENTS
+  calibrations or more).
 """
 from __future__ import annotations
 
@@ -27,6 +38,10 @@ import numpy as np
 from scipy import optimize, stats
 
 HORIZON_DAYS = 20 * 365.25
+# "Scatter exceeds tolerance" is judged from at least this many calibrations in the chain (3 degrees of
+# freedom, t = 2.35): with 3 or 4 the bound mostly reflects how few points there are (t = 6.31 at one
+# degree of freedom), not the meter. Our choice, not a published figure.
+SCATTER_MIN_EVENTS = 5
 
 
 # --------------------------------------------------------------------------
@@ -192,6 +207,10 @@ def cumulative_drift(events: Sequence[HistoryEvent]) -> DriftSeries:
 
 @dataclass(frozen=True)
 class DriftResult:
+    """`baseline` is what the last calibration left behind (as-left, or as-found when not adjusted);
+    `anchor_value`/`anchor_day` are the as-left and day of the last reset that starts the fitted error
+    path (see the module docstring) and `current` is that path's value on the last calibration day."""
+
     usable_events: int
     slope_per_day: Optional[float]
     se_slope: Optional[float]
@@ -203,6 +222,9 @@ class DriftResult:
     baseline: Optional[float]  # as-left of the last event (as-found if not adjusted)
     last_day: Optional[float]
     fit: Optional[LineFit] = None
+    anchor_value: Optional[float] = None
+    anchor_day: Optional[float] = None
+    current: Optional[float] = None
 
 
 def _last_adjust_accumulated(series: DriftSeries) -> float:
@@ -215,17 +237,46 @@ def _last_adjust_accumulated(series: DriftSeries) -> float:
     return acc
 
 
+def path_anchor(series: DriftSeries) -> int:
+    """Index in the chain of the last reset: the last adjusted event with a known as-left, else the first."""
+    for k in range(len(series.events) - 1, 0, -1):
+        ev = series.events[k]
+        if ev.adjusted and ev.left_value() is not None:
+            return k
+    return 0
+
+
+def fitted_current_error(series: DriftSeries, slope: float) -> Optional[float]:
+    """Error on the last calibration day along the fitted path from the last as-left.
+
+    With A the last reset (see ``path_anchor``), the errors since then are
+    E_i = left(A) + Y_i - Y_A (Y the cumulative drift); the line of slope
+    ``slope`` through them by least squares has, at t_last, the value
+    left(A) - Y_A + mean_{i >= A} (Y_i - slope * (t_i - t_last)).
+    None when the last calibration's as-left is unknown.
+    """
+    if not series.events or series.events[-1].left_value() is None:
+        return None
+    k = path_anchor(series)
+    t_last = series.days[-1]
+    tail = [series.cumulative[i] - slope * (series.days[i] - t_last) for i in range(k, len(series.days))]
+    return series.events[k].left_value() - series.cumulative[k] + sum(tail) / len(tail)
+
+
 def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
               guard: float = 0.0, negligible_rate: float = 1e-12,
-              alpha: float = 0.05) -> DriftResult:
+              alpha: float = 0.05, confidence: float = 0.95) -> DriftResult:
     """Fit a drift rate (error units per day) to a calibration history.
 
     Regresses cumulative drift on day (OLS, see ``linear_fit``); the slope is
     significant when the two-sided t-test p-value < alpha (default 0.05).
     Status: "insufficient" (< 3 usable events), "out_of_tolerance" (only if
-    ``mpe`` given and the last as-found |error| > mpe - guard), "flat" (not
-    significant or |slope| <= negligible_rate), "improving" (drift moves the
-    current error toward zero) or "drifting".
+    ``mpe`` given and the last as-found |error| > mpe - guard), "scatter"
+    (slope not significant, but with ``mpe`` given the one-sided
+    ``confidence`` prediction bound about the fitted path already reaches
+    mpe - guard at the last calibration), "flat" (not significant or
+    |slope| <= negligible_rate), "improving" (drift moves the fitted current
+    error toward zero) or "drifting".
     """
     evs = sorted(events, key=lambda e: e.day)
     series = cumulative_drift(evs)
@@ -266,17 +317,28 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
     fit = linear_fit(series.days, series.cumulative)
     significant = fit.p_slope < alpha
     rate = fit.slope
+    anchor = path_anchor(series)
+    current = fitted_current_error(series, rate)
     base = dict(slope_per_day=rate, se_slope=fit.se_slope, p_value=fit.p_slope,
-                significant=significant, fit=fit, **common)
+                significant=significant, fit=fit, anchor_value=series.events[anchor].left_value(),
+                anchor_day=float(series.days[anchor]), current=current, **common)
     per_year = rate * 365.25
     if not significant or abs(rate) <= negligible_rate:
+        if mpe is not None and current is not None and n >= SCATTER_MIN_EVENTS:
+            reach = abs(current) + fit.prediction_margin(float(last.day), confidence)
+            if reach >= mpe - guard:
+                return DriftResult(status="scatter", message=(
+                    f"Scatter exceeds tolerance: no significant drift (rate {per_year:+.4g} per year, "
+                    f"p = {fit.p_slope:.3g}, {n} calibrations), but the {confidence:.0%} prediction bound "
+                    f"already reaches {reach:.4g} against the limit {mpe - guard:g} at the last calibration."),
+                    **base)
         return DriftResult(status="flat", message=(
             f"No significant drift: rate {per_year:+.4g} per year "
             f"(p = {fit.p_slope:.3g}, {n} calibrations)."), **base)
-    if baseline is not None and baseline * rate < 0:
+    if current is not None and current * rate < 0:
         return DriftResult(status="improving", message=(
             f"Drift of {per_year:+.4g} per year is moving the error "
-            f"({baseline:+.4g}) toward zero; if it continues past zero the error "
+            f"({current:+.4g} on the fitted path) toward zero; if it continues past zero the error "
             "will grow with the opposite sign."), **base)
     return DriftResult(status="drifting", message=(
         f"Significant drift of {per_year:+.4g} per year "
@@ -296,19 +358,21 @@ def predict_crossing(events: Sequence[HistoryEvent], mpe: float, guard: float = 
                      horizon_days: float = HORIZON_DAYS) -> CrossingResult:
     """Predict the first day the error may reach the limit mpe - guard.
 
-    Error path after the last event: b + rate*(t - t_last), b = as-left of the
-    last event.  Conservative bound used (one-sided ``confidence`` prediction
-    bound of the cumulative-drift fit, measured from the fitted value at
-    t_last):  g(t) = |b| + |rate|*(t - t_last)
+    Error path: the fitted path from the last as-left (see the module
+    docstring and ``fitted_current_error``); b = its value at t_last.  Conservative bound used
+    (one-sided ``confidence`` prediction bound of the cumulative-drift fit
+    about that path):  g(t) = |b| + |rate|*(t - t_last)
                      + t_{conf,n-2} * s * sqrt(1 + 1/n + (t-xbar)^2/Sxx).
+    Status "scatter" (slope not significant, bound already at the limit)
+    returns the last calibration day: the meter may already be out.
     The root of g(t) = limit is found with scipy.optimize.brentq on
     [t_last, t_last + horizon]; with zero residual SD it is solved exactly.
     """
     limit = mpe - guard
     if limit <= 0:
         raise ValueError("mpe - guard must be positive")
-    dr = fit_drift(events, mpe=mpe, guard=guard)
-    if dr.status == "out_of_tolerance":
+    dr = fit_drift(events, mpe=mpe, guard=guard, confidence=confidence)
+    if dr.status in ("out_of_tolerance", "scatter"):
         return CrossingResult(dr.last_day, dr.status, dr.message, dr)
     if dr.status in ("insufficient", "flat", "improving"):
         return CrossingResult(None, dr.status, dr.message + " No crossing date predicted.", dr)
@@ -317,12 +381,13 @@ def predict_crossing(events: Sequence[HistoryEvent], mpe: float, guard: float = 
         return CrossingResult(None, "insufficient",
                               "Last calibration was adjusted but its as-left error is not recorded.", dr)
     fit = dr.fit
-    b = abs(dr.baseline)
+    b = abs(dr.current)
     t_last = dr.last_day
     rate = abs(fit.slope)
     if b > limit:
-        return CrossingResult(t_last, "out_of_tolerance",
-                              f"As-left error {dr.baseline:g} already exceeds the limit {limit:g}.", dr)
+        return CrossingResult(t_last, "drifting",
+                              f"The fitted error path is already at {dr.current:.4g}, beyond the limit {limit:g}, "
+                              "at the last calibration.", dr)
 
     if fit.residual_sd == 0.0:
         day = t_last + (limit - b) / rate

@@ -8,6 +8,8 @@ instead of one Python call per series:
 * the ordinary least-squares line of cumulative drift on day, with centred two-pass sums
   (NIST/SEMATECH e-Handbook 4.1.4), the two-sided t-test of the slope and the one-sided 95 %
   prediction bound;
+* the fitted error path from the last as-left (the last adjustment of the chain, else its first
+  calibration) and the "scatter exceeds tolerance" check of a slope that is not significant;
 * the first day the bounded error path reaches the limit (MPE minus guard band). The scalar code
   finds that root with Brent's method; here all roots are bracketed together and bisected to well
   below a millionth of a day, so both give the same calendar day.
@@ -21,7 +23,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from calibration.drift import HORIZON_DAYS
+from calibration.drift import HORIZON_DAYS, SCATTER_MIN_EVENTS
 
 RESULT_COLUMNS = ["status", "day", "slope", "significant", "usable"]
 _BISECTIONS = 64  # 20 years / 2**64 is far below the 1e-9 day tolerance of the scalar root finder
@@ -37,7 +39,7 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
         as_found, as_left (float, NaN when not recorded), adjusted (bool).
     limit: the limit (MPE minus guard, > 0) indexed by series key; every series to report.
     Returns a frame indexed like `limit` with columns
-        status   insufficient | flat | improving | drifting | out_of_tolerance
+        status   insufficient | flat | scatter | improving | drifting | out_of_tolerance
         day      predicted crossing day (NaN when none is predicted)
         slope    fitted drift per day (NaN when no fit was made)
         significant  slope significantly non-zero (two-sided t-test at `alpha`)
@@ -82,6 +84,9 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
 
     chain_rows = pd.DataFrame({"series": series[used], "x": day[used], "increment": increment[used],
                                "left": left[used]})
+    # a reset starts the error path: the chain's first calibration, or an adjustment with a known as-left
+    chain_first = np.r_[True, chain_rows["series"].to_numpy()[1:] != chain_rows["series"].to_numpy()[:-1]]
+    chain_rows["reset"] = chain_first | (adjusted[used] & ~np.isnan(left[used]))
     chain_rows["y"] = chain_rows.groupby("series", sort=False)["increment"].cumsum()
     grouped = chain_rows.groupby("series", sort=False)
     usable = grouped.size()
@@ -120,18 +125,37 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
 
     baseline = tail.loc[keys, "left"].to_numpy()
     t_last = tail.loc[keys, "x"].to_numpy()
+    # the fitted path from the last as-left on the last calibration day (drift.fitted_current_error):
+    # left(A) - Y_A + mean over the rows since the last reset A of (Y_i - slope * (t_i - t_last))
+    position = np.arange(codes.size)
+    reset = fitting["reset"].to_numpy()
+    anchor_at = np.zeros(keys.size, dtype=np.int64)
+    np.maximum.at(anchor_at, codes[reset], position[reset])
+    since = position >= anchor_at[codes]
+    placed = np.bincount(codes, np.where(since, y - slope[codes] * (x - t_last[codes]), 0.0)) / np.bincount(codes, since)
+    left_fit = fitting["left"].to_numpy()
+    current = np.where(np.isnan(baseline), np.nan, left_fit[anchor_at] - y[anchor_at] + placed)
     lim = limit.loc[keys].to_numpy(dtype=float)
-    status = np.where(~significant | (np.abs(slope) <= negligible_rate), "flat",
-                      np.where(~np.isnan(baseline) & (baseline * slope < 0), "improving", "drifting"))
+    t_crit = np.where(dof > 0, stats.t.ppf(confidence, np.maximum(dof, 1)), np.nan)
+
+    def bound_margin(t):
+        """One-sided prediction margin of the fit at day t (zero without scatter)."""
+        return np.where(s > 0.0, t_crit * s * np.sqrt(1.0 + 1.0 / n + (t - xbar) ** 2 / sxx_safe), 0.0)
+
+    not_significant = ~significant | (np.abs(slope) <= negligible_rate)
+    scatter = (not_significant & ~np.isnan(current) & (n >= SCATTER_MIN_EVENTS)
+               & (np.abs(current) + bound_margin(t_last) >= lim))
+    status = np.where(not_significant, np.where(scatter, "scatter", "flat"),
+                      np.where(~np.isnan(current) & (current * slope < 0), "improving", "drifting"))
     status = np.where(degenerate, "insufficient", status)
     status = np.where((status == "drifting") & np.isnan(baseline), "insufficient", status)
     crossing = np.full(keys.size, np.nan)
+    crossing[status == "scatter"] = t_last[status == "scatter"]
 
-    b = np.abs(baseline)
+    b = np.abs(current)
     rate = np.abs(slope)
     drifting = status == "drifting"
-    already = drifting & (b > lim)
-    status = np.where(already, "out_of_tolerance", status)
+    already = drifting & (b > lim)  # the fitted path is beyond the limit on the last day: still "drifting"
     crossing[already] = t_last[already]
 
     exact = drifting & ~already & (s == 0.0)
@@ -141,12 +165,10 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
     crossing[exact_ok] = exact_day[exact_ok]
 
     scattered = drifting & ~already & (s > 0.0)
-    t_crit = np.where(dof > 0, stats.t.ppf(confidence, np.maximum(dof, 1)), np.nan)
 
     def gap(t):
         """Bounded error path minus the limit (negative while inside tolerance)."""
-        margin = t_crit * s * np.sqrt(1.0 + 1.0 / n + (t - xbar) ** 2 / sxx_safe)
-        return b + rate * (t - t_last) + margin - lim
+        return b + rate * (t - t_last) + bound_margin(t) - lim
 
     at_last = gap(t_last)
     now = scattered & (at_last >= 0)

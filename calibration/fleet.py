@@ -1,10 +1,11 @@
 """Recompute next due dates for many meters from bulk queries and vectorised math.
 
 Three reads (meters, signed events, their points) whatever the fleet size; drift fits and crossing
-predictions for every (meter, nominal point) series at once (calibration/drift_fleet.py); one
-reliability fit per group of like meters (calibration/intervals.py); the pure due-date rule per meter
-(calibration/due.py); one batched write. The same rules as the per-meter path of the meter page,
-which the benchmark keeps as its baseline and the tests compare with this one.
+predictions for every (meter, nominal point) series at once (calibration/drift_fleet.py); the interval
+method over each meter's own record, its staircase steps and binomial tests for all meters at once
+(calibration/intervals.py); the pure due-date rule per meter (calibration/due.py); one batched write. The
+same rules as the per-meter path of the meter page, which the benchmark keeps as its baseline and the tests
+compare with this one.
 """
 from __future__ import annotations
 
@@ -31,7 +32,7 @@ UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_st
 # what the due-date rule reads of a meter (risk inputs, interval, MPE); the rest is not loaded
 METER_INPUTS = ["id", "principle", "fluid", "wetted_material", "internal_diameter_mm", "flow_units", "normal_flow",
                 "min_flow", "mpe_value", "base_interval_days"]
-STATUS_PRECEDENCE = ("out_of_tolerance", "drifting", "improving", "flat", "insufficient")
+STATUS_PRECEDENCE = ("out_of_tolerance", "scatter", "drifting", "improving", "flat", "insufficient")
 _UNIX_EPOCH_ORDINAL = dt.date(1970, 1, 1).toordinal()
 
 
@@ -113,19 +114,18 @@ def _flag(values: pd.Series) -> pd.Series:
     return flags.where(flags.notna(), None)
 
 
-def signed_events(where: Q | None = None, with_group: bool = False):
+def signed_events(where: Q | None = None):
     """Signed, not superseded events (optionally narrowed by `where`): id, meter_id, day (ordinal),
-    adjusted, decision_rule, as_found_in_tolerance; and the meter's principle and phase `with_group`."""
+    adjusted, decision_rule, as_found_in_tolerance."""
     qs = CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True)
     if where is not None:
         qs = qs.filter(where)
     columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"]
-    events = _frame(qs.order_by(), columns + (["meter__principle", "meter__fluid__phase"] if with_group else []))
+    events = _frame(qs.order_by(), columns)
     events["day"] = _ordinal_days(events["performed_on"])
     events["adjusted"] = events["adjusted"].astype(bool)
     events["as_found_in_tolerance"] = _flag(events["as_found_in_tolerance"])
-    return events.drop(columns="performed_on").rename(
-        columns={"meter__principle": "principle", "meter__fluid__phase": "phase"})
+    return events.drop(columns="performed_on")
 
 
 def recorded_points(where: Q | None = None):
@@ -205,38 +205,67 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
 
 
 # Interval method ----------------------------------------------------------------------------------
-def reliability_by_group(group_obs: pd.DataFrame, cfg) -> dict:
-    """{(principle, phase): (interval days, intervals seen, out of tolerance)} by the NCSL RP-1 model."""
+def method_settings(cfg) -> dict:
+    """The keyword arguments of intervals.interval_by_method from the CALIBRATION policy."""
+    return dict(target=cfg["reliability_target"],
+                min_observations=cfg.get("reliability_min_observations", intervals.MIN_OBSERVATIONS),
+                extend=cfg["staircase_extend"], shorten=cfg["staircase_shorten"],
+                min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
+
+
+def staircase_steps(meter_ids, starts, in_tol, base_intervals, kw) -> np.ndarray:
+    """intervals.staircase_sequence for every meter at once: one array op per step of the longest record.
+
+    meter_ids/in_tol: the observations ordered by meter and date; starts: where each meter's rows begin.
+    Returns the interval after each observation (aligned with the rows). The arithmetic is the scalar one
+    (x × factor + 0.5, floored, held to the bounds) on whole-day floats, so the days are the same.
+    """
+    steps = np.zeros(meter_ids.size, dtype=np.int64)
+    if not meter_ids.size:
+        return steps
+    counts = np.diff(np.r_[starts, meter_ids.size])
+    base = np.array([base_intervals.get(int(m), 1) for m in meter_ids[starts]], dtype=float)
+    current = np.clip(base, kw["min_days"], kw["max_days"])
+    for k in range(int(counts.max())):
+        active = counts > k
+        rows = starts[active] + k
+        factor = np.where(in_tol[rows], kw["extend"], kw["shorten"])
+        current[active] = np.clip(np.floor(current[active] * factor + 0.5), kw["min_days"], kw["max_days"])
+        steps[rows] = current[active]
+    return steps
+
+
+def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
+    """{meter_id: intervals.MethodInterval} from each meter's own record, for every meter in base_intervals.
+
+    The staircase steps and the binomial tails of the reliability test are computed for all meters at once;
+    what remains per meter is the pure rule's choice and its sentence (intervals.interval_by_method, no query).
+    """
+    ordered = meter_obs.sort_values(["meter_id", "day", "id"], kind="stable")
+    meter_ids = ordered["meter_id"].to_numpy()
+    elapsed = ordered["elapsed"].to_numpy(dtype=float)
+    in_tol = ordered["as_found_in_tolerance"].astype(bool).to_numpy()
+    starts = np.flatnonzero(np.r_[True, meter_ids[1:] != meter_ids[:-1]]) if meter_ids.size else np.empty(0, int)
+    bounds = np.r_[starts, meter_ids.size]
+    counts = np.diff(bounds)
+    passes = np.add.reduceat(in_tol.astype(np.int64), starts) if meter_ids.size else np.empty(0, int)
+    below, above = intervals.binomial_tails(counts, passes, cfg["reliability_target"])
+    settings_kw = method_settings(cfg)
+    method = cfg["interval_method"]
+    steps = staircase_steps(meter_ids, starts, in_tol, base_intervals, settings_kw)
     chosen = {}
-    for key, frame in group_obs.groupby(["principle", "phase"]):
-        in_tol = frame["as_found_in_tolerance"].astype(bool).to_numpy()
-        days = intervals.recommended_interval(frame["elapsed"].astype(float).to_numpy(), in_tol,
-                                              target=cfg["reliability_target"], min_days=cfg["min_interval_days"],
-                                              max_days=cfg["max_interval_days"])
-        chosen[key] = (days, len(in_tol), int((~in_tol).sum()))
+    for k, start in enumerate(starts):
+        meter_id = int(meter_ids[start])
+        if meter_id not in base_intervals:
+            continue
+        stop = bounds[k + 1]
+        chosen[meter_id] = intervals.interval_by_method(
+            method, base_intervals[meter_id], elapsed[start:stop].tolist(), in_tol[start:stop].tolist(),
+            tails=(below[k], above[k]), steps=steps[start:stop].tolist(), **settings_kw)
+    for meter_id, base in base_intervals.items():
+        if meter_id not in chosen:
+            chosen[meter_id] = intervals.interval_by_method(method, base, [], [], **settings_kw)
     return chosen
-
-
-def staircase_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
-    """{meter_id: (interval days, results seen)} by the OIML D 10 staircase over each meter's results."""
-    chosen = {}
-    for meter_id, frame in meter_obs.groupby("meter_id"):
-        results = frame["as_found_in_tolerance"].astype(bool).tolist()
-        steps = intervals.staircase_sequence(base_intervals[meter_id], results, extend=cfg["staircase_extend"],
-                                             shorten=cfg["staircase_shorten"], min_days=cfg["min_interval_days"],
-                                             max_days=cfg["max_interval_days"])
-        chosen[meter_id] = (steps[-1], len(results))
-    return chosen
-
-
-def _group_observations(groups):
-    """Interval observations of every meter in the given (principle, phase) groups, fleet-wide."""
-    if not groups:
-        return pd.DataFrame(columns=["principle", "phase", "elapsed", "as_found_in_tolerance"])
-    condition = Q()
-    for principle, phase in groups:
-        condition |= Q(meter__principle=principle, meter__fluid__phase=phase)
-    return interval_observations(signed_events(condition, with_group=True))
 
 
 # The recompute ------------------------------------------------------------------------------------
@@ -256,8 +285,6 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     events = signed_events(None if whole_fleet else Q(meter__in=chosen_ids))
     points = recorded_points(None if whole_fleet else Q(event__meter__in=chosen_ids))
     by_meter = {m.pk: m for m in meters}
-    events["principle"] = events["meter_id"].map({pk: m.principle for pk, m in by_meter.items()})
-    events["phase"] = events["meter_id"].map({pk: m.fluid.phase for pk, m in by_meter.items()})
     obs = interval_observations(events)
 
     # guard band of the last calibration when it was judged by guarded acceptance (w = U)
@@ -270,13 +297,7 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     guard = np.minimum(guard, 0.9 * mpe.reindex(guard.index))
     drift_summary = meter_drift(events, points, mpe.reindex(guard.index) - guard)
 
-    if cfg["interval_method"] == "staircase":
-        stair = staircase_by_meter(obs, {pk: m.base_interval_days for pk, m in by_meter.items()}, cfg)
-        reliability = {}
-    else:
-        stair = {}
-        groups = {(m.principle, m.fluid.phase) for m in meters}
-        reliability = reliability_by_group(obs if whole_fleet else _group_observations(groups), cfg)
+    methods = method_by_meter(obs, {pk: m.base_interval_days for pk, m in by_meter.items()}, cfg)
 
     last_by_meter = last_events[["id", "day", "decision_rule", "as_found_in_tolerance"]].to_dict("index")
     drift_by_meter = drift_summary.to_dict("index")
@@ -284,8 +305,7 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
         if meter.pk not in last_by_meter:
             _no_history(meter)
         else:
-            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), stair.get(meter.pk),
-                    reliability.get((meter.principle, meter.fluid.phase)), cfg)
+            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg)
         if progress:
             progress(1)
     write_due_fields(meters, batch_size=batch_size)
@@ -300,20 +320,13 @@ def _no_history(meter):
                            "note": "No signed calibration yet: due now."}
 
 
-def method_reason(meter, stair, reliability, cfg):
-    """(interval days or None, the sentence that explains it)."""
-    if cfg["interval_method"] == "staircase":
-        if stair is None:
-            return None, ""
-        days, seen = stair
-        return days, (f"staircase (OIML D 10) over {seen} as-found results, "
-                      f"×{cfg['staircase_extend']} in / ×{cfg['staircase_shorten']} out")
-    if reliability is None:
-        return None, ""
-    days, seen, failures = reliability
-    return days, (f"reliability target {cfg['reliability_target']:.0%} (NCSL RP-1 exponential model) from "
-                  f"{seen} intervals of {Meter.Principle(meter.principle).label} on {meter.fluid.phase}, "
-                  f"{failures} out of tolerance")
+def risk_reason(findings) -> str:
+    """Which finding sets the risk factor, in words."""
+    factor = risk.interval_factor(findings)
+    deciding = [f for f in findings if f.interval_factor == factor]
+    if not deciding:
+        return ""
+    return f"duty risk ({deciding[0].severity}: {deciding[0].reason.rstrip('.')})"
 
 
 def stored_verdict(value):
@@ -323,21 +336,23 @@ def stored_verdict(value):
     return bool(value)
 
 
-def not_conforming_crossing(last, as_found_in_tolerance, crossing, nominal, crossing_reason, guarded=False):
-    """(crossing, nominal, reason) once the last as-found verdict is taken into account.
-
-    A last as-found verdict that is not conforming puts the crossing at the last calibration, as a point
-    found beyond the limit does: under guarded acceptance this is how a guard-band point (conditional
-    pass, ILAC-G8:09/2019 §4.2.2) brings the due date in. Under simple acceptance a failed point has
-    already put the crossing there, so nothing changes.
-    """
-    if stored_verdict(as_found_in_tolerance) is False and (crossing is None or crossing > last):
-        return last, None, ("last as-found not conforming (a guard-band point counts as not conforming):" if guarded
-                            else "last as-found out of tolerance:")
-    return crossing, nominal, crossing_reason
+def found_out(value) -> bool:
+    """The stored as-found verdict says out of tolerance (None or NaN: not judged)."""
+    return value is not None and not pd.isna(value) and not bool(value)
 
 
-def _assess(meter, last_event, summary, stair, reliability, cfg):
+def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting"):
+    """The pure due-date rule for one meter (calibration/due.py), with the policy's settings."""
+    findings = meter.findings()
+    return due.decide_due(last, method.days, method.reason, risk_factor=risk.interval_factor(findings),
+                          risk_reason=risk_reason(findings), crossing=crossing, crossing_reason=crossing_reason,
+                          crossing_kind=crossing_kind,
+                          margin_days=cfg["drift_margin_days"], last_failed=last_failed,
+                          shorten_factor=cfg["staircase_shorten"], min_days=cfg["min_interval_days"],
+                          max_days=cfg["max_interval_days"]), findings
+
+
+def _assess(meter, last_event, summary, method, cfg):
     last = dt.date.fromordinal(int(last_event["day"]))
     guarded = last_event["decision_rule"] == CalibrationEvent.Rule.GUARDED
     crossing = nominal = None
@@ -350,22 +365,18 @@ def _assess(meter, last_event, summary, stair, reliability, cfg):
             worst = float(summary["worst_slope"])
         if not pd.isna(summary["crossing_day"]):
             nominal = float(summary["crossing_nominal"])
-            crossing = dt.date.fromordinal(max(int(math.floor(summary["crossing_day"])), last.toordinal()))
+            crossing = dt.date.fromordinal(int(math.floor(summary["crossing_day"])))
             crossing_reason = f"drift at {nominal:g} % of range{' (guard band U)' if guarded else ''}:"
-    crossing, nominal, crossing_reason = not_conforming_crossing(last, last_event["as_found_in_tolerance"],
-                                                                 crossing, nominal, crossing_reason, guarded)
-    status = decision_rules.drift_status_given_verdict(status, stored_verdict(last_event["as_found_in_tolerance"]))
-    chosen, reason = method_reason(meter, stair, reliability, cfg)
-    findings = meter.findings()
+    decision, findings = decide(meter, last, found_out(last_event["as_found_in_tolerance"]), crossing,
+                                crossing_reason, method, cfg, crossing_kind=status)
     meter.risk_severity = risk.worst_severity(findings)
     meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
-    decision = due.decide_due(last, meter.base_interval_days, risk.interval_factor(findings), crossing=crossing,
-                              crossing_reason=crossing_reason, margin_days=cfg["drift_margin_days"],
-                              method_interval_days=chosen, method_reason=reason,
-                              min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
+    # a last as-found that is not conforming (under guarded acceptance, a guard-band point too) shows as
+    # "last found out of tolerance", whatever the fitted trend says
+    status = decision_rules.drift_status_given_verdict(status, meter.last_in_tolerance)
     meter.last_calibrated = last
     meter.next_due_date = decision.due
-    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal}
+    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_status": status}
     meter.drift_status = status
     meter.drift_rate_per_year = worst * 365.25 if worst is not None else None
     meter.predicted_crossing = crossing

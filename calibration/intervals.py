@@ -11,18 +11,34 @@
   likelihood is L = prod exp(-lambda t_i)^pass * (1 - exp(-lambda t_i))^fail;
   lambda is found by maximising it (root of the score, scipy.optimize.brentq
   within a bracket).  Interval for a reliability target: -ln(target)/lambda.
+* When the reliability model may change an interval (``reliability_method``):
+  only with at least a minimum number of observed intervals, and only when
+  the exact binomial test says the observed in-tolerance count differs from
+  the reliability target (two-sided at 5 %: each tail at 2.5 %).  This follows
+  the spirit of NCSL RP-1's interval-test approach, quoted from memory, not
+  from the text; the minimum sample size is our policy setting.  Otherwise
+  the model does not move the interval.
+* One rounding rule for every interval: ``whole_days`` (nearest whole day,
+  halves upward).
 """
 from __future__ import annotations
 
 import math
-from typing import Iterable, List, Sequence
+from dataclasses import dataclass
+from typing import Iterable, List, Optional, Sequence
 
 import numpy as np
-from scipy import optimize
+from scipy import optimize, stats
 
 
-def _round_half_up(x: float) -> int:
-    """Round to the nearest whole day, halves upward (not banker's rounding)."""
+MIN_OBSERVATIONS = 8  # our policy default: observed intervals before the reliability model may move one
+
+
+def whole_days(x: float) -> int:
+    """The one rounding rule for intervals: nearest whole day, halves upward (not banker's rounding).
+
+    Used by the staircase, the reliability interval, the risk factor and the drift shortening alike.
+    """
     return int(math.floor(x + 0.5))
 
 
@@ -36,16 +52,23 @@ def staircase(interval_days: float, in_tolerance: bool, extend: float = 1.25,
     if interval_days <= 0:
         raise ValueError("interval_days must be positive")
     new = interval_days * (extend if in_tolerance else shorten)
-    return int(min(max(_round_half_up(new), min_days), max_days))
+    return int(min(max(whole_days(new), min_days), max_days))
 
 
 def staircase_sequence(initial: float, results: Iterable[bool], **kwargs) -> List[int]:
     """Apply ``staircase`` in turn; each step starts from the previous
     (already rounded) interval.  Returns the intervals after each result."""
+    extend = kwargs.get("extend", 1.25)
+    shorten = kwargs.get("shorten", 0.5)
+    min_days = kwargs.get("min_days", 30)
+    max_days = kwargs.get("max_days", 1095)
     out: List[int] = []
     cur = initial
-    for ok in results:
-        cur = staircase(cur, bool(ok), **kwargs)
+    floor = math.floor
+    for ok in results:  # the arithmetic of ``staircase``, inlined: the fleet recompute runs it for every meter
+        if cur <= 0:
+            raise ValueError("interval_days must be positive")
+        cur = int(min(max(int(floor(cur * (extend if ok else shorten) + 0.5)), min_days), max_days))
         out.append(cur)
     return out
 
@@ -119,9 +142,117 @@ def reliability_interval(lam: float, target: float = 0.95) -> float:
 def recommended_interval(intervals: Sequence[float], in_tol: Sequence[bool],
                          target: float = 0.95, min_days: int = 30,
                          max_days: int = 1095) -> int:
-    """MLE interval for ``target`` reliability, clamped to [min_days, max_days]
-    (all pass -> max_days, all fail -> min_days), rounded down to whole days."""
+    """MLE interval for ``target`` reliability, rounded by ``whole_days`` and
+    clamped to [min_days, max_days] (all pass -> max_days, all fail -> min_days)."""
     t = reliability_interval(exponential_mle(intervals, in_tol), target)
     if math.isinf(t):
         return int(max_days)
-    return int(min(max(math.floor(t), min_days), max_days))
+    return int(min(max(whole_days(t), min_days), max_days))
+
+
+def binomial_tails(n, passes, target):
+    """Exact binomial tail probabilities of ``passes`` in-tolerance results out
+    of ``n`` when the true reliability is ``target``:
+    (P(X <= passes), P(X >= passes)).  Works on numbers or numpy arrays.
+    A small first value says the record is significantly worse than the
+    target, a small second value that it is significantly better."""
+    n = np.asarray(n, dtype=float)
+    passes = np.asarray(passes, dtype=float)
+    return stats.binom.cdf(passes, n, target), stats.binom.sf(passes - 1, n, target)
+
+
+@dataclass(frozen=True)
+class ReliabilityVerdict:
+    days: Optional[int]  # the interval the model sets, or None when it may not change the interval
+    observations: int
+    failures: int
+    p_below: float
+    p_above: float
+    reason: str
+
+
+def reliability_method(intervals: Sequence[float], in_tol: Sequence[bool], target: float = 0.95,
+                       min_observations: int = 8, alpha: float = 0.05, min_days: int = 30,
+                       max_days: int = 1095, tails=None) -> ReliabilityVerdict:
+    """Interval from one meter's own record by the reliability target, when the evidence allows it.
+
+    Conditions (NCSL RP-1 style, from memory): at least ``min_observations``
+    observed intervals, and the exact binomial test (``binomial_tails``) of the
+    in-tolerance count against ``target`` significant two-sided at ``alpha``
+    (each tail below alpha/2).  Then the interval is ``recommended_interval``
+    over the record; otherwise ``days`` is None and the reason says why.
+    The sample size is part of every reason. ``tails``: ``binomial_tails`` already computed for this
+    record (the fleet recompute computes them for every meter at once).
+    """
+    ok = [bool(v) for v in in_tol]
+    n, passes = len(ok), sum(ok)
+    failures = n - passes
+    if n == 0:
+        return ReliabilityVerdict(None, 0, 0, 1.0, 1.0, "no interval observed yet (n = 0)")
+    below, above = (float(v) for v in (tails if tails is not None else binomial_tails(n, passes, target)))
+    seen = f"{passes} of {n} intervals in tolerance (n = {n})"
+    if n < min_observations:
+        return ReliabilityVerdict(None, n, failures, below, above,
+                                  f"{seen}: too few for the reliability model, which needs at least "
+                                  f"{min_observations} (NCSL RP-1 style, from memory)")
+    if below >= alpha / 2 and above >= alpha / 2:
+        return ReliabilityVerdict(None, n, failures, below, above,
+                                  f"{seen} is consistent with the {target:.0%} target "
+                                  f"(exact binomial test, p = {min(1.0, 2 * min(below, above)):.2g})")
+    days = recommended_interval(intervals, ok, target=target, min_days=min_days, max_days=max_days)
+    side = "below" if below < alpha / 2 else "above"
+    return ReliabilityVerdict(days, n, failures, below, above,
+                              f"{seen}, significantly {side} the {target:.0%} target (exact binomial test, "
+                              f"p = {2 * min(below, above):.2g}): exponential model gives {days} d")
+
+
+@dataclass(frozen=True)
+class MethodInterval:
+    days: int
+    reason: str
+    observations: int
+
+
+def _staircase_reason(base: int, steps: List[int], ok: List[bool], extend: float, shorten: float) -> str:
+    shown = " → ".join(map(str, [base] + steps)) if len(steps) <= 6 else "… → " + " → ".join(map(str, steps[-6:]))
+    passes = sum(ok)
+    return (f"staircase (OIML D 10 / ILAC-G24) from the base {base} d over {len(ok)} as-found results "
+            f"({passes} in, {len(ok) - passes} out of tolerance; ×{extend:g} in, ×{shorten:g} out): {shown} d")
+
+
+def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in_tol: Sequence[bool], *,
+                       target: float = 0.95, min_observations: int = 8, extend: float = 1.25,
+                       shorten: float = 0.5, min_days: int = 30, max_days: int = 1095,
+                       tails=None, steps=None) -> MethodInterval:
+    """The interval the interval method sets for one meter from its own record (pure).
+
+    ``elapsed``/``in_tol``: the meter's observed intervals (days between calibrations) and whether the
+    as-found at the end of each was in tolerance, oldest first.
+    * "staircase": ``staircase_sequence`` from the meter's base interval over its results.
+    * "reliability": ``reliability_method`` when the evidence allows it (minimum sample size and a
+      significant binomial test); otherwise the reliability model does not move the interval and the
+      staircase (a simple-response method) does, so an out-of-tolerance result still shortens by one
+      step and a run of in-tolerance results still lengthens, one step at a time.
+    With no observed interval the base interval holds, within [min_days, max_days].
+    ``tails``/``steps``: ``binomial_tails`` and ``staircase_sequence`` already computed for this record
+    (the fleet recompute computes them for all meters at once).
+    """
+    ok = [bool(v) for v in in_tol]
+    base = int(min(max(int(base_days), min_days), max_days))
+    bounded = "" if base == int(base_days) else f" (the set {int(base_days)} d held to the bounds)"
+    if not ok:
+        return MethodInterval(base, f"no interval observed yet: the meter's base interval {base} d{bounded}", 0)
+    if steps is None:
+        steps = staircase_sequence(base, ok, extend=extend, shorten=shorten, min_days=min_days, max_days=max_days)
+    stair = _staircase_reason(base, steps, ok, extend, shorten)
+    if method == "staircase":
+        return MethodInterval(steps[-1], stair, len(ok))
+    if method != "reliability":
+        raise ValueError(f"unknown interval method {method!r}")
+    verdict = reliability_method(elapsed, ok, target=target, min_observations=min_observations,
+                                 min_days=min_days, max_days=max_days, tails=tails)
+    if verdict.days is not None:
+        return MethodInterval(verdict.days, f"reliability target {target:.0%} (NCSL RP-1 exponential model): "
+                                            f"{verdict.reason}", len(ok))
+    return MethodInterval(steps[-1], f"reliability target {target:.0%} not applied: {verdict.reason}; "
+                                     f"so the {stair}", len(ok))

@@ -28,7 +28,7 @@ def meter_drift_chart(meter, horizon_days=730) -> str:
     nominal = _chart_nominal(meter, histories)
     if nominal is not None:
         result = drift.fit_drift(histories[nominal], mpe=meter.mpe_value)
-        fit, baseline = result.fit, result.baseline
+        fit, baseline = result.fit, result.current  # the fitted path from the last as-left
         if fit is not None and baseline is not None and result.last_day is not None:
             t_last = result.last_day
             end = crossing.toordinal() + 60 if crossing else t_last + horizon_days

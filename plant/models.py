@@ -165,6 +165,7 @@ class Meter(models.Model):
     class DriftStatus(models.TextChoices):
         INSUFFICIENT = "insufficient", "too little history to judge"
         FLAT = "flat", "no significant drift"
+        SCATTER = "scatter", "scatter exceeds tolerance"
         IMPROVING = "improving", "drifting toward zero error"
         DRIFTING = "drifting", "drifting"
         OUT_OF_TOLERANCE = "out_of_tolerance", "last found out of tolerance"
@@ -294,7 +295,10 @@ class Meter(models.Model):
         return risk.interval_factor(self.findings())
 
     def effective_interval_days(self):
-        return max(1, round(self.base_interval_days * self.risk_factor()))
+        """Base interval × risk factor, rounded by the one rule for intervals (calibration.intervals.whole_days)."""
+        from calibration.intervals import whole_days
+
+        return max(1, whole_days(self.base_interval_days * self.risk_factor()))
 
 
 class DutyPeriod(models.Model):

@@ -122,6 +122,7 @@ CALIBRATION = {
     "decision_rule": os.environ.get("CAL_DECISION_RULE", "simple"),  # ILAC-G8: "simple" or "guarded" (w = U)
     "interval_method": "reliability",  # "reliability" (NCSL RP-1 exponential) or "staircase" (OIML D 10)
     "reliability_target": 0.95,
+    "reliability_min_observations": 8,  # observed intervals before the reliability model may move one (our policy)
     "staircase_extend": 1.25,
     "staircase_shorten": 0.5,
     "min_interval_days": 30,

@@ -4,7 +4,6 @@ from django.db import transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django_tables2 import RequestConfig
 
-from calibration.due import rationale_text
 from calibration.trend import meter_drift_chart
 from plant.filters import MeterFilter
 from plant.forms import FluidForm, MeterForm
@@ -32,9 +31,8 @@ def meter_detail(request, tag):
         "findings": findings,
         "factor": factor,
         "deciding": deciding,
-        "effective_interval": meter.effective_interval_days(),
         "duties": meter.duties.select_related("area__site", "fluid"),
-        "rationale": rationale_text(meter.due_rationale).splitlines(),
+        "due": meter.due_rationale or {},
         "drift_chart": meter_drift_chart(meter),
         "calibrations": meter.calibrations.all()[:20],
         "audit": _audit_rows(meter),

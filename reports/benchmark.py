@@ -47,35 +47,12 @@ def _naive_observations(events):
     return pairs
 
 
-def _naive_group_reliability(meter, cache, cfg):
-    key = (meter.principle, meter.fluid.phase)
-    if key not in cache:  # one query per group: even a naive version would not repeat it for every meter
-        from plant.models import Meter
-
-        group = Meter.objects.filter(principle=meter.principle, fluid__phase=meter.fluid.phase)
-        events, _ = fleet.load_history(group)
-        pairs = []
-        for _, meter_events in events.groupby("meter_id"):
-            pairs += _naive_observations(meter_events)
-        if pairs:
-            days = [p[0] for p in pairs]
-            in_tol = [p[1] for p in pairs]
-            chosen = intervals.recommended_interval(days, in_tol, target=cfg["reliability_target"],
-                                                    min_days=cfg["min_interval_days"],
-                                                    max_days=cfg["max_interval_days"])
-            cache[key] = (chosen, len(pairs), len(pairs) - sum(in_tol))
-        else:
-            cache[key] = None
-    return cache[key]
-
-
 def naive_recompute(meters_qs=None, progress=None):
     """Recompute due dates one meter at a time: its own queries, scalar fits, its own UPDATE."""
     from plant.models import Meter
 
     cfg = fleet.policy()
     meters = list((meters_qs if meters_qs is not None else Meter.objects.all()).select_related("fluid").order_by("pk"))
-    groups = {}
     for meter in meters:
         events, points = fleet.load_history(Meter.objects.filter(pk=meter.pk))
         if events.empty:
@@ -91,32 +68,21 @@ def naive_recompute(meters_qs=None, progress=None):
             best, worst_rate, statuses = _naive_crossings(fleet.point_histories(events, points), meter.mpe_value, guard)
             crossing, crossing_reason = None, ""
             if best is not None:
-                crossing = dt.date.fromordinal(max(int(math.floor(best[1].day)), last.toordinal()))
+                crossing = dt.date.fromordinal(int(math.floor(best[1].day)))
                 crossing_reason = f"drift at {best[0]:g} % of range{' (guard band U)' if guarded else ''}:"
-            crossing, nominal, crossing_reason = fleet.not_conforming_crossing(
-                last, last_row.as_found_in_tolerance, crossing, best[0] if best else None, crossing_reason, guarded)
-            if cfg["interval_method"] == "staircase":
-                results = [ok for _, ok in _naive_observations(events)]
-                stair = None
-                if results:
-                    steps = intervals.staircase_sequence(
-                        meter.base_interval_days, results, extend=cfg["staircase_extend"],
-                        shorten=cfg["staircase_shorten"], min_days=cfg["min_interval_days"],
-                        max_days=cfg["max_interval_days"])
-                    stair = (steps[-1], len(results))
-                chosen, reason = fleet.method_reason(meter, stair, None, cfg)
-            else:
-                chosen, reason = fleet.method_reason(meter, None, _naive_group_reliability(meter, groups, cfg), cfg)
-            decision = due.decide_due(last, meter.base_interval_days, meter.risk_factor(), crossing=crossing,
-                                      crossing_reason=crossing_reason, margin_days=cfg["drift_margin_days"],
-                                      method_interval_days=chosen, method_reason=reason,
-                                      min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
+            pairs = _naive_observations(events)
+            method = intervals.interval_by_method(cfg["interval_method"], meter.base_interval_days,
+                                                  [p[0] for p in pairs], [p[1] for p in pairs],
+                                                  **fleet.method_settings(cfg))
+            meter.drift_status = fleet.summarise_status(statuses)
+            decision, _ = fleet.decide(meter, last, fleet.found_out(last_row.as_found_in_tolerance), crossing,
+                                       crossing_reason, method, cfg, crossing_kind=meter.drift_status)
             meter.last_calibrated = last
             meter.next_due_date = decision.due
-            meter.due_rationale = {**decision.rationale(),
-                                   "drift_point_pct": float(nominal) if nominal is not None else None}
             meter.drift_status = decision_rules.drift_status_given_verdict(
-                fleet.summarise_status(statuses), fleet.stored_verdict(last_row.as_found_in_tolerance))
+                meter.drift_status, fleet.stored_verdict(last_row.as_found_in_tolerance))
+            meter.due_rationale = {**decision.rationale(), "drift_point_pct": float(best[0]) if best else None,
+                                   "drift_status": meter.drift_status}
             meter.drift_rate_per_year = worst_rate * 365.25 if worst_rate is not None else None
             meter.predicted_crossing = crossing
             meter.last_in_tolerance = fleet.stored_verdict(last_row.as_found_in_tolerance)

@@ -2,6 +2,7 @@
 import datetime as dt
 
 import pytest
+from django.core.management import call_command
 from django.db.models import Count, Min
 
 from calibration.forms import EventForm
@@ -9,7 +10,7 @@ from calibration.models import CalibrationEvent, SignedRecordError
 from plant.models import Meter
 
 pytestmark = pytest.mark.django_db
-GENERATED_ON = dt.date(2026, 11, 30)  # the generator's fixed "today"
+GENERATED_ON = dt.date(2026, 12, 4)  # the generator's fixed "today" (build_demo_history.TODAY)
 
 
 def test_every_meter_has_three_to_eight_years_of_signed_history(demo_history):
@@ -18,7 +19,7 @@ def test_every_meter_has_three_to_eight_years_of_signed_history(demo_history):
     for row in rows:
         years = (GENERATED_ON - row["first"]).days / 365.25
         assert 2.9 <= years <= 8.0
-        assert row["n"] >= 4
+        assert row["n"] >= 3  # a stable meter on a 730 d base interval, lengthened by the staircase
     assert not CalibrationEvent.objects.exclude(state="signed").exists()
 
 
@@ -58,3 +59,26 @@ def test_demo_meter_page_and_event_page_render(client, demo_history):
     event = CalibrationEvent.objects.filter(adjusted=True).first()
     assert client.get(f"/calibrations/{event.pk}/").status_code == 200
     assert client.get(f"/meters/{event.meter.tag}/").status_code == 200
+
+
+def test_demo_plant_looks_looked_after(demo_history):
+    """On the day the history was generated: most meters in date, a few overdue (their last calibration was
+    missed), a few whose due date the drift model shortens or flags, one or two last found out of tolerance.
+    The due dates do not depend on the day of the recompute, only "overdue" does."""
+    call_command("recompute_due_dates")
+    meters = list(Meter.objects.all())
+    total = len(meters)
+    overdue = [m.tag for m in meters if m.next_due_date < GENERATED_ON]
+    drifting = [m.tag for m in meters
+                if m.due_rationale["winner"] == "drift" or m.due_rationale["findings"]
+                and m.drift_status in ("drifting", "scatter")]
+    failed = [m.tag for m in meters if m.last_in_tolerance is False]
+    assert total == 44
+    assert total - len(overdue) >= 0.8 * total, overdue  # most in date
+    assert 2 <= len(overdue) <= 6, overdue  # a few overdue
+    assert 2 <= len(drifting) <= 12, drifting  # a few drifting
+    assert 1 <= len(failed) <= 2, failed  # one or two failed
+    # nothing is due before the calibration it follows, nor sooner than the policy minimum
+    assert all((m.next_due_date - m.last_calibrated).days >= 30 for m in meters)
+    # and the interval method lengthens intervals where the record is clean
+    assert any((m.next_due_date - m.last_calibrated).days > m.base_interval_days for m in meters)

@@ -120,7 +120,8 @@ def test_noisy_drift_bound_is_earlier_than_central():
            for k, e in enumerate(noise)]
     dr = fit_drift(evs, mpe=5.0)
     assert dr.status == "drifting"
-    b = evs[-1].as_found
+    b = dr.current  # the fitted path (never adjusted: the regression line of the errors) at the last day
+    assert b == pytest.approx(dr.fit.predict(evs[-1].day) + evs[0].as_found, rel=1e-12)
     cr = predict_crossing(evs, mpe=5.0)
     central = evs[-1].day + (5.0 - b) / dr.slope_per_day
     assert evs[-1].day < cr.day < central
@@ -128,6 +129,62 @@ def test_noisy_drift_bound_is_earlier_than_central():
     f = dr.fit
     lhs = abs(b) + f.slope * (cr.day - evs[-1].day) + f.prediction_margin(cr.day)
     assert lhs == pytest.approx(5.0, rel=1e-9)
+
+
+def test_crossing_is_anchored_on_the_fitted_path_not_the_last_observation():
+    """Never adjusted, errors 0, 0.25, 0.35, 0.60 at days 0, 100, 200, 300 (worked by hand, OLS as in the
+    NIST/SEMATECH e-Handbook 4.1.4): xbar = 150, ybar = 0.30, Sxx = 50000, Sxy = 95, slope = 0.0019 /day,
+    intercept = 0.015; fitted error at day 300 = 0.015 + 0.57 = 0.585 (the last observation 0.60 has residual
+    +0.015). Residuals -0.015, 0.045, -0.045, 0.015: SSE = 0.0045, s = sqrt(0.0045 / 2) = 0.047434.
+    t(0.95, 2) = 2.919986 (Student t table). MPE 2.0: the crossing d solves
+    0.585 + 0.0019 (d - 300) + 2.919986 × 0.047434 × sqrt(1 + 1/4 + (d - 150)^2 / 50000) = 2.0;
+    the central estimate is (2.0 - 0.585) / 0.0019 = 744.7 days, where anchoring on the last observation would
+    give (2.0 - 0.60) / 0.0019 = 736.8."""
+    evs = [HistoryEvent(d, e, None, False) for d, e in [(0, 0.0), (100, 0.25), (200, 0.35), (300, 0.60)]]
+    dr = fit_drift(evs, mpe=2.0)
+    assert dr.status == "drifting"
+    assert dr.slope_per_day == pytest.approx(0.0019, rel=1e-12)
+    assert dr.fit.residual_sd == pytest.approx(math.sqrt(0.0045 / 2), rel=1e-12)
+    assert dr.current == pytest.approx(0.585, rel=1e-12)
+    cr = predict_crossing(evs, mpe=2.0)
+    t = 2.919986
+    lhs = 0.585 + 0.0019 * (cr.day - 300) + t * math.sqrt(0.0045 / 2) * math.sqrt(1 + 1 / 4 + (cr.day - 150) ** 2 / 50000)
+    assert lhs == pytest.approx(2.0, abs=1e-5)  # t quoted to 7 digits
+    assert "central estimate 745 days" in cr.message
+
+
+def test_after_an_adjustment_the_path_restarts_from_the_as_left():
+    """Errors 0, 0.2, 0.4 at days 0, 100, 200 (0.002 /day exactly), then 0.6 found at day 300 and adjusted to
+    +0.1: the path restarts at 0.1, so with MPE 0.5 it reaches the limit (0.5 - 0.1) / 0.002 = 200 days later,
+    at day 500, not at once from the as-found 0.6."""
+    evs = [HistoryEvent(0, 0.0), HistoryEvent(100, 0.2), HistoryEvent(200, 0.4), HistoryEvent(300, 0.6, 0.1, True)]
+    # the as-found 0.6 exceeds 0.5, so first with MPE 0.7 (no as-found out): limit 0.7, (0.7 - 0.1) / 0.002 = 300
+    dr = fit_drift(evs, mpe=0.7)
+    assert dr.current == pytest.approx(0.1, rel=1e-12) and dr.anchor_day == 300
+    assert predict_crossing(evs, mpe=0.7).day == pytest.approx(600.0, rel=1e-12)
+    # adjusted in tolerance on the next visit: the path runs from that as-left 0.0
+    evs.append(HistoryEvent(400, 0.3, 0.0, True))
+    assert predict_crossing(evs, mpe=0.5).day == pytest.approx(400 + 0.5 / 0.002, rel=1e-12)
+
+
+def test_scatter_exceeds_tolerance_without_significant_slope():
+    """Errors +0.2, -0.2, 0, -0.2, +0.2 at yearly calibrations, never adjusted (worked by hand): the slope is
+    exactly 0 (sum of (x - xbar) e = -2(0.2) - (-0.2) + 0 + (-0.2) + 2(0.2) = 0), the fitted error is the mean 0,
+    SSE = 4 × 0.04 = 0.16, s = sqrt(0.16 / 3) = 0.23094; at the last day (x - xbar)^2 / Sxx = 4/10, so the
+    one-sided 95 % bound is t(0.95, 3) × s × sqrt(1 + 1/5 + 0.4) = 2.353363 (Student t table) × 0.23094 × 1.264911
+    = 0.6875. MPE 0.5: the bound already exceeds it -> "scatter", crossing at the last calibration.
+    MPE 1.0: inside -> flat, no crossing."""
+    errors = [0.2, -0.2, 0.0, -0.2, 0.2]
+    evs = [HistoryEvent(k * 365.0, e) for k, e in enumerate(errors)]
+    dr = fit_drift(evs, mpe=0.5)
+    assert dr.slope_per_day == pytest.approx(0.0, abs=1e-15) and not dr.significant
+    assert dr.fit.prediction_margin(4 * 365.0) == pytest.approx(2.353363 * math.sqrt(0.16 / 3) * math.sqrt(1.6), rel=1e-6)
+    assert dr.status == "scatter" and "Scatter exceeds tolerance" in dr.message and "0.6875" in dr.message
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "scatter" and cr.day == 4 * 365.0
+    assert predict_crossing(evs, mpe=1.0).status == "flat"
+    # three calibrations are too few to call it (t at one degree of freedom is 6.31)
+    assert fit_drift(evs[:3], mpe=0.05).status == "flat"
 
 
 def test_insufficient():

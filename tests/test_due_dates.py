@@ -1,39 +1,163 @@
-"""Next due date: each candidate can win and the rationale names it; the fleet recompute end to end."""
+"""Next due date: the interval method sets the interval, risk and drift may only shorten it, every case
+explained; the fleet recompute end to end. Hand-worked expectations are written beside each check."""
 import datetime as dt
 
 import pytest
 from django.core.management import call_command
 
-from calibration import due
+import math
+
+from calibration import due, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
 
 LAST = dt.date(2026, 1, 1)
+STAIR = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)  # the CALIBRATION policy's staircase
 
 
-def test_risk_candidate_wins():
-    d = due.decide_due(LAST, 365, 0.5, crossing=dt.date(2027, 6, 1), method_interval_days=300)
-    assert d.winner == "risk" and d.due == LAST + dt.timedelta(days=182)
-    assert "risk factor 0.50" in due.rationale_text(d.rationale()).splitlines()[0]
+def days(n):
+    return LAST + dt.timedelta(days=n)
 
 
-def test_drift_candidate_wins_with_margin():
-    d = due.decide_due(LAST, 365, 1.0, crossing=dt.date(2026, 6, 1), margin_days=30, method_interval_days=300)
-    assert d.winner == "drift" and d.due == dt.date(2026, 5, 2)
-    assert due.rationale_text(d.rationale()).startswith("→ chosen: drift")
+# The interval method sets the interval (OIML D 10:2007 / ILAC-G24 method 1, the staircase) ---------------
+def test_staircase_lengthening_takes_effect():
+    """Two in-tolerance results from 365 d: 365 × 1.25 = 456.25 -> 456; 456 × 1.25 = 570 (OIML D 10 method 1,
+    halves rounded up). Nothing shortens it, so the due date is 570 days on: the method sets the interval."""
+    method = intervals.interval_by_method("staircase", 365, [365, 456], [True, True], **STAIR)
+    assert method.days == 570
+    d = due.decide_due(LAST, method.days, method.reason, risk_factor=1.0)
+    assert d.winner == "method" and d.due == days(570) and d.interval_days == 570
+    assert d.rationale()["interval_days"] == 570
+    assert "365 → 456 → 570 d" in d.rationale()["candidates"][0]["reason"]
 
 
-def test_method_candidate_wins():
-    d = due.decide_due(LAST, 365, 1.0, method_interval_days=200, method_reason="staircase")
-    assert d.winner == "method" and d.due == LAST + dt.timedelta(days=200)
+@pytest.mark.parametrize("method_name", ["staircase", "reliability"])
+def test_long_in_tolerance_history_lengthens_up_to_the_maximum(method_name):
+    """13 in-tolerance results from 365 d, staircase (OIML D 10 method 1): 456.25->456, 570, 712.5->713,
+    891.25->891, 1113.75->1114 held to the 1095 d maximum, then 1095 onwards.
+    Reliability method (NCSL RP-1 style, from memory): 13 of 13 against a 95 % target is not significant,
+    P(X >= 13) = 0.95^13 = exp(13 × ln 0.95) = exp(-0.66681) = 0.5133, so the model does not move the
+    interval and the staircase does."""
+    n = 13
+    method = intervals.interval_by_method(method_name, 365, [365] * n, [True] * n, target=0.95,
+                                          min_observations=8, **STAIR)
+    assert method.days == 1095
+    if method_name == "reliability":
+        assert "13 of 13 intervals in tolerance (n = 13)" in method.reason
+        assert "p = 1" in method.reason  # two-sided: 2 × 0.5133 capped at 1
+    d = due.decide_due(LAST, method.days, method.reason)
+    assert d.due == days(1095) and d.winner == "method" and d.bounded == ""
 
 
-def test_bounds_apply_and_are_named():
-    d = due.decide_due(LAST, 365, 1.0, crossing=LAST, min_days=30)
-    assert d.due == LAST + dt.timedelta(days=30) and d.bounded == "minimum"
-    d = due.decide_due(LAST, 3000, 1.0, max_days=1095)
-    assert d.due == LAST + dt.timedelta(days=1095) and d.bounded == "maximum"
-    assert "Bounded by the maximum interval" in due.rationale_text(d.rationale())
+def test_one_failure_then_adjustment_shortens_by_the_method_not_to_the_minimum():
+    """Four in (365 -> 456 -> 570 -> 713 -> 891), then one out: 891 × 0.5 = 445.5 -> 446 d (OIML D 10 method 1).
+    The drift fit flags the last calibration (as-found out: crossing day = that day); the method has already
+    counted the failure, so the finding does not halve it again, and the 30 d minimum is not reached."""
+    method = intervals.interval_by_method("staircase", 365, [365, 456, 570, 713, 891],
+                                          [True, True, True, True, False], **STAIR)
+    assert method.days == 446
+    d = due.decide_due(LAST, method.days, method.reason, crossing=LAST, crossing_kind="out_of_tolerance",
+                       last_failed=True)
+    assert d.due == days(446) and d.bounded == ""
+    assert [c.name for c in d.candidates] == ["method"]
+    assert d.findings == [f"Drift model says this meter was already out at {LAST}; the out-of-tolerance as-found "
+                          f"of {LAST} has already shortened the interval by the method."]
+
+
+def test_reliability_method_shortens_an_out_of_tolerance_record_by_the_target():
+    """20 intervals of 365 d, 15 in tolerance, target 95 % (NCSL RP-1 exponential model, equal intervals):
+    binomial P(X <= 15 | n = 20, R = 0.95) = sum_k C(20,k) 0.95^k 0.05^(20-k), k = 0..15, below 0.025, so the
+    record is significantly below the target; R = 15/20 = 0.75, lambda = -ln 0.75 / 365, interval
+    = 365 × ln 0.95 / ln 0.75 = 365 × 0.051293 / 0.287682 = 65.08 -> 65 d (not the 30 d minimum)."""
+    p_below = sum(math.comb(20, k) * 0.95 ** k * 0.05 ** (20 - k) for k in range(16))
+    assert p_below < 0.025
+    ok = [True] * 15 + [False] * 5
+    verdict = intervals.reliability_method([365] * 20, ok, target=0.95, min_observations=8)
+    assert verdict.p_below == pytest.approx(p_below, rel=1e-9)
+    assert verdict.days == 65 and verdict.observations == 20 and verdict.failures == 5
+    method = intervals.interval_by_method("reliability", 365, [365] * 20, ok, target=0.95, min_observations=8,
+                                          **STAIR)
+    assert method.days == 65 and "n = 20" in method.reason and "significantly below" in method.reason
+
+
+def test_reliability_needs_enough_observations_and_says_the_sample_size():
+    """Two intervals, one failed: the exponential MLE alone would give 365 × ln 0.95 / ln 0.5 = 27 d -> 30 d.
+    With fewer than the minimum (8, our policy; NCSL RP-1 style, from memory) the model may not move the
+    interval: the staircase does, 365 × 1.25 = 456.25 -> 456, then × 0.5 = 228 d."""
+    assert intervals.recommended_interval([365, 365], [True, False]) == 30
+    verdict = intervals.reliability_method([365, 365], [True, False], min_observations=8)
+    assert verdict.days is None and "1 of 2 intervals in tolerance (n = 2)" in verdict.reason
+    method = intervals.interval_by_method("reliability", 365, [365, 456], [True, False], min_observations=8,
+                                          **STAIR)
+    assert method.days == 228 and "n = 2" in method.reason and "too few" in method.reason
+
+
+def test_reliability_not_significant_keeps_the_method_interval():
+    """10 intervals, 9 in tolerance, target 95 %: P(X <= 9) = 1 - 0.95^10 = 1 - 0.59874 = 0.40126, not
+    significant (two-sided 5 %): the model does not move the interval (NCSL RP-1 style, from memory)."""
+    verdict = intervals.reliability_method([365] * 10, [True] * 9 + [False], target=0.95, min_observations=8)
+    assert verdict.p_below == pytest.approx(1 - 0.95 ** 10, rel=1e-12)
+    assert verdict.days is None and "consistent with the 95% target" in verdict.reason
+
+
+def test_crossing_predicted_in_the_past_is_a_finding_and_shortens_by_the_method():
+    """The drift model puts the crossing 10 days before the last calibration, which was found in tolerance:
+    not a candidate (a due date before the calibration means nothing) but a finding, and the method shortens
+    by its out-of-tolerance step: 570 d × 0.5 = 285 d (OIML D 10 method 1)."""
+    d = due.decide_due(LAST, 570, "staircase", crossing=days(-10), shorten_factor=0.5)
+    assert d.due == days(285) and d.winner == "method" and d.bounded == ""
+    assert [c.name for c in d.candidates] == ["method"]
+    assert d.findings == [f"Drift model says this meter was already out at {days(-10)}; shorten by the method: "
+                          "570 d × 0.5 = 285 d."]
+    text = due.rationale_text(d.rationale())
+    assert "already out at 2025-12-22" in text and "285 days" in text
+
+
+def test_scatter_finding_is_worded_as_such():
+    d = due.decide_due(LAST, 400, "staircase", crossing=LAST, crossing_kind="scatter")
+    assert d.due == days(200)
+    assert d.findings[0].startswith("Scatter exceeds tolerance")
+
+
+def test_one_calibration_only_uses_the_base_interval():
+    method = intervals.interval_by_method("reliability", 365, [], [], **STAIR)
+    assert method.days == 365 and method.reason.startswith("no interval observed yet")
+    d = due.decide_due(LAST, method.days, method.reason)
+    assert d.due == days(365) and d.winner == "method"
+
+
+# Risk and drift may only shorten ---------------------------------------------------------------------
+def test_risk_shortens_the_method_interval():
+    """Risk factor 0.5 on the method's 570 d: 285 d (interval × factor, halves up)."""
+    d = due.decide_due(LAST, 570, "staircase", risk_factor=0.5, risk_reason="duty risk (high)")
+    assert d.winner == "risk" and d.due == days(285)
+    assert "570 d × risk factor 0.50 = 285 d" in due.rationale_text(d.rationale())
+
+
+def test_drift_candidate_shortens_with_margin():
+    d = due.decide_due(LAST, 365, "m", crossing=days(200), margin_days=30)
+    assert d.winner == "drift" and d.due == days(170)
+    assert due.rationale_text(d.rationale()).splitlines()[1].startswith("→ chosen: drift")
+
+
+def test_later_drift_and_risk_do_not_lengthen():
+    d = due.decide_due(LAST, 300, "m", crossing=days(900), risk_factor=1.0)
+    assert d.winner == "method" and d.due == days(300)
+
+
+def test_minimum_bound_applies_and_is_named():
+    """Misapplied duty (factor 0.25) on a 30 d interval: 7.5 -> 8 d, held to the 30 d minimum."""
+    d = due.decide_due(LAST, 30, "m", risk_factor=0.25, min_days=30)
+    assert d.due == days(30) and d.bounded == "minimum" and d.winner == "risk"
+    assert "Held to the minimum interval" in due.rationale_text(d.rationale())
+    assert due.decide_due(LAST, 3000, "m", max_days=1095).due == days(1095)  # the method is held to the maximum
+
+
+def test_one_rounding_rule_for_intervals():
+    """Halves go up everywhere (not banker's rounding, which would give 182 for 182.5)."""
+    assert intervals.whole_days(182.5) == 183 and intervals.whole_days(182.49) == 182
+    assert due.decide_due(LAST, 365, "m", risk_factor=0.5).due == days(183)
+    assert intervals.staircase(365, False) == 183
 
 
 @pytest.fixture
@@ -99,7 +223,7 @@ def test_recompute_command_on_demo_fleet(demo_history, client):
     winners = {m.due_rationale["winner"] for m in meters}
     assert winners == {"risk", "drift", "method"}
     page = client.get(f"/meters/{meters[0].tag}/").content.decode()
-    assert "chosen:" in page and "<svg" in page
+    assert "(chosen)" in page and "<svg" in page
 
 
 def test_recompute_stores_the_latest_verdict_and_the_duty_risk(drifting_meter):
@@ -118,3 +242,39 @@ def test_recompute_stores_the_latest_verdict_and_the_duty_risk(drifting_meter):
     Meter.objects.filter(pk=meter.pk).update(risk_severity="")
     call_command("recompute_due_dates")
     assert Meter.objects.get(pk=meter.pk).risk_severity == "misapplied"
+
+
+def test_another_meters_failures_do_not_pull_a_meter_that_always_passed(drifting_meter, settings):
+    """Two electromagnetic meters on the same liquid. The reliability method reads each meter's own record
+    (no pooling): the meter that always passed lengthens by the staircase from its base 365 d
+    (365 × 1.25 = 456.25 -> 456, × 1.25 = 570 d, OIML D 10 method 1), whatever the other one did."""
+    settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "reliability", "max_interval_days": 1095}
+    good, standard = drifting_meter
+    Meter.objects.filter(pk=good.pk).update(base_interval_days=365)
+    bad = Meter.objects.create(tag="FT-BAD", principle="electromagnetic", area=good.area, fluid=good.fluid,
+                               line_size="DN50", internal_diameter_mm=52.5, range_max=100, mpe_value=1.0,
+                               mpe_basis="absolute", wetted_material="316L", base_interval_days=365)
+    for year in (2023, 2024, 2025):
+        add_event(good, standard, dt.date(year, 3, 1), found_error=0.1)
+        add_event(bad, standard, dt.date(year, 3, 1), found_error=2.0, left_error=0.0)
+    good.refresh_from_db()
+    assert good.next_due_date == dt.date(2025, 3, 1) + dt.timedelta(days=570)
+    assert "2 of 2 intervals in tolerance (n = 2)" in good.due_rationale["candidates"][0]["reason"]
+    bad.refresh_from_db()
+    assert bad.last_in_tolerance is False and bad.next_due_date < good.next_due_date
+
+
+def test_meter_page_shows_one_truth(demo_history, client):
+    """The heading's interval is the one the due date uses (due - last calibrated), and every candidate is
+    listed beside it with its date, days and reason; findings are said in words."""
+    call_command("recompute_due_dates")
+    for meter in Meter.objects.exclude(next_due_date=None):
+        body = client.get(f"/meters/{meter.tag}/").content.decode()
+        used = (meter.next_due_date - meter.last_calibrated).days
+        assert f'<strong id="used-interval">{used} days</strong>' in body, meter.tag
+        assert meter.due_rationale["interval_days"] == used
+        for candidate in meter.due_rationale["candidates"]:
+            assert f"<td>{candidate['due']}</td><td>{candidate['days']}</td>" in body, meter.tag
+        for finding in meter.due_rationale["findings"]:
+            assert finding.split(";")[0] in body.replace("&#x27;", "'"), meter.tag
+        assert "effective interval" not in body

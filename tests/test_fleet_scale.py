@@ -33,11 +33,12 @@ def random_histories(count, seed):
         day = 739000 + rng.randint(0, 100)
         rate = rng.choice([0.0, 0.0005, -0.001, 0.003]) * mpe
         exact = rng.random() < 0.1
+        scatter = rng.choice([0.05, 0.05, 0.05, 0.4]) * mpe  # some meters scatter more than their tolerance
         error = rng.uniform(-0.3, 0.3) * mpe
         events = []
         for order in range(rng.randint(0, 12)):
             day += 0 if rng.random() < 0.03 else rng.randint(100, 400)
-            error += rate * 200 + (0.0 if exact else rng.gauss(0, 0.05 * mpe))
+            error += rate * 200 + (0.0 if exact else rng.gauss(0, scatter))
             found = error if rng.random() > 0.05 else None
             adjusted = rng.random() < 0.2
             if adjusted:
@@ -76,7 +77,7 @@ def test_vectorised_crossings_equal_the_scalar_method_series_by_series():
             assert got["slope"] == pytest.approx(slope, rel=1e-9, abs=1e-15), key
             assert bool(got["significant"]) == bool(expected.drift.significant), key
     # every branch of the method was exercised
-    assert set(statuses) == {"insufficient", "flat", "improving", "drifting", "out_of_tolerance"}, statuses
+    assert set(statuses) == {"insufficient", "flat", "scatter", "improving", "drifting", "out_of_tolerance"}, statuses
 
 
 def test_vectorised_crossing_of_a_known_line():
@@ -124,7 +125,7 @@ def test_bulk_recompute_gives_the_naive_due_dates(method, settings):
 
 
 @pytest.mark.django_db
-def test_single_meter_recompute_pools_its_group_from_the_whole_fleet():
+def test_single_meter_recompute_equals_the_whole_fleet_recompute():
     call_command("make_fleet", meters=40, seed=9, verbosity=0)
     whole = due_fields()
     some = [m.pk for m in Meter.objects.filter(calibrations__isnull=False).distinct().order_by("pk")[:3]]
@@ -174,3 +175,22 @@ def test_make_fleet_same_seed_same_history():
     assert len(first) > 100
     assert build_and_read(4) == first
     assert build_and_read(5) != first
+
+
+def test_vectorised_staircase_equals_the_scalar_sequence():
+    """fleet.staircase_steps (all meters at once) against intervals.staircase_sequence meter by meter, with
+    base intervals inside and outside the bounds and records of every length (OIML D 10 method 1)."""
+    from calibration import fleet, intervals
+
+    rng = random.Random(3)
+    kw = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)
+    bases = {m: rng.choice([1, 29, 45, 180, 365, 730, 1000, 3650]) for m in range(1, 301)}
+    records = {m: [rng.random() < 0.8 for _ in range(rng.randint(1, 25))] for m in bases}
+    meter_ids = np.array([m for m in bases for _ in records[m]])
+    in_tol = np.array([ok for m in bases for ok in records[m]])
+    starts = np.flatnonzero(np.r_[True, meter_ids[1:] != meter_ids[:-1]])
+    steps = fleet.staircase_steps(meter_ids, starts, in_tol, bases, kw)
+    for start, m in zip(starts, bases):
+        base = min(max(bases[m], 30), 1095)
+        expected = intervals.staircase_sequence(base, records[m], **kw)
+        assert steps[start:start + len(expected)].tolist() == expected, m

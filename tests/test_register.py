@@ -2,6 +2,7 @@
 import pytest
 from django.core.exceptions import ValidationError
 
+from calibration.intervals import whole_days
 from plant.forms import FluidForm, MeterForm
 from plant.models import Area, DutyPeriod, Fluid, Meter, Site
 
@@ -77,7 +78,7 @@ def test_effective_interval_uses_smallest_factor(site_area_fluid):
     findings = meter.findings()
     assert findings, "EM with stainless electrodes on brine must be flagged"
     factor = min(f.interval_factor for f in findings)
-    assert meter.effective_interval_days() == round(365 * factor)
+    assert meter.effective_interval_days() == whole_days(365 * factor)  # the one rounding rule, halves up
 
 
 def test_demo_plant_size_and_mix(demo_plant):
@@ -105,7 +106,8 @@ def test_every_meter_page_renders(client, demo_plant):
     for meter in Meter.objects.all():
         response = client.get(f"/meters/{meter.tag}/")
         assert response.status_code == 200, meter.tag
-        assert f"{meter.effective_interval_days()} days".encode() in response.content
+        assert f"Base interval set for this meter: <strong>{meter.base_interval_days} days</strong>".encode() \
+            in response.content  # never calibrated: due now, from the set base interval
 
 
 def test_misapplied_meter_page_says_why(client, demo_plant):

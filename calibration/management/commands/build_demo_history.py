@@ -1,7 +1,9 @@
 """Invent 3–8 years of signed calibration history for the demo plant, with a fixed seed.
 
 Drift is invented for the demo: stable meters, meters drifting steadily, and meters that jump after
-fouling; the risk factor of each meter's duty scales how far it moves. Written to
+fouling; the risk factor of each meter's duty scales how far it moves. Each calibration is done around
+the due date the tracker set after the previous one, as a plant that is looked after would; a few meters
+miss their last one and show overdue. Written to
 fixtures/demo_history.json (load it after fixtures/demo_plant.json).
 """
 import datetime as dt
@@ -18,7 +20,9 @@ from calibration.synthetic import NOMINALS, invented_found_errors
 from plant.models import Meter
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_history.json"
-TODAY = dt.date(2026, 11, 30)
+TODAY = dt.date(2026, 12, 4)  # the generator's fixed "today" (tests/test_demo_history.py GENERATED_ON)
+LATE_WINDOW_DAYS = 150  # a calibration falling due in this many days before TODAY ...
+LATE_CHANCE = 0.3  # ... is missed with this chance: the meter shows overdue
 TECHNICIANS = ["R. Okonkwo-Hale", "M. Varga", "S. Lindqvist"]
 PROCEDURE = {
     "flow": "In-situ comparison against a portable reference meter in series, five points up the range (WP-FL-03).",
@@ -60,23 +64,26 @@ class Command(BaseCommand):
         self.stdout.write(self.style.SUCCESS(f"{events} signed calibrations written to {FIXTURE}"))
 
     def _history(self, meter, rng, standards):
+        """One meter's invented history, kept the way a plant that is looked after keeps it: each next
+        calibration is done on or a little before the due date the tracker gave after the previous one
+        (calibration/fleet.py recomputes it at every sign-off), except that a few meters miss their last one.
+        """
         factor = meter.risk_factor()
         mpe = meter.mpe_value
-        behaviour = rng.choices(["stable", "steady", "fouling"], weights=[4, 4, 2] if factor >= 1 else [1, 4, 4])[0]
-        # invented drift in units of MPE per year; risky duties move more, per year and per (shorter) interval
-        rate = {"stable": 0.05, "steady": 0.35, "fouling": 0.15}[behaviour] * mpe / max(factor, 0.25) ** 2 * rng.choice([-1, 1])
-        years = rng.randint(3, 8)
-        cap = int(365.25 * years / 3.3)  # at least four events over the years of history
-        interval = min(meter.effective_interval_days(), cap)
+        behaviour = rng.choices(["stable", "steady", "fouling"], weights=[8, 2, 0] if factor >= 1 else [4, 4, 2])[0]
+        # invented drift in units of MPE per year; risky duties move more
+        rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.25) * rng.choice([-1, 1])
+        years = rng.randint(5, 8)
         day = TODAY - dt.timedelta(days=int(365.25 * years)) + dt.timedelta(days=rng.randint(0, 20))
         baseline = rng.uniform(-0.1, 0.1) * mpe
         standard = standards["gas"] if meter.fluid.phase in ("gas", "steam") else standards["liquid"]
         count = 0
         jumped = False
-        while day < TODAY - dt.timedelta(days=20):
-            elapsed_years = interval / 365.25
+        previous = None
+        while True:
+            elapsed_years = (day - previous).days / 365.25 if previous else 0.0
             offset = baseline + rate * elapsed_years
-            if behaviour == "fouling" and not jumped and rng.random() < 0.35:
+            if behaviour == "fouling" and not jumped and previous and rng.random() < 0.2:
                 offset += rng.choice([-1, 1]) * rng.uniform(0.8, 1.6) * mpe
                 jumped = True
             found = invented_found_errors(rng, offset, mpe)
@@ -100,9 +107,14 @@ class Command(BaseCommand):
             event.sign(event.technician, "Instrument technician",
                        at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc))
             count += 1
-            interval = int(min(meter.effective_interval_days(), cap) * rng.uniform(0.9, 1.1))
-            day += dt.timedelta(days=interval)
-        return count
+            meter.refresh_from_db(fields=["next_due_date"])
+            previous = day
+            # done on the due date or up to three weeks before it, never sooner than two weeks after the last
+            day = max(meter.next_due_date - dt.timedelta(days=rng.randint(0, 21)), day + dt.timedelta(days=14))
+            if day >= TODAY - dt.timedelta(days=3):
+                return count
+            if day >= TODAY - dt.timedelta(days=LATE_WINDOW_DAYS) and rng.random() < LATE_CHANCE:
+                return count  # the last one is missed: its due date has passed
 
     def _points(self, event, meter, kind, errors_in_basis, rng):
         span = meter.range_max - meter.range_min
