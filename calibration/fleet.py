@@ -344,6 +344,10 @@ def found_out(value) -> bool:
 def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting"):
     """The pure due-date rule for one meter (calibration/due.py), with the policy's settings."""
     findings = meter.findings()
+    if last_failed:
+        method = intervals.first_calibration_found_out(method, shorten=cfg["staircase_shorten"],
+                                                       min_days=cfg["min_interval_days"],
+                                                       max_days=cfg["max_interval_days"])
     return due.decide_due(last, method.days, method.reason, risk_factor=risk.interval_factor(findings),
                           risk_reason=risk_reason(findings), crossing=crossing, crossing_reason=crossing_reason,
                           crossing_kind=crossing_kind,

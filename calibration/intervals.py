@@ -256,3 +256,21 @@ def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in
                                             f"{verdict.reason}", len(ok))
     return MethodInterval(steps[-1], f"reliability target {target:.0%} not applied: {verdict.reason}; "
                                      f"so the {stair}", len(ok))
+
+
+def first_calibration_found_out(method: MethodInterval, shorten: float = 0.5, min_days: int = 30,
+                                max_days: int = 1095) -> MethodInterval:
+    """The method's interval when the meter's only calibration so far found it out of tolerance.
+
+    No interval has been observed, so neither method has a result to count; the as-found failure is
+    still evidence against the base interval, so it is shortened by one out-of-tolerance step of the
+    staircase (OIML D 10:2007 method 1), as any later failure would be. With an observed interval this
+    returns the method's interval unchanged.
+    """
+    if method.observations:
+        return method
+    raw = whole_days(method.days * shorten)
+    days = int(min(max(raw, min_days), max_days))
+    held = f", held to the bounds: {days} d" if days != raw else ""
+    return MethodInterval(days, f"{method.reason}; the only calibration so far found it out of tolerance: "
+                                f"{method.days} d × {shorten:g} = {raw} d{held}", 0)

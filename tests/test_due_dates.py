@@ -278,3 +278,20 @@ def test_meter_page_shows_one_truth(demo_history, client):
         for finding in meter.due_rationale["findings"]:
             assert finding.split(";")[0] in body.replace("&#x27;", "'"), meter.tag
         assert "effective interval" not in body
+
+
+def test_a_first_calibration_found_out_shortens_the_base_interval_by_one_staircase_step():
+    # OIML D 10:2007 method 1: an out-of-tolerance result multiplies the interval by the shorten factor;
+    # with no interval observed yet the base interval is the one shortened. Hand-worked: 365 × 0.5 = 182.5 -> 183 d
+    # (halves upward); 50 × 0.5 = 25 d, held to the 30 d minimum.
+    from calibration import intervals
+
+    base = intervals.interval_by_method("staircase", 365, [], [])
+    assert (base.days, base.observations) == (365, 0)
+    first = intervals.first_calibration_found_out(base, shorten=0.5, min_days=30, max_days=1095)
+    assert first.days == 183 and "365 d × 0.5 = 183 d" in first.reason
+    short = intervals.first_calibration_found_out(intervals.interval_by_method("staircase", 50, [], []), shorten=0.5)
+    assert short.days == 30 and "held to the bounds" in short.reason
+    # with an observed interval the method has already counted the failure: unchanged
+    counted = intervals.interval_by_method("staircase", 365, [365], [False])
+    assert intervals.first_calibration_found_out(counted) == counted
