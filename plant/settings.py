@@ -69,7 +69,8 @@ DATABASES = {
 
 AUTH_PASSWORD_VALIDATORS = []
 LANGUAGE_CODE = "en-gb"
-TIME_ZONE = "UTC"
+# the plant's own time zone (IANA name): "today" and date defaults are taken there; a site may name its own
+TIME_ZONE = os.environ.get("QUENBY_TIME_ZONE", "UTC")
 USE_I18N = True
 USE_TZ = True
 

@@ -116,3 +116,27 @@ def test_misapplied_meter_page_says_why(client, demo_plant):
 
 def test_unknown_meter_is_404(client, demo_plant):
     assert client.get("/meters/NOPE-1/").status_code == 404
+
+
+@pytest.mark.parametrize("text", ["not titanium: 316L", "Hastelloy C-276", "316 L", "Stainless steel 316L"])
+def test_wetted_material_off_the_list_refused_at_field(site_area_fluid, text):
+    # Issue 17 item 7: a fixed list; the form posts codes, so free text (and a label) is refused with a message.
+    _, area, fluid = site_area_fluid
+    form = MeterForm(data=meter_data(area, fluid, wetted_material=text))
+    assert not form.is_valid()
+    assert form.errors["wetted_material"] == [
+        f'"{text}" is not on the list of wetted materials; choose one of the list (its code or name), '
+        "or leave it blank and describe it under material details."]
+    with pytest.raises(ValidationError) as refused:
+        Meter.objects.create(tag="FT-X", principle="coriolis", area=area, fluid=fluid, line_size="DN25",
+                             internal_diameter_mm=26.6, range_max=8, mpe_value=0.2, wetted_material=text)
+    assert "wetted_material" in refused.value.message_dict
+    assert Meter.objects.count() == 0 and DutyPeriod.objects.count() == 0
+
+
+def test_wetted_material_from_the_list_saved_with_details(site_area_fluid):
+    _, area, fluid = site_area_fluid
+    meter = MeterForm(data=meter_data(area, fluid, wetted_material="alloy C-276",
+                                      material_details="PTFE liner")).save()
+    assert (meter.wetted_material, meter.material_details) == ("alloy C-276", "PTFE liner")
+    assert meter.get_wetted_material_display() == "Nickel alloy C-276 (Ni-Cr-Mo)"
