@@ -180,12 +180,12 @@ class CalibrationEntry:
 
     def __init__(self, meter, data=None, user=None):
         from django.conf import settings
-        from django.utils import timezone
 
         self.meter = meter
         self.user = user
         bound = data is not None
-        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": timezone.localdate(),
+        # the date at the meter's site, not in UTC (issue 17 item 8)
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.area.site.today(),
                    "technician": (user.get_full_name() or user.username) if user else ""}
         self.event_form = EventForm(data, prefix="ev") if bound else EventForm(prefix="ev", initial=initial)
         self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)

@@ -58,6 +58,10 @@ class Site(models.Model):
         if errors:
             raise ValidationError(errors)
 
+    def save(self, *args, **kwargs):
+        self.full_clean()  # a time zone that is not one is refused on every path
+        super().save(*args, **kwargs)
+
     def zone_name(self) -> str:
         return localtime.zone_name(self.time_zone)
 

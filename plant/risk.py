@@ -120,6 +120,10 @@ class Finding:
         """The finding in plain words, for pages (exports keep the code)."""
         return TITLES.get(self.code) or self.code.replace("_", " ").capitalize()
 
+    @property
+    def severity_words(self) -> str:
+        return SEVERITY_WORDS.get(self.severity, self.severity)
+
 
 def reynolds_number(density_kg_m3, viscosity_mpa_s, flow_m3_h, diameter_mm) -> float:
     """Pipe Reynolds number Re = rho * v * D / mu.
