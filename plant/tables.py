@@ -11,6 +11,11 @@ DRIFT_ORDER = ("out_of_tolerance", "drifting", "improving", "insufficient", "fla
 VERDICT_WORDS = {True: "in tolerance", False: "out of tolerance", None: "—"}
 
 
+def _overdue(record):
+    """Past its due date at its own site's date (or never calibrated); the site is read with the row."""
+    return record.next_due_date is None or record.next_due_date < record.area.site.today()
+
+
 def _nulls_first(queryset, field, is_descending):
     """Never calibrated (no date) counts as the most urgent: first when ascending, last when descending."""
     expression = F(field).desc(nulls_last=True) if is_descending else F(field).asc(nulls_first=True)
@@ -20,24 +25,26 @@ def _nulls_first(queryset, field, is_descending):
 class MeterTable(tables.Table):
     tag = tables.Column(linkify=True, attrs={"td": {"class": "nowrap"}})
     next_due_date = tables.DateColumn(format="Y-m-d", verbose_name="Due date", default="now (never calibrated)",
-                                      attrs={"td": {"class": "nowrap"}})
+                                      attrs={"td": {"class": lambda record: "nowrap overdue" if _overdue(record)
+                                                    else "nowrap"}})
     last_calibrated = tables.DateColumn(format="Y-m-d", verbose_name="Last calibrated", default="—",
                                         attrs={"td": {"class": "nowrap"}})
     last_in_tolerance = tables.Column(
         verbose_name="Last verdict", empty_values=(),
-        attrs={"td": {"class": lambda record: "verdict-out" if record.last_in_tolerance is False else ""}})
+        attrs={"td": {"class": lambda record: "nowrap verdict-out" if record.last_in_tolerance is False else "nowrap"}})
     drift_status = tables.Column(verbose_name="Drift", default="—")
     principle = tables.Column()
     fluid = tables.Column(accessor="fluid__name", verbose_name="Fluid", order_by=("fluid__name",))
     area = tables.Column(accessor="area__name", verbose_name="Area", order_by=("area__name",))
     site = tables.Column(accessor="area__site__name", verbose_name="Site", order_by=("area__site__name",))
     status = tables.Column()
-    calibrate = tables.Column(empty_values=(), verbose_name="", orderable=False)
+    calibrate = tables.Column(empty_values=(), verbose_name="", orderable=False, exclude_from_export=True)
 
     class Meta:
         model = Meter
-        fields = ("tag", "next_due_date", "last_calibrated", "last_in_tolerance", "drift_status", "principle",
-                  "fluid", "area", "site", "status", "calibrate")
+        # the quick action stays within an 820 px tablet's view; the wider columns scroll after it
+        fields = ("tag", "next_due_date", "last_calibrated", "last_in_tolerance", "drift_status", "calibrate",
+                  "principle", "fluid", "area", "site", "status")
         attrs = {"class": "grid"}
 
     def render_last_in_tolerance(self, value):

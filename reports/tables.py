@@ -75,6 +75,11 @@ class RiskTable(MeterColumns):
                              attrs={"td": {"class": "nowrap"}})
     recommendation = tables.Column(empty_values=(), verbose_name="Recommendation", orderable=False)
 
+    class Meta(MeterColumns.Meta):
+        # what to do and the interval meanwhile come first, within an 820 px tablet's view; the long prose last
+        sequence = ("tag", "severity", "interval", "recommendation", "codes", "principle", "fluid", "area", "site",
+                    "reasons")
+
     @staticmethod
     def _findings(record):
         # only the rows shown (a page, or the export) are judged again in full, for their codes and reasons

@@ -192,7 +192,7 @@ def test_register_shows_due_last_verdict_drift_and_calibrate(client, small_regis
     assert rows["FT-BAD"][:5] == ["FT-BAD", "2027-01-15", "2026-11-01", "out of tolerance",
                                   "last found out of tolerance"]
     assert rows["FT-NEVER"][:5] == ["FT-NEVER", "now (never calibrated)", "—", "—", "—"]
-    assert rows["FT-GOOD"][-1] == "Calibrate"
+    assert rows["FT-GOOD"][5] == "Calibrate"
     assert 'href="/meters/FT-BAD/calibrate/"' in body
 
 
@@ -227,3 +227,14 @@ def test_register_query_count_does_not_grow_with_fleet(client, small_register):
         body = client.get("/meters/", {"sort": "next_due_date"}).content.decode()
     assert "63 meters" in body
     assert len(large.captured_queries) == len(small.captured_queries)
+
+
+def test_overdue_due_dates_stand_out(client, small_register):
+    # Due yesterday at the site is overdue, due tomorrow is not, never calibrated is due now. (The clock is not
+    # moved: the login session would expire with it.)
+    today = Site.objects.get().today()
+    Meter.objects.filter(tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
+    Meter.objects.filter(tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
+    body = client.get("/meters/").content.decode()
+    marked = re.findall(r'<td class="nowrap overdue"[^>]*>\s*([^<]*?)\s*</td>', body)
+    assert sorted(marked) == [(today - dt.timedelta(days=1)).isoformat(), "now (never calibrated)"]
