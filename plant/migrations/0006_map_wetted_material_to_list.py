@@ -6,6 +6,9 @@ material; anything else ("PTFE liner, 316 electrodes", "see datasheet") becomes 
 treat as not chloride resistant (the safe side). Whenever the stored code is not exactly what was written, the text
 as written is kept in the new "material details" field, so nothing recorded is lost. "Hastelloy C" is read as
 alloy C-276 (its successor grade): the text kept in the details lets a reviewer correct that.
+
+The stored risk severity of each meter follows the new rules after the next `manage.py recompute_due_dates` (or a
+save of the meter or its fluid).
 """
 import re
 
