@@ -55,8 +55,6 @@ class EventForm(forms.ModelForm):
         condition.error_messages["required"] = ("Describe the meter's condition as received (e.g. installed, in "
                                                 "service, no visible damage).")
         if meter is not None:
-            from django.utils import timezone
-
             # accepted: any suitable standard, so one expired on the date of calibration gets its own message;
             # listed: those in date today, and whatever was ticked
             field = self.fields["reference_standards"]
@@ -64,7 +62,7 @@ class EventForm(forms.ModelForm):
             key = self.add_prefix("reference_standards")
             sent = (self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound else []
             ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
-            today = timezone.localdate()
+            today = meter.area.site.today()  # the date at the meter's site
             field.widget.choices = [(value, label) for value, label in field.choices
                                     if value.instance.due_date >= today or str(value) in ticked]
 
@@ -240,12 +238,11 @@ class CalibrationEntry:
 
     def __init__(self, meter, data=None, user=None):
         from django.conf import settings
-        from django.utils import timezone
 
         self.meter = meter
         self.user = user
         bound = data is not None
-        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": timezone.localdate()}
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.area.site.today()}  # the date at the meter's site
         self.low_tur_policy = settings.CALIBRATION.get("low_tur_policy", "require_guarded")
         self.event_form = (EventForm(data, prefix="ev", meter=meter) if bound
                            else EventForm(prefix="ev", initial=initial, meter=meter))

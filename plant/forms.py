@@ -2,7 +2,7 @@ from django import forms
 from django.core.exceptions import ValidationError
 from django.db import models
 
-from plant.models import Fluid, Meter
+from plant.models import UNKNOWN_MATERIAL, Fluid, Meter
 
 YES_WORDS = frozenset({"on", "yes", "y", "true", "t", "1"})
 NO_WORDS = frozenset({"off", "no", "n", "false", "f", "0", ""})
@@ -64,3 +64,4 @@ class MeterForm(forms.ModelForm):
     class Meta:
         model = Meter
         fields = "__all__"
+        error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL}}

@@ -11,7 +11,9 @@ Rules for cells:
 * A column that is left out entirely keeps the current value (the default for a new row), except the required
   columns, which must be present.
 * Booleans accept yes/no, true/false, y/n, 1/0 and blank (= no).
-* Choice columns accept the stored value or the label, case-insensitively.
+* Choice columns accept the stored value or the label, case-insensitively. The wetted material is one of the fixed
+  list (plant/materials.py) or blank; anything else is refused at its cell (liner, grade and other words go in
+  material_details).
 * Meters name their site, area and fluid. A missing site or area is created (the plan says so); a missing fluid
   is an error — import fluids first.
 """
@@ -38,7 +40,7 @@ FLUID_COLUMNS = [
 ]
 METER_COLUMNS = [
     "tag", "principle", "site", "area", "fluid", "line_size", "internal_diameter_mm", "range_min", "range_max",
-    "flow_units", "normal_flow", "min_flow", "wetted_material", "serial", "maker", "model", "mpe_value",
+    "flow_units", "normal_flow", "min_flow", "wetted_material", "material_details", "serial", "maker", "model", "mpe_value",
     "mpe_basis", "base_interval_days", "status",
 ]
 REQUIRED_COLUMNS = {

@@ -7,7 +7,12 @@ from django.db import models, transaction
 from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
-from plant import risk
+from plant import localtime, materials, risk
+
+UNKNOWN_MATERIAL = (
+    '"%(value)s" is not on the list of wetted materials; choose one of the list (its code or name), '
+    "or leave it blank and describe it under material details."
+)
 
 # A sanity bound, not a policy: the policy bounds of computed intervals are CALIBRATION min/max_interval_days.
 MAX_BASE_INTERVAL_DAYS = 3650
@@ -39,9 +44,30 @@ def unstorable_value_errors(instance) -> dict:
 class Site(models.Model):
     name = models.CharField(max_length=120, unique=True)
     address = models.TextField(blank=True)
+    time_zone = models.CharField(
+        max_length=60, blank=True, validators=[localtime.validate_time_zone],
+        help_text="IANA time zone name, e.g. Europe/London; blank means the plant's TIME_ZONE setting. "
+                  "Today's date, due dates and date defaults for this site are taken here.",
+    )
 
     def __str__(self):
         return self.name
+
+    def clean(self):
+        errors = unstorable_value_errors(self)
+        if errors:
+            raise ValidationError(errors)
+
+    def save(self, *args, **kwargs):
+        self.full_clean()  # a time zone that is not one is refused on every path
+        super().save(*args, **kwargs)
+
+    def zone_name(self) -> str:
+        return localtime.zone_name(self.time_zone)
+
+    def today(self):
+        """Today's date at this site (its own time zone, else the plant's)."""
+        return localtime.today(self.time_zone)
 
 
 class Area(models.Model):
@@ -183,7 +209,16 @@ class Meter(models.Model):
     flow_units = models.CharField(max_length=20, default="m³/h")
     normal_flow = models.FloatField("normal process flow", null=True, blank=True)
     min_flow = models.FloatField("minimum process flow", null=True, blank=True)
-    wetted_material = models.CharField("wetted / electrode material", max_length=60, blank=True)
+    wetted_material = models.CharField(
+        "wetted / electrode material", max_length=60, blank=True, choices=materials.CHOICES,
+        error_messages={"invalid_choice": UNKNOWN_MATERIAL},
+        help_text="For a magnetic meter, the electrode material; otherwise the measuring element's. "
+                  "Blank when not recorded.",
+    )
+    material_details = models.CharField(
+        "material details", max_length=120, blank=True,
+        help_text="Liner, grade or anything the list does not say, e.g. PTFE liner.",
+    )
     serial = models.CharField(max_length=60, blank=True)
     maker = models.CharField(max_length=80, blank=True)
     model = models.CharField(max_length=80, blank=True)
@@ -264,9 +299,7 @@ class Meter(models.Model):
                 self._record_duty_change()
 
     def _record_duty_change(self):
-        from django.utils import timezone
-
-        today = timezone.localdate()
+        today = self.area.site.today()
         self.duties.filter(until__isnull=True).update(until=today)
         DutyPeriod.objects.create(meter=self, area_id=self.area_id, fluid_id=self.fluid_id, since=today)
 

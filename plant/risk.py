@@ -18,24 +18,37 @@ inspection interval; the smallest factor of all findings wins):
 * ``medium``     0.75
 * ``low``        0.9, or 1.0 for purely informational notes.
 
-Chloride-resistant wetted materials
------------------------------------
-``wetted_material`` is free text. If it contains (case-insensitive
-substring) "hastelloy", "titanium", "tantalum" or "platinum", chloride
-attack is treated as *mitigated*: instead of the medium/high finding we
-emit a ``low`` note with factor 1.0 (code suffix ``_MITIGATED``) so the
-technician still sees that chlorides were considered and the material is
-what makes the installation acceptable. Rationale (common practice):
-these alloys/metals are the usual choices for brine service, but the
-material record may be wrong, so keeping a visible note is cheap.
-Plain substring matching means "Hastelloy C-276" and "titanium Gr2" match;
-"316L", "PTFE" etc. do not.
+Wetted materials
+----------------
+``wetted_material`` is a code from the fixed list in :mod:`plant.materials` (blank when not recorded; an
+unknown code is treated as not recorded). A chloride finding on a material of that list marked
+``chloride_resistant`` becomes a ``low`` note with factor 1.0 (code suffix ``_MITIGATED``), so the technician
+still sees that chlorides were considered and that the material is what makes the installation acceptable
+(common practice: the material record may be wrong, so a visible note is cheap). For a magnetic meter the
+material is that of the electrodes; a non-metal (a liner material) there says nothing about the electrodes, so
+the chloride finding stands.
+
+Rules that read the whole duty (each marked with its basis where it is applied):
+
+* chlorides on austenitic stainless above about 60 °C: stress-corrosion cracking (common practice);
+  with chlorides on austenitic stainless and no temperature recorded, a note asks for it;
+* a magnetic meter on a liquid with no conductivity recorded: a finding asks for it (common practice);
+* entrained gas in a liquid for magnetic, Coriolis and vortex meters (common practice);
+* sticky fluids for pitot ports, DP impulse lines (orifice, venturi), turbines, PD meters, magnetic electrodes,
+  vortex bluff bodies and thermal sensors (common practice).
+
+Plain words
+-----------
+Every code has a short title in plain words (:data:`TITLES`, :attr:`Finding.title`) for the pages; exports keep
+the codes. A ``misapplied`` finding carries the recommendation :data:`NOT_FIT` (:func:`recommendation`).
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+
+from plant import materials
 
 PRINCIPLES = (
     "electromagnetic",
@@ -73,7 +86,11 @@ EM_MIN_CONDUCTIVITY_US_CM = 5.0
 # conservative end, 20,000, for reliable linear vortex shedding measurement.
 VORTEX_MIN_RE = 20_000.0
 
-CHLORIDE_RESISTANT_MATERIALS = ("hastelloy", "titanium", "tantalum", "platinum")
+# Common practice: chloride stress-corrosion cracking of austenitic stainless steel is a risk above about 60 °C.
+CHLORIDE_SCC_MIN_TEMPERATURE_C = 60.0
+
+# The recommendation for a principle that should not be used on the fluid at all (issue: misapplied meters).
+NOT_FIT = "Not fit for this duty: replace or re-engineer"
 
 
 @dataclass(frozen=True)
@@ -97,6 +114,15 @@ class Finding:
     severity: str  # "misapplied" | "high" | "medium" | "low"
     reason: str  # plain-language reason shown to a technician
     interval_factor: float  # <1 shortens interval; misapplied uses ~0.25
+
+    @property
+    def title(self) -> str:
+        """The finding in plain words, for pages (exports keep the code)."""
+        return TITLES.get(self.code) or self.code.replace("_", " ").capitalize()
+
+    @property
+    def severity_words(self) -> str:
+        return SEVERITY_WORDS.get(self.severity, self.severity)
 
 
 def reynolds_number(density_kg_m3, viscosity_mpa_s, flow_m3_h, diameter_mm) -> float:
@@ -144,24 +170,66 @@ def interval_factor(findings) -> float:
     return min(factors) if factors else 1.0
 
 
-def _chloride_resistant(wetted_material: str | None) -> bool:
-    m = (wetted_material or "").lower()
-    return any(name in m for name in CHLORIDE_RESISTANT_MATERIALS)
+def _chloride_resistant(wetted_material: str | None, electrode: bool = False) -> bool:
+    """Whether the recorded material is on the list as chloride resistant (for electrodes: and is a metal)."""
+    material = materials.lookup(wetted_material)
+    if material is None or (electrode and not material.metal):
+        return False
+    return material.chloride_resistant
+
+
+def _material_words(wetted_material: str | None) -> str:
+    material = materials.lookup(wetted_material)
+    return material.label if material else "not recorded"
 
 
 def _chloride_finding(prefix: str, part: str, severity: str, factor: float,
                       reason: str, wetted_material: str) -> Finding:
-    """Chloride finding, downgraded to a low note for resistant materials."""
-    if _chloride_resistant(wetted_material):
+    """Chloride finding, downgraded to a low note for a chloride-resistant material (common practice)."""
+    if _chloride_resistant(wetted_material, electrode=(part == "electrode")):
         return Finding(
             f"{prefix}_CHLORIDES_MITIGATED",
             "low",
-            f"Chlorides present, but the {part} material ({wetted_material}) "
+            f"Chlorides present, but the {part} material ({_material_words(wetted_material)}) "
             "is normally resistant to chloride attack. Check the material "
             "record is correct.",
             FACTOR_NOTE,
         )
     return Finding(f"{prefix}_CHLORIDES", severity, reason, factor)
+
+
+def _chloride_cracking(prefix: str, mat: str, fl: FluidProps, severity: str = "high") -> list[Finding]:
+    """Chloride stress-corrosion cracking of austenitic stainless above about 60 °C (common practice).
+
+    Only for a material recorded as austenitic stainless in chloride service. Above
+    CHLORIDE_SCC_MIN_TEMPERATURE_C: a finding of ``severity``; temperature not recorded: a note asking for it.
+    """
+    material = materials.lookup(mat)
+    if not fl.chlorides or material is None or not material.austenitic:
+        return []
+    if fl.temperature_c is None:
+        return [Finding(
+            f"{prefix}_CHLORIDE_TEMPERATURE_UNKNOWN", "low",
+            f"Chlorides on {material.label} and no process temperature recorded; above about "
+            f"{CHLORIDE_SCC_MIN_TEMPERATURE_C:g} °C chlorides crack austenitic stainless steel. Record the "
+            "fluid temperature.",
+            FACTOR_NOTE)]
+    if fl.temperature_c > CHLORIDE_SCC_MIN_TEMPERATURE_C:
+        factor = FACTOR_MISAPPLIED if severity == "misapplied" else FACTOR_HIGH
+        return [Finding(
+            f"{prefix}_CHLORIDE_CRACKING", severity,
+            f"Chlorides at {fl.temperature_c:g} °C, above about {CHLORIDE_SCC_MIN_TEMPERATURE_C:g} °C, cause "
+            f"stress-corrosion cracking of {material.label}; cracks grow without warning and can breach the "
+            "pressure boundary. Use a chloride-resistant material.",
+            factor)]
+    return []
+
+
+def _entrained_gas(prefix: str, fl: FluidProps, severity: str, factor: float, reason: str) -> list[Finding]:
+    """Gas bubbles carried in a liquid (common practice); not a question for a gas or steam duty."""
+    if fl.entrained_gas and fl.phase in ("liquid", "slurry"):
+        return [Finding(f"{prefix}_ENTRAINED_GAS", severity, reason, factor)]
+    return []
 
 
 # --------------------------------------------------------------------------
@@ -188,12 +256,27 @@ def _electromagnetic(mat, fl, **_):
             "magnetic flow meter; the reading will be noisy or wrong "
             "(typical for demineralised water, condensate, hydrocarbons).",
             FACTOR_MISAPPLIED))
+    # Common practice: without a recorded conductivity the minimum above cannot be checked, so ask for it.
+    elif fl.conductivity_us_cm is None:
+        out.append(Finding(
+            "EM_CONDUCTIVITY_UNKNOWN", "low",
+            "No conductivity is recorded for this liquid, so it cannot be checked against the usual minimum "
+            f"of about {EM_MIN_CONDUCTIVITY_US_CM:g} µS/cm for a magnetic flow meter. Measure it and record "
+            "it on the fluid.",
+            FACTOR_LOW))
     # Common practice: chloride pitting of stainless (316L) electrodes.
     if fl.chlorides:
         out.append(_chloride_finding(
             "EM", "electrode", "high", FACTOR_HIGH,
             "Brine (chlorides) pits stainless electrodes; the zero and span "
             "drift as the electrode surface changes.", mat))
+    out += _chloride_cracking("EM", mat, fl)
+    # Common practice: a magmeter measures the velocity of whatever fills the pipe; bubbles count as liquid
+    # and, where they touch an electrode, break the signal.
+    out += _entrained_gas(
+        "EM", fl, "medium", FACTOR_MEDIUM,
+        "Gas bubbles in the liquid are counted as liquid (the meter reads high by about the gas fraction), "
+        "and bubbles passing the electrodes make the signal noisy.")
     # Common practice: coating insulates electrodes.
     if fl.sticky:
         out.append(Finding(
@@ -215,6 +298,14 @@ def _coriolis(mat, fl, **_):
             "Chlorides cause stress corrosion cracking in thin stainless "
             "measuring tubes; wall thinning shifts density and flow "
             "calibration and a cracked tube can leak.", mat))
+    # Common practice: thin measuring tubes under constant vibration crack first; above about 60 °C
+    # austenitic stainless tubes are the wrong choice for chloride service.
+    out += _chloride_cracking("CORIOLIS", mat, fl, severity="misapplied")
+    # Common practice: bubbles decouple from the liquid in the vibrating tubes.
+    out += _entrained_gas(
+        "CORIOLIS", fl, "high", FACTOR_HIGH,
+        "Gas bubbles move relative to the liquid in the vibrating tubes: the tubes are damped, the drive "
+        "gain rises and both mass flow and density read wrong, at times grossly. Watch the drive gain.")
     # Common practice: abrasive solids erode tubes, especially at bends.
     if fl.solids or fl.phase == "slurry":
         out.append(Finding(
@@ -244,6 +335,14 @@ def _turbine(mat, fl, **_):
             "Solids in the fluid wear the turbine bearings and rotor blades; "
             "the meter slows down and reads low, then can seize.",
             FACTOR_HIGH))
+    # Common practice: deposits on the rotor and bearings add drag and change the blade profile.
+    if fl.sticky:
+        out.append(Finding(
+            "TURBINE_STICKY", "medium",
+            "Sticky fluid coats the rotor and bearings; the drag slows the rotor and the deposits change the "
+            "blade profile, so the meter factor shifts and the meter reads low. Plan cleaning.",
+            FACTOR_MEDIUM))
+    out += _chloride_cracking("TURBINE", mat, fl)
     return out
 
 
@@ -263,11 +362,13 @@ def _positive_displacement(mat, fl, **_):
             "Solids wear or jam the close clearances of a positive "
             "displacement meter.",
             FACTOR_HIGH))
+    out += _chloride_cracking("PD", mat, fl)
     return out
 
 
 def _impulse_line_blocking(prefix, fl):
-    # Common practice: small-bore impulse lines block with scale/slime/solids.
+    # Common practice: small-bore impulse lines block with scale/slime/solids, and sticky fluid sets or
+    # coats in them as it does in pitot ports.
     causes = []
     if fl.scaling:
         causes.append("scale")
@@ -275,6 +376,8 @@ def _impulse_line_blocking(prefix, fl):
         causes.append("slime")
     if fl.solids or fl.phase == "slurry":
         causes.append("solids")
+    if fl.sticky:
+        causes.append("sticky deposits")
     if not causes:
         return []
     return [Finding(
@@ -295,11 +398,12 @@ def _orifice(mat, fl, **_):
             "Solids wear the sharp edge of the orifice plate; a rounded edge "
             "makes the meter read low. Inspect the plate edge.",
             FACTOR_HIGH))
+    out += _chloride_cracking("ORIFICE", mat, fl)
     return out
 
 
 def _venturi(mat, fl, **_):
-    return _impulse_line_blocking("VENTURI", fl)
+    return _impulse_line_blocking("VENTURI", fl) + _chloride_cracking("VENTURI", mat, fl)
 
 
 def _pitot_ports(prefix, fl):
@@ -324,11 +428,11 @@ def _pitot_ports(prefix, fl):
 
 
 def _pitot(mat, fl, **_):
-    return _pitot_ports("PITOT", fl)
+    return _pitot_ports("PITOT", fl) + _chloride_cracking("PITOT", mat, fl)
 
 
 def _averaging_pitot(mat, fl, **_):
-    return _pitot_ports("AVG_PITOT", fl)
+    return _pitot_ports("AVG_PITOT", fl) + _chloride_cracking("AVG_PITOT", mat, fl)
 
 
 def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
@@ -369,6 +473,12 @@ def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
             "Sticky deposits build up on the bluff body and change its shape; "
             "the meter factor shifts.",
             FACTOR_MEDIUM))
+    # Common practice: bubbles in a liquid damp the vortices and disturb the shedding.
+    out += _entrained_gas(
+        "VORTEX", fl, "medium", FACTOR_MEDIUM,
+        "Gas bubbles in the liquid damp the vortices and disturb the shedding frequency; the meter reads "
+        "wrong or drops out.")
+    out += _chloride_cracking("VORTEX", mat, fl)
     return out
 
 
@@ -405,6 +515,7 @@ def _thermal_mass(mat, fl, **_):
             "THERMAL", "sensor", "medium", FACTOR_MEDIUM,
             "Chlorides or other corrosive gas corrode the thin sensor sheath; "
             "the heat transfer changes and the reading drifts.", mat))
+    out += _chloride_cracking("THERMAL", mat, fl)
     return out
 
 
@@ -426,6 +537,7 @@ def _ultrasonic_transit(mat, fl, **_):
                 "loses signal or reads wrong. Watch signal strength "
                 "diagnostics.",
                 FACTOR_HIGH))
+    out += _chloride_cracking("USONIC", mat, fl)
     return out
 
 
@@ -486,3 +598,62 @@ def assess(principle: str, wetted_material: str, fluid: FluidProps,
         min_flow_m3_h=min_flow_m3_h,
         diameter_mm=diameter_mm,
     )
+
+
+# --------------------------------------------------------------------------
+# Plain words
+# --------------------------------------------------------------------------
+
+_PARTS = {  # code prefix -> the part the chloride findings are about, in plain words
+    "EM": "electrodes", "CORIOLIS": "measuring tubes", "TURBINE": "rotor and body", "PD": "measuring chamber",
+    "ORIFICE": "plate", "VENTURI": "throat", "PITOT": "probe", "AVG_PITOT": "probe", "VORTEX": "bluff body",
+    "THERMAL": "sensor sheath", "USONIC": "meter body",
+}
+
+TITLES = {
+    "EM_NOT_LIQUID": "Magnetic meter on a gas or steam",
+    "EM_LOW_CONDUCTIVITY": "Liquid too poorly conductive for a magnetic meter",
+    "EM_CONDUCTIVITY_UNKNOWN": "Conductivity not recorded: measure it",
+    "EM_ENTRAINED_GAS": "Gas bubbles in the liquid",
+    "EM_ELECTRODE_COATING": "Coating on the electrodes",
+    "CORIOLIS_EROSION": "Solids wear the measuring tubes",
+    "CORIOLIS_ENTRAINED_GAS": "Gas bubbles in the vibrating tubes",
+    "TURBINE_MOVING_PARTS": "Moving parts wear",
+    "TURBINE_SOLIDS_WEAR": "Solids wear bearings and rotor",
+    "TURBINE_STICKY": "Sticky deposits on rotor and bearings",
+    "PD_MOVING_PARTS": "Moving parts wear",
+    "PD_STICKY": "Sticky fluid in close clearances",
+    "PD_SOLIDS_WEAR": "Solids wear or jam the clearances",
+    "ORIFICE_IMPULSE_LINE_BLOCKING": "Impulse lines can block",
+    "ORIFICE_EDGE_WEAR": "Solids round the plate edge",
+    "VENTURI_IMPULSE_LINE_BLOCKING": "Impulse lines can block",
+    "PITOT_PORT_BLOCKING": "Sensing ports can block",
+    "AVG_PITOT_PORT_BLOCKING": "Sensing ports can block",
+    "VORTEX_RE_UNKNOWN": "Reynolds number cannot be checked",
+    "VORTEX_LOW_RE": "Flow too slow or viscous for vortex shedding",
+    "VORTEX_SLURRY": "Solids erode the bluff body",
+    "VORTEX_COATING": "Deposits on the bluff body",
+    "VORTEX_ENTRAINED_GAS": "Gas bubbles disturb the vortices",
+    "THERMAL_NOT_GAS": "Thermal mass meter on a liquid",
+    "THERMAL_SENSOR_COATING": "Coating on the heated sensor",
+    "USONIC_SIGNAL_LOSS": "Solids or bubbles block the sound",
+    "CLAMPON_CORROSIVE_OK": "Corrosive fluid, nothing wetted",
+    "CLAMPON_SIGNAL_LOSS": "Solids or bubbles block the sound",
+}
+for _prefix, _part in _PARTS.items():
+    TITLES.setdefault(f"{_prefix}_CHLORIDES", f"Chlorides attack the {_part}")
+    TITLES.setdefault(f"{_prefix}_CHLORIDES_MITIGATED", f"Chlorides, but the {_part} material resists them")
+    TITLES.setdefault(f"{_prefix}_CHLORIDE_CRACKING", f"Hot chlorides crack stainless {_part}")
+    TITLES.setdefault(f"{_prefix}_CHLORIDE_TEMPERATURE_UNKNOWN", "Chlorides on stainless: record the temperature")
+
+SEVERITY_WORDS = {
+    "misapplied": "not fit for this duty",
+    "high": "high risk",
+    "medium": "medium risk",
+    "low": "note",
+}
+
+
+def recommendation(findings) -> str:
+    """NOT_FIT when any finding says the principle should not be used on this fluid, else ""."""
+    return NOT_FIT if any(f.severity == "misapplied" for f in findings) else ""

@@ -95,7 +95,8 @@ AXES_CLIENT_IP_CALLABLE = "plant.accounts.client_ip"
 # number of reverse proxies in front of the application that append to X-Forwarded-For (0: use REMOTE_ADDR)
 TRUSTED_PROXY_COUNT = int(os.environ.get("DJANGO_TRUSTED_PROXY_COUNT", "0"))
 LANGUAGE_CODE = "en-gb"
-TIME_ZONE = "UTC"
+# the plant's own time zone (IANA name): "today" and date defaults are taken there; a site may name its own
+TIME_ZONE = os.environ.get("QUENBY_TIME_ZONE", "UTC")
 USE_I18N = True
 USE_TZ = True
 

@@ -7,6 +7,7 @@ from django_tables2 import RequestConfig
 from calibration.trend import meter_drift_chart
 from plant.filters import MeterFilter
 from plant.forms import FluidForm, MeterForm
+from plant import risk
 from plant.models import Fluid, Meter
 from plant.tables import MeterTable
 
@@ -15,7 +16,8 @@ from plant.tables import MeterTable
 def meter_list(request):
     queryset = Meter.objects.select_related("area__site", "fluid")
     meter_filter = MeterFilter(request.GET, queryset=queryset)
-    table = MeterTable(meter_filter.qs)
+    can_calibrate = request.user.has_perm("calibration.add_calibrationevent")
+    table = MeterTable(meter_filter.qs, exclude=() if can_calibrate else ("calibrate",))
     RequestConfig(request, paginate={"per_page": 50}).configure(table)
     return render(request, "plant/meter_list.html", {"filter": meter_filter, "table": table})
 
@@ -31,6 +33,7 @@ def meter_detail(request, tag):
         "findings": findings,
         "factor": factor,
         "deciding": deciding,
+        "recommendation": risk.recommendation(findings),
         "duties": meter.duties.select_related("area__site", "fluid"),
         "due": meter.due_rationale or {},
         "drift_chart": meter_drift_chart(meter),

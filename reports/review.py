@@ -7,11 +7,14 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass
 
+from functools import reduce
+from operator import or_
+
 from django.db.models import Count, F, Q
-from django.utils import timezone
 
 from calibration.models import CalibrationEvent, ReferenceStandard
-from plant.models import Meter
+from plant import localtime
+from plant.models import Meter, Site
 
 SEVERE, HIGH = "misapplied", "high"
 
@@ -39,11 +42,44 @@ def in_service(filters: dict):
     return registered(filters).select_related("area__site", "fluid")
 
 
+def local_todays(filters: dict) -> dict:
+    """Today's date where the meters are: {date: site ids}, or {date: None} when every site in scope agrees.
+
+    One query (the sites' time zones). A site without a time zone uses the plant's TIME_ZONE setting.
+    """
+    sites = Site.objects.all()
+    if filters.get("site") not in (None, ""):
+        sites = sites.filter(pk=getattr(filters["site"], "pk", filters["site"]))
+    if filters.get("area") not in (None, ""):
+        sites = sites.filter(areas=filters["area"])
+    zones: dict[str, list] = {}
+    for pk, zone in sites.values_list("pk", "time_zone"):
+        zones.setdefault(localtime.zone_name(zone), []).append(pk)
+    by_date: dict[dt.date, list] = {}
+    for zone, pks in zones.items():
+        by_date.setdefault(localtime.today(zone), []).extend(pks)
+    if len(by_date) <= 1:
+        return {next(iter(by_date), None) or localtime.today(): None}
+    return by_date
+
+
+def _per_site(todays, condition):
+    """condition(today) for each group of sites sharing today's date, OR-ed (one group: no site condition)."""
+    if isinstance(todays, dt.date):
+        todays = {todays: None}
+    parts = [condition(day) if pks is None else Q(area__site__in=pks) & condition(day)
+             for day, pks in todays.items()]
+    return reduce(or_, parts)
+
+
 def meter_conditions(today, days):
-    """The meter lists of the review, each as a condition on the fields stored on the meter."""
+    """The meter lists of the review, each as a condition on the fields stored on the meter.
+
+    ``today`` is a date, or {date: site ids} from :func:`local_todays` when the sites' dates differ.
+    """
     return {
-        "overdue": Q(next_due_date__lt=today) | Q(next_due_date__isnull=True),
-        "due": Q(next_due_date__gte=today, next_due_date__lte=today + dt.timedelta(days=days)),
+        "overdue": _per_site(today, lambda d: Q(next_due_date__lt=d)) | Q(next_due_date__isnull=True),
+        "due": _per_site(today, lambda d: Q(next_due_date__gte=d, next_due_date__lte=d + dt.timedelta(days=days))),
         # predicted to leave tolerance before it is next due, or drifting significantly
         "drifting": (Q(predicted_crossing__isnull=False, next_due_date__isnull=False,
                        predicted_crossing__lt=F("next_due_date")) | Q(drift_status=Meter.DriftStatus.DRIFTING)),
@@ -67,11 +103,11 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     """The review's buckets with their counts: the meter lists are counted together in one query."""
     from reports import tables
 
-    today = today or timezone.localdate()
+    todays = {today: None} if today else local_todays(filters)
     meters = in_service(filters)
-    conditions = meter_conditions(today, days)
+    conditions = meter_conditions(todays, days)
     counts = registered(filters).aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
-    standards = standards_expiring(today, days)
+    standards = standards_expiring(today or localtime.today(), days)  # the plant's date: standards serve all sites
     drafts = unsigned_drafts(filters)
     titles = {
         "overdue": ("Overdue", tables.OverdueTable),

@@ -1,5 +1,6 @@
 import django_tables2 as tables
-from django.utils import timezone
+
+from plant import risk
 
 
 class IsoDateColumn(tables.DateColumn):
@@ -39,7 +40,7 @@ class OverdueTable(MeterColumns):
     def render_days_overdue(self, record):
         if record.next_due_date is None:
             return "—"
-        return (timezone.localdate() - record.next_due_date).days
+        return (record.area.site.today() - record.next_due_date).days  # the meter's own site's date
 
     def value_days_overdue(self, record):
         return self.render_days_overdue(record)
@@ -65,26 +66,62 @@ class FailedTable(MeterColumns):
 
 
 class RiskTable(MeterColumns):
+    """Misapplied meters and high-risk duties: findings in plain words on the page, their codes in the export."""
+
     severity = tables.Column(accessor="risk_severity", verbose_name="Severity")
     codes = tables.Column(empty_values=(), verbose_name="Findings", orderable=False)
     reasons = tables.Column(empty_values=(), verbose_name="Why", orderable=False, attrs={"td": {"class": "prose"}})
+    interval = tables.Column(empty_values=(), verbose_name="Risk interval", orderable=False,
+                             attrs={"td": {"class": "nowrap"}})
+    recommendation = tables.Column(empty_values=(), verbose_name="Recommendation", orderable=False)
+
+    class Meta(MeterColumns.Meta):
+        # what to do and the interval meanwhile come first, within an 820 px tablet's view; the long prose last
+        sequence = ("tag", "severity", "interval", "recommendation", "codes", "principle", "fluid", "area", "site",
+                    "reasons")
 
     @staticmethod
-    def _serious(record):
+    def _findings(record):
         # only the rows shown (a page, or the export) are judged again in full, for their codes and reasons
-        return [f for f in record.findings() if f.severity in ("misapplied", "high")]
+        cached = getattr(record, "_review_findings", None)
+        if cached is None:
+            cached = record._review_findings = record.findings()
+        return cached
+
+    def _serious(self, record):
+        return [f for f in self._findings(record) if f.severity in ("misapplied", "high")]
+
+    def render_severity(self, value):
+        return risk.SEVERITY_WORDS.get(value, value)
+
+    def value_severity(self, value):
+        return value
 
     def render_codes(self, record):
-        return ", ".join(f.code for f in self._serious(record))
+        return "; ".join(dict.fromkeys(f.title for f in self._serious(record)))
 
     def render_reasons(self, record):
         return " ".join(f.reason for f in self._serious(record))
 
     def value_codes(self, record):
-        return self.render_codes(record)
+        return ", ".join(f.code for f in self._serious(record))
 
     def value_reasons(self, record):
         return self.render_reasons(record)
+
+    def render_interval(self, record):
+        factor = risk.interval_factor(self._findings(record))
+        days = max(1, round(record.base_interval_days * factor))
+        return f"{days} d ({record.base_interval_days} d × {factor:g})"
+
+    def value_interval(self, record):
+        return self.render_interval(record)
+
+    def render_recommendation(self, record):
+        return risk.recommendation(self._findings(record)) or "—"
+
+    def value_recommendation(self, record):
+        return risk.recommendation(self._findings(record))
 
 
 class StandardTable(tables.Table):

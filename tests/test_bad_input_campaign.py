@@ -269,6 +269,23 @@ class Choice:
         return self.form(raw)
 
 
+class Material(Choice):
+    """The fixed list of wetted materials (issue 17 item 7): a code of the list, or blank for "not recorded"."""
+
+    def __init__(self):
+        self.pairs = [(str(value), str(label)) for value, label in Meter._meta.get_field("wetted_material").choices]
+
+    def form(self, raw):
+        if raw is None or raw == "":
+            return True, ""
+        return super().form(raw)
+
+    model = form
+
+    def imported(self, raw):
+        return (True, "") if raw == "" else super().imported(raw)
+
+
 class Num:
     def __init__(self, minimum=None, required=False, integer=False, maximum=None):
         self.minimum, self.required, self.integer, self.maximum = minimum, required, integer, maximum
@@ -348,7 +365,8 @@ def meter_spec(base):
         "fluid": ForeignKey(f.pk for f in base["fluids"].values()),
         "line_size": Text(20, required=True), "internal_diameter_mm": Num(0.1, required=True),
         "range_min": Num(required=True), "range_max": Num(required=True), "flow_units": Text(20, required=True),
-        "normal_flow": Num(), "min_flow": Num(), "wetted_material": Text(60), "serial": Text(60),
+        "normal_flow": Num(), "min_flow": Num(), "wetted_material": Material(),
+        "material_details": Text(120), "serial": Text(60),
         "maker": Text(80), "model": Text(80), "mpe_value": Num(1e-9, required=True),
         "mpe_basis": Choice(Meter.MpeBasis),
         "base_interval_days": Num(1, required=True, integer=True, maximum=MAX_BASE_INTERVAL_DAYS),
@@ -518,7 +536,8 @@ def good_meter_data(draw, base):
         "internal_diameter_mm": draw(number_text(0.1, 3000)),
         "range_min": low, "range_max": high, "normal_flow": normal, "min_flow": minimum,
         "flow_units": draw(st.sampled_from(["m³/h", "l/s", "kg/h", "t/h", "L/min", "Nm³/h"])),
-        "wetted_material": draw(st.sampled_from(["", "316L", "Hastelloy C-276", "PTFE liner", "titanium Gr2"])),
+        "wetted_material": draw(st.sampled_from(["", "316L", "alloy C-276", "PTFE", "titanium"])),
+        "material_details": draw(st.sampled_from(["", "PTFE liner", "grade 2"])),
         "serial": draw(st.text(max_size=12)), "maker": draw(st.text(max_size=12)), "model": draw(st.text(max_size=12)),
         "mpe_value": draw(number_text(0.01, 5)),
         "mpe_basis": draw(st.sampled_from([v for v, _ in Meter.MpeBasis.choices])),
@@ -539,7 +558,9 @@ METER_JUNK = {
     "normal_flow": number_or_junk(-1e6, 1e7, "-5"),
     "min_flow": number_or_junk(-1e6, 1e7, "-0.1"),
     "flow_units": st.sampled_from(["", "   ", "z" * 21, "m3/h\x00"]),
-    "wetted_material": st.sampled_from(["x" * 61, "316\x00L"]),
+    "wetted_material": st.sampled_from(["x" * 61, "316\x00L", "Hastelloy C-276", "titanium Gr2", "316 L",
+                                        "Stainless steel 316L", "not titanium: 316L"]),
+    "material_details": st.sampled_from(["x" * 121, "PTFE\x00"]),
     "serial": st.sampled_from(["x" * 61, "SN\x00"]),
     "maker": st.sampled_from(["w" * 81]),
     "model": st.sampled_from(["w" * 81, "\x00"]),

@@ -28,7 +28,8 @@ def register():
     base = dict(principle="electromagnetic", area=hall, fluid=water, line_size="DN50", internal_diameter_mm=52.5,
                 range_min=0, range_max=40, normal_flow=20, min_flow=5, wetted_material="316L", mpe_value=0.5)
     Meter.objects.create(tag="FT-100", serial="SN1", **base)
-    Meter.objects.create(tag="FT-101", serial="SN2", **base)
+    Meter.objects.create(tag="FT-101", serial="SN2", **{**base, "wetted_material": "alloy C-276",
+                                                         "material_details": "PTFE liner"})
     return {"site": site, "hall": hall, "water": water}
 
 
@@ -39,8 +40,8 @@ def meter_line(tag, **overrides):
     values = {
         "tag": tag, "principle": "electromagnetic", "site": "North", "area": "Hall A", "fluid": "Water",
         "line_size": "DN50", "internal_diameter_mm": "52.5", "range_min": "0", "range_max": "40",
-        "flow_units": "m³/h", "normal_flow": "20", "min_flow": "5", "wetted_material": "316L", "serial": "",
-        "maker": "", "model": "", "mpe_value": "0.5", "mpe_basis": "pct_reading", "base_interval_days": "365",
+        "flow_units": "m³/h", "normal_flow": "20", "min_flow": "5", "wetted_material": "316L", "material_details": "",
+        "serial": "", "maker": "", "model": "", "mpe_value": "0.5", "mpe_basis": "pct_reading", "base_interval_days": "365",
         "status": "in_service",
     }
     values.update(overrides)
@@ -59,7 +60,8 @@ def counts():
 def good_file():
     return csv_bytes(
         meter_line("FT-100", serial="SN1"),  # unchanged
-        meter_line("FT-101", serial="SN2", range_max="60", fluid="Brine"),  # update
+        meter_line("FT-101", serial="SN2", range_max="60", fluid="Brine", wetted_material="alloy C-276",
+                   material_details="PTFE liner"),  # update
         meter_line("FT-200", site="South", area="Pump house"),  # create, with a new site and area
         meter_line("FT-201", principle="Coriolis", wetted_material="", min_flow=""),  # label accepted for choice
     )
@@ -263,3 +265,31 @@ def test_view_rejects_unknown_file_type(logged_in_client):
                                                                "file": upload(b"x", name="register.pdf")})
     assert response.status_code == 400
     assert "Unsupported file type (.pdf)" in response.content.decode()
+
+
+# The fixed list of wetted materials (issue 17 item 7) ----------------------------------------------------------------
+def test_wetted_material_not_on_the_list_is_refused_at_its_cell(register):
+    before = counts()
+    plan = plan_for(csv_bytes(
+        meter_line("FT-300", wetted_material="not titanium: 316L"),
+        meter_line("FT-301", wetted_material="Hastelloy C-276"),
+        meter_line("FT-302", wetted_material="Nickel alloy C-276 (Ni-Cr-Mo)"),  # the label, as for any choice
+        meter_line("FT-303", wetted_material="TITANIUM", material_details="grade 2"),  # the code, any case
+    ))
+    errors = {(e.row_number, e.column): e.message for e in plan.errors}
+    assert set(errors) == {(2, "wetted_material"), (3, "wetted_material")}
+    assert errors[(2, "wetted_material")].startswith('"not titanium: 316L" is not on the list of wetted materials')
+    assert "material details" in errors[(3, "wetted_material")]
+    assert importer.apply_import(plan).applied is False
+    assert counts() == before  # nothing half-saved
+
+
+def test_wetted_material_label_and_code_import_as_the_code(register):
+    plan = importer.apply_import(plan_for(csv_bytes(
+        meter_line("FT-302", wetted_material="Nickel alloy C-276 (Ni-Cr-Mo)"),
+        meter_line("FT-303", wetted_material="TITANIUM", material_details="grade 2"),
+    )))
+    assert plan.applied, plan.errors
+    assert Meter.objects.get(tag="FT-302").wetted_material == "alloy C-276"
+    assert (Meter.objects.get(tag="FT-303").wetted_material, Meter.objects.get(tag="FT-303").material_details) == (
+        "titanium", "grade 2")

@@ -1,10 +1,17 @@
 """The register: validation at the field, nothing half-saved, duty history, and pages on the demo plant."""
+import datetime as dt
+import re
+
 import pytest
 from django.core.exceptions import ValidationError
+from django.test import Client
+from django.test.utils import CaptureQueriesContext
+from django.db import connection
 
 from calibration.intervals import whole_days
 from plant.forms import FluidForm, MeterForm
 from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+from tests.conftest import user_with_role
 
 pytestmark = pytest.mark.django_db
 
@@ -111,10 +118,125 @@ def test_every_meter_page_renders(client, demo_plant):
 
 
 def test_misapplied_meter_page_says_why(client, demo_plant):
-    body = client.get("/meters/FT-401/").content.decode()  # EM meter on vegetable oil
-    assert "misapplied" in body
+    body = client.get("/meters/FT-401/").content.decode()  # EM meter on vegetable oil (0.0001 µS/cm)
+    # Common practice (plant/risk.py): below ~5 µS/cm a magmeter cannot work: not fit, factor 0.25, and the
+    # recommendation stands beside the shortened interval.
+    assert "Not fit for this duty: replace or re-engineer." in body
+    assert "not fit for this duty · interval factor 0.25" in body
+    assert "Liquid too poorly conductive for a magnetic meter" in body  # plain words ...
+    assert "EM_LOW_CONDUCTIVITY" not in body  # ... not the code
     assert "Why:" in body
+    fit = client.get("/meters/FT-204/").content.decode()  # EM meter on town water
+    assert "Not fit for this duty" not in fit
 
 
 def test_unknown_meter_is_404(client, demo_plant):
     assert client.get("/meters/NOPE-1/").status_code == 404
+
+
+@pytest.mark.parametrize("text", ["not titanium: 316L", "Hastelloy C-276", "316 L", "Stainless steel 316L"])
+def test_wetted_material_off_the_list_refused_at_field(site_area_fluid, text):
+    # Issue 17 item 7: a fixed list; the form posts codes, so free text (and a label) is refused with a message.
+    _, area, fluid = site_area_fluid
+    form = MeterForm(data=meter_data(area, fluid, wetted_material=text))
+    assert not form.is_valid()
+    assert form.errors["wetted_material"] == [
+        f'"{text}" is not on the list of wetted materials; choose one of the list (its code or name), '
+        "or leave it blank and describe it under material details."]
+    with pytest.raises(ValidationError) as refused:
+        Meter.objects.create(tag="FT-X", principle="coriolis", area=area, fluid=fluid, line_size="DN25",
+                             internal_diameter_mm=26.6, range_max=8, mpe_value=0.2, wetted_material=text)
+    assert "wetted_material" in refused.value.message_dict
+    assert Meter.objects.count() == 0 and DutyPeriod.objects.count() == 0
+
+
+def test_wetted_material_from_the_list_saved_with_details(site_area_fluid):
+    _, area, fluid = site_area_fluid
+    meter = MeterForm(data=meter_data(area, fluid, wetted_material="alloy C-276",
+                                      material_details="PTFE liner")).save()
+    assert (meter.wetted_material, meter.material_details) == ("alloy C-276", "PTFE liner")
+    assert meter.get_wetted_material_display() == "Nickel alloy C-276 (Ni-Cr-Mo)"
+
+
+# The register's columns (issue 15 item 9) -----------------------------------------------------------------------------
+def _rows(body):
+    """Tag -> the text of its register row."""
+    rows = {}
+    for row in re.findall(r"<tr[^>]*>(.*?)</tr>", body, flags=re.S):
+        cells = [" ".join(re.sub(r"<[^>]+>", " ", c).split()) for c in re.findall(r"<td[^>]*>(.*?)</td>", row, re.S)]
+        if cells:
+            rows[cells[0]] = cells
+    return rows
+
+
+@pytest.fixture
+def small_register(site_area_fluid):
+    _, area, fluid = site_area_fluid
+    make = dict(principle="electromagnetic", area=area, fluid=fluid, line_size="DN50", internal_diameter_mm=52.5,
+                range_max=40, mpe_value=0.5, wetted_material="316L")
+    Meter.objects.create(tag="FT-NEVER", **make)
+    Meter.objects.create(tag="FT-GOOD", **make)
+    Meter.objects.create(tag="FT-BAD", **make)
+    # the stored fields the due-date recompute keeps (tested in test_due_dates.py)
+    Meter.objects.filter(tag="FT-GOOD").update(next_due_date=dt.date(2027, 6, 1), last_calibrated=dt.date(2026, 6, 1),
+                                               last_in_tolerance=True, drift_status="flat")
+    Meter.objects.filter(tag="FT-BAD").update(next_due_date=dt.date(2027, 1, 15), last_calibrated=dt.date(2026, 11, 1),
+                                              last_in_tolerance=False, drift_status="out_of_tolerance")
+    return area, fluid
+
+
+def test_register_shows_due_last_verdict_drift_and_calibrate(client, small_register):
+    body = client.get("/meters/").content.decode()
+    for heading in ("Due date", "Last calibrated", "Last verdict", "Drift"):
+        assert f">{heading}<" in body
+    rows = _rows(body)
+    assert rows["FT-GOOD"][:5] == ["FT-GOOD", "2027-06-01", "2026-06-01", "in tolerance", "no significant drift"]
+    assert rows["FT-BAD"][:5] == ["FT-BAD", "2027-01-15", "2026-11-01", "out of tolerance",
+                                  "last found out of tolerance"]
+    assert rows["FT-NEVER"][:5] == ["FT-NEVER", "now (never calibrated)", "—", "—", "—"]
+    assert rows["FT-GOOD"][5] == "Calibrate"
+    assert 'href="/meters/FT-BAD/calibrate/"' in body
+
+
+def test_calibrate_action_only_for_those_allowed_to_calibrate(small_register):
+    technician, reviewer = Client(), Client()
+    technician.force_login(user_with_role("technician"))
+    reviewer.force_login(user_with_role("reviewer"))  # reviewers countersign; they do not enter calibrations
+    assert 'href="/meters/FT-BAD/calibrate/"' in technician.get("/meters/").content.decode()
+    assert "/calibrate/" not in reviewer.get("/meters/").content.decode()
+
+
+@pytest.mark.parametrize("sort, expected", [
+    # never calibrated counts as most urgent: first by due date, last when the order is reversed
+    ("next_due_date", ["FT-NEVER", "FT-BAD", "FT-GOOD"]),
+    ("-next_due_date", ["FT-GOOD", "FT-BAD", "FT-NEVER"]),
+    ("last_calibrated", ["FT-NEVER", "FT-GOOD", "FT-BAD"]),
+    ("last_in_tolerance", ["FT-BAD", "FT-NEVER", "FT-GOOD"]),  # out, not yet judged, in
+    ("drift_status", ["FT-BAD", "FT-GOOD", "FT-NEVER"]),  # out of tolerance, flat, blank
+])
+def test_register_sorts_by_the_new_columns(client, small_register, sort, expected):
+    assert list(_rows(client.get("/meters/", {"sort": sort}).content.decode())) == expected
+
+
+def test_register_query_count_does_not_grow_with_fleet(client, small_register):
+    area, fluid = small_register
+    with CaptureQueriesContext(connection) as small:
+        assert client.get("/meters/", {"sort": "next_due_date"}).status_code == 200
+    for i in range(60):
+        Meter.objects.create(tag=f"FT-X{i:03d}", principle="vortex", area=area, fluid=fluid, line_size="DN50",
+                             internal_diameter_mm=52.5, range_max=40, mpe_value=1)
+    with CaptureQueriesContext(connection) as large:
+        body = client.get("/meters/", {"sort": "next_due_date"}).content.decode()
+    assert "63 meters" in body
+    assert len(large.captured_queries) == len(small.captured_queries)
+
+
+def test_overdue_due_dates_stand_out(client, small_register):
+    # Due yesterday at the site is overdue, due tomorrow is not, never calibrated is due now. (The clock is not
+    # moved: the login session would expire with it.)
+    today = Site.objects.get().today()
+    Meter.objects.filter(tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
+    Meter.objects.filter(tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
+    body = client.get("/meters/").content.decode()
+    marked = re.findall(r'<td class="nowrap overdue"[^>]*>\s*([^<]*?)\s*</td>', body)
+    assert sorted(marked) == [(today - dt.timedelta(days=1)).isoformat(), "now (never calibrated)"]

@@ -71,7 +71,8 @@ def test_fluid_change_rejudges_its_meters(reviewer, meter):
     assert response.status_code == 302
     assert Meter.objects.get(pk=meter.pk).risk_severity == "misapplied"
     page = reviewer.get(f"/meters/{meter.tag}/").content.decode()
-    assert "EM_LOW_CONDUCTIVITY" in page
+    assert "Liquid too poorly conductive for a magnetic meter" in page  # EM_LOW_CONDUCTIVITY, in plain words
+    assert "Not fit for this duty: replace or re-engineer." in page
     response = reviewer.post(f"/fluids/{fluid.pk}/edit/", form_data(fluid, conductivity_us_cm="-3"))
     assert response.status_code == 400 and "Conductivity cannot be negative." in response.content.decode()
     assert Fluid.objects.get(pk=fluid.pk).conductivity_us_cm == 0.5

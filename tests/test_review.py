@@ -7,6 +7,7 @@ import pytest
 from django.utils import timezone
 
 from calibration.models import CalibrationEvent, ReferenceStandard
+from plant import risk
 from plant.models import Area, Fluid, Meter, Site
 
 pytestmark = pytest.mark.django_db
@@ -153,6 +154,13 @@ class _Tables(__import__("html.parser").parser.HTMLParser):
             self._cell.append(data)
 
 
+WORDS_ON_PAGE = {  # issue 15 item 9: risk codes in plain words on pages, kept as codes in exports
+    ("risk", "Severity"): lambda code: risk.SEVERITY_WORDS[code],
+    ("risk", "Findings"): lambda codes: "; ".join(dict.fromkeys(risk.TITLES[c] for c in codes.split(", "))),
+    ("risk", "Recommendation"): lambda text: text or "—",
+}
+
+
 def test_csv_export_read_with_pandas_equals_the_table_on_the_page(client, fleet):
     import pandas as pd
 
@@ -169,5 +177,52 @@ def test_csv_export_read_with_pandas_equals_the_table_on_the_page(client, fleet)
             rows = []
         on_page = pd.DataFrame(rows, columns=header)
         for column in header:  # the page shows dates and empty values the way the CSV writes them
+            if (key, column) in WORDS_ON_PAGE:  # codes in the export, the same in plain words on the page
+                to_words = WORDS_ON_PAGE[key, column]
+                assert [to_words(v) for v in exported[column]] == on_page[column].tolist(), (key, column)
+                continue
             assert exported[column].str.replace("—", "").tolist() == on_page[column].str.replace("—", "").tolist(), \
                 (key, column)
+
+
+def test_misapplied_row_says_not_fit_beside_the_shortened_interval(client, fleet):
+    # Common practice (plant/risk.py): an electromagnetic meter on oil (0.0001 µS/cm, below ~5 µS/cm) is not fit
+    # for the duty, factor 0.25; by hand 365 d × 0.25 = 91.25 d -> 91 d.
+    page = _Tables()
+    page.feed(client.get("/review/").content.decode())
+    risk_table = page.tables[4]
+    header, row = risk_table[0], risk_table[1]
+    shown = dict(zip(header, row))
+    assert shown["Tag"] == "MISAPPLIED-1"
+    assert shown["Severity"] == "not fit for this duty"
+    assert shown["Findings"] == "Liquid too poorly conductive for a magnetic meter"
+    assert shown["Risk interval"] == "91 d (365 d × 0.25)"
+    assert shown["Recommendation"] == "Not fit for this duty: replace or re-engineer"
+    header, rows = export(client, "risk")
+    exported = dict(zip(header, rows[0]))
+    assert (exported["Severity"], exported["Findings"]) == ("misapplied", "EM_LOW_CONDUCTIVITY")  # codes kept
+
+
+def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
+    # Issue 17 item 8. At 2026-12-04 23:30 UTC it is already 2026-12-05 12:30 in Auckland (NZDT, UTC+13 in
+    # December; IANA time zone database): a meter due on 2026-12-04 there is overdue by 1 day, in UTC not yet.
+    from django.utils import timezone as django_timezone
+
+    monkeypatch.setattr(django_timezone, "now", lambda: dt.datetime(2026, 12, 4, 23, 30, tzinfo=dt.timezone.utc))
+    site = Site.objects.get()
+    meter = Meter.objects.get(tag="LATER-1")
+    Meter.objects.filter(pk=meter.pk).update(next_due_date=dt.date(2026, 12, 4))
+    Meter.objects.exclude(pk=meter.pk).update(next_due_date=dt.date(2027, 6, 1))
+    assert "LATER-1" not in tags(client, "overdue")  # the site has no zone: the plant's (UTC here) 2026-12-04
+    site.time_zone = "Pacific/Auckland"
+    site.full_clean()
+    site.save()
+    assert tags(client, "overdue") == ["LATER-1"]
+    header, rows = export(client, "overdue")
+    assert dict(zip(header, rows[0]))["Days overdue"] == "1"
+    # a second site west of UTC (Chicago, UTC-6: still 2026-12-04 17:30) keeps its own date in the same list
+    west = Site.objects.create(name="West site", time_zone="America/Chicago")
+    Meter.objects.filter(tag="DUE-1").update(area=Area.objects.create(site=west, name="Yard"),
+                                             next_due_date=dt.date(2026, 12, 4))
+    assert tags(client, "overdue") == ["LATER-1"]
+    assert "DUE-1" in tags(client, "due")

@@ -148,9 +148,9 @@ def test_em_brine_attacks_stainless_electrodes():
     assert "EM_CHLORIDES" not in codes(assess("electromagnetic", "316L", TOWN_WATER))
 
 
-@pytest.mark.parametrize("material", ["Hastelloy C", "titanium", "TANTALUM", "Platinum-Iridium"])
+@pytest.mark.parametrize("material", ["alloy C-276", "titanium", "tantalum", "platinum-iridium"])
 def test_em_brine_resistant_electrodes_mitigated(material):
-    # Common practice: Hastelloy/Ti/Ta/Pt are the usual brine electrode choices.
+    # Common practice: Ni-Cr-Mo alloy C-276, Ti, Ta, Pt-Ir are the usual brine electrode choices.
     out = assess("electromagnetic", material, BRINE)
     assert "EM_CHLORIDES" not in codes(out)
     f = by_code(out, "EM_CHLORIDES_MITIGATED")
@@ -170,7 +170,7 @@ def test_coriolis_chlorides_scc():
     # Common practice: chloride stress corrosion cracking of stainless tubes.
     assert by_code(assess("coriolis", "316L", BRINE), "CORIOLIS_CHLORIDES").severity == "high"
     assert "CORIOLIS_CHLORIDES" not in codes(assess("coriolis", "316L", TOWN_WATER))
-    assert "CORIOLIS_CHLORIDES" not in codes(assess("coriolis", "Hastelloy C-22", BRINE))
+    assert "CORIOLIS_CHLORIDES" not in codes(assess("coriolis", "alloy C-22", BRINE))
 
 
 def test_coriolis_slurry_erosion():
@@ -319,7 +319,7 @@ def test_thermal_chlorides_corrosion():
     # Common practice: corrosive gas attacks the thin sensor sheath.
     fl = FluidProps(phase="gas", chlorides=True)
     assert "THERMAL_CHLORIDES" in codes(assess("thermal_mass", "316L", fl))
-    assert "THERMAL_CHLORIDES" not in codes(assess("thermal_mass", "Hastelloy C-276", fl))
+    assert "THERMAL_CHLORIDES" not in codes(assess("thermal_mass", "alloy C-276", fl))
     assert "THERMAL_CHLORIDES" not in codes(assess("thermal_mass", "316L", CLEAN_GAS))
 
 
@@ -352,7 +352,172 @@ def test_clampon_corrosive_low_risk_note():
 
 def test_interval_factor_over_assess_picks_worst():
     # Common practice scale: misapplied 0.25 < high 0.5 < medium 0.75.
-    fl = FluidProps(phase="liquid", conductivity_us_cm=1, chlorides=True, sticky=True)
+    fl = FluidProps(phase="liquid", conductivity_us_cm=1, chlorides=True, sticky=True, temperature_c=20)
     out = assess("electromagnetic", "316L", fl)
     assert codes(out) == {"EM_LOW_CONDUCTIVITY", "EM_CHLORIDES", "EM_ELECTRODE_COATING"}
     assert interval_factor(out) == pytest.approx(0.25)
+
+
+# ------------------------------------------------------- rules that read the whole duty (issue 17 item 7)
+
+from plant import materials  # noqa: E402
+from plant.risk import FACTOR_NOTE, NOT_FIT, TITLES, recommendation  # noqa: E402
+
+HOT_BRINE = FluidProps(phase="liquid", conductivity_us_cm=50000, chlorides=True, temperature_c=80)
+
+
+def test_em_liquid_without_conductivity_asks_for_it():
+    # Common practice: the ~5 µS/cm minimum can only be checked with a recorded conductivity, so a missing
+    # value is a finding of its own (low, factor 0.9: 365 d × 0.9 = 328.5 d).
+    out = assess("electromagnetic", "316L", FluidProps(phase="liquid", temperature_c=20))
+    f = by_code(out, "EM_CONDUCTIVITY_UNKNOWN")
+    assert (f.severity, f.interval_factor) == ("low", 0.9)
+    assert "conductivity" in f.reason.lower() and "record" in f.reason.lower()
+    assert 365 * interval_factor(out) == pytest.approx(328.5)
+    assert "EM_CONDUCTIVITY_UNKNOWN" in codes(assess("electromagnetic", "316L", FluidProps(phase="slurry")))
+    # recorded (500 µS/cm) -> nothing to ask; gas -> already misapplied, no request for a conductivity
+    assert "EM_CONDUCTIVITY_UNKNOWN" not in codes(assess("electromagnetic", "316L", TOWN_WATER))
+    assert codes(assess("electromagnetic", "316L", CLEAN_GAS)) == {"EM_NOT_LIQUID"}
+
+
+@pytest.mark.parametrize("principle, code, severity, factor", [
+    # Common practice: a magmeter counts bubbles as liquid and bubbles at the electrodes make noise (medium).
+    ("electromagnetic", "EM_ENTRAINED_GAS", "medium", 0.75),
+    # Common practice: gas decouples in vibrating tubes; mass flow and density both go wrong (high).
+    ("coriolis", "CORIOLIS_ENTRAINED_GAS", "high", 0.5),
+    # Common practice: bubbles damp the vortices and disturb the shedding frequency (medium).
+    ("vortex", "VORTEX_ENTRAINED_GAS", "medium", 0.75),
+])
+def test_entrained_gas_flagged(principle, code, severity, factor):
+    gassy = FluidProps(phase="liquid", conductivity_us_cm=500, density_kg_m3=998.2, viscosity_mpa_s=1.002,
+                       entrained_gas=True, temperature_c=20)
+    f = by_code(assess(principle, "316L", gassy, min_flow_m3_h=20, diameter_mm=52.5), code)
+    assert (f.severity, f.interval_factor) == (severity, factor)
+    clean = FluidProps(phase="liquid", conductivity_us_cm=500, density_kg_m3=998.2, viscosity_mpa_s=1.002)
+    assert code not in codes(assess(principle, "316L", clean, min_flow_m3_h=20, diameter_mm=52.5))
+    # "entrained gas" in a gas duty means nothing: no finding
+    gas = FluidProps(phase="gas", density_kg_m3=1.2, viscosity_mpa_s=0.018, entrained_gas=True)
+    assert code not in codes(assess(principle, "316L", gas, min_flow_m3_h=200, diameter_mm=52.5))
+
+
+def test_coriolis_on_gassy_water_halves_the_interval():
+    # Common practice (high = 0.5): base 360 d × 0.5 = 180 d; nothing else applies to clean water at 20 °C.
+    gassy = FluidProps(phase="liquid", conductivity_us_cm=500, entrained_gas=True, temperature_c=20)
+    out = assess("coriolis", "316L", gassy)
+    assert codes(out) == {"CORIOLIS_ENTRAINED_GAS"}
+    assert round(360 * interval_factor(out)) == 180
+
+
+@pytest.mark.parametrize("principle, code, severity, factor", [
+    # Common practice: chloride stress-corrosion cracking of austenitic stainless above about 60 °C.
+    ("electromagnetic", "EM_CHLORIDE_CRACKING", "high", 0.5),
+    ("vortex", "VORTEX_CHLORIDE_CRACKING", "high", 0.5),
+    ("orifice", "ORIFICE_CHLORIDE_CRACKING", "high", 0.5),
+    # Common practice: thin vibrating stainless tubes are the wrong choice for hot chloride service.
+    ("coriolis", "CORIOLIS_CHLORIDE_CRACKING", "misapplied", 0.25),
+])
+def test_hot_chlorides_crack_austenitic_stainless(principle, code, severity, factor):
+    f = by_code(assess(principle, "316L", HOT_BRINE), code)
+    assert (f.severity, f.interval_factor) == (severity, factor)
+    assert "80 °C" in f.reason and "60 °C" in f.reason
+
+
+def test_chloride_cracking_threshold_and_materials():
+    # Common practice: "above about 60 °C" - 61 °C is above, 60 °C is not.
+    def brine(t):
+        return FluidProps(phase="liquid", conductivity_us_cm=50000, chlorides=True, temperature_c=t)
+    assert "CORIOLIS_CHLORIDE_CRACKING" in codes(assess("coriolis", "304", brine(61)))
+    assert "CORIOLIS_CHLORIDE_CRACKING" not in codes(assess("coriolis", "304", brine(60)))
+    # Not austenitic: duplex 2205 keeps the chloride (pitting) finding but not the cracking one; alloy C-276 is
+    # resistant (a note); nothing wetted on a clamp-on; no chlorides, no cracking however hot (caustic at 75 °C).
+    duplex = codes(assess("coriolis", "duplex 2205", brine(80)))
+    assert "CORIOLIS_CHLORIDES" in duplex and "CORIOLIS_CHLORIDE_CRACKING" not in duplex
+    assert codes(assess("coriolis", "alloy C-276", brine(80))) == {"CORIOLIS_CHLORIDES_MITIGATED"}
+    assert codes(assess("ultrasonic_clampon", "316L", brine(80))) == {"CLAMPON_CORROSIVE_OK"}
+    caustic = FluidProps(phase="liquid", conductivity_us_cm=90000, temperature_c=75)
+    assert codes(assess("coriolis", "316L", caustic)) == set()
+
+
+def test_chlorides_on_stainless_without_temperature_ask_for_it():
+    # Common practice: the cracking rule needs a temperature; without one, a note (factor 1.0) asks for it.
+    out = assess("vortex", "316L", BRINE, min_flow_m3_h=5, diameter_mm=52.5)
+    f = by_code(out, "VORTEX_CHLORIDE_TEMPERATURE_UNKNOWN")
+    assert (f.severity, f.interval_factor) == ("low", FACTOR_NOTE)
+    assert "VORTEX_CHLORIDE_TEMPERATURE_UNKNOWN" not in codes(assess("vortex", "titanium", BRINE))
+
+
+@pytest.mark.parametrize("principle, code", [
+    # Common practice: sticky fluid sets or coats in small-bore DP impulse lines, as in pitot ports.
+    ("orifice", "ORIFICE_IMPULSE_LINE_BLOCKING"),
+    ("venturi", "VENTURI_IMPULSE_LINE_BLOCKING"),
+])
+def test_sticky_fluid_blocks_dp_impulse_lines(principle, code):
+    syrup = FluidProps(phase="liquid", conductivity_us_cm=30, sticky=True, temperature_c=40)
+    f = by_code(assess(principle, "316", syrup), code)
+    assert (f.severity, f.interval_factor) == ("medium", 0.75)
+    assert "sticky deposits" in f.reason
+    assert code not in codes(assess(principle, "316", TOWN_WATER))
+
+
+def test_sticky_fluid_on_a_turbine():
+    # Common practice: deposits drag the rotor and change its blades; medium (0.75) beats the 0.9 wear note,
+    # so base 365 d × 0.75 = 273.75 d.
+    syrup = FluidProps(phase="liquid", sticky=True, temperature_c=40)
+    out = assess("turbine", "316", syrup)
+    assert codes(out) == {"TURBINE_MOVING_PARTS", "TURBINE_STICKY"}
+    assert 365 * interval_factor(out) == pytest.approx(273.75)
+    assert codes(assess("turbine", "316", TOWN_WATER)) == {"TURBINE_MOVING_PARTS"}
+
+
+@pytest.mark.parametrize("material, mitigated", [
+    ("not titanium: 316L", False),  # free text is not on the list: not recorded, so not resistant
+    ("alloy C-276", True),          # on the list as chloride resistant (common practice)
+    ("316L", False),
+    ("", False),                    # not recorded: the safe side
+    ("PTFE", False),                # a liner material says nothing about the electrodes of a magmeter
+])
+def test_chloride_resistance_comes_from_the_fixed_list(material, mitigated):
+    out = codes(assess("electromagnetic", material, BRINE))
+    assert ("EM_CHLORIDES_MITIGATED" in out) is mitigated
+    assert ("EM_CHLORIDES" in out) is not mitigated
+
+
+def test_fixed_list_properties():
+    # Common practice: 304/316 families are the austenitic grades; Ni-Cr-Mo alloys, Ti, Ta, Pt-Ir are resistant.
+    austenitic = {m.code for m in materials.MATERIALS if m.austenitic}
+    assert austenitic == {"304", "304L", "316", "316L"}
+    assert {"alloy C-276", "alloy C-22", "titanium", "tantalum", "platinum-iridium"} <= {
+        m.code for m in materials.MATERIALS if m.chloride_resistant}
+    assert not ({"316L", "duplex 2205", "carbon steel"} & {m.code for m in materials.MATERIALS
+                                                           if m.chloride_resistant})
+    assert materials.lookup("not titanium: 316L") is None
+
+
+FLUID_GRID = [
+    FluidProps(phase=phase, conductivity_us_cm=cond, density_kg_m3=1000, viscosity_mpa_s=1.0, solids=flag,
+               chlorides=flag, scaling=flag, biofouling=flag, sticky=flag, entrained_gas=flag, temperature_c=temp)
+    for phase in ("liquid", "gas", "steam", "slurry") for cond in (None, 1, 500) for flag in (False, True)
+    for temp in (None, 20, 80)
+]
+
+
+def test_every_code_has_plain_words():
+    # The pages show titles; a code without one would fall back to the raw code.
+    seen = set()
+    for principle in PRINCIPLES:
+        for material in ("316L", "alloy C-276", "", "PTFE"):
+            for fluid in FLUID_GRID:
+                for flow in (None, 0.01, 100):
+                    seen |= codes(assess(principle, material, fluid, min_flow_m3_h=flow, diameter_mm=50))
+    missing = sorted(seen - set(TITLES))
+    assert not missing
+    assert Finding("EM_CHLORIDES", "high", "", 0.5).title == "Chlorides attack the electrodes"
+
+
+def test_misapplied_meter_gets_the_not_fit_recommendation():
+    # Common practice: a magmeter on oil (or demineralised water, 1 µS/cm) cannot work: replace or re-engineer.
+    oil = FluidProps(phase="liquid", conductivity_us_cm=0.0001, temperature_c=25)
+    assert recommendation(assess("electromagnetic", "316L", oil)) == NOT_FIT
+    assert recommendation(assess("electromagnetic", "316L", DEMIN_WATER)) == NOT_FIT
+    assert NOT_FIT == "Not fit for this duty: replace or re-engineer"
+    assert recommendation(assess("electromagnetic", "316L", TOWN_WATER)) == ""

@@ -31,7 +31,7 @@ AREAS = ["Brine & pickling", "Boiler house", "Syrup kitchen", "Oil & frying", "C
 # tag prefix, principle, fluid, area, line size, ID mm, range max, units, material, mpe, basis
 METERS = [
     ("FT-110", "electromagnetic", "Pickling brine", "Brine & pickling", "DN50", 52.5, 40, "m³/h", "316L", 0.5, "pct_reading"),
-    ("FT-111", "electromagnetic", "Pickling brine", "Brine & pickling", "DN40", 40.9, 25, "m³/h", "Hastelloy C", 0.5, "pct_reading"),
+    ("FT-111", "electromagnetic", "Pickling brine", "Brine & pickling", "DN40", 40.9, 25, "m³/h", "alloy C-276", 0.5, "pct_reading"),
     ("FT-112", "coriolis", "Pickling brine", "Brine & pickling", "DN25", 26.6, 8, "m³/h", "316L", 0.2, "pct_reading"),
     ("FT-113", "ultrasonic_clampon", "Pickling brine", "Brine & pickling", "DN80", 82.5, 60, "m³/h", "", 2.0, "pct_reading"),
     ("FT-114", "turbine", "Pickling brine", "Brine & pickling", "DN25", 26.6, 10, "m³/h", "316", 0.5, "pct_reading"),
@@ -72,9 +72,12 @@ METERS = [
     ("FT-702", "coriolis", "Tomato pulp slurry", "Pulp line", "DN50", 52.5, 40000, "kg/h", "316L", 0.2, "pct_reading"),
     ("FT-703", "turbine", "Tomato pulp slurry", "Pulp line", "DN50", 52.5, 40, "m³/h", "316", 0.5, "pct_reading"),
     ("FT-704", "ultrasonic_transit", "Tomato pulp slurry", "Pulp line", "DN80", 82.5, 50, "m³/h", "316", 1.0, "pct_reading"),
-    ("FT-705", "electromagnetic", "Tomato pulp slurry", "Pulp line", "DN80", 82.5, 50, "m³/h", "PTFE liner, Hastelloy C", 0.5, "pct_reading"),
+    ("FT-705", "electromagnetic", "Tomato pulp slurry", "Pulp line", "DN80", 82.5, 50, "m³/h", "alloy C-276", 0.5, "pct_reading"),
     ("FT-706", "venturi", "Tomato pulp slurry", "Pulp line", "DN80", 82.5, 50, "m³/h", "316", 1.5, "pct_span"),
 ]
+
+# what the list of wetted materials does not say (the magnetic meters' liners)
+DETAILS = {"FT-705": "PTFE liner"}
 
 MAKERS = ["Northbeck Instruments", "Calder & Wray", "Tessel Flow", "Orrin Metering"]
 
@@ -87,7 +90,8 @@ class Command(BaseCommand):
     @transaction.atomic
     def handle(self, *args, **options):
         rng = random.Random(20261202)
-        site = Site.objects.create(name="Marrowfield Preserves", address="Unit 4, Gullet Lane, Marrowfield (invented)")
+        site = Site.objects.create(name="Marrowfield Preserves", address="Unit 4, Gullet Lane, Marrowfield (invented)",
+                                   time_zone="Europe/London")
         areas = {name: Area.objects.create(site=site, name=name) for name in AREAS}
         fluids = {}
         for (name, phase, cond, dens, visc, solids, chl, scale, slime, sticky, gas, temp) in FLUIDS:
@@ -105,6 +109,7 @@ class Command(BaseCommand):
                 tag=tag, principle=principle, area=areas[area], fluid=fluids[fluid], line_size=size,
                 internal_diameter_mm=bore, range_min=0, range_max=rmax, flow_units=units,
                 normal_flow=normal, min_flow=minimum, wetted_material=material,
+                material_details=DETAILS.get(tag, ""),
                 serial=f"SN{rng.randint(100000, 999999)}", maker=rng.choice(MAKERS),
                 model=f"M{rng.randint(10, 99)}", mpe_value=mpe, mpe_basis=basis,
                 base_interval_days=rng.choice([365, 365, 730, 180]),
