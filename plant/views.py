@@ -6,6 +6,7 @@ from django_tables2 import RequestConfig
 
 from calibration.due import rationale_text
 from calibration.trend import meter_drift_chart
+from maintenance.views import meter_section
 from plant.filters import MeterFilter
 from plant.forms import FluidForm, MeterForm
 from plant.models import Fluid, Meter
@@ -38,6 +39,7 @@ def meter_detail(request, tag):
         "drift_chart": meter_drift_chart(meter),
         "calibrations": meter.calibrations.all()[:20],
         "audit": _audit_rows(meter),
+        "maintenance": meter_section(meter),
     })
 
 
