@@ -105,13 +105,12 @@ class MaintenanceRecord(models.Model):
         DRAFT = "draft", "Draft"
         SIGNED = "signed", "Signed"
 
-    Condition = models.TextChoices("Condition", [(code, label) for code, label in loop.CONDITIONS])
 
     meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="maintenance_records")
     task = models.ForeignKey(MaintenanceTask, on_delete=models.PROTECT, related_name="records")
     performed_on = models.DateField("date of the work")
     technician = models.CharField(max_length=120)
-    condition = models.CharField("condition found", max_length=20, choices=Condition.choices)
+    condition = models.CharField("condition found", max_length=20, choices=list(loop.CONDITIONS))
     action = models.TextField("action taken")
     parts = models.CharField("parts replaced", max_length=300, blank=True)
     minutes_spent = models.PositiveIntegerField(
