@@ -245,3 +245,16 @@ class CalendarToken(models.Model):
 
     def __str__(self):
         return f"calendar token of {self.user} from {self.created_at:%Y-%m-%d}"
+
+
+class WalkOrder(models.Model):
+    """The order in which a technician walks the areas of a site; the work list follows it (unset: by name)."""
+
+    area = models.OneToOneField("plant.Area", on_delete=models.CASCADE, related_name="walk_order", primary_key=True)
+    position = models.PositiveIntegerField(help_text="1 = visited first on the site")
+
+    class Meta:
+        ordering = ["position"]
+
+    def __str__(self):
+        return f"{self.area}: {self.position}"

@@ -85,4 +85,7 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     buckets.append(Bucket("standards", f"Reference standards expired or due within {days} days", standards,
                           tables.StandardTable, standards.count()))
     buckets.append(Bucket("drafts", "Draft calibrations not signed", drafts, tables.DraftTable, drafts.count()))
+    from maintenance.review import buckets as maintenance_buckets
+
+    buckets += maintenance_buckets(filters, days, today)
     return buckets
