@@ -82,11 +82,16 @@ def rows(end: dt.date, site=None, area=None) -> list[WorkItem]:
     for (tag, principle, fluid, area_id, area_name, site_name, walk, due, rationale) in (
             meters.filter(Q(next_due_date__lte=end) | Q(next_due_date__isnull=True))
             .values_list(*common, "next_due_date", "due_rationale")):
-        reason = (rationale or {}).get("winner", "")
+        winner = (rationale or {}).get("winner", "")
+        if due is None:
+            reason = "never calibrated"
+        elif winner and winner != "none":
+            reason = f"calibration due date set by its {winner} candidate"
+        else:
+            reason = "calibration due"
         items.append(WorkItem(site_name, area_name, area_id, walk if walk is not None else NO_WALK_POSITION, tag,
                               principles.get(principle, principle), fluid, CALIBRATION, "Calibrate (as-found, as-left)",
-                              due, f"calibration due date set by its {reason} candidate" if reason else
-                              "never calibrated"))
+                              due, reason))
     tasks = MaintenanceTask.objects.filter(active=True, next_due_date__lte=end, meter__in=meters.values("pk"))
     for (tag, principle, fluid, area_id, area_name, site_name, walk, due, title, freq, last) in tasks.values_list(
             *[f"meter__{c}" for c in common], "next_due_date", "title", "frequency_days", "last_condition"):
