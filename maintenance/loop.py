@@ -74,6 +74,20 @@ class LoopResult:
         return "\n".join(self.steps)
 
 
+def step(current: int, streak: int, condition: str, lower: int, upper: int) -> tuple[int, int]:
+    """One visit of the loop: (frequency, clean run) before -> after."""
+    if condition not in LABELS:
+        raise ValueError(f"unknown condition {condition!r}")
+    if condition in GOOD:
+        streak += 1
+        if streak == CLEAN_STREAK:
+            return min(max(_round(current * LENGTHEN), lower), upper), 0
+        return current, streak
+    if condition in SHORTENS:
+        return min(max(_round(current * SHORTEN), lower), upper), 0
+    return current, 0
+
+
 def next_frequency(start_days: int, conditions, dates=None) -> LoopResult:
     """The task's frequency after the visits, oldest first (`conditions` codes, optional `dates` for the words)."""
     conditions = list(conditions)
@@ -83,27 +97,19 @@ def next_frequency(start_days: int, conditions, dates=None) -> LoopResult:
     streak = 0
     steps = [f"Starts at {start_days} d (from the duty); bounded to {lower}–{upper} d."]
     for condition, day in zip(conditions, dates):
-        if condition not in LABELS:
-            raise ValueError(f"unknown condition {condition!r}")
+        before = current
+        current, streak = step(current, streak, condition, lower, upper)
         when = f"{day.isoformat()}: " if day is not None else ""
         label = LABELS[condition].lower()
-        before = current
-        if condition in GOOD:
-            streak += 1
-            if streak == CLEAN_STREAK:
-                current = min(max(_round(current * LENGTHEN), lower), upper)
-                streak = 0
-                steps.append(f"{when}found {label}, {CLEAN_STREAK} times in a row: {before} d × {LENGTHEN} → "
-                             f"{current} d" + (" (upper bound)" if current == upper else "") + ".")
-            else:
-                steps.append(f"{when}found {label} ({streak} of {CLEAN_STREAK} in a row): kept at {current} d.")
+        if condition in GOOD and streak == 0:
+            steps.append(f"{when}found {label}, {CLEAN_STREAK} times in a row: {before} d × {LENGTHEN} → "
+                         f"{current} d" + (" (upper bound)" if current == upper else "") + ".")
+        elif condition in GOOD:
+            steps.append(f"{when}found {label} ({streak} of {CLEAN_STREAK} in a row): kept at {current} d.")
         elif condition in SHORTENS:
-            streak = 0
-            current = min(max(_round(current * SHORTEN), lower), upper)
             steps.append(f"{when}found {label}: {before} d × {SHORTEN} → {current} d"
                          + (" (lower bound)" if current == lower else "") + ".")
         else:
-            streak = 0
             steps.append(f"{when}found {label}: kept at {current} d.")
     return LoopResult(frequency_days=current, start_days=start_days, steps=steps)
 
