@@ -282,8 +282,10 @@ class Meter(models.Model):
             return list(attached)
         if self.pk is None:
             return []
-        from maintenance.fleet import meter_evidence
+        from maintenance.fleet import PREFETCHED, evidence_from_prefetched, meter_evidence
 
+        if hasattr(self, PREFETCHED):  # a page of meters read with maintenance.fleet.evidence_prefetch()
+            return evidence_from_prefetched(getattr(self, PREFETCHED))
         return meter_evidence(self.pk)
 
     def duty_findings(self):

@@ -157,7 +157,7 @@ def test_fouled_three_of_four_gives_a_finding_that_shortens_calibration(plant):
     assert meter.risk_factor() == 0.5
 
 
-def test_fouling_finding_lowers_the_factor_of_a_clean_duty(plant):
+def test_fouling_finding_lowers_the_factor_of_a_clean_duty(plant, client):
     water = Fluid.objects.create(name="Plain water", phase="liquid", conductivity_us_cm=400)
     meter = Meter.objects.create(tag="FT-EM1", principle="electromagnetic", area=plant["area"], fluid=water,
                                  line_size="DN50", internal_diameter_mm=52.5, range_max=40, mpe_value=0.5)
@@ -171,6 +171,9 @@ def test_fouling_finding_lowers_the_factor_of_a_clean_duty(plant):
     # 3 of the last 4: high, 0.5 -> effective calibration interval 365 × 0.5 = 182.5 -> 182 (round half even)
     assert meter.risk_factor() == 0.5 and meter.effective_interval_days() == round(365 * 0.5)
     assert meter.risk_severity == "high"
+    # the review's risk list names it, its reason read for the page's meters in one query
+    exported = client.get("/review/", {"export": "risk"}).content.decode()
+    assert "FT-EM1" in exported and "MAINT_FOULED" in exported and "3 of the last 4 inspections" in exported
 
 
 # The tablet form ------------------------------------------------------------------------------------
