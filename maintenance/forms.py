@@ -2,6 +2,7 @@
 from django import forms
 from django.conf import settings
 from django.db import transaction
+from django.utils.html import format_html
 
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 
@@ -58,6 +59,15 @@ def check_photo(upload) -> str:
     return PHOTO_FORMATS[kind]
 
 
+def task_label(task):
+    """The task's title, then how often and when due, the date kept whole on a narrow tablet."""
+    every = task.frequency_days or task.start_days
+    if task.next_due_date is None:
+        return format_html('{} <span class="nowrap">(every {} d)</span>', task.title, every)
+    return format_html('{} (every {} d, <span class="nowrap">due {}</span>)', task.title, every,
+                       f"{task.next_due_date:%Y-%m-%d}")
+
+
 class RecordForm(forms.ModelForm):
     photos = PhotoField(label="Photos (optional)",
                         help_text=f"JPEG, PNG or WebP, up to {MAX_PHOTOS}, each at most "
@@ -88,9 +98,7 @@ class RecordForm(forms.ModelForm):
         self.meter, self.user = meter, user
         self.fields["task"].queryset = MaintenanceTask.objects.filter(meter=meter, active=True).order_by("code", "pk")
         self.fields["task"].empty_label = None
-        self.fields["task"].label_from_instance = lambda t: f"{t.title} (every {t.frequency_days or t.start_days} d, " \
-                                                            f"due {t.next_due_date:%Y-%m-%d})" if t.next_due_date \
-            else t.title
+        self.fields["task"].label_from_instance = task_label
         self.fields["condition"].choices = [c for c in self.fields["condition"].choices if c[0]]
         self.instance.meter = meter
         self.instance.technician = (user.get_full_name() or user.username) if user else ""

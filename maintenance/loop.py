@@ -95,7 +95,7 @@ def next_frequency(start_days: int, conditions, dates=None) -> LoopResult:
     lower, upper = bounds(start_days)
     current = min(max(start_days, lower), upper)
     streak = 0
-    steps = [f"Starts at {start_days} d (from the duty); bounded to {lower}–{upper} d."]
+    steps = [f"Starts at {start_days} d; what is found moves it within {lower}–{upper} d."]
     for condition, day in zip(conditions, dates):
         before = current
         current, streak = step(current, streak, condition, lower, upper)
