@@ -1,7 +1,7 @@
 from django.contrib import admin
 from simple_history.admin import SimpleHistoryAdmin
 
-from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
+from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask, WalkOrder
 
 
 class LockedWhenSigned:
@@ -36,3 +36,9 @@ class MaintenanceTaskAdmin(SimpleHistoryAdmin):
     list_display = ("meter", "title", "frequency_days", "next_due_date", "origin", "active")
     list_filter = ("origin", "active", "code")
     actions = None
+
+
+@admin.register(WalkOrder)
+class WalkOrderAdmin(admin.ModelAdmin):
+    list_display = ("area", "position")
+    ordering = ("area__site__name", "position")

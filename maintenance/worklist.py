@@ -14,6 +14,8 @@ from itertools import groupby
 
 CALIBRATION, MAINTENANCE = "Calibration", "Maintenance"
 NO_WALK_POSITION = 10 ** 6
+WINNER_WORDS = {"risk": "interval for the duty's risk", "drift": "drift predicted to reach the MPE",
+                "method": "interval from the calibration history"}
 
 
 @dataclass(frozen=True)
@@ -85,8 +87,8 @@ def rows(end: dt.date, site=None, area=None) -> list[WorkItem]:
         winner = (rationale or {}).get("winner", "")
         if due is None:
             reason = "never calibrated"
-        elif winner and winner != "none":
-            reason = f"calibration due date set by its {winner} candidate"
+        elif winner in WINNER_WORDS:
+            reason = f"calibration due: {WINNER_WORDS[winner]}"
         else:
             reason = "calibration due"
         items.append(WorkItem(site_name, area_name, area_id, walk if walk is not None else NO_WALK_POSITION, tag,
