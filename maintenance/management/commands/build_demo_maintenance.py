@@ -53,9 +53,10 @@ class Command(BaseCommand):
 
     def add_arguments(self, parser):
         parser.add_argument("--seed", type=int, default=12)
+        parser.add_argument("--output", default=str(FIXTURE))
 
     @transaction.atomic
-    def handle(self, *args, seed, **options):
+    def handle(self, *args, seed, output, **options):
         if MaintenanceRecord.objects.exists() or not Meter.objects.filter(tag="FT-601").exists():
             raise CommandError("Load fixtures/demo_plant.json into an empty database first (no maintenance yet).")
         rng = random.Random(seed)
@@ -82,5 +83,5 @@ class Command(BaseCommand):
                 records += len(made)
         recompute_maintenance()
         call_command("dumpdata", "maintenance.walkorder", "maintenance.maintenancetask",
-                     "maintenance.maintenancerecord", indent=1, output=str(FIXTURE))
-        self.stdout.write(self.style.SUCCESS(f"{records} signed maintenance records written to {FIXTURE}"))
+                     "maintenance.maintenancerecord", indent=1, output=output)
+        self.stdout.write(self.style.SUCCESS(f"{records} signed maintenance records written to {output}"))
