@@ -149,6 +149,6 @@ class TaskForm(forms.ModelForm):
         if not task.code:
             task.code = "CUSTOM"
         task.frequency_days = task.next_due_date = None  # recomputed from the new frequency
-        task._change_reason = task.change_reason
+        task._change_reason = task.change_reason[:100]  # the audit row's note holds 100; the field keeps all
         task.save()
         return task

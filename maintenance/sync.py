@@ -14,7 +14,7 @@ RETIRED_BY_DUTY = "No longer called for by the duty (principle or fluid changed)
 
 def _saved(task, reason):
     task.change_reason = reason[:300]
-    task._change_reason = task.change_reason  # simple-history's note on the audit row
+    task._change_reason = task.change_reason[:100]  # the audit row's note holds 100; the field keeps all
     task.save()
 
 
