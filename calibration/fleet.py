@@ -282,6 +282,12 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     for meter in meters:  # a few fluid objects shared, rather than one copy per meter
         meter.fluid = fluids[meter.fluid_id]
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
+    # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
+    from maintenance.fleet import recompute_maintenance
+
+    evidence = recompute_maintenance(chosen_ids)
+    for meter in meters:
+        meter._evidence_findings = evidence.get(meter.pk, [])
     events = signed_events(None if whole_fleet else Q(meter__in=chosen_ids))
     points = recorded_points(None if whole_fleet else Q(event__meter__in=chosen_ids))
     by_meter = {m.pk: m for m in meters}

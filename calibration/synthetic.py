@@ -69,7 +69,8 @@ class FleetBuilder:
         self.rng = random.Random(seed)
         self.today = today or dt.date(2026, 11, 30)
         self.chunk = chunk
-        self.totals = {"meters": 0, "events": 0, "points": 0, "drafts": 0}
+        self.totals = {"meters": 0, "events": 0, "points": 0, "drafts": 0, "tasks": 0, "maintenance": 0}
+        self.maintenance_rng = random.Random(seed + 1)  # its own stream: the calibration history stays as it was
 
     def build(self, progress=None):
         if Meter.objects.filter(tag__startswith=TAG_PREFIX).exists():
@@ -115,6 +116,8 @@ class FleetBuilder:
             Meter.duties.rel.related_model(meter=m, area=m.area, fluid=m.fluid,
                                            since=self.today - dt.timedelta(days=int(365.25 * YEARS)))
             for m in meters])
+        for meter in meters:  # no maintenance findings while the calibration history is invented
+            meter._evidence_findings = []
         plans = [(meter, self._history(meter)) for meter in meters]
         events = [event for _, history in plans for event, _ in history]
         CalibrationEvent.objects.bulk_create(events, batch_size=2000)
@@ -128,6 +131,12 @@ class FleetBuilder:
                     point.event_id = event.pk
                     points.append(point)
         CalibrationPoint.objects.bulk_create(points, batch_size=5000)
+        from maintenance.synthetic import add_fleet_history
+
+        tasks, records = add_fleet_history(meters, self.maintenance_rng, self.today - dt.timedelta(days=int(365.25 * 5)),
+                                           self.today - dt.timedelta(days=3))
+        self.totals["tasks"] += tasks
+        self.totals["maintenance"] += records
         self.totals["meters"] += len(meters)
         self.totals["events"] += len(events)
         self.totals["points"] += len(points)

@@ -305,6 +305,24 @@ class Meter(models.Model):
 
     # Risk ------------------------------------------------------------------------------------------
     def findings(self):
+        """The principle×fluid findings and those from what was found on the meter (maintenance)."""
+        return self.duty_findings() + self.evidence_findings()
+
+    def evidence_findings(self):
+        """Findings from the meter's maintenance records (maintenance/loop.py: repeatedly found fouled).
+        The bulk recompute attaches them for the whole fleet from one read; otherwise one query."""
+        attached = getattr(self, "_evidence_findings", None)
+        if attached is not None:
+            return list(attached)
+        if self.pk is None:
+            return []
+        from maintenance.fleet import PREFETCHED, evidence_from_prefetched, meter_evidence
+
+        if hasattr(self, PREFETCHED):  # a page of meters read with maintenance.fleet.evidence_prefetch()
+            return evidence_from_prefetched(getattr(self, PREFETCHED))
+        return meter_evidence(self.pk)
+
+    def duty_findings(self):
         return risk.assess(
             self.principle, self.wetted_material, self.fluid.props(),
             normal_flow_m3_h=self.normal_flow_m3_h(self.normal_flow),

@@ -14,11 +14,15 @@ READ = ["plant.view_site", "plant.view_area", "plant.view_fluid", "plant.view_me
 
 ROLE_PERMISSIONS = {
     TECHNICIAN: READ + ["calibration.add_calibrationevent", "calibration.add_calibrationpoint",
-                        "calibration.sign_calibration"],
+                        "calibration.sign_calibration",
+                        "maintenance.view_maintenancetask", "maintenance.view_maintenancerecord",
+                        "maintenance.add_maintenancerecord", "maintenance.sign_maintenance"],
     REVIEWER: READ + ["calibration.view_review", "calibration.countersign_calibration",
                       "plant.add_meter", "plant.change_meter", "plant.add_fluid", "plant.change_fluid",
                       "plant.add_site", "plant.add_area", "calibration.add_referencestandard",
-                      "calibration.change_referencestandard"],
+                      "calibration.change_referencestandard",
+                      "maintenance.view_maintenancetask", "maintenance.view_maintenancerecord",
+                      "maintenance.review_maintenance"],
 }
 
 
@@ -29,7 +33,8 @@ def _permission(dotted):
 
 def ensure_roles(**kwargs):
     """Create or refresh the role groups (run after every migrate)."""
-    if not Permission.objects.filter(codename="sign_calibration").exists():
+    # runs after each app's migrations: wait until the last app with role permissions (maintenance) has its own
+    if not Permission.objects.filter(codename__in=["sign_calibration", "sign_maintenance"]).count() == 2:
         return
     for name, dotted in ROLE_PERMISSIONS.items():
         group, _ = Group.objects.get_or_create(name=name)

@@ -29,6 +29,7 @@ INSTALLED_APPS = [
     "plant",
     "calibration",
     "reports",
+    "maintenance",
 ]
 
 MIDDLEWARE = [
@@ -103,6 +104,9 @@ USE_TZ = True
 STATIC_URL = "static/"
 STATIC_ROOT = BASE_DIR / "staticfiles"
 STATICFILES_DIRS = [BASE_DIR / "static"]
+# Uploaded maintenance photos: on disk under MEDIA_ROOT, served only through a logged-in view (no MEDIA_URL).
+MEDIA_ROOT = Path(os.environ.get("QUENBY_MEDIA_ROOT", BASE_DIR / "media"))
+MAINTENANCE_PHOTO_MAX_BYTES = 8 * 1024 * 1024
 # the product's own name on everything it sets in a browser or sends out
 PRODUCT_NAME = "Quenby"
 SESSION_COOKIE_NAME = "quenby_session"

@@ -3,6 +3,7 @@ from django.urls import include, path
 from django.views.generic import RedirectView
 
 from calibration import views as calibration_views
+from maintenance import views as maintenance_views
 from plant import accounts, import_views, views
 
 plant_patterns = (
@@ -14,6 +15,8 @@ plant_patterns = (
         path("<str:tag>/", views.meter_detail, name="meter-detail"),
         path("<str:tag>/calibrate/", calibration_views.new_calibration, name="meter-calibrate"),
         path("<str:tag>/edit/", views.meter_edit, name="meter-edit"),
+        path("<str:tag>/maintain/", maintenance_views.new_record, name="meter-maintain"),
+        path("<str:tag>/tasks/add/", maintenance_views.task_add, name="meter-task-add"),
     ],
     "plant",
 )
@@ -23,6 +26,7 @@ urlpatterns = [
     path("meters/", include(plant_patterns)),
     path("fluids/<int:pk>/edit/", views.fluid_edit, name="fluid-edit"),
     path("calibrations/", include("calibration.urls")),
+    path("maintenance/", include("maintenance.urls")),
     path("", include("reports.urls")),
     path("accounts/lockouts/", accounts.lockout_list, name="lockouts"),
     path("accounts/", include("django.contrib.auth.urls")),

@@ -5,6 +5,7 @@ from django.shortcuts import get_object_or_404, redirect, render
 from django_tables2 import RequestConfig
 
 from calibration.trend import meter_drift_chart
+from maintenance.views import meter_section
 from plant.filters import MeterFilter
 from plant.forms import FluidForm, MeterForm
 from plant import risk
@@ -39,6 +40,7 @@ def meter_detail(request, tag):
         "drift_chart": meter_drift_chart(meter),
         "calibrations": meter.calibrations.all()[:20],
         "audit": _audit_rows(meter),
+        "maintenance": meter_section(meter),
     })
 
 

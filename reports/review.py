@@ -116,9 +116,16 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
         "failed": ("Last as-found out of tolerance", tables.FailedTable),
         "risk": ("Misapplied meters and high-risk duties", tables.RiskTable),
     }
-    buckets = [Bucket(key, title, meters.filter(conditions[key]), table, counts[key])
+    from maintenance.fleet import evidence_prefetch
+
+    # the risk list names each meter's findings, the fouling finding from its maintenance records among them
+    rows = {"risk": meters.prefetch_related(evidence_prefetch())}
+    buckets = [Bucket(key, title, rows.get(key, meters).filter(conditions[key]), table, counts[key])
                for key, (title, table) in titles.items()]
     buckets.append(Bucket("standards", f"Reference standards expired or due within {days} days", standards,
                           tables.StandardTable, standards.count()))
     buckets.append(Bucket("drafts", "Draft calibrations not signed", drafts, tables.DraftTable, drafts.count()))
+    from maintenance.review import buckets as maintenance_buckets
+
+    buckets += maintenance_buckets(filters, days, today)
     return buckets

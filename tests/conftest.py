@@ -14,6 +14,11 @@ def demo_history(demo_plant):
     call_command("loaddata", "fixtures/demo_history.json", verbosity=0)
 
 
+@pytest.fixture
+def demo_maintenance(demo_history):
+    call_command("loaddata", "fixtures/demo_maintenance.json", verbosity=0)
+
+
 def user_with_role(role, username=None):
     user = User.objects.create_user(username or role, password="pw", first_name=role.capitalize(), last_name="Tester")
     user.groups.add(Group.objects.get(name=role))

@@ -35,4 +35,5 @@ class Command(BaseCommand):
             cursor.execute("ANALYZE")
         self.stdout.write(self.style.SUCCESS(
             f"{totals['meters']} meters, {totals['events']} calibrations ({totals['drafts']} drafts), "
-            f"{totals['points']} points written in {built:.0f} s; due dates computed."))
+            f"{totals['points']} points, {totals['tasks']} maintenance tasks and {totals['maintenance']} maintenance "
+            f"records written in {built:.0f} s; due dates computed."))

@@ -1,0 +1,14 @@
+from django.apps import AppConfig
+
+
+class MaintenanceConfig(AppConfig):
+    name = "maintenance"
+    verbose_name = "Maintenance"
+
+    def ready(self):
+        from django.db.models.signals import post_migrate
+
+        from maintenance import signals  # noqa: F401  (registers the receivers)
+        from plant.roles import ensure_roles
+
+        post_migrate.connect(ensure_roles, sender=self)

@@ -1,0 +1,87 @@
+"""Invent four years of maintenance history for the demo plant, with a fixed seed, and write
+fixtures/demo_maintenance.json (load it after fixtures/demo_plant.json and fixtures/demo_history.json).
+
+Two stories show the loop (all invented):
+* FT-601, an averaging pitot in slimy cooling-tower water: its ports are found fouled or blocked, so the
+  pull-and-clean comes round more often; an as-found calibration failure (2023-12-12 in the demo history) follows a
+  blocked inspection within 30 days, and a bad autumn 2026 (biocide dosing out of service) gives the meter the
+  fouling finding, which shortens its calibration interval too;
+* FT-303, a magnetic meter on sugar syrup: the rule of thumb says sticky syrup coats the electrodes, but they are
+  found clean visit after visit, so the electrode cleaning is done less and less often.
+Every other meter's visits are drawn from the odds of maintenance/synthetic.py.
+"""
+import datetime as dt
+import random
+from pathlib import Path
+
+from django.conf import settings
+from django.core.management import BaseCommand, CommandError, call_command
+from django.db import transaction
+
+from maintenance import synthetic
+from maintenance.fleet import recompute_maintenance
+from maintenance.models import MaintenanceRecord, MaintenanceTask, WalkOrder
+from plant.models import Area, Meter
+
+FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_maintenance.json"
+TODAY = dt.date(2026, 11, 30)  # the demo history's "today"
+SINCE = dt.date(2022, 12, 1)
+# the walk round the demo site, gate to far end (invented)
+WALK = ["Boiler house", "Utilities", "Brine & pickling", "Syrup kitchen", "Oil & frying", "CIP station", "Pulp line"]
+FAILED_CALIBRATION = dt.date(2023, 12, 12)  # FT-601's as-found failure in fixtures/demo_history.json
+AUTUMN_2026 = ["heavy_deposit", "blocked", "light_deposit", "heavy_deposit"]
+AUTUMN_NOTE = "Cooling-tower biocide dosing out of service since late summer (invented)."
+
+
+def pitot_story(visits):
+    """FT-601: a blockage found 18 days before the failed calibration, and a bad autumn at the end."""
+    visits = list(visits)
+    before = [i for i, (day, _) in enumerate(visits) if 0 < (FAILED_CALIBRATION - day).days <= 30]
+    notes = {}
+    if before:
+        i = before[0]
+        visits[i] = (visits[i][0], "blocked")
+    for offset, condition in enumerate(AUTUMN_2026):
+        i = len(visits) - len(AUTUMN_2026) + offset
+        visits[i] = (visits[i][0], condition)
+        notes[i] = AUTUMN_NOTE
+    return visits, notes
+
+
+class Command(BaseCommand):
+    help = "Create the demo maintenance history (seeded) and write fixtures/demo_maintenance.json."
+
+    def add_arguments(self, parser):
+        parser.add_argument("--seed", type=int, default=12)
+        parser.add_argument("--output", default=str(FIXTURE))
+
+    @transaction.atomic
+    def handle(self, *args, seed, output, **options):
+        if MaintenanceRecord.objects.exists() or not Meter.objects.filter(tag="FT-601").exists():
+            raise CommandError("Load fixtures/demo_plant.json into an empty database first (no maintenance yet).")
+        rng = random.Random(seed)
+        MaintenanceTask.objects.all().delete()  # the ones derived on loading, if any: rebuilt with the demo's dates
+        for position, name in enumerate(WALK, start=1):
+            WalkOrder.objects.create(area=Area.objects.get(name=name), position=position)
+        records = 0
+        for meter in Meter.objects.select_related("fluid").order_by("tag"):
+            tasks = synthetic.build_tasks(meter, SINCE)
+            MaintenanceTask.objects.bulk_create(tasks)
+            for task in tasks:
+                model = synthetic.duty_model(task.code, meter.fluid.props())
+                if meter.tag == "FT-303" and task.code == "ELECTRODE_CLEAN":
+                    model = {**model, "tau": 5000.0}  # the line is flushed hot after every batch (invented)
+                visits = synthetic.invent_visits(rng, task.start_days, SINCE, TODAY - dt.timedelta(days=3),
+                                                 task.code, model)
+                notes = {}
+                if meter.tag == "FT-601" and task.code == "PITOT_PULL_CLEAN":
+                    visits, notes = pitot_story(visits)
+                made = synthetic.build_records(task, visits, rng)
+                for i, note in notes.items():
+                    made[i].notes = note
+                MaintenanceRecord.objects.bulk_create(made)
+                records += len(made)
+        recompute_maintenance()
+        call_command("dumpdata", "maintenance.walkorder", "maintenance.maintenancetask",
+                     "maintenance.maintenancerecord", indent=1, output=output)
+        self.stdout.write(self.style.SUCCESS(f"{records} signed maintenance records written to {output}"))

@@ -1,0 +1,260 @@
+"""Maintenance tasks on meters, maintenance records entered in the field, and their photos.
+
+A signed record and its photos are locked at the model level, as signed calibrations are
+(calibration/models.py): save(), delete() and queryset update()/delete() on signed rows raise
+SignedRecordError and change nothing. Task rows carry the stored next due date so the review reads it
+without looking at the records.
+"""
+import datetime as dt
+import secrets
+
+from django.conf import settings
+from django.core.exceptions import ValidationError
+from django.core.validators import MaxValueValidator, MinValueValidator
+from django.db import models, transaction
+from django.urls import reverse
+from django.utils import timezone
+from simple_history.models import HistoricalRecords
+
+from calibration.models import SignedRecordError
+from maintenance import loop
+from plant.models import Meter, unstorable_value_errors
+
+MAX_TASK_DAYS = 3650  # a sanity bound, as the meter's base interval
+
+
+class MaintenanceTask(models.Model):
+    class Origin(models.TextChoices):
+        DERIVED = "derived", "From the duty"
+        REVIEWER = "reviewer", "Set by a reviewer"
+
+    meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="maintenance_tasks")
+    code = models.CharField(max_length=40, help_text="catalogue code (maintenance/tasks.py) or CUSTOM")
+    title = models.CharField(max_length=120)
+    reason = models.TextField()
+    basis = models.CharField(max_length=120, default="common practice")
+    origin = models.CharField(max_length=10, choices=Origin.choices, default=Origin.DERIVED)
+    base_days = models.PositiveIntegerField(
+        "base frequency (days)",
+        validators=[MinValueValidator(1, "The frequency must be at least one day."),
+                    MaxValueValidator(MAX_TASK_DAYS, f"The frequency cannot be longer than {MAX_TASK_DAYS} days.")])
+    severity_factor = models.FloatField(default=1.0, validators=[
+        MinValueValidator(0.01, "The factor must be above zero."), MaxValueValidator(1.0, "The factor is at most 1.")])
+    start_days = models.PositiveIntegerField("frequency from the duty (days)", editable=False, default=1)
+    since = models.DateField("set up on", default=timezone.localdate)
+    active = models.BooleanField(default=True)
+    change_reason = models.CharField("reason for the last change", max_length=300, blank=True)
+    # kept by maintenance.fleet (batched write) and on every signed record; not in the audit trail
+    frequency_days = models.PositiveIntegerField(null=True, blank=True, editable=False)
+    last_done = models.DateField(null=True, blank=True, editable=False)
+    last_condition = models.CharField(max_length=20, blank=True, editable=False)
+    next_due_date = models.DateField(null=True, blank=True, editable=False)
+    history = HistoricalRecords(excluded_fields=["frequency_days", "last_done", "last_condition", "next_due_date"])
+
+    class Meta:
+        ordering = ["meter", "code", "id"]
+        indexes = [models.Index(fields=["next_due_date"], condition=models.Q(active=True),
+                                name="maint_task_due_idx")]
+        permissions = [("review_maintenance", "Can add, change and retire maintenance tasks")]
+
+    def __str__(self):
+        return f"{self.meter.tag}: {self.title}"
+
+    def clean(self):
+        errors = unstorable_value_errors(self)
+        if errors:
+            raise ValidationError(errors)
+
+    def save(self, *args, **kwargs):
+        self.full_clean()
+        from maintenance.tasks import shortened
+
+        self.start_days = shortened(int(self.base_days), float(self.severity_factor))
+        if self.frequency_days is None:
+            self.frequency_days = self.start_days
+        if self.next_due_date is None:
+            self.next_due_date = loop.next_due(self.last_done, self.frequency_days, self.since)
+        super().save(*args, **kwargs)
+
+
+class LockedQuerySet(models.QuerySet):
+    """Refuses bulk update/delete that would touch a signed record."""
+
+    signed_lookup = "state"
+
+    def _touches_signed(self):
+        return self.filter(**{self.signed_lookup: MaintenanceRecord.State.SIGNED}).exists()
+
+    def update(self, **kwargs):
+        if self._touches_signed():
+            raise SignedRecordError("Signed maintenance records cannot be changed.")
+        return super().update(**kwargs)
+
+    def delete(self):
+        if self._touches_signed():
+            raise SignedRecordError("Signed maintenance records cannot be deleted.")
+        return super().delete()
+
+
+class PhotoQuerySet(LockedQuerySet):
+    signed_lookup = "record__state"
+
+
+class MaintenanceRecord(models.Model):
+    class State(models.TextChoices):
+        DRAFT = "draft", "Draft"
+        SIGNED = "signed", "Signed"
+
+
+    meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="maintenance_records")
+    task = models.ForeignKey(MaintenanceTask, on_delete=models.PROTECT, related_name="records")
+    performed_on = models.DateField("date of the work")
+    technician = models.CharField(max_length=120)
+    condition = models.CharField("condition found", max_length=20, choices=list(loop.CONDITIONS))
+    action = models.TextField("action taken")
+    parts = models.CharField("parts replaced", max_length=300, blank=True)
+    minutes_spent = models.PositiveIntegerField(
+        "time spent (minutes)",
+        validators=[MinValueValidator(1, "Enter the time spent in minutes (at least 1)."),
+                    MaxValueValidator(24 * 60 * 7, "More than a week on one record: split it, or check the units "
+                                                   "(minutes).")])
+    notes = models.TextField(blank=True)
+    state = models.CharField(max_length=10, choices=State.choices, default=State.DRAFT)
+    signed_by = models.CharField(max_length=120, blank=True)
+    signed_role = models.CharField(max_length=60, blank=True)
+    signed_at = models.DateTimeField(null=True, blank=True)
+    created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                   related_name="maintenance_entered")
+    history = HistoricalRecords()
+
+    objects = LockedQuerySet.as_manager()
+
+    class Meta:
+        ordering = ["-performed_on", "-id"]
+        indexes = [models.Index(fields=["meter", "performed_on"], name="maint_record_meter_day_idx")]
+        permissions = [("sign_maintenance", "Can sign own maintenance records")]
+
+    def __str__(self):
+        return f"{self.meter.tag} {self.performed_on} {self.get_condition_display()} ({self.get_state_display()})"
+
+    def get_absolute_url(self):
+        return reverse("maintenance:record-detail", args=[self.pk])
+
+    @property
+    def is_signed(self):
+        return self.state == self.State.SIGNED
+
+    def clean(self):
+        errors = unstorable_value_errors(self)
+        if self.task_id and self.meter_id and self.task.meter_id != self.meter_id:
+            errors["task"] = "This task belongs to another meter."
+        elif self.task_id and self._state.adding and not self.task.active:
+            errors["task"] = "This task is retired; choose an active task."
+        # a day's slack: the tablet's local date may be a day ahead of the server's (UTC), as for calibrations
+        if (isinstance(self.performed_on, dt.date) and self._state.adding
+                and self.performed_on > timezone.localdate() + dt.timedelta(days=1)):
+            errors["performed_on"] = "The date of the work is in the future."
+        if errors:
+            raise ValidationError(errors)
+
+    def _stored_state(self):
+        if not self.pk:
+            return None
+        return MaintenanceRecord.objects.filter(pk=self.pk).values_list("state", flat=True).first()
+
+    def save(self, *args, **kwargs):
+        if self._stored_state() == self.State.SIGNED:
+            raise SignedRecordError(f"Maintenance record {self.pk} is signed and cannot be changed.")
+        self.full_clean()
+        super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        if self._stored_state() == self.State.SIGNED:
+            raise SignedRecordError(f"Maintenance record {self.pk} is signed and cannot be deleted.")
+        return super().delete(*args, **kwargs)
+
+    def sign(self, by, role="Technician", at=None):
+        """Lock the record; one signer wins when two sign at once. The task's due date and the meter's
+        calibration due date (the fouling finding) are recomputed in the same transaction."""
+        with transaction.atomic():
+            claimed = MaintenanceRecord.objects.filter(pk=self.pk, state=self.State.DRAFT).update(signed_by=by)
+            if not claimed:
+                current = MaintenanceRecord.objects.filter(pk=self.pk).values_list("signed_by", flat=True).first()
+                raise SignedRecordError(f"Maintenance record {self.pk} is already signed by {current}.")
+            fresh = MaintenanceRecord.objects.select_for_update().get(pk=self.pk)
+            fresh.state = self.State.SIGNED
+            fresh.signed_by = by
+            fresh.signed_role = role
+            fresh.signed_at = at or timezone.now()
+            super(MaintenanceRecord, fresh).save()
+            from calibration.fleet import recompute_due_dates
+
+            # the calibration recompute refreshes this meter's maintenance due dates first (maintenance.fleet)
+            recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+        self.refresh_from_db()
+        return self
+
+
+def photo_path(instance, filename):
+    # our own name on disk: never the uploaded file name (it could hold a path or odd characters)
+    return f"maintenance/{timezone.now():%Y/%m}/{secrets.token_hex(12)}.{instance.extension}"
+
+
+class MaintenancePhoto(models.Model):
+    record = models.ForeignKey(MaintenanceRecord, on_delete=models.PROTECT, related_name="photos")
+    image = models.FileField(upload_to=photo_path)
+    content_type = models.CharField(max_length=40)
+    uploaded_at = models.DateTimeField(default=timezone.now)
+
+    objects = PhotoQuerySet.as_manager()
+
+    EXTENSIONS = {"image/jpeg": "jpg", "image/png": "png", "image/webp": "webp"}
+
+    @property
+    def extension(self):
+        return self.EXTENSIONS.get(self.content_type, "bin")
+
+    def _record_signed(self):
+        return MaintenanceRecord.objects.filter(pk=self.record_id, state=MaintenanceRecord.State.SIGNED).exists()
+
+    def save(self, *args, **kwargs):
+        if self.record_id and self._record_signed():
+            raise SignedRecordError("Photos of a signed maintenance record cannot be changed.")
+        super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        if self._record_signed():
+            raise SignedRecordError("Photos of a signed maintenance record cannot be deleted.")
+        self.image.delete(save=False)
+        return super().delete(*args, **kwargs)
+
+    def get_absolute_url(self):
+        return reverse("maintenance:photo", args=[self.pk])
+
+
+def new_token():
+    return secrets.token_urlsafe(32)
+
+
+class CalendarToken(models.Model):
+    """A per-user secret for the iCalendar feeds; revoking it (delete) stops every feed URL that used it."""
+
+    user = models.ForeignKey(settings.AUTH_USER_MODEL, on_delete=models.CASCADE, related_name="calendar_tokens")
+    token = models.CharField(max_length=64, unique=True, default=new_token)
+    created_at = models.DateTimeField(default=timezone.now)
+
+    def __str__(self):
+        return f"calendar token of {self.user} from {self.created_at:%Y-%m-%d}"
+
+
+class WalkOrder(models.Model):
+    """The order in which a technician walks the areas of a site; the work list follows it (unset: by name)."""
+
+    area = models.OneToOneField("plant.Area", on_delete=models.CASCADE, related_name="walk_order", primary_key=True)
+    position = models.PositiveIntegerField(help_text="1 = visited first on the site")
+
+    class Meta:
+        ordering = ["position"]
+
+    def __str__(self):
+        return f"{self.area}: {self.position}"

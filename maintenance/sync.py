@@ -1,0 +1,57 @@
+"""Keep each meter's derived maintenance tasks in step with its duty (principle and fluid).
+
+Tasks a reviewer added or changed (origin "reviewer") are never touched here; derived tasks are created,
+updated (frequency, reason) or retired as the duty calls for them, each change with its reason in the audit trail.
+"""
+from django.db import transaction
+from django.utils import timezone
+
+from maintenance import tasks as catalogue
+from maintenance.models import MaintenanceTask
+
+RETIRED_BY_DUTY = "No longer called for by the duty (principle or fluid changed)."
+
+
+def _saved(task, reason):
+    task.change_reason = reason[:300]
+    task._change_reason = task.change_reason[:100]  # the audit row's note holds 100; the field keeps all
+    task.save()
+
+
+@transaction.atomic
+def sync_tasks(meter, today=None):
+    """Create, update or retire the meter's derived tasks; returns the specs the duty calls for."""
+    today = today or timezone.localdate()
+    specs = catalogue.derive_tasks(meter.principle, meter.duty_findings())
+    existing = {t.code: t for t in meter.maintenance_tasks.filter(origin=MaintenanceTask.Origin.DERIVED)}
+    reviewer_codes = set(meter.maintenance_tasks.filter(origin=MaintenanceTask.Origin.REVIEWER)
+                         .values_list("code", flat=True))
+    for spec in specs:
+        if spec.code in reviewer_codes:
+            continue  # a reviewer has taken this task over
+        task = existing.get(spec.code)
+        if task is None:
+            task = MaintenanceTask(meter=meter, code=spec.code, title=spec.title, reason=spec.reason,
+                                   basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
+                                   since=today)
+            _saved(task, "Called for by the duty: " + spec.explanation())
+            continue
+        values = {"title": spec.title, "reason": spec.reason, "basis": spec.basis, "base_days": spec.base_days,
+                  "severity_factor": spec.factor}
+        if task.active and all(getattr(task, k) == v for k, v in values.items()):
+            continue
+        was_retired = not task.active
+        for name, value in values.items():
+            setattr(task, name, value)
+        task.active = True
+        if was_retired:
+            task.since = today
+            task.next_due_date = None  # due from today again
+            task.frequency_days = None
+        _saved(task, ("Called for again by the duty: " if was_retired else "Duty changed: ") + spec.explanation())
+    wanted = {s.code for s in specs}
+    for code, task in existing.items():
+        if task.active and code not in wanted:
+            task.active = False
+            _saved(task, RETIRED_BY_DUTY)
+    return specs

@@ -1,0 +1,42 @@
+import django_tables2 as tables
+from django.utils import timezone
+
+from reports.tables import IsoDateColumn
+
+
+class MaintenanceTaskColumns(tables.Table):
+    tag = tables.Column(accessor="meter__tag", verbose_name="Tag", order_by=("meter__tag",),
+                        linkify=lambda record: record.meter.get_absolute_url() + "#maintenance")
+    site = tables.Column(accessor="meter__area__site__name", verbose_name="Site", order_by=("meter__area__site__name",))
+    area = tables.Column(accessor="meter__area__name", verbose_name="Area", order_by=("meter__area__name",))
+    title = tables.Column(verbose_name="Task")
+    next_due_date = IsoDateColumn(verbose_name="Due date")
+
+    class Meta:
+        attrs = {"class": "grid"}
+        orderable = True
+
+
+class MaintenanceOverdueTable(MaintenanceTaskColumns):
+    days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue", order_by=("next_due_date",))
+    last_condition = tables.Column(verbose_name="Last found", default="never done")
+
+    def render_days_overdue(self, record):
+        return (timezone.localdate() - record.next_due_date).days
+
+    def value_days_overdue(self, record):
+        return self.render_days_overdue(record)
+
+    def render_last_condition(self, value):
+        return value.replace("_", " ")
+
+    def value_last_condition(self, value):
+        return (value or "never done").replace("_", " ")
+
+
+class MaintenanceDueTable(MaintenanceTaskColumns):
+    frequency_days = tables.Column(verbose_name="Every (days)")
+    last_done = IsoDateColumn(verbose_name="Last done", default="never")
+
+    def value_last_done(self, value):
+        return value if value is not None else "never"
