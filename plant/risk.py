@@ -611,6 +611,7 @@ _PARTS = {  # code prefix -> the part the chloride findings are about, in plain 
 }
 
 TITLES = {
+    "MAINT_FOULED": "Found fouled at inspection after inspection",  # maintenance/loop.py
     "EM_NOT_LIQUID": "Magnetic meter on a gas or steam",
     "EM_LOW_CONDUCTIVITY": "Liquid too poorly conductive for a magnetic meter",
     "EM_CONDUCTIVITY_UNKNOWN": "Conductivity not recorded: measure it",

@@ -127,5 +127,5 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     buckets.append(Bucket("drafts", "Draft calibrations not signed", drafts, tables.DraftTable, drafts.count()))
     from maintenance.review import buckets as maintenance_buckets
 
-    buckets += maintenance_buckets(filters, days, today)
+    buckets += maintenance_buckets(filters, days, today or localtime.today())  # the plant's date
     return buckets

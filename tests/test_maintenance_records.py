@@ -168,8 +168,9 @@ def test_fouling_finding_lowers_the_factor_of_a_clean_duty(plant, client):
     assert Meter.objects.get(pk=meter.pk).risk_factor() == 1.0  # three inspections only: not yet 3 of 4
     signed_record(meter, "VISUAL_INSPECTION", "clean", today, plant["tech"])
     meter = Meter.objects.get(pk=meter.pk)
-    # 3 of the last 4: high, 0.5 -> effective calibration interval 365 × 0.5 = 182.5 -> 182 (round half even)
-    assert meter.risk_factor() == 0.5 and meter.effective_interval_days() == round(365 * 0.5)
+    # 3 of the last 4: high, 0.5 -> effective calibration interval 365 × 0.5 = 182.5 -> 183 (the one rounding
+    # rule for intervals: halves upward, calibration.intervals.whole_days)
+    assert meter.risk_factor() == 0.5 and meter.effective_interval_days() == 183
     assert meter.risk_severity == "high"
     # the review's risk list names it, its reason read for the page's meters in one query
     exported = client.get("/review/", {"export": "risk"}).content.decode()
@@ -322,3 +323,29 @@ def test_meter_page_shows_each_task_due_date_and_why(plant, client):
     assert f"found blocked: 45 d × 0.5 → 23 d." in body
     assert f"Last done {day.isoformat()} + 23 d = due {due}." in body
     assert "Remove and clean the pitot or averaging pitot" in body
+
+
+def test_meter_page_shows_an_as_found_failure_beside_the_blockage_found_before_it(plant, client):
+    """Issue 12 item 3: an as-found failure within 30 days after a heavy-deposit/blocked inspection is shown
+    beside it. Hand-worked: blocked on day D, calibration found out of tolerance on D + 17 -> "17 d after"."""
+    from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+
+    meter = plant["meter"]
+    blocked_on = timezone.localdate() - dt.timedelta(days=60)
+    signed_record(meter, "PITOT_PULL_CLEAN", "blocked", blocked_on, plant["tech"])
+    standard = ReferenceStandard.objects.create(identification="RS-M1", description="Master meter", range_min=0,
+                                                range_max=500, certificate_number="C-M1",
+                                                due_date=timezone.localdate() + dt.timedelta(days=200),
+                                                expanded_uncertainty=0.2, uncertainty_basis="pct_reading")
+    failed_on = blocked_on + dt.timedelta(days=17)
+    event = CalibrationEvent.objects.create(meter=meter, performed_on=failed_on, technician="T",
+                                            procedure="Comparison against the master meter")
+    event.reference_standards.add(standard)
+    # MPE 2 % of span (400): 8 units; indicated 220 at a reference of 200 is 5 % of span out
+    CalibrationPoint.objects.create(event=event, kind="as_found", nominal_pct=50, reference_value=200,
+                                    indicated_value=220)
+    event.sign(by="T", role="Technician")
+    assert CalibrationEvent.objects.get(pk=event.pk).as_found_in_tolerance is False
+    body = client.get("/meters/FT-P1/").content.decode()
+    assert (f"Calibration {failed_on.isoformat()} found out of tolerance 17 d after heavy deposit or blockage was "
+            f"found on {blocked_on.isoformat()}.") in body

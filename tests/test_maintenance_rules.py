@@ -87,8 +87,12 @@ def test_coriolis_in_corrosive_service_gets_zero_and_tube_health_check():
     brine = FluidProps(phase="liquid", chlorides=True)
     spec = by_code(tasks.derive_tasks("coriolis", risk.assess("coriolis", "316L", brine)))
     assert spec["CORIOLIS_ZERO_TUBE"].frequency_days == 90  # 180 × 0.5
-    # mitigated material (Hastelloy): a low note with factor 1.0 calls for no zero/tube check of its own
-    spec = by_code(tasks.derive_tasks("coriolis", risk.assess("coriolis", "Hastelloy C", brine)))
+    # hot brine on stainless tubes: chloride stress-corrosion cracking (common practice) calls for the same check
+    hot_brine = FluidProps(phase="liquid", chlorides=True, temperature_c=80)
+    hot = by_code(tasks.derive_tasks("coriolis", risk.assess("coriolis", "316L", hot_brine)))
+    assert "CORIOLIS_ZERO_TUBE" in hot
+    # mitigated material (nickel alloy C-276): a low note with factor 1.0 calls for no zero/tube check of its own
+    spec = by_code(tasks.derive_tasks("coriolis", risk.assess("coriolis", "alloy C-276", brine)))
     assert "CORIOLIS_ZERO_TUBE" not in spec
 
 

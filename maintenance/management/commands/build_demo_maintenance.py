@@ -3,8 +3,8 @@ fixtures/demo_maintenance.json (load it after fixtures/demo_plant.json and fixtu
 
 Two stories show the loop (all invented):
 * FT-601, an averaging pitot in slimy cooling-tower water: its ports are found fouled or blocked, so the
-  pull-and-clean comes round more often; an as-found calibration failure (2023-12-12 in the demo history) follows a
-  blocked inspection within 30 days, and a bad autumn 2026 (biocide dosing out of service) gives the meter the
+  pull-and-clean comes round more often; if the demo history has an as-found failure of it, a blocked inspection
+  is placed within 30 days before it, and a bad autumn 2026 (biocide dosing out of service) gives the meter the
   fouling finding, which shortens its calibration interval too;
 * FT-303, a magnetic meter on sugar syrup: the rule of thumb says sticky syrup coats the electrodes, but they are
   found clean visit after visit, so the electrode cleaning is done less and less often.
@@ -18,6 +18,7 @@ from django.conf import settings
 from django.core.management import BaseCommand, CommandError, call_command
 from django.db import transaction
 
+from calibration.models import CalibrationEvent
 from maintenance import synthetic
 from maintenance.fleet import recompute_maintenance
 from maintenance.models import MaintenanceRecord, MaintenanceTask, WalkOrder
@@ -28,15 +29,16 @@ TODAY = dt.date(2026, 11, 30)  # the demo history's "today"
 SINCE = dt.date(2022, 12, 1)
 # the walk round the demo site, gate to far end (invented)
 WALK = ["Boiler house", "Utilities", "Brine & pickling", "Syrup kitchen", "Oil & frying", "CIP station", "Pulp line"]
-FAILED_CALIBRATION = dt.date(2023, 12, 12)  # FT-601's as-found failure in fixtures/demo_history.json
 AUTUMN_2026 = ["heavy_deposit", "blocked", "light_deposit", "heavy_deposit"]
 AUTUMN_NOTE = "Cooling-tower biocide dosing out of service since late summer (invented)."
 
 
-def pitot_story(visits):
-    """FT-601: a blockage found 18 days before the failed calibration, and a bad autumn at the end."""
+def pitot_story(visits, failed_calibration=None):
+    """FT-601: a blockage found within 30 days before its failed calibration (if the history has one), and a bad
+    autumn at the end."""
     visits = list(visits)
-    before = [i for i, (day, _) in enumerate(visits) if 0 < (FAILED_CALIBRATION - day).days <= 30]
+    before = [i for i, (day, _) in enumerate(visits)
+              if failed_calibration and 0 < (failed_calibration - day).days <= 30]
     notes = {}
     if before:
         i = before[0]
@@ -75,7 +77,10 @@ class Command(BaseCommand):
                                                  task.code, model)
                 notes = {}
                 if meter.tag == "FT-601" and task.code == "PITOT_PULL_CLEAN":
-                    visits, notes = pitot_story(visits)
+                    failed = (CalibrationEvent.objects.filter(meter=meter, as_found_in_tolerance=False,
+                                                              performed_on__gte=SINCE)
+                              .order_by("performed_on").values_list("performed_on", flat=True).first())
+                    visits, notes = pitot_story(visits, failed)
                 made = synthetic.build_records(task, visits, rng)
                 for i, note in notes.items():
                     made[i].notes = note
