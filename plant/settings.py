@@ -27,6 +27,7 @@ INSTALLED_APPS = [
     "plant",
     "calibration",
     "reports",
+    "offline",
 ]
 
 MIDDLEWARE = [

@@ -3,6 +3,7 @@ from django.urls import include, path
 from django.views.generic import RedirectView
 
 from calibration import views as calibration_views
+from offline import views as offline_views
 from plant import import_views, views
 
 plant_patterns = (
@@ -26,4 +27,7 @@ urlpatterns = [
     path("", include("reports.urls")),
     path("accounts/", include("django.contrib.auth.urls")),
     path("admin/", admin.site.urls),
+    path("field/", include("offline.urls")),
+    path("sw.js", offline_views.service_worker, name="service-worker"),
+    path("manifest.webmanifest", offline_views.manifest, name="web-manifest"),
 ]
