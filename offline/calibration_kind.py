@@ -7,6 +7,7 @@ from django.urls import reverse
 from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent
 from offline.kinds import Received, Refused
+from offline.rules import entry_rules
 from plant.models import Meter
 
 
@@ -31,7 +32,14 @@ def entry_errors(entry):
 
 class CalibrationKind:
     name = "calibration"
+    title = "Calibration"
     permission = "calibration.add_calibrationevent"
+
+    def client_rules(self, meter):
+        return entry_rules(meter)
+
+    def find(self, client_id):
+        return CalibrationEvent.objects.select_related("meter").filter(client_id=client_id).first()
 
     def pages(self, user, meters):
         return [reverse("plant:meter-calibrate", args=[m.tag]) for m in meters]
@@ -45,7 +53,7 @@ class CalibrationKind:
                         created=created)
 
     def receive(self, user, client_id, target, data):
-        existing = CalibrationEvent.objects.select_related("meter").filter(client_id=client_id).first()
+        existing = self.find(client_id)
         if existing is not None:
             return self._received(existing, user, created=False)
         meter = Meter.objects.select_related("area__site", "fluid").filter(tag=target).first()
@@ -70,7 +78,7 @@ class CalibrationKind:
                 event = entry.save()
         except IntegrityError:
             # the same id arrived at the same moment from another send, which won: return its record
-            existing = CalibrationEvent.objects.select_related("meter").filter(client_id=client_id).first()
+            existing = self.find(client_id)
             if existing is None:
                 raise
             return self._received(existing, user, created=False)

@@ -3,11 +3,16 @@
 A handler is an object with:
 
 - ``name``: the kind, as the tablet stores it with each queued entry ("calibration", ...);
+- ``title``: how the tablet's list names an entry of this kind ("Calibration");
 - ``permission``: the permission needed to send entries of this kind;
 - ``pages(user, meters)``: the URLs of the entry pages to keep on the tablet for these meters;
 - ``receive(user, client_id, target, data)``: validate and save one entry, returning a ``Received``;
   raise ``Refused`` with messages by field name when the entry cannot be saved (nothing is saved then).
-  The same ``client_id`` sent again must return the record made the first time (``created=False``).
+  The same ``client_id`` sent again must return the record made the first time (``created=False``): keep it
+  in a unique field of the record, and answer an IntegrityError on it with the record already there.
+- optionally ``client_rules(meter)``: the checks the tablet runs before keeping an entry (see rules.py).
+
+In the entry form's template, inside the <form>: ``{% load offline %}{% offline_entry "<name>" meter %}``.
 
 Register a handler once, from its app's ``AppConfig.ready()``: ``kinds.register(MyKind())``.
 """

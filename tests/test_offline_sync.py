@@ -297,3 +297,29 @@ def test_another_kind_is_added_by_registering_its_handler(field, monkeypatch):
     assert refused.status_code == 422 and refused.json()["errors"] == {"text": ["Write something."]}
     assert calls[0] == ("offtech", cid, "FT-OFF-1", ["greased"])
     assert "/logbook/FT-OFF-1/" in tech.get("/field/kit.json").json()["pages"]
+
+
+def test_a_send_that_loses_the_race_returns_the_winners_record(field, monkeypatch):
+    """The branch taken when another send of the same id is saved between the lookup and the insert: the unique
+    client id refuses the second insert, its transaction is undone, and the first record is answered."""
+    from offline.calibration_kind import CalibrationKind
+
+    tech, meter = field["clients"]["tech"], field["meters"]["soon"]
+    cid = uuid.uuid4()
+    post = entry_data(field["standard"])
+    assert send(tech, cid, meter.tag, post).status_code == 201
+    winner = CalibrationEvent.objects.get()
+    real_find = CalibrationKind.find
+    misses = []
+
+    def find_late(self, client_id):
+        if not misses:  # the first lookup runs before the other send's commit
+            misses.append(client_id)
+            return None
+        return real_find(self, client_id)
+
+    monkeypatch.setattr(CalibrationKind, "find", find_late)
+    again = send(tech, cid, meter.tag, post)
+    assert misses == [cid]
+    assert again.status_code == 200 and again.json()["url"] == winner.get_absolute_url()
+    assert counts() == (1, 5)

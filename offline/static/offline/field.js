@@ -316,6 +316,9 @@
     button.disabled = true;
     status.textContent = "Keeping the pages on this tablet…";
     try {
+      if ("serviceWorker" in navigator) {
+        await navigator.serviceWorker.ready; // the worker that serves them offline is in place
+      }
       const listing = await fetch(`/field/kit.json${location.search}`, { credentials: "same-origin", cache: "no-store" });
       if (!listing.ok || listing.redirected) {
         throw new Error("The list of pages could not be read; log in again.");
@@ -533,7 +536,7 @@
         page: location.pathname, savedAt: now };
       entry.data = formData(form);
       entry.labels = labelsOf(form);
-      entry.title = `${settings.kind === "calibration" ? "Calibration" : settings.kind} · ${settings.label}`;
+      entry.title = `${settings.title} · ${settings.label}`;
       entry.date = (date && date.value) || "";
       entry.updatedAt = now;
       if (editing && editing.uncertain) {
@@ -589,6 +592,15 @@
   }
 
   // ---- start -----------------------------------------------------------------------------------------
+  async function forgetOldSent() {
+    const week = 7 * 24 * 3600 * 1000;
+    for (const entry of await queue.mine()) {
+      if (entry.state === "sent" && Date.now() - Date.parse(entry.sentAt) > week) {
+        await queue.remove(entry.id); // the record is on the server; the link here is only a convenience
+      }
+    }
+  }
+
   async function start() {
     if (!userId) {
       return;
@@ -598,6 +610,7 @@
     }
     initLogout();
     await dropOtherAccountsKit();
+    await forgetOldSent();
     initHomePage();
     initQueuePage();
     await initEntryPage();
