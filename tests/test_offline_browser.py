@@ -19,7 +19,9 @@ from calibration.forms import CalibrationEntry, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
 from tests.conftest import user_with_role
-from tests.test_browser import ARTIFACTS, CHROMIUM, LAUNCH_ARGS, TABLET, TIMEOUT_MS, assert_touch_size, fill_points
+from tests.test_browser import (  # noqa: F401 (browser is a fixture)
+    ARTIFACTS, CHROMIUM, LAUNCH_ARGS, TABLET, TIMEOUT_MS, assert_touch_size, browser, fill_points,
+)
 
 pytestmark = pytest.mark.django_db(transaction=True)
 SHOTS = ARTIFACTS / "offline"
@@ -38,7 +40,7 @@ KIT_PATHS = """async () => (await caches.has("quenby-kit"))
   ? (await (await caches.open("quenby-kit")).keys()).map((r) => new URL(r.url).pathname) : null"""
 
 SEND_AGAIN = """async (ids) => {
-  const db = await new Promise((ok) => { const r = indexedDB.open("quenby-field", 1); r.onsuccess = () => ok(r.result); });
+  const db = await new Promise((ok) => { const r = indexedDB.open("quenby-field"); r.onsuccess = () => ok(r.result); });
   const entries = await Promise.all(ids.map((id) => new Promise((ok) => {
     const r = db.transaction("entries").objectStore("entries").get(id); r.onsuccess = () => ok(r.result); })));
   db.close();
@@ -318,5 +320,55 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         except Exception as exc:
             print(f"no failure screenshot: {exc}")
         raise
+    finally:
+        context.close()
+
+
+def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_server, browser):
+    """The tablet believes it is online, but the post of the form gets no answer (the signal dropped on the way):
+    what was typed comes back in the form, is kept on the tablet, and is sent once the network works."""
+    plant = pump_station
+    meter = plant["meters"][0]
+    context = browser.new_context(viewport=TABLET, device_scale_factor=1, has_touch=True, locale="en-GB",
+                                  timezone_id="UTC")
+    context.set_default_timeout(TIMEOUT_MS)
+    page = context.new_page()
+    try:
+        page.goto(f"{live_server.url}/accounts/login/")
+        page.get_by_label("Username").fill("welltech")
+        page.get_by_label("Password").fill("dry-well-pass-1")
+        page.get_by_role("button", name="Log in").click()
+        page.wait_for_url(re.compile(r"/meters/$"))
+        page.goto(f"{live_server.url}/meters/{meter.tag}/calibrate/")
+        page.evaluate("navigator.serviceWorker.ready.then(() => true)")
+        page.reload()  # a page loaded once the worker is active is served through it
+        ready(page)
+        assert page.evaluate("navigator.serviceWorker.controller !== null")
+        fill_header(page, plant, "Saved as the signal dropped", "19")
+        fill_points(page, "af", [(4, 4.01), (10, 10.02), (20, 20.05), (30, 30.03), (40, 40.04)])
+        # every post of the form fails at the network; the pages themselves still load
+        context.route(re.compile(r".*/calibrate/$"),
+                      lambda route: route.abort("internetdisconnected") if route.request.method == "POST"
+                      else route.continue_())
+        page.get_by_role("button", name="Save calibration").click()
+        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/calibrate/#interrupted$"))
+        ready(page)
+        expect(page.locator("#offline-interrupted")).to_be_visible()
+        assert page.get_by_label("Method / procedure").input_value() == "Saved as the signal dropped"
+        assert page.locator('[name="af-4-indicated_value"]').input_value() == "40.04"
+        assert page.get_by_label(str(plant["standard"])).is_checked()
+        assert CalibrationEvent.objects.count() == 0
+        SHOTS.mkdir(parents=True, exist_ok=True)
+        page.screenshot(path=str(SHOTS / "07-interrupted-save.png"), full_page=True)
+        page.get_by_role("button", name="Keep on this tablet").click()
+        page.wait_for_url(re.compile(r"/field/queue/#kept="))
+        context.unroute(re.compile(r".*/calibrate/$"))
+        # the queue page sends on opening when the network works; if the route was still in place, on the button
+        page.get_by_role("button", name="Send now").click()
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (0)")
+        event = CalibrationEvent.objects.get()
+        assert event.meter == meter and event.procedure == "Saved as the signal dropped" and event.client_id
+        assert sorted((p.reference_value, p.indicated_value) for p in event.points.all()) == [
+            (4, 4.01), (10, 10.02), (20, 20.05), (30, 30.03), (40, 40.04)]
     finally:
         context.close()

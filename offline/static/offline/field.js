@@ -17,6 +17,7 @@
   const STORE = "entries";
   const KIT = "quenby-kit";
   const KIT_INFO = "quenby-kit-info";
+  const INTERRUPTED = "quenby-interrupted";
   const body = document.body;
   const userId = body.dataset.user || "";
 
@@ -69,10 +70,14 @@
     return `${h.slice(0, 8)}-${h.slice(8, 12)}-${h.slice(12, 16)}-${h.slice(16, 20)}-${h.slice(20)}`;
   }
 
+  function localDate(d) {
+    return `${d.getFullYear()}-${String(d.getMonth() + 1).padStart(2, "0")}-${String(d.getDate()).padStart(2, "0")}`;
+  }
+
   function localToday(offsetDays) {
     const d = new Date();
     d.setDate(d.getDate() + (offsetDays || 0));
-    return `${d.getFullYear()}-${String(d.getMonth() + 1).padStart(2, "0")}-${String(d.getDate()).padStart(2, "0")}`;
+    return localDate(d);
   }
 
   function el(tag, attrs, ...children) {
@@ -306,7 +311,9 @@
     const status = document.getElementById("kit-status");
     const info = JSON.parse(localStorage.getItem(KIT_INFO) || "null");
     if (status && info && info.owner === userId) {
-      status.textContent = `Kept on this tablet: ${info.meters} entry pages, ${new Date(info.at).toLocaleString()}.`;
+      const at = new Date(info.at);
+      const time = `${String(at.getHours()).padStart(2, "0")}:${String(at.getMinutes()).padStart(2, "0")}`;
+      status.textContent = `Kept on this tablet: ${info.meters} entry pages, ${localDate(at)} ${time}.`;
     }
   }
 
@@ -368,14 +375,14 @@
   // ---- the entry form ------------------------------------------------------------------------------
   function formData(form) {
     return Array.from(new FormData(form).entries())
-      .filter(([name, value]) => name !== "csrfmiddlewaretoken" && typeof value === "string");
+      .filter(([name, value]) => !["csrfmiddlewaretoken", "offline-kind"].includes(name) && typeof value === "string");
   }
 
   function fillForm(form, data) {
     const values = {};
     data.forEach(([name, value]) => (values[name] = values[name] || []).push(value));
     Array.from(form.elements).forEach((field) => {
-      if (!field.name || field.name === "csrfmiddlewaretoken" || field.type === "submit") {
+      if (!field.name || ["csrfmiddlewaretoken", "offline-kind"].includes(field.name) || field.type === "submit") {
         return;
       }
       const given = values[field.name] || [];
@@ -492,6 +499,7 @@
     const saveText = submit.textContent;
     const editId = (/#edit=([\w-]+)/.exec(location.hash) || [])[1];
     let editing = null;
+    let interrupted = false;
 
     // a page kept for offline work shows the date it was kept; a new entry is for today
     const date = form.querySelector('[name="ev-performed_on"]');
@@ -499,8 +507,9 @@
       date.value = localToday();
     }
     const showNetwork = () => {
-      note.hidden = navigator.onLine || Boolean(editing);
-      submit.textContent = editing ? "Keep the changes" : (navigator.onLine ? saveText : "Keep on this tablet");
+      note.hidden = navigator.onLine || Boolean(editing) || interrupted;
+      submit.textContent = editing ? "Keep the changes"
+        : (navigator.onLine && !interrupted ? saveText : "Keep on this tablet");
     };
     window.addEventListener("online", showNetwork);
     window.addEventListener("offline", showNetwork);
@@ -517,11 +526,22 @@
         editing = null;
       }
     }
+    if (!editing && /#interrupted/.test(location.hash) && self.caches) {
+      // sw.js kept this form's fields when its post found no network
+      const cache = await caches.open(INTERRUPTED);
+      const kept = await cache.match(location.pathname);
+      if (kept) {
+        fillForm(form, await kept.json());
+        await cache.delete(location.pathname);
+        interrupted = true;
+        document.getElementById("offline-interrupted").hidden = false;
+      }
+    }
     showNetwork();
     form.dataset.offlineReady = "1";
 
     form.addEventListener("submit", async (event) => {
-      if (!editing && navigator.onLine) {
+      if (!editing && !interrupted && navigator.onLine) {
         return; // online: the form is posted to the server as usual
       }
       event.preventDefault();
@@ -554,6 +574,7 @@
     await queue.clear();
     if (self.caches) {
       await caches.delete(KIT);
+      await caches.delete(INTERRUPTED);
     }
     localStorage.removeItem(KIT_INFO);
   }
