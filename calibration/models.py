@@ -169,6 +169,8 @@ class CalibrationEvent(models.Model):
     as_left_in_tolerance = models.BooleanField(null=True)
     created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
                                    related_name="calibrations_entered")
+    # the id a tablet gave the entry while offline; unique, so a repeated or interrupted send adds nothing twice
+    client_id = models.UUIDField(null=True, blank=True, unique=True, editable=False)
     history = HistoricalRecords(m2m_fields=[reference_standards])
 
     objects = LockedQuerySet.as_manager()

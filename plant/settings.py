@@ -30,6 +30,7 @@ INSTALLED_APPS = [
     "calibration",
     "reports",
     "maintenance",
+    "offline",
 ]
 
 MIDDLEWARE = [

@@ -4,6 +4,7 @@ from django.views.generic import RedirectView
 
 from calibration import views as calibration_views
 from maintenance import views as maintenance_views
+from offline import views as offline_views
 from plant import accounts, import_views, views
 
 plant_patterns = (
@@ -31,4 +32,7 @@ urlpatterns = [
     path("accounts/lockouts/", accounts.lockout_list, name="lockouts"),
     path("accounts/", include("django.contrib.auth.urls")),
     path("admin/", admin.site.urls),
+    path("field/", include("offline.urls")),
+    path("sw.js", offline_views.service_worker, name="service-worker"),
+    path("manifest.webmanifest", offline_views.manifest, name="web-manifest"),
 ]

@@ -1,0 +1,85 @@
+"""Calibrations entered offline: the same form and rules as the tablet page online (calibration.forms),
+plus what only matters for an entry that waited on a tablet (the meter taken out of service meanwhile, a
+signed calibration already on record for that meter and day)."""
+from django.db import IntegrityError, transaction
+from django.urls import reverse
+
+from calibration.forms import CalibrationEntry
+from calibration.models import CalibrationEvent
+from offline.kinds import Received, Refused
+from offline.rules import entry_rules
+from plant.models import Meter
+
+
+def entry_errors(entry):
+    """Every message of a refused CalibrationEntry, by the name of the input it belongs to."""
+    errors = {}
+
+    def add(name, messages):
+        if messages:
+            errors.setdefault(name, []).extend(str(m) for m in messages)
+
+    add("__all__", entry.non_field_errors)
+    forms = [entry.event_form]
+    for grid in (entry.as_found, entry.as_left):
+        add("__all__", grid.non_form_errors())
+        forms.extend(grid.forms)
+    for form in forms:
+        for field, messages in form.errors.items():
+            add("__all__" if field == "__all__" else form.add_prefix(field), messages)
+    return errors
+
+
+class CalibrationKind:
+    name = "calibration"
+    title = "Calibration"
+    permission = "calibration.add_calibrationevent"
+
+    def client_rules(self, meter):
+        return entry_rules(meter)
+
+    def find(self, client_id):
+        return CalibrationEvent.objects.select_related("meter").filter(client_id=client_id).first()
+
+    def pages(self, user, meters):
+        return [reverse("plant:meter-calibrate", args=[m.tag]) for m in meters]
+
+    def _received(self, event, user, created):
+        if event.created_by_id != user.pk:
+            # an id is random; this only happens if a tablet reuses one. Say nothing about the other record.
+            raise Refused({"__all__": ["This entry's id is already used by another record; discard it and "
+                                       "enter it again."]})
+        return Received(url=event.get_absolute_url(), label=f"{event.meter.tag} {event.performed_on}",
+                        created=created)
+
+    def receive(self, user, client_id, target, data):
+        existing = self.find(client_id)
+        if existing is not None:
+            return self._received(existing, user, created=False)
+        meter = Meter.objects.select_related("area__site", "fluid").filter(tag=target).first()
+        if meter is None:
+            raise Refused({"__all__": [f"Meter {target} is not in the register any more."]})
+        if meter.status == Meter.Status.REMOVED:
+            raise Refused({"__all__": [f"Meter {meter.tag} has been removed from service; "
+                                       f"a calibration cannot be added to it."]})
+        entry = CalibrationEntry(meter, data, user=user)
+        if not entry.is_valid():
+            raise Refused(entry_errors(entry))
+        performed_on = entry.event_form.cleaned_data["performed_on"]
+        covering = CalibrationEvent.objects.filter(meter=meter, performed_on=performed_on,
+                                                   state=CalibrationEvent.State.SIGNED).first()
+        if covering is not None:
+            raise Refused({entry.event_form.add_prefix("performed_on"): [
+                f"A signed calibration of {meter.tag} on {performed_on} is already on record "
+                f"(calibration {covering.pk}); check the date, or discard this entry if it is the same work."]})
+        entry.event_form.instance.client_id = client_id
+        try:
+            with transaction.atomic():
+                event = entry.save()
+        except IntegrityError:
+            # the same id arrived at the same moment from another send, which won: return its record
+            existing = self.find(client_id)
+            if existing is None:
+                raise
+            return self._received(existing, user, created=False)
+        return self._received(event, user, created=True)

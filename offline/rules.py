@@ -1,0 +1,55 @@
+"""The checks a tablet runs on a calibration entry before keeping it offline, taken from the server's own form.
+
+The messages come from the form classes in calibration.forms (their fields' messages, and what the row form
+answers for a few probing inputs), so the tablet says what the server would say, and a change of wording
+or of the range rule there reaches the tablet without a second copy here. The server checks everything again
+when the entry is sent.
+"""
+from calibration.forms import EventForm, PointRowForm
+
+# Same wording as CalibrationEntry.is_valid (form-wide messages, not reachable by probing a single row).
+AS_FOUND_REQUIRED = "Enter at least one as-found point."
+AS_LEFT_REQUIRED = "An adjustment was made: enter the as-left points."
+
+
+def _row_message(meter, field, **values):
+    row = {"nominal_pct": "50", "reference_value": "", "indicated_value": "", "repeats": "", "resolution": ""}
+    row.update({k: str(v) for k, v in values.items()})
+    form = PointRowForm(row, meter=meter)
+    form.is_valid()
+    messages = form.errors.get(field)
+    return str(messages[0]) if messages else ""
+
+
+def entry_rules(meter):
+    event_fields = EventForm().fields
+    required = {
+        f"ev-{name}": str(field.error_messages["required"])
+        for name, field in event_fields.items() if field.required
+    }
+    inside = meter.range_min + (meter.range_max - meter.range_min) / 2
+    probe = meter.range_max + (meter.range_max - meter.range_min) + 1
+    outside = _row_message(meter, "reference_value", reference_value=probe, indicated_value=probe)
+    row = PointRowForm.base_fields
+    return {
+        "required": required,
+        "range_min": meter.range_min,
+        "range_max": meter.range_max,
+        "mpe_basis": meter.mpe_basis,
+        "grids": ["af", "al"],
+        "messages": {
+            "reference_invalid": str(row["reference_value"].error_messages["invalid"]),
+            "indicated_invalid": str(row["indicated_value"].error_messages["invalid"]),
+            "reference_required": _row_message(meter, "reference_value", indicated_value=inside),
+            "indicated_required": _row_message(meter, "indicated_value", reference_value=inside),
+            "negative": _row_message(meter, "reference_value", reference_value=-1, indicated_value=1),
+            # the value is put back in by the tablet
+            "outside_range": outside.replace(f"{probe:g}", "{value}", 1),
+            "zero_of_reading": (_row_message(meter, "reference_value", reference_value=0, indicated_value=0)
+                                if meter.mpe_basis == "pct_reading" and meter.range_min <= 0 else ""),
+            "blank_as_found_row": "Enter the reference flow at this point, or remove the row.",
+            "as_found_required": AS_FOUND_REQUIRED,
+            "as_left_required": AS_LEFT_REQUIRED,
+            "future_date": "The date of calibration is in the future.",
+        },
+    }
