@@ -155,7 +155,7 @@ def test_wetted_material_from_the_list_saved_with_details(site_area_fluid):
     meter = MeterForm(data=meter_data(area, fluid, wetted_material="alloy C-276",
                                       material_details="PTFE liner")).save()
     assert (meter.wetted_material, meter.material_details) == ("alloy C-276", "PTFE liner")
-    assert meter.get_wetted_material_display() == "Nickel alloy C-276 (Ni-Cr-Mo)"
+    assert meter.get_wetted_material_display() == "Nickel alloy C-276"
 
 
 # The register's columns (issue 15 item 9) -----------------------------------------------------------------------------

@@ -17,8 +17,8 @@ from django.db import migrations
 CODES = {  # code -> its label on the list
     "304": "Stainless steel 304", "304L": "Stainless steel 304L", "316": "Stainless steel 316",
     "316L": "Stainless steel 316L", "duplex 2205": "Duplex stainless 2205",
-    "super duplex 2507": "Super duplex stainless 2507", "alloy C-276": "Nickel alloy C-276 (Ni-Cr-Mo)",
-    "alloy C-22": "Nickel alloy C-22 (Ni-Cr-Mo)", "titanium": "Titanium", "tantalum": "Tantalum",
+    "super duplex 2507": "Super duplex stainless 2507", "alloy C-276": "Nickel alloy C-276",
+    "alloy C-22": "Nickel alloy C-22", "titanium": "Titanium", "tantalum": "Tantalum",
     "platinum-iridium": "Platinum-iridium", "carbon steel": "Carbon steel", "cast iron": "Cast iron",
     "aluminium": "Aluminium", "brass": "Brass or bronze", "PTFE": "PTFE or PFA (fluoropolymer)", "PVDF": "PVDF",
     "polypropylene": "Polypropylene", "PVC-U": "PVC-U", "ceramic": "Ceramic (alumina or zirconia)",
