@@ -76,7 +76,7 @@ def counts():
 def test_a_sent_entry_is_saved_once_with_its_values(field):
     tech, meter = field["clients"]["tech"], field["meters"]["soon"]
     cid = uuid.uuid4()
-    post = entry_data(field["standard"], **{"ev-technician": "B. Offline", "ev-notes": "entered in the basement"})
+    post = entry_data(field["standard"], **{"ev-contractor": "B. Offline", "ev-notes": "entered in the basement"})
     first = send(tech, cid, meter.tag, post)
     assert first.status_code == 201, first.content
     event = CalibrationEvent.objects.get()
@@ -126,7 +126,8 @@ def test_refusals_that_only_an_entry_kept_offline_meets(field):
     # a signed calibration of that meter on that day is already on record (entered online meanwhile)
     online = CalibrationEntry(meters["soon"], entry_post_data(
         {"performed_on": TODAY.isoformat(), "technician": "C. Online", "reference_standards": [field["standard"].pk],
-         "procedure": "five points", "reason": "scheduled", "decision_rule": "simple"},
+         "procedure": "five points", "reason": "scheduled", "decision_rule": "simple",
+         "condition_received": "installed"},
         [(4, 4.0), (10, 10.0), (20, 20.0), (30, 30.0), (40, 40.0)]), user=field["users"]["tech2"])
     assert online.is_valid()
     signed = online.save().sign(by="C. Online")
@@ -257,7 +258,9 @@ def test_service_worker_and_manifest_are_served_from_the_root(field):
 def test_the_tablet_checks_say_what_the_server_says(field):
     meter = field["meters"]["soon"]
     rules = entry_rules(meter)
-    assert set(rules["required"]) >= {"ev-performed_on", "ev-technician", "ev-reference_standards", "ev-procedure"}
+    assert set(rules["required"]) >= {"ev-performed_on", "ev-reference_standards", "ev-procedure",
+                                      "ev-condition_received"}
+    assert "ev-contractor" not in rules["required"]  # the logged-in technician is the performer
     assert rules["required"]["ev-reference_standards"] == "Choose the reference standard used."
     assert (rules["range_min"], rules["range_max"]) == (0, 40)
     for value in (41, 55, 1000.5):
