@@ -9,6 +9,9 @@ class MaintenanceConfig(AppConfig):
         from django.db.models.signals import post_migrate
 
         from maintenance import signals  # noqa: F401  (registers the receivers)
+        from maintenance.offline_kind import MaintenanceKind
+        from offline import kinds
         from plant.roles import ensure_roles
 
         post_migrate.connect(ensure_roles, sender=self)
+        kinds.register(MaintenanceKind())  # maintenance records can be kept on a tablet offline

@@ -125,6 +125,8 @@ class MaintenanceRecord(models.Model):
     signed_at = models.DateTimeField(null=True, blank=True)
     created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
                                    related_name="maintenance_entered")
+    # the id a tablet gave an entry kept offline (offline/): the same id sent again saves nothing new
+    client_id = models.UUIDField(null=True, blank=True, unique=True, editable=False)
     history = HistoricalRecords()
 
     objects = LockedQuerySet.as_manager()

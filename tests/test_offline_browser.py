@@ -1,7 +1,7 @@
 """Offline field entry in a real browser (Debian's Chromium, 820×1180, a persistent profile in a temp dir).
 
-Keep the due pages on the tablet, lose the network, enter two calibrations (one first refused on the tablet),
-reload, close the browser and open it again, come back online: the entries are sent on their own, the first
+Keep the due pages on the tablet, lose the network, enter two calibrations (one first refused on the tablet) and
+one maintenance record, reload, close the browser and open it again, come back online: the entries are sent on their own, the first
 send's answer is lost on the way (the server saved it; the tablet does not know), one entry is refused by the
 server (a signed calibration of that meter on that day arrived meanwhile) and stays with its message beside the
 field; it is changed and sent; sending the same entries again, even twice at once, makes nothing new. Logging
@@ -17,6 +17,7 @@ from playwright.sync_api import expect, sync_playwright
 
 from calibration.forms import CalibrationEntry, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from maintenance.models import MaintenanceRecord
 from plant.models import Area, Fluid, Meter, Site
 from tests.conftest import user_with_role
 from tests.test_browser import (  # noqa: F401 (browser is a fixture)
@@ -33,7 +34,7 @@ QUEUE_IDS = """async () => {
   const all = await new Promise((ok) => { const r = db.transaction("entries").objectStore("entries").getAll();
     r.onsuccess = () => ok(r.result); });
   db.close();
-  return all.map((e) => ({id: e.id, target: e.target, state: e.state}));
+  return all.map((e) => ({id: e.id, kind: e.kind, target: e.target, state: e.state}));
 }"""
 
 KIT_PATHS = """async () => (await caches.has("quenby-kit"))
@@ -116,6 +117,7 @@ def fill_header(page, plant, procedure, ambient):
     page.get_by_label(str(plant["standard"])).check()
     page.get_by_label("Method / procedure").fill(procedure)
     page.get_by_label("Ambient temperature (°C)").fill(ambient)
+    page.get_by_label("Condition of the item as received").fill("installed, in service, no visible damage")
 
 
 def test_entries_made_without_network_are_sent_once(pump_station, live_server, playwright, tmp_path):
@@ -143,11 +145,13 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         keep = page.get_by_role("button", name="Keep these pages on this tablet")
         assert_touch_size(keep, "keep button")
         keep.click()
-        expect(page.locator("#kit-status")).to_contain_text("Kept on this tablet: 2 entry pages")
+        # each due meter's calibration and maintenance entry pages
+        expect(page.locator("#kit-status")).to_contain_text("Kept on this tablet: 4 entry pages")
         kept = page.evaluate(KIT_PATHS)
         assert {f"/meters/{first.tag}/calibrate/", f"/meters/{second.tag}/calibrate/", "/field/",
+                f"/meters/{first.tag}/maintain/", f"/meters/{second.tag}/maintain/",
                 "/field/queue/", "/static/offline/field.js", "/static/site.css"} <= set(kept)
-        assert f"/meters/{not_due.tag}/calibrate/" not in kept and len(kept) == 6
+        assert f"/meters/{not_due.tag}/calibrate/" not in kept and len(kept) == 8
         shot(page, "01-kit-kept")
 
         # No network from here. A page that was not kept says so; the kept entry page opens.
@@ -182,7 +186,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         page.wait_for_url(re.compile(rf"/meters/{second.tag}/calibrate/$"))
         ready(page)
         fill_header(page, plant, "Offline entry two", "17")
-        page.get_by_label("Technician").fill("W. Welltech")
+        page.get_by_label("Outside contractor (only if a contractor did the work)").fill("W. Welltech")
         fill_points(page, "af", [(8, 8.0), (20, 20.1), (40, 40.0), (60, 59.9), (80, 80.2)])
         page.get_by_role("button", name="Keep on this tablet").click()
         page.wait_for_url(re.compile(r"/field/queue/#kept="))
@@ -191,22 +195,51 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         ready(page)
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (2)")
         expect(page.locator("#waiting-badge")).to_have_text("Waiting to send (2)")
-        # a third one, entered by mistake, is discarded from the list (two taps) and never sent
+        # a maintenance record beside them, on the first meter's kept maintenance page (photos stay behind)
+        page.goto(f"{base}/meters/{first.tag}/maintain/")
+        ready(page)
+        expect(page.locator("#offline-note")).to_be_visible()
+        expect(page.locator("#offline-photos")).to_contain_text("sent without photos")
+        task_radio = page.locator('#task-choices input[name="task"]').first
+        task_id = int(task_radio.get_attribute("value"))
+        task_radio.check()
+        keep_record = page.get_by_role("button", name="Keep on this tablet")
+        keep_record.click()
+        # refused on the tablet with the server form's messages, at the fields; nothing kept
+        expect(page.locator('.field:has([name="action"]) .errorlist')).to_have_text("Say what you did.")
+        expect(page.locator('#condition-choices .errorlist')).to_have_text("Choose what you found.")
+        assert len(page.evaluate(QUEUE_IDS)) == 2
+        page.get_by_label("Heavy deposit").check()
+        page.get_by_label("Action taken").fill("Opened the dry-well meter, wiped the electrodes")
+        page.get_by_label("Parts replaced").fill("liner gasket")
+        page.get_by_label("Time spent (minutes)").fill("45")
+        page.get_by_label("Notes").fill("kept offline in the dry well")
+        keep_record.click()
+        page.wait_for_url(re.compile(r"/field/queue/#kept="))
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (3)")
+        expect(page.locator("#queue-list li.queue-item").nth(2)).to_contain_text(f"Maintenance · {first.tag}")
+        # a fourth one, entered by mistake, is discarded from the list (two taps) and never sent
         page.goto(f"{base}/meters/{first.tag}/calibrate/")
         ready(page)
         fill_header(page, plant, "Entered by mistake", "15")
         fill_points(page, "af", [(4, 4.0), (10, 10.0), (20, 20.0), (30, 30.0), (40, 40.0)])
         page.get_by_role("button", name="Keep on this tablet").click()
         page.wait_for_url(re.compile(r"/field/queue/#kept="))
-        expect(page.locator("#queue-title")).to_have_text("Waiting to send (3)")
-        mistake = page.locator("#queue-list li.queue-item").nth(2)
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (4)")
+        mistake = page.locator("#queue-list li.queue-item").nth(3)
         expect(mistake).to_contain_text(f"Calibration · {first.tag}")
         mistake.get_by_role("button", name="Discard").click()
         mistake.get_by_role("button", name="Delete it from this tablet").click()
-        expect(page.locator("#queue-title")).to_have_text("Waiting to send (2)")
-        ids = {e["target"]: e["id"] for e in page.evaluate(QUEUE_IDS)}
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (3)")
+        entries = page.evaluate(QUEUE_IDS)
+        ids = {e["target"]: e["id"] for e in entries if e["kind"] == "calibration"}
         assert set(ids) == {first.tag, second.tag}
-        assert CalibrationEvent.objects.count() == 0
+        [maintenance_id] = [e["id"] for e in entries if e["kind"] == "maintenance" and e["target"] == first.tag]
+        assert len(entries) == 3
+        assert CalibrationEvent.objects.count() == 0 and MaintenanceRecord.objects.count() == 0
+    except BaseException:
+        shot(page, "failure-offline")
+        raise
     finally:
         context.close()
 
@@ -214,6 +247,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
     online = CalibrationEntry(second, entry_post_data(
         {"performed_on": plant["today"].isoformat(), "technician": "A. Colleague",
          "reference_standards": [plant["standard"].pk], "procedure": "online", "reason": "scheduled",
+         "condition_received": "installed, in service",
          "decision_rule": "simple"}, [(8, 8.0), (20, 20.0), (40, 40.0), (60, 60.0), (80, 80.0)]),
         user=user_with_role("technician", "colleague"))
     assert online.is_valid()
@@ -225,16 +259,16 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         page = page_of(context)
         page.goto(f"{base}/field/queue/")
         ready(page)
-        expect(page.locator("#queue-title")).to_have_text("Waiting to send (2)")
-        expect(page.locator("#queue-list li.queue-item")).to_have_count(2)
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (3)")
+        expect(page.locator("#queue-list li.queue-item")).to_have_count(3)
         # logging out now warns first; staying keeps everything
         page.get_by_role("button", name="Log out").click()
         warning = page.locator("#logout-warning")
-        expect(warning).to_contain_text("2 entries have not been sent.")
+        expect(warning).to_contain_text("3 entries have not been sent.")
         shot(page, "03-logout-warning")
         warning.get_by_role("button", name="Stay logged in").click()
         expect(warning).to_have_count(0)
-        assert len(page.evaluate(QUEUE_IDS)) == 2
+        assert len(page.evaluate(QUEUE_IDS)) == 3
 
         # Back online. The first send reaches the server but its answer is lost on the way back.
         cut = {"done": False}
@@ -250,7 +284,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         context.route("**/field/send/", lose_first_answer)
         context.set_offline(False)  # sent on reconnection, no button needed
         status = page.locator("#queue-status")
-        expect(status).to_contain_text("1 refused (see below), 1 still waiting")
+        expect(status).to_contain_text("1 sent, 1 refused (see below), 1 still waiting")
         assert cut["done"]
         assert list(CalibrationEvent.objects.values_list("client_id", flat=True)
                     .filter(meter=first)) == [__import__("uuid").UUID(ids[first.tag])]
@@ -272,7 +306,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         ready(page)
         beside = page.locator('.field:has([name="ev-performed_on"]) .errorlist')
         expect(beside).to_have_text(expected)
-        assert page.get_by_label("Technician").input_value() == "W. Welltech"
+        assert page.get_by_label("Outside contractor (only if a contractor did the work)").input_value() == "W. Welltech"
         assert page.locator('[name="af-4-indicated_value"]').input_value() == "80.2"
         shot(page, "05-server-message-at-field")
         yesterday = plant["today"] - dt.timedelta(days=1)
@@ -280,7 +314,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         page.get_by_role("button", name="Keep the changes").click()
         page.wait_for_url(re.compile(r"/field/queue/"))
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (0)")  # sent on opening the page
-        expect(page.locator("#sent-list li")).to_have_count(2)
+        expect(page.locator("#sent-list li")).to_have_count(3)
         expect(page.locator("#waiting-badge")).to_have_count(0)
         shot(page, "06-all-sent")
 
@@ -297,16 +331,25 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         assert sorted((p.reference_value, p.indicated_value) for p in two.points.all()) == [
             (8, 8.0), (20, 20.1), (40, 40.0), (60, 59.9), (80, 80.2)]
         assert {one.state, two.state} == {"draft"} and {one.created_by, two.created_by} == {plant["technician"]}
-        before = (CalibrationEvent.objects.count(), CalibrationPoint.objects.count())
-        assert before == (3, 15)
+        record = MaintenanceRecord.objects.get()  # exactly one, with what was entered offline
+        assert (str(record.client_id), record.meter, record.task_id, record.condition, record.action, record.parts,
+                record.minutes_spent, record.notes, record.performed_on, record.state, record.created_by) == (
+            maintenance_id, first, task_id, "heavy_deposit", "Opened the dry-well meter, wiped the electrodes",
+            "liner gasket", 45, "kept offline in the dry well", plant["today"], "draft", plant["technician"])
+        assert not record.photos.exists()
+        before = (CalibrationEvent.objects.count(), CalibrationPoint.objects.count(), MaintenanceRecord.objects.count())
+        assert before == (3, 15, 1)
 
-        # Sending both again, each twice at the same moment: nothing new.
-        statuses = page.evaluate(SEND_AGAIN, [ids[first.tag], ids[second.tag]])
-        assert statuses == [200, 200, 200, 200]
-        assert (CalibrationEvent.objects.count(), CalibrationPoint.objects.count()) == before
+        # Sending all three again, each twice at the same moment: nothing new.
+        statuses = page.evaluate(SEND_AGAIN, [ids[first.tag], ids[second.tag], maintenance_id])
+        assert statuses == [200, 200, 200, 200, 200, 200]
+        assert (CalibrationEvent.objects.count(), CalibrationPoint.objects.count(),
+                MaintenanceRecord.objects.count()) == before
 
         # Sign-off is online, on the server's page.
-        page.locator("#sent-list a", has_text=first.tag).click()
+        expect(page.locator("#sent-list a", has_text=f"Maintenance · {first.tag} · {plant['today']}")).to_have_attribute(
+            "href", record.get_absolute_url())
+        page.locator("#sent-list a", has_text=f"Calibration · {first.tag}").click()
         page.wait_for_url(re.compile(rf"/calibrations/{one.pk}/$"))
         expect(page.get_by_role("button", name=re.compile("Sign and lock"))).to_be_visible()
 

@@ -76,14 +76,14 @@ def counts():
 def test_a_sent_entry_is_saved_once_with_its_values(field):
     tech, meter = field["clients"]["tech"], field["meters"]["soon"]
     cid = uuid.uuid4()
-    post = entry_data(field["standard"], **{"ev-notes": "entered in the basement"})
+    post = entry_data(field["standard"], **{"ev-contractor": "B. Offline", "ev-notes": "entered in the basement"})
     first = send(tech, cid, meter.tag, post)
     assert first.status_code == 201, first.content
     event = CalibrationEvent.objects.get()
     assert first.json() == {"status": "saved", "url": f"/calibrations/{event.pk}/",
                             "label": f"{meter.tag} {ENTRY_DATE}"}
     assert event.client_id == cid and event.meter == meter and event.created_by == field["users"]["tech"]
-    assert event.state == "draft" and event.performed_by == field["users"]["tech"] and event.notes == "entered in the basement"
+    assert event.state == "draft" and event.technician == "B. Offline" and event.notes == "entered in the basement"
     assert sorted((p.reference_value, p.indicated_value) for p in event.points.all()) == [
         (4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
     # sent again (the answer was lost, the tablet retries): the same record, nothing new
@@ -125,8 +125,9 @@ def test_refusals_that_only_an_entry_kept_offline_meets(field):
 
     # a signed calibration of that meter on that day is already on record (entered online meanwhile)
     online = CalibrationEntry(meters["soon"], entry_post_data(
-        {"performed_on": TODAY.isoformat(), "condition_received": "in service", "reference_standards": [field["standard"].pk],
-         "procedure": "five points", "reason": "scheduled", "decision_rule": "simple"},
+        {"performed_on": TODAY.isoformat(), "technician": "C. Online", "reference_standards": [field["standard"].pk],
+         "procedure": "five points", "reason": "scheduled", "decision_rule": "simple",
+         "condition_received": "installed"},
         [(4, 4.0), (10, 10.0), (20, 20.0), (30, 30.0), (40, 40.0)]), user=field["users"]["tech2"])
     assert online.is_valid()
     signed = online.save().sign(by="C. Online")
@@ -232,8 +233,10 @@ def test_the_kit_holds_the_due_entry_pages_the_account_may_open(field):
     kit = field["clients"]["tech"].get("/field/kit.json").json()
     assert kit["owner"] == str(field["users"]["tech"].pk)
     # never calibrated, overdue, due within the coming weeks; not the one due in 200 days, not the removed one
-    assert kit["pages"] == ["/field/", "/field/queue/", "/meters/FT-OFF-4/calibrate/", "/meters/FT-OFF-2/calibrate/",
-                            "/meters/FT-OFF-1/calibrate/"]
+    due = ["FT-OFF-4", "FT-OFF-2", "FT-OFF-1"]
+    assert sorted(kit["pages"]) == sorted(["/field/", "/field/queue/"] + [f"/meters/{tag}/calibrate/" for tag in due]
+                                          + [f"/meters/{tag}/maintain/" for tag in due])  # each kind's pages
+    assert [p for p in kit["pages"] if p.endswith("/calibrate/")] == [f"/meters/{tag}/calibrate/" for tag in due]
     assert kit["assets"] == ["/static/site.css", "/static/offline/field.js"]
     for url in kit["pages"]:
         assert field["clients"]["tech"].get(url).status_code == 200, url
@@ -263,7 +266,9 @@ def test_service_worker_and_manifest_are_served_from_the_root(field):
 def test_the_tablet_checks_say_what_the_server_says(field):
     meter = field["meters"]["soon"]
     rules = entry_rules(meter)
-    assert set(rules["required"]) >= {"ev-performed_on", "ev-condition_received", "ev-reference_standards", "ev-procedure"}
+    assert set(rules["required"]) >= {"ev-performed_on", "ev-reference_standards", "ev-procedure",
+                                      "ev-condition_received"}
+    assert "ev-contractor" not in rules["required"]  # the logged-in technician is the performer
     assert rules["required"]["ev-reference_standards"] == "Choose the reference standard used."
     assert (rules["range_min"], rules["range_max"]) == (0, 40)
     for value in (41, 55, 1000.5):

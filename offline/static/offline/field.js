@@ -439,8 +439,9 @@
     Object.entries(rules.required || {}).forEach(([name, message]) => {
       if (!data.getAll(name).some((v) => String(v).trim())) add(name, message);
     });
-    const date = text("ev-performed_on");
-    if (date && date > localToday(1)) add("ev-performed_on", m.future_date);
+    const dateName = dateField(rules);
+    const date = text(dateName);
+    if (date && date > localToday(1)) add(dateName, m.future_date);
     const filled = {};
     (rules.grids || []).forEach((prefix) => {
       filled[prefix] = 0;
@@ -474,8 +475,11 @@
     return errors;
   }
 
-  function labelsOf(form) {
-    const labels = {};
+  // the date input of an entry: the calibration form's, unless the kind's rules name another
+  const dateField = (rules) => (rules && rules.date_field) || "ev-performed_on";
+
+  function labelsOf(form, rules) {
+    const labels = Object.assign({}, (rules && rules.labels) || {});
     form.querySelectorAll("label[for]").forEach((label) => {
       const field = document.getElementById(label.htmlFor);
       if (field && field.name && field.name.startsWith("ev-") && field.type !== "checkbox") {
@@ -502,7 +506,7 @@
     let interrupted = false;
 
     // a page kept for offline work shows the date it was kept; a new entry is for today
-    const date = form.querySelector('[name="ev-performed_on"]');
+    const date = form.querySelector(`[name="${dateField(settings.rules)}"]`);
     if (!editId && date && date.value === settings.rendered_on && settings.rendered_on !== localToday()) {
       date.value = localToday();
     }
@@ -555,7 +559,7 @@
       const entry = editing || { id: newId(), kind: settings.kind, target: settings.target, owner: userId,
         page: location.pathname, savedAt: now };
       entry.data = formData(form);
-      entry.labels = labelsOf(form);
+      entry.labels = labelsOf(form, settings.rules);
       entry.title = `${settings.title} · ${settings.label}`;
       entry.date = (date && date.value) || "";
       entry.updatedAt = now;
