@@ -1,12 +1,11 @@
 """Calibrations entered offline: the same form and rules as the tablet page online (calibration.forms),
 plus what only matters for an entry that waited on a tablet (the meter taken out of service meanwhile, a
 signed calibration already on record for that meter and day)."""
-from django.db import IntegrityError, transaction
 from django.urls import reverse
 
 from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent
-from offline.kinds import Received, Refused
+from offline.kinds import RecordKind, Refused
 from offline.rules import entry_rules
 from plant.models import Meter
 
@@ -30,7 +29,8 @@ def entry_errors(entry):
     return errors
 
 
-class CalibrationKind:
+class CalibrationKind(RecordKind):
+    model = CalibrationEvent
     name = "calibration"
     title = "Calibration"
     permission = "calibration.add_calibrationevent"
@@ -38,27 +38,14 @@ class CalibrationKind:
     def client_rules(self, meter):
         return entry_rules(meter)
 
-    def find(self, client_id):
-        return CalibrationEvent.objects.select_related("meter").filter(client_id=client_id).first()
-
     def pages(self, user, meters):
         return [reverse("plant:meter-calibrate", args=[m.tag]) for m in meters]
 
-    def _received(self, event, user, created):
-        if event.created_by_id != user.pk:
-            # an id is random; this only happens if a tablet reuses one. Say nothing about the other record.
-            raise Refused({"__all__": ["This entry's id is already used by another record; discard it and "
-                                       "enter it again."]})
-        return Received(url=event.get_absolute_url(), label=f"{event.meter.tag} {event.performed_on}",
-                        created=created)
-
     def receive(self, user, client_id, target, data):
-        existing = self.find(client_id)
-        if existing is not None:
-            return self._received(existing, user, created=False)
-        meter = Meter.objects.select_related("area__site", "fluid").filter(tag=target).first()
-        if meter is None:
-            raise Refused({"__all__": [f"Meter {target} is not in the register any more."]})
+        known = self.known(user, client_id)
+        if known is not None:
+            return known
+        meter = self.meter_for(target)
         if meter.status == Meter.Status.REMOVED:
             raise Refused({"__all__": [f"Meter {meter.tag} has been removed from service; "
                                        f"a calibration cannot be added to it."]})
@@ -73,13 +60,4 @@ class CalibrationKind:
                 f"A signed calibration of {meter.tag} on {performed_on} is already on record "
                 f"(calibration {covering.pk}); check the date, or discard this entry if it is the same work."]})
         entry.event_form.instance.client_id = client_id
-        try:
-            with transaction.atomic():
-                event = entry.save()
-        except IntegrityError:
-            # the same id arrived at the same moment from another send, which won: return its record
-            existing = self.find(client_id)
-            if existing is None:
-                raise
-            return self._received(existing, user, created=False)
-        return self._received(event, user, created=True)
+        return self.saved_once(user, client_id, entry.save)

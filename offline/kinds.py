@@ -36,6 +36,55 @@ class Refused(Exception):
         self.errors = errors
 
 
+class RecordKind:
+    """What every kind shares: a record model with ``client_id``, ``created_by``, ``meter`` and ``performed_on``.
+
+    A kind sets ``model`` and writes ``receive``; ``known``, ``meter_for`` and ``saved_once`` keep the rules
+    of an id (returned once saved, never another account's) and of a lost race in one place.
+    """
+    model = None
+
+    def find(self, client_id):
+        return self.model.objects.select_related("meter").filter(client_id=client_id).first()
+
+    def _received(self, record, user, created):
+        if record.created_by_id != user.pk:
+            # an id is random; this only happens if a tablet reuses one. Say nothing about the other record.
+            raise Refused({"__all__": ["This entry's id is already used by another record; discard it and "
+                                       "enter it again."]})
+        return Received(url=record.get_absolute_url(), label=f"{record.meter.tag} {record.performed_on}",
+                        created=created)
+
+    def known(self, user, client_id):
+        """The Received of an id saved before, or None."""
+        existing = self.find(client_id)
+        return None if existing is None else self._received(existing, user, created=False)
+
+    @staticmethod
+    def meter_for(target):
+        from plant.models import Meter
+
+        meter = Meter.objects.select_related("area__site", "fluid").filter(tag=target).first()
+        if meter is None:
+            raise Refused({"__all__": [f"Meter {target} is not in the register any more."]})
+        return meter
+
+    def saved_once(self, user, client_id, save, lost_race=()):
+        """save() in its own transaction; when the same id arrived at the same moment from another send,
+        which won (an IntegrityError, or one of ``lost_race``), return that send's record."""
+        from django.db import IntegrityError, transaction
+
+        try:
+            with transaction.atomic():
+                record = save()
+        except (IntegrityError, *lost_race):
+            existing = self.find(client_id)
+            if existing is None:
+                raise
+            return self._received(existing, user, created=False)
+        return self._received(record, user, created=True)
+
+
 def register(handler):
     _KINDS[handler.name] = handler
 
