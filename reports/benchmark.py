@@ -16,7 +16,7 @@ from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
 from calibration import decision as decision_rules
-from calibration import drift, due, fleet, intervals
+from calibration import drift, fleet, intervals
 from calibration.models import CalibrationEvent
 from plant import risk
 
