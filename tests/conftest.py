@@ -57,3 +57,39 @@ def terminal_summary_lines(pytestconfig):
 def pytest_terminal_summary(terminalreporter, config):
     for line in config.stash.get(_SUMMARY_LINES, []):
         terminalreporter.write_line(line)
+
+
+def send_twice_at_once(user, send_one):
+    """Two logged-in clients of `user` call send_one(client) at the same moment; their status codes.
+
+    The clients log in here, one after the other (two threads writing sessions at once would race on their
+    own); a thread that dies fails the caller's assertion instead of leaving the other at the barrier."""
+    import threading
+
+    from django.db import connection
+
+    barrier = threading.Barrier(2, timeout=60)
+    statuses, failures = [], []
+    clients = []
+    for _ in range(2):
+        client = Client()
+        client.force_login(user)
+        clients.append(client)
+
+    def go(client):
+        try:
+            barrier.wait()
+            statuses.append(send_one(client).status_code)
+        except Exception as exc:
+            failures.append(repr(exc))
+            barrier.abort()
+        finally:
+            connection.close()
+
+    threads = [threading.Thread(target=go, args=(c,)) for c in clients]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(timeout=120)
+    assert failures == [] and not any(t.is_alive() for t in threads), failures
+    return statuses

@@ -2,17 +2,15 @@
 at once), a bad value is refused at its field with nothing saved, the kit holds the maintenance pages, and the
 entry page carries the offline hooks and the note on photos. Runs on SQLite and PostgreSQL like the suite."""
 import json
-import threading
 import uuid
 
 import pytest
-from django.db import connection
 from django.test import Client
 
 from maintenance.models import MaintenancePhoto, MaintenanceRecord
 from maintenance.offline_kind import MaintenanceKind
 from offline import kinds
-from tests.conftest import user_with_role
+from tests.conftest import send_twice_at_once, user_with_role
 from tests.test_maintenance_records import plant, post_data, task_of  # noqa: F401  (the fixture)
 
 pytestmark = pytest.mark.django_db
@@ -106,31 +104,7 @@ def test_a_reviewer_may_not_send_maintenance(plant):  # noqa: F811
 def test_two_sends_of_one_id_at_once_make_one_record(plant):  # noqa: F811
     for _ in range(4):
         cid = uuid.uuid4()
-        barrier = threading.Barrier(2, timeout=60)
-        statuses, failures = [], []
-        # logged in here, one after the other: two threads writing sessions at once would race on their own
-        clients = []
-        for _ in range(2):
-            client = Client()
-            client.force_login(plant["tech"])
-            clients.append(client)
-
-        def go(client):
-            try:
-                barrier.wait()
-                statuses.append(send(client, cid, entry(plant)).status_code)
-            except Exception as exc:  # reported below: a thread that dies must fail the test, not hang it
-                failures.append(repr(exc))
-                barrier.abort()
-            finally:
-                connection.close()
-
-        threads = [threading.Thread(target=go, args=(c,)) for c in clients]
-        for t in threads:
-            t.start()
-        for t in threads:
-            t.join(timeout=120)
-        assert failures == [] and not any(t.is_alive() for t in threads), failures
+        statuses = send_twice_at_once(plant["tech"], lambda client: send(client, cid, entry(plant)))
         assert MaintenanceRecord.objects.filter(client_id=cid).count() == 1
         # one saved it; the other found it (200) or, on SQLite, was told to send again (503, kept on the tablet)
         assert sorted(statuses) in ([200, 201], [201, 503]), statuses

@@ -3,11 +3,9 @@ roles, two sends of one id at once), the kit of pages kept on a tablet, the serv
 tablet's checks taken from the server's form. Runs on SQLite and PostgreSQL like the rest of the suite."""
 import datetime as dt
 import json
-import threading
 import uuid
 
 import pytest
-from django.db import connection
 from django.test import Client
 from django.utils import timezone
 
@@ -16,7 +14,7 @@ from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStan
 from offline import kinds
 from offline.rules import entry_rules
 from plant.models import Area, Fluid, Meter, Site
-from tests.conftest import user_with_role
+from tests.conftest import send_twice_at_once, user_with_role
 from tests.test_calibration_records import TODAY as ENTRY_DATE, entry_data
 
 pytestmark = pytest.mark.django_db
@@ -196,31 +194,7 @@ def test_two_sends_of_one_entry_at_once_make_one_record(field):
     post = entry_data(field["standard"])
     for _ in range(4):
         cid = uuid.uuid4()
-        barrier = threading.Barrier(2, timeout=60)
-        statuses, failures = [], []
-        # logged in here, one after the other: two threads writing sessions at once would race on their own
-        clients = []
-        for _ in range(2):
-            client = Client()
-            client.force_login(field["users"]["tech"])
-            clients.append(client)
-
-        def go(client):
-            try:
-                barrier.wait()
-                statuses.append(send(client, cid, field["meters"]["soon"].tag, post).status_code)
-            except Exception as exc:  # reported below: a thread that dies must fail the test, not hang it
-                failures.append(repr(exc))
-                barrier.abort()
-            finally:
-                connection.close()
-
-        threads = [threading.Thread(target=go, args=(c,)) for c in clients]
-        for t in threads:
-            t.start()
-        for t in threads:
-            t.join(timeout=120)
-        assert failures == [] and not any(t.is_alive() for t in threads), failures
+        statuses = send_twice_at_once(field["users"]["tech"], lambda client: send(client, cid, field["meters"]["soon"].tag, post))
         assert CalibrationEvent.objects.filter(client_id=cid).count() == 1
         # one saved it; the other found it (200) or, on SQLite, was told to send again (503, kept on the tablet)
         assert sorted(statuses) in ([200, 201], [201, 503]), statuses
