@@ -30,8 +30,9 @@ from plant.models import Fluid, Meter
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
                   "predicted_crossing", "last_in_tolerance", "risk_severity"]
 # what the due-date rule reads of a meter (risk inputs, interval, MPE); the rest is not loaded
-METER_INPUTS = ["id", "principle", "fluid", "wetted_material", "internal_diameter_mm", "flow_units", "normal_flow",
-                "min_flow", "mpe_value", "base_interval_days"]
+METER_INPUTS = ["id", "principle", "wetted_material", "flow_units", "mpe_value", "base_interval_days", "position"]
+# what the risk rules read of the position a device serves
+POSITION_INPUTS = ["id", "tag", "fluid", "internal_diameter_mm", "flow_units", "normal_flow", "min_flow"]
 STATUS_PRECEDENCE = ("out_of_tolerance", "scatter", "drifting", "improving", "flat", "insufficient")
 _UNIX_EPOCH_ORDINAL = dt.date(1970, 1, 1).toordinal()
 
@@ -268,6 +269,30 @@ def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     return chosen
 
 
+def attach_duties(meters, meters_qs=None):
+    """Give each device the position it serves and that position's fluid (spares: the fluid of their last
+    duty) from three reads, so the risk rules run without a query per device. A few fluid objects are
+    shared rather than one copy per device."""
+    from plant.models import DutyPeriod, Position
+
+    fluids = Fluid.objects.in_bulk()
+    positions = Position.objects.only(*POSITION_INPUTS)
+    positions = positions.filter(device__isnull=False) if meters_qs is None else positions.filter(device__in=meters_qs)
+    positions = {p.pk: p for p in positions}
+    spare_ids = [m.pk for m in meters if m.position_id is None]
+    last_fluid = {}
+    if spare_ids:
+        duties = DutyPeriod.objects.filter(meter_id__in=spare_ids).order_by("meter_id", "since", "id")
+        last_fluid = dict(duties.values_list("meter_id", "fluid_id"))  # the latest of each device wins
+    for meter in meters:
+        if meter.position_id is not None:
+            position = positions[meter.position_id]
+            position.fluid = fluids[position.fluid_id]
+            meter.position = position
+        else:
+            meter._last_duty_fluid = fluids.get(last_fluid.get(meter.pk))
+
+
 # The recompute ------------------------------------------------------------------------------------
 def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     """Recompute and store the due-date fields of the meters (all when None); returns the count."""
@@ -278,9 +303,7 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     meters = list(meters_qs.only(*METER_INPUTS).order_by("pk"))
     if not meters:
         return 0
-    fluids = Fluid.objects.in_bulk({m.fluid_id for m in meters})
-    for meter in meters:  # a few fluid objects shared, rather than one copy per meter
-        meter.fluid = fluids[meter.fluid_id]
+    attach_duties(meters, None if whole_fleet else meters_qs)
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
     # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
     from maintenance.fleet import recompute_maintenance

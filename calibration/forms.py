@@ -62,7 +62,7 @@ class EventForm(forms.ModelForm):
             key = self.add_prefix("reference_standards")
             sent = (self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound else []
             ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
-            today = meter.area.site.today()  # the date at the meter's site
+            today = meter.today()  # the date at the meter's site
             field.widget.choices = [(value, label) for value, label in field.choices
                                     if value.instance.due_date >= today or str(value) in ticked]
 
@@ -242,7 +242,7 @@ class CalibrationEntry:
         self.meter = meter
         self.user = user
         bound = data is not None
-        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.area.site.today()}  # the date at the meter's site
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.today()}  # the date at the meter's site
         self.low_tur_policy = settings.CALIBRATION.get("low_tur_policy", "require_guarded")
         self.event_form = (EventForm(data, prefix="ev", meter=meter) if bound
                            else EventForm(prefix="ev", initial=initial, meter=meter))

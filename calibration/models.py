@@ -16,7 +16,7 @@ from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty
-from plant.models import Fluid, Meter, number_or_none
+from plant.models import Fluid, Meter, Position, number_or_none
 
 
 FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
@@ -139,6 +139,9 @@ class CalibrationEvent(models.Model):
         GUARDED = "guarded", "Guarded acceptance (ILAC-G8, w = U)"
 
     meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="calibrations")
+    # the position the device was installed at when calibrated (blank: calibrated on the bench as a spare)
+    position = models.ForeignKey(Position, null=True, blank=True, on_delete=models.PROTECT,
+                                 related_name="calibrations", editable=False)
     performed_on = models.DateField("date of calibration")
     # the name printed as "performed by": the performing user's name, or the outside contractor's
     technician = models.CharField(max_length=120)
@@ -186,7 +189,7 @@ class CalibrationEvent(models.Model):
         ]
 
     def __str__(self):
-        return f"{self.meter.tag} {self.performed_on} ({self.get_state_display()})"
+        return f"{self.meter} {self.performed_on} ({self.get_state_display()})"
 
     def clean(self):
         errors = {}
@@ -221,6 +224,12 @@ class CalibrationEvent(models.Model):
     def save(self, *args, **kwargs):
         if self._stored_state() == self.State.SIGNED:
             raise SignedRecordError(f"Calibration {self.pk} is signed and cannot be changed; record a correction instead.")
+        if self._state.adding and self.position_id is None and self.meter_id:
+            # where the device served when it was calibrated; a correction keeps the record's it corrects
+            if self.supersedes_id:
+                self.position_id = self.supersedes.position_id
+            elif isinstance(self.performed_on, dt.date):
+                self.position_id = self.meter.position_on(self.performed_on)
         super().save(*args, **kwargs)
 
     def delete(self, *args, **kwargs):

@@ -13,10 +13,10 @@ import random
 
 from django.db import transaction
 
-from calibration import errors
+from calibration import errors, units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.management.commands.build_demo_plant import FLUIDS, MAKERS, METERS
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 
 TAG_PREFIX = "SYN-"
 NOMINALS = (10, 25, 50, 75, 100)
@@ -73,7 +73,7 @@ class FleetBuilder:
         self.maintenance_rng = random.Random(seed + 1)  # its own stream: the calibration history stays as it was
 
     def build(self, progress=None):
-        if Meter.objects.filter(tag__startswith=TAG_PREFIX).exists():
+        if Position.objects.filter(tag__startswith=TAG_PREFIX).exists():
             raise ValueError("This database already holds a synthetic fleet; build it into an empty database.")
         with transaction.atomic():
             self.fluids = fluids()
@@ -92,30 +92,47 @@ class FleetBuilder:
 
     def _meter(self, number):
         rng = self.rng
-        (_, principle, fluid, _, size, bore, rmax, units, material, mpe, basis) = rng.choice(METERS)
+        (_, principle, fluid, _, size, bore, rmax, units_text, material, mpe, basis) = rng.choice(METERS)
         scale = rng.choice([0.5, 1, 1, 2])
         rmax = round(rmax * scale, 3)
         status = rng.choices(["in_service", "spare", "removed"], weights=[96, 3, 1])[0]
-        return Meter(
-            tag=f"{TAG_PREFIX}{number:06d}", principle=principle, area=rng.choice(self.areas),
-            fluid=self.fluids[fluid], line_size=size, internal_diameter_mm=bore, range_min=0, range_max=rmax,
-            flow_units=units, normal_flow=round(rmax * rng.uniform(0.4, 0.7), 3),
-            min_flow=round(rmax * rng.uniform(0.03, 0.15), 3), wetted_material=material,
+        code = units.code_for(units_text)
+        position = Position(
+            tag=f"{TAG_PREFIX}{number:06d}", area=rng.choice(self.areas), fluid=self.fluids[fluid], line_size=size,
+            internal_diameter_mm=bore, flow_units=code, normal_flow=round(rmax * rng.uniform(0.4, 0.7), 3),
+            min_flow=round(rmax * rng.uniform(0.03, 0.15), 3))
+        meter = Meter(
+            principle=principle, range_min=0, range_max=rmax, flow_units=code, wetted_material=material,
             serial=f"SN{rng.randint(1000000, 9999999)}", maker=rng.choice(MAKERS), model=f"M{rng.randint(10, 99)}",
             mpe_value=mpe, mpe_basis=basis, base_interval_days=rng.choice([365, 365, 540, 730]), status=status,
         )
+        # spares and retired devices are on the shelf: they served at a place (their duty) but hold no position
+        meter._duty = (position.area, position.fluid)
+        meter._last_duty_fluid = position.fluid
+        return (position if status == "in_service" else None), meter
 
     def _chunk(self, start, size):
-        meters = [self._meter(start + i + 1) for i in range(size)]
-        for meter in meters:  # the model's own checks, less the per-row lookups of area and fluid
-            meter.clean_fields(exclude=["area", "fluid"])
+        pairs = [self._meter(start + i + 1) for i in range(size)]
+        positions = [p for p, _ in pairs if p is not None]
+        for position in positions:  # the model's own checks, less the per-row lookups of area and fluid
+            position.clean_fields(exclude=["area", "fluid"])
+            position.clean()
+        Position.objects.bulk_create(positions)
+        meters = []
+        for position, meter in pairs:
+            meter.position = position
+            meter.clean_fields()
             meter.clean()
+            meters.append(meter)
         Meter.objects.bulk_create(meters)
-        # bulk_create skips save(), which opens the duty history: open it here, one row per meter
-        Meter.duties.rel.related_model.objects.bulk_create([
-            Meter.duties.rel.related_model(meter=m, area=m.area, fluid=m.fluid,
-                                           since=self.today - dt.timedelta(days=int(365.25 * YEARS)))
-            for m in meters])
+        # bulk_create skips the installation path (plant.installations): the installations and the duty
+        # history are written here, one row per device
+        since = self.today - dt.timedelta(days=int(365.25 * YEARS))
+        Installation.objects.bulk_create([Installation(device=m, position=m.position, since=since)
+                                          for m in meters if m.position is not None])
+        DutyPeriod.objects.bulk_create([DutyPeriod(meter=m, position=m.position, area=m._duty[0], fluid=m._duty[1],
+                                                   since=since, until=None if m.position else self.today)
+                                        for m in meters])
         for meter in meters:  # no maintenance findings while the calibration history is invented
             meter._evidence_findings = []
         plans = [(meter, self._history(meter)) for meter in meters]
@@ -164,7 +181,7 @@ class FleetBuilder:
             adjust = max(abs(e) for e in found) > 0.6 * mpe
             left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS] if adjust else []
             event = CalibrationEvent(
-                meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
+                meter=meter, position=meter.position, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
                 ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=meter.fluid.temperature_c,
                 pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
                 decision_rule=rule, notes="Zero and span adjusted." if adjust else "",
@@ -179,7 +196,8 @@ class FleetBuilder:
             baseline = sum(left) / len(left) if adjust else offset
             day += dt.timedelta(days=int(interval * rng.uniform(0.9, 1.1)))
         if meter.status == "in_service" and rng.random() < 0.005:  # a few drafts left unsigned
-            event = CalibrationEvent(meter=meter, performed_on=self.today, technician=rng.choice(TECHNICIANS),
+            event = CalibrationEvent(meter=meter, position=meter.position, performed_on=self.today,
+                                     technician=rng.choice(TECHNICIANS),
                                      procedure=PROCEDURE, decision_rule=rule)
             points = self._points(meter, standard, rule, CalibrationPoint.Kind.AS_FOUND,
                                   [rng.gauss(0, 0.1 * mpe) for _ in NOMINALS])

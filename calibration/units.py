@@ -185,3 +185,9 @@ def conversion_needs(from_code: str, to_code: str) -> set[str]:
     if kinds == {"reference_volume", "volume"}:
         return {"line_conditions"}
     return {"reference_density"}
+
+
+def label(code: str) -> str:
+    """The unit's label for pages and certificates (the code itself when it is not a known unit)."""
+    found = FLOW_UNITS.get(code)
+    return found.label if found else code

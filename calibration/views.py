@@ -15,15 +15,38 @@ from calibration.models import (
     Countersignature,
     SignedRecordError,
 )
+from offline.kinds import device_mismatch
 from plant.models import Meter
 from plant.roles import role_of
 
 
+def installed_at(tag):
+    """The device installed at the position `tag` (404 when there is no such position or it is vacant)."""
+    return get_object_or_404(Meter.objects.select_related("position__area__site", "position__fluid"),
+                             position__tag=tag)
+
+
 @permission_required("calibration.add_calibrationevent", raise_exception=True)
 def new_calibration(request, tag):
-    meter = get_object_or_404(Meter.objects.select_related("area__site", "fluid"), tag=tag)
+    return _calibration_entry(request, installed_at(tag))
+
+
+@permission_required("calibration.add_calibrationevent", raise_exception=True)
+def new_bench_calibration(request, pk):
+    """A spare calibrated on the bench (no position): the record follows the device."""
+    meter = get_object_or_404(Meter.objects.select_related("position__area__site", "position__fluid"), pk=pk,
+                              status=Meter.Status.SPARE)
+    if meter.position_id:
+        return redirect(meter.calibrate_url())
+    return _calibration_entry(request, meter)
+
+
+def _calibration_entry(request, meter):
     entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None, user=request.user)
-    if request.method == "POST" and entry.is_valid():
+    swapped = device_mismatch(meter, request.POST) if request.method == "POST" else ""
+    if swapped:
+        entry.non_field_errors.append(swapped)
+    if request.method == "POST" and not swapped and entry.is_valid():
         event = entry.save()
         return redirect(event)
     status = 400 if request.method == "POST" else 200
@@ -43,7 +66,7 @@ def _result_rows(points):
 @permission_required("calibration.view_calibrationevent", raise_exception=True)
 def event_detail(request, pk, sign_error=None):
     event = get_object_or_404(
-        CalibrationEvent.objects.select_related("meter__area__site", "meter__fluid", "supersedes", "performed_by",
+        CalibrationEvent.objects.select_related("meter__position__area__site", "meter__position__fluid", "position", "supersedes", "performed_by",
                                                 "created_by"), pk=pk
     )
     points = list(event.points.all())

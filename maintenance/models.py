@@ -58,7 +58,7 @@ class MaintenanceTask(models.Model):
         permissions = [("review_maintenance", "Can add, change and retire maintenance tasks")]
 
     def __str__(self):
-        return f"{self.meter.tag}: {self.title}"
+        return f"{self.meter}: {self.title}"
 
     def clean(self):
         errors = unstorable_value_errors(self)
@@ -137,7 +137,7 @@ class MaintenanceRecord(models.Model):
         permissions = [("sign_maintenance", "Can sign own maintenance records")]
 
     def __str__(self):
-        return f"{self.meter.tag} {self.performed_on} {self.get_condition_display()} ({self.get_state_display()})"
+        return f"{self.meter} {self.performed_on} {self.get_condition_display()} ({self.get_state_display()})"
 
     def get_absolute_url(self):
         return reverse("maintenance:record-detail", args=[self.pk])

@@ -34,13 +34,13 @@ class MaintenanceKind(RecordKind):
         }
 
     def pages(self, user, meters):
-        return [reverse("plant:meter-maintain", args=[m.tag]) for m in meters]
+        return [reverse("plant:meter-maintain", args=[m.tag]) for m in meters if m.position_id]
 
     def receive(self, user, client_id, target, data):
         known = self.known(user, client_id)
         if known is not None:
             return known
-        meter = self.meter_for(target)
+        meter = self.meter_for(target, data)
         form = RecordForm(data, meter=meter, user=user)  # no files: photos are not sent from the queue
         if not form.is_valid():
             raise Refused(form_errors(form))

@@ -4,15 +4,16 @@ import datetime as dt
 
 from django.db.models import Count, Q
 
-LOOKUPS = {"site": "meter__area__site", "area": "meter__area", "principle": "meter__principle",
-           "fluid": "meter__fluid"}
+LOOKUPS = {"site": "meter__position__area__site", "area": "meter__position__area", "principle": "meter__principle",
+           "fluid": "meter__position__fluid"}
 
 
 def tasks_in_service(filters: dict):
     from maintenance.models import MaintenanceTask
     from plant.models import Meter
 
-    qs = MaintenanceTask.objects.filter(active=True, meter__status=Meter.Status.IN_SERVICE)
+    qs = MaintenanceTask.objects.filter(active=True, meter__status=Meter.Status.IN_SERVICE,
+                                         meter__position__isnull=False)
     for name, value in filters.items():
         if value not in (None, "") and name in LOOKUPS:
             qs = qs.filter(**{LOOKUPS[name]: value})
@@ -29,7 +30,7 @@ def buckets(filters: dict, days: int, today: dt.date):
     }
     base = tasks_in_service(filters)
     counts = base.aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
-    rows = base.select_related("meter__area__site")
+    rows = base.select_related("meter__position__area__site")
     return [
         Bucket("maint_overdue", "Maintenance overdue", rows.filter(conditions["maint_overdue"]),
                MaintenanceOverdueTable, counts["maint_overdue"]),

@@ -2,7 +2,7 @@
 from django.db.models.signals import post_save
 from django.dispatch import receiver
 
-from plant.models import Fluid, Meter
+from plant.models import Fluid, Meter, Position
 
 
 @receiver(post_save, sender=Meter, dispatch_uid="maintenance-meter-tasks")
@@ -20,6 +20,19 @@ def fluid_saved(sender, instance, raw=False, created=False, **kwargs):
         return
     from maintenance.sync import sync_tasks
 
-    for meter in instance.meters.select_related("fluid"):
-        meter.fluid = instance
+    for meter in Meter.objects.filter(position__fluid=instance).select_related("position"):
+        meter.position.fluid = instance
         sync_tasks(meter)
+
+
+@receiver(post_save, sender=Position, dispatch_uid="maintenance-position-tasks")
+def position_saved(sender, instance, raw=False, created=False, **kwargs):
+    """A position's duty changed (fluid, flows, diameter): the installed device's derived tasks follow."""
+    if raw or created:
+        return
+    device = instance.installed_device()
+    if device is not None:
+        from maintenance.sync import sync_tasks
+
+        device.position = instance
+        sync_tasks(device)

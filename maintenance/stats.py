@@ -26,9 +26,9 @@ def findings_frame(site=None) -> pd.DataFrame:
 
     records = MaintenanceRecord.objects.filter(state=MaintenanceRecord.State.SIGNED)
     if site is not None:
-        records = records.filter(meter__area__site=site)
+        records = records.filter(meter__position__area__site=site)
     frame = pd.DataFrame.from_records(
-        list(records.order_by().values_list("meter__principle", "meter__fluid__name", "condition")),
+        list(records.order_by().values_list("meter__principle", "meter__position__fluid__name", "condition")),
         columns=["principle", "fluid", "condition"])
     names = dict(Meter.Principle.choices)
     frame["principle"] = frame["principle"].map(lambda p: names.get(p, p))

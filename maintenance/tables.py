@@ -5,10 +5,10 @@ from reports.tables import IsoDateColumn
 
 
 class MaintenanceTaskColumns(tables.Table):
-    tag = tables.Column(accessor="meter__tag", verbose_name="Tag", order_by=("meter__tag",),
+    tag = tables.Column(accessor="meter__position__tag", verbose_name="Tag", order_by=("meter__position__tag",),
                         linkify=lambda record: record.meter.get_absolute_url() + "#maintenance")
-    site = tables.Column(accessor="meter__area__site__name", verbose_name="Site", order_by=("meter__area__site__name",))
-    area = tables.Column(accessor="meter__area__name", verbose_name="Area", order_by=("meter__area__name",))
+    site = tables.Column(accessor="meter__position__area__site__name", verbose_name="Site", order_by=("meter__position__area__site__name",))
+    area = tables.Column(accessor="meter__position__area__name", verbose_name="Area", order_by=("meter__position__area__name",))
     title = tables.Column(verbose_name="Task")
     next_due_date = IsoDateColumn(verbose_name="Due date")
 

@@ -17,7 +17,7 @@ from plant.roles import role_of
 
 @permission_required("maintenance.add_maintenancerecord", raise_exception=True)
 def new_record(request, tag):
-    meter = get_object_or_404(Meter.objects.select_related("area__site", "fluid"), tag=tag)
+    meter = get_object_or_404(Meter.objects.select_related("position__area__site", "position__fluid"), position__tag=tag)
     if request.method == "POST":
         form = RecordForm(request.POST, request.FILES, meter=meter, user=request.user)
         if form.is_valid():
@@ -36,7 +36,7 @@ def new_record(request, tag):
 
 @permission_required("maintenance.view_maintenancerecord", raise_exception=True)
 def record_detail(request, pk, sign_error=None):
-    record = get_object_or_404(MaintenanceRecord.objects.select_related("meter__area__site", "meter__fluid", "task"),
+    record = get_object_or_404(MaintenanceRecord.objects.select_related("meter__position__area__site", "meter__position__fluid", "task"),
                                pk=pk)
     can_sign = (not record.is_signed and request.user.has_perm("maintenance.sign_maintenance")
                 and record.created_by_id == request.user.pk)
@@ -86,7 +86,7 @@ def _task_form(request, meter, task):
 
 @permission_required("maintenance.review_maintenance", raise_exception=True)
 def task_add(request, tag):
-    meter = get_object_or_404(Meter, tag=tag)
+    meter = get_object_or_404(Meter, position__tag=tag)
     return _task_form(request, meter, MaintenanceTask(meter=meter))
 
 

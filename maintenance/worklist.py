@@ -71,13 +71,14 @@ def rows(end: dt.date, site=None, area=None) -> list[WorkItem]:
     from maintenance.models import MaintenanceTask
     from plant.models import Meter
 
-    meters = Meter.objects.filter(status=Meter.Status.IN_SERVICE)
+    meters = Meter.objects.filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
     if site is not None:
-        meters = meters.filter(area__site=site)
+        meters = meters.filter(position__area__site=site)
     if area is not None:
-        meters = meters.filter(area=area)
+        meters = meters.filter(position__area=area)
     principles = dict(Meter.Principle.choices)
-    common = ["tag", "principle", "fluid__name", "area_id", "area__name", "area__site__name", "area__walk_order__position"]
+    common = ["position__tag", "principle", "position__fluid__name", "position__area_id", "position__area__name",
+              "position__area__site__name", "position__area__walk_order__position"]
     items = []
     from django.db.models import Q
 

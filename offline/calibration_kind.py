@@ -39,13 +39,13 @@ class CalibrationKind(RecordKind):
         return entry_rules(meter)
 
     def pages(self, user, meters):
-        return [reverse("plant:meter-calibrate", args=[m.tag]) for m in meters]
+        return [reverse("plant:meter-calibrate", args=[m.tag]) for m in meters if m.position_id]
 
     def receive(self, user, client_id, target, data):
         known = self.known(user, client_id)
         if known is not None:
             return known
-        meter = self.meter_for(target)
+        meter = self.meter_for(target, data)
         if meter.status == Meter.Status.REMOVED:
             raise Refused({"__all__": [f"Meter {meter.tag} has been removed from service; "
                                        f"a calibration cannot be added to it."]})

@@ -52,7 +52,7 @@ class RecordKind:
             # an id is random; this only happens if a tablet reuses one. Say nothing about the other record.
             raise Refused({"__all__": ["This entry's id is already used by another record; discard it and "
                                        "enter it again."]})
-        return Received(url=record.get_absolute_url(), label=f"{record.meter.tag} {record.performed_on}",
+        return Received(url=record.get_absolute_url(), label=f"{record.meter} {record.performed_on}",
                         created=created)
 
     def known(self, user, client_id):
@@ -61,12 +61,21 @@ class RecordKind:
         return None if existing is None else self._received(existing, user, created=False)
 
     @staticmethod
-    def meter_for(target):
-        from plant.models import Meter
+    def meter_for(target, data=None):
+        """The device installed at the position `target` (a tag). When the entry names the device it was
+        written for (the entry page's hidden ``device``), a device swapped out since is refused: the readings
+        belong to that device, not to the one installed now."""
+        from plant.models import Meter, Position
 
-        meter = Meter.objects.select_related("area__site", "fluid").filter(tag=target).first()
+        meter = (Meter.objects.select_related("position__area__site", "position__fluid")
+                 .filter(position__tag=target).first())
         if meter is None:
-            raise Refused({"__all__": [f"Meter {target} is not in the register any more."]})
+            if not Position.objects.filter(tag=target).exists():
+                raise Refused({"__all__": [f"Position {target} is not in the register any more."]})
+            raise Refused({"__all__": [f"No device is installed at {target} now; the entry cannot be saved to it."]})
+        written_for = device_mismatch(meter, data)
+        if written_for:
+            raise Refused({"__all__": [written_for]})
         return meter
 
     def saved_once(self, user, client_id, save, lost_race=()):
@@ -95,3 +104,20 @@ def get(name):
 
 def all_kinds():
     return list(_KINDS.values())
+
+
+def device_mismatch(meter, data) -> str:
+    """A message when the entry was written for another device than `meter` (swapped since), else ""."""
+    written_for = (data or {}).get("device", "")
+    if isinstance(written_for, list):
+        written_for = written_for[0] if written_for else ""
+    written_for = str(written_for).strip()
+    if not written_for or written_for == str(meter.pk):
+        return ""
+    from plant.models import Meter
+
+    other = Meter.objects.filter(pk=written_for).first() if written_for.isdigit() else None
+    named = other.device_label if other else f"device #{written_for}"
+    return (f"This entry was written for {named}, but {meter.tag} now holds {meter.device_label} (the devices were "
+            f"swapped). Nothing was saved: enter the readings against the device they were taken on.")
+

@@ -30,14 +30,14 @@ def due_meters(user, site=None, area=None, today=None):
         return Meter.objects.none()
     today = today or timezone.localdate()
     horizon = today + dt.timedelta(weeks=setting("weeks_ahead"))
-    meters = (Meter.objects.select_related("area__site")
-              .filter(status=Meter.Status.IN_SERVICE)
+    meters = (Meter.objects.select_related("position__area__site")
+              .filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
               .filter(Q(next_due_date__lte=horizon) | Q(next_due_date__isnull=True)))
     if site:
-        meters = meters.filter(area__site_id=site)
+        meters = meters.filter(position__area__site_id=site)
     if area:
-        meters = meters.filter(area_id=area)
-    return meters.order_by(F("next_due_date").asc(nulls_first=True), "tag")  # never calibrated first
+        meters = meters.filter(position__area_id=area)
+    return meters.order_by(F("next_due_date").asc(nulls_first=True), "position__tag")  # never calibrated first
 
 
 def kit(user, meters):

@@ -1,6 +1,6 @@
 from django.contrib import admin
 
-from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 
 
 class DutyInline(admin.TabularInline):
@@ -10,10 +10,17 @@ class DutyInline(admin.TabularInline):
 
 @admin.register(Meter)
 class MeterAdmin(admin.ModelAdmin):
-    list_display = ("tag", "principle", "area", "fluid", "status")
-    list_filter = ("principle", "status", "area__site", "fluid")
-    search_fields = ("tag", "serial")
+    list_display = ("__str__", "serial", "principle", "status")
+    list_filter = ("principle", "status", "position__area__site", "position__fluid")
+    search_fields = ("position__tag", "serial")
     inlines = [DutyInline]
+
+
+@admin.register(Position)
+class PositionAdmin(admin.ModelAdmin):
+    list_display = ("tag", "area", "fluid", "line_size")
+    list_filter = ("area__site", "fluid")
+    search_fields = ("tag",)
 
 
 @admin.register(Fluid)
@@ -24,3 +31,4 @@ class FluidAdmin(admin.ModelAdmin):
 admin.site.register(Site)
 admin.site.register(Area)
 admin.site.register(DutyPeriod)
+admin.site.register(Installation)

@@ -2,7 +2,10 @@ from django import forms
 from django.core.exceptions import ValidationError
 from django.db import models
 
-from plant.models import UNKNOWN_MATERIAL, Fluid, Meter
+import datetime as dt
+
+from plant.installations import Removal
+from plant.models import UNKNOWN_MATERIAL, Fluid, Meter, Position
 
 YES_WORDS = frozenset({"on", "yes", "y", "true", "t", "1"})
 NO_WORDS = frozenset({"off", "no", "n", "false", "f", "0", ""})
@@ -60,8 +63,52 @@ class FluidForm(forms.ModelForm):
         field_classes = _yes_no_fields(Fluid)
 
 
+class PositionForm(forms.ModelForm):
+    """The position: tag, where it is, its duty and what the process needs there."""
+
+    class Meta:
+        model = Position
+        fields = "__all__"
+
+
 class MeterForm(forms.ModelForm):
+    """The device: what it is and how it was calibrated. Where it is installed changes only by a swap."""
+
     class Meta:
         model = Meter
-        fields = "__all__"
+        exclude = ["status"]
         error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL}}
+
+
+class SwapForm(forms.Form):
+    """Remove the device at a position and install another: a spare from stores, or a new one."""
+
+    device = forms.ModelChoiceField(
+        queryset=Meter.objects.none(), label="Device to install",
+        error_messages={"required": "Choose the device to install.",
+                        "invalid_choice": "That device is not a spare on the shelf any more; choose another."})
+    brand_new = YesNoField(required=False, label="New from the maker (no calibration of ours yet; its maker's "
+                                                 "certificate stands until the first one)")
+    on_date = forms.DateField(label="Date of the swap")
+    reason = forms.CharField(max_length=200, label="Why the installed device comes out",
+                             error_messages={"required": "Say why the installed device is removed."})
+    removed_to = forms.ChoiceField(label="Removed device goes", choices=[
+        (Removal.SHELF, "to stores as a spare"), (Removal.RETIRED, "out of use (scrapped or returned)")],
+        initial=Removal.SHELF)
+
+    def __init__(self, *args, position, **kwargs):
+        super().__init__(*args, **kwargs)
+        self.position = position
+        self.fields["device"].queryset = Meter.objects.filter(position__isnull=True, status=Meter.Status.SPARE)
+        self.fields["device"].label_from_instance = lambda d: (
+            f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {d.flow_units}"
+            f" · due {d.next_due_date:%Y-%m-%d}" if d.next_due_date else
+            f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {d.flow_units}"
+            " · never calibrated")
+        self.fields["on_date"].initial = position.area.site.today()
+
+    def clean_on_date(self):
+        day = self.cleaned_data["on_date"]
+        if day > self.position.area.site.today() + dt.timedelta(days=1):
+            raise ValidationError("The date of the swap is in the future.")
+        return day

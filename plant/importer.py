@@ -31,8 +31,10 @@ from django.db import models, transaction
 from django.forms.models import model_to_dict
 
 from plant import spreadsheet
-from plant.forms import FluidForm, MeterForm
-from plant.models import Area, Fluid, Meter, Site
+from calibration import units
+from plant import installations
+from plant.forms import FluidForm, MeterForm, PositionForm
+from plant.models import Area, Fluid, Meter, Position, Site, flows_above_range
 
 FLUID_COLUMNS = [
     "name", "phase", "conductivity_us_cm", "density_kg_m3", "viscosity_mpa_s", "solids", "chlorides", "scaling",
@@ -40,9 +42,13 @@ FLUID_COLUMNS = [
 ]
 METER_COLUMNS = [
     "tag", "principle", "site", "area", "fluid", "line_size", "internal_diameter_mm", "range_min", "range_max",
-    "flow_units", "normal_flow", "min_flow", "wetted_material", "material_details", "serial", "maker", "model", "mpe_value",
-    "mpe_basis", "base_interval_days", "status",
+    "flow_units", "normal_flow", "min_flow", "required_accuracy_pct", "wetted_material", "material_details", "serial",
+    "maker", "model", "mpe_value", "mpe_basis", "base_interval_days",
 ]
+# a register row is a position and the device installed there: these columns are the position's, the rest the
+# device's (flow_units is both: the device's range and the position's flows are stated in the same unit here)
+POSITION_COLUMNS = {"tag", "site", "area", "fluid", "line_size", "internal_diameter_mm", "normal_flow", "min_flow",
+                    "required_accuracy_pct"}
 REQUIRED_COLUMNS = {
     "fluids": ["name", "phase"],
     "meters": [
@@ -51,7 +57,7 @@ REQUIRED_COLUMNS = {
 }
 KINDS = {
     "fluids": {"model": Fluid, "form": FluidForm, "key": "name", "columns": FLUID_COLUMNS},
-    "meters": {"model": Meter, "form": MeterForm, "key": "tag", "columns": METER_COLUMNS},
+    "meters": {"model": Meter, "form": None, "key": "tag", "columns": METER_COLUMNS},
 }
 TRUE_WORDS = {"yes", "y", "true", "t", "1"}
 FALSE_WORDS = {"no", "n", "false", "f", "0", ""}
@@ -197,24 +203,86 @@ def _format(value) -> str:
     return str(value)
 
 
+class RegisterRow:
+    """One row of the meter register: a position and the device installed there (new, unsaved ones for a new row)."""
+
+    def __init__(self, device: Meter | None = None, position: Position | None = None):
+        self.device = device if device is not None else Meter()
+        self.position = position if position is not None else (device.position if device is not None else Position())
+
+
+def _field(model, column):
+    """The model field behind a column (for the register: the position's or the device's)."""
+    if model is Meter and column in POSITION_COLUMNS:
+        return Position._meta.get_field(column)
+    return model._meta.get_field(column)
+
+
 def _cell(obj, column: str) -> str:
-    if isinstance(obj, Meter):
+    if isinstance(obj, RegisterRow):
+        position = obj.position
         if column == "site":
-            return obj.area.site.name if obj.area_id else ""
+            return position.area.site.name if position.area_id else ""
         if column == "area":
-            return obj.area.name if obj.area_id else ""
+            return position.area.name if position.area_id else ""
         if column == "fluid":
-            return obj.fluid.name if obj.fluid_id else ""
+            return position.fluid.name if position.fluid_id else ""
+        return _format(getattr(position if column in POSITION_COLUMNS else obj.device, column))
     return _format(getattr(obj, column))
+
+
+class RegisterRowForm:
+    """The position form and the device form of one register row, checked together and saved together.
+
+    A new tag creates the position and a new device installed there (as the register's "new meter" does); an
+    existing tag changes the position and the device installed there now. Devices are swapped on the position's
+    page, not by import."""
+
+    base_fields = {**PositionForm.base_fields, **MeterForm.base_fields}
+
+    def __init__(self, data, instance: RegisterRow):
+        self.instance = instance
+        self.new = instance.position.pk is None
+        self.position_form = PositionForm(data={k: v for k, v in data.items() if k in PositionForm.base_fields},
+                                          instance=instance.position)
+        self.device_form = MeterForm(data={k: v for k, v in data.items() if k in MeterForm.base_fields},
+                                     instance=instance.device)
+        self.errors: dict[str, list[str]] = {}
+
+    def is_valid(self) -> bool:
+        # the flows-against-range check needs both rows' new values: it is made once, below, not by the position
+        self.instance.position._device_checked_elsewhere = True
+        forms_ok = [self.position_form.is_valid(), self.device_form.is_valid()]
+        self.errors = {**{k: list(v) for k, v in self.position_form.errors.items()},
+                       **{k: list(v) for k, v in self.device_form.errors.items()}}
+        if all(forms_ok) and self.new:
+            for name, message in flows_above_range(self.instance.position, self.instance.device).items():
+                self.errors.setdefault(name, []).append(message)
+        return not self.errors
+
+    def save(self):
+        with transaction.atomic():
+            position = self.position_form.save()
+            if self.new:
+                device = self.device_form.save(commit=False)
+                device.status = Meter.Status.SPARE
+                device.save()
+                installations.install(device, position, position.area.site.today(), new_device=True, recompute=False)
+            else:
+                self.device_form.save()
+        return self.instance
 
 
 def export_rows(kind: str) -> pd.DataFrame:
     """The register as a DataFrame of strings, in exactly the import columns (so it imports back unchanged)."""
     spec = _spec(kind)
-    queryset = spec["model"].objects.all()
     if kind == "meters":
-        queryset = queryset.select_related("area__site", "fluid")
-    records = [[_cell(obj, column) for column in spec["columns"]] for obj in queryset.order_by(spec["key"])]
+        queryset = (Meter.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
+                    .order_by("position__tag"))
+        objects = [RegisterRow(device) for device in queryset]
+    else:
+        objects = spec["model"].objects.all().order_by(spec["key"])
+    records = [[_cell(obj, column) for column in spec["columns"]] for obj in objects]
     return pd.DataFrame(records, columns=spec["columns"], dtype=object)
 
 
@@ -222,9 +290,9 @@ def numeric_columns(kind: str) -> list[str]:
     model = _spec(kind)["model"]
     return [
         column for column in _spec(kind)["columns"]
-        if column in {f.name for f in model._meta.fields}
-        and isinstance(model._meta.get_field(column), (models.FloatField, models.IntegerField))
-        and not isinstance(model._meta.get_field(column), models.BooleanField)
+        if column not in ("site", "area", "fluid")
+        and isinstance(_field(model, column), (models.FloatField, models.IntegerField))
+        and not isinstance(_field(model, column), models.BooleanField)
     ]
 
 
@@ -347,23 +415,37 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, s
     field_errors: dict[str, str] = {column: NUL_MESSAGE for column in spec["columns"] if "\x00" in raw.get(column, "")}
     existing = None
     if key and key_column not in field_errors:
-        queryset = model.objects.all()
         if model is Meter:
-            queryset = queryset.select_related("area__site", "fluid")
-        existing = queryset.filter(**{key_column: key}).first()
-        if existing is None and model is Fluid:
-            existing = _find_by_name(queryset, key)
-    instance = existing if existing is not None else model()
+            position = Position.objects.select_related("area__site", "fluid").filter(tag=key).first()
+            if position is not None:
+                device = position.installed_device()
+                if device is None:
+                    plan.errors.append(RowError(row_number, "tag", (
+                        f"Position {key} has no device installed; install one on its swap page "
+                        f"(/meters/{key}/swap/), then import its row.")))
+                    return PlanRow(row_number=row_number, key=key, action="error")
+                device.position = position
+                existing = RegisterRow(device, position)
+        else:
+            queryset = model.objects.all()
+            existing = queryset.filter(**{key_column: key}).first()
+            if existing is None:
+                existing = _find_by_name(queryset, key)
+    instance = existing if existing is not None else (RegisterRow() if model is Meter else model())
     before = {column: _cell(instance, column) for column in spec["columns"]} if existing else {}
     plan_row = PlanRow(row_number=row_number, key=key, action="update" if existing else "create")
 
-    form_fields = list(form_class.base_fields)
-    data = model_to_dict(instance, fields=form_fields)
+    if model is Meter:
+        form_class = RegisterRowForm
+        data = {**model_to_dict(instance.position, fields=list(PositionForm.base_fields)),
+                **model_to_dict(instance.device, fields=list(MeterForm.base_fields))}
+    else:
+        data = model_to_dict(instance, fields=list(form_class.base_fields))
     for column in spec["columns"]:
         if column not in raw or column in ("site", "area", "fluid") or column in field_errors:
             continue
         value = raw[column]
-        model_field = model._meta.get_field(column)
+        model_field = _field(model, column)
         if isinstance(model_field, models.BooleanField):
             try:
                 data[column] = _parse_bool(value)
@@ -372,6 +454,12 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, s
             continue
         if value == "" and model_field.has_default() and not model_field.blank:
             continue  # keep the current value (the default for a new row)
+        if column == "flow_units":
+            try:
+                value = units.code_for(value)
+            except units.UnitError as exc:
+                field_errors[column] = str(exc)
+                continue
         if model_field.choices and value:
             value = _normalise_choice(model_field, value)
         data[column] = value

@@ -1,12 +1,14 @@
 """The installed-meter register: sites, areas, fluids (service duty), meters and their duty history."""
 import math
 
+from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MinValueValidator
 from django.db import models, transaction
 from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
+from calibration import units
 from plant import localtime, materials, risk
 
 UNKNOWN_MATERIAL = (
@@ -156,11 +158,122 @@ class Fluid(models.Model):
     def refresh_meter_risk(self):
         """Re-judge the meters on this fluid (their stored risk severity) after its properties changed."""
         by_severity = {}
-        for meter in self.meters.all():
-            meter.fluid = self
+        for meter in Meter.objects.filter(position__fluid=self).select_related("position"):
+            meter.position.fluid = self
             by_severity.setdefault(risk.worst_severity(meter.findings()), []).append(meter.pk)
         for severity, pks in by_severity.items():
             Meter.objects.filter(pk__in=pks).update(risk_severity=severity)
+
+
+class Position(models.Model):
+    """A place in the process, named by its tag: where a device is installed and the duty it serves there.
+
+    The device (a `Meter`) is installed, removed and swapped through `plant.installations`; calibration and
+    maintenance history follow the device, duty and the principle×fluid risk follow the position it served.
+    """
+
+    tag = models.CharField(max_length=40, unique=True,
+                           error_messages={"unique": "A position with this tag already exists."})
+    area = models.ForeignKey(Area, on_delete=models.PROTECT, related_name="positions")
+    fluid = models.ForeignKey(Fluid, on_delete=models.PROTECT, related_name="positions")
+    line_size = models.CharField("line size (e.g. DN50)", max_length=20)
+    internal_diameter_mm = models.FloatField(
+        "internal diameter (mm)", validators=[MinValueValidator(0.1, "Internal diameter must be positive.")]
+    )
+    flow_units = models.CharField(
+        "units of the process flows", max_length=10, choices=units.UNIT_CHOICES, default="m3/h",
+        error_messages={"invalid_choice": "%(value)s is not one of the flow units in use."},
+    )
+    normal_flow = models.FloatField("normal process flow", null=True, blank=True)
+    min_flow = models.FloatField("minimum process flow", null=True, blank=True)
+    required_accuracy_pct = models.FloatField(
+        "required accuracy (± % of reading)", null=True, blank=True,
+        validators=[MinValueValidator(1e-6, "The required accuracy must be greater than zero.")],
+        help_text="What the process needs of the measurement here; a device whose MPE is wider is flagged.",
+    )
+    history = HistoricalRecords()
+
+    class Meta:
+        ordering = ["tag"]
+
+    def __str__(self):
+        return self.tag
+
+    def get_absolute_url(self):
+        return reverse("plant:meter-detail", args=[self.tag])
+
+    def installed_device(self):
+        """The device installed here now, or None (one read; None without a query when there is none)."""
+        try:
+            return self.device
+        except Meter.DoesNotExist:
+            return None
+
+    def clean(self):
+        errors = unstorable_value_errors(self)
+        for field in ("normal_flow", "min_flow"):
+            value = None if field in errors else number_or_none(getattr(self, field))
+            if value is not None and value < 0:
+                errors[field] = "A process flow cannot be negative."
+        normal = None if "normal_flow" in errors else number_or_none(self.normal_flow)
+        minimum = None if "min_flow" in errors else number_or_none(self.min_flow)
+        if minimum is not None and normal is not None and minimum > normal:
+            errors["min_flow"] = "The minimum flow cannot be above the normal flow."
+        device = self.installed_device() if self.pk and not getattr(self, "_device_checked_elsewhere", False) else None
+        if device is not None and not errors:
+            errors.update(flows_above_range(self, device))
+        if errors:
+            raise ValidationError(errors)
+
+    def save(self, *args, **kwargs):
+        self.full_clean()
+        with transaction.atomic():
+            previous = None
+            if self.pk:
+                previous = Position.objects.filter(pk=self.pk).values("area_id", "fluid_id").first()
+            super().save(*args, **kwargs)
+            device = self.installed_device()
+            if device is None:
+                return
+            device.position = self
+            if previous is not None and (previous["area_id"], previous["fluid_id"]) != (self.area_id, self.fluid_id):
+                device.record_duty_change()
+            Meter.objects.filter(pk=device.pk).update(risk_severity=risk.worst_severity(device.findings()))
+
+    def flow_in(self, value, to_code):
+        """A flow of this position (in its own units) in `to_code`, or None when it cannot be converted
+        without facts the register does not hold (line conditions of a gas)."""
+        if value is None:
+            return None
+        try:
+            return units.convert(value, units.code_for(self.flow_units), units.code_for(to_code),
+                                 density_kg_m3=self.fluid.density_kg_m3)
+        except units.UnitError:
+            return None
+
+    def flow_m3_h(self, value):
+        """Volume flow in m³/h for the Reynolds check; None when it cannot be converted."""
+        return self.flow_in(value, "m3/h")
+
+
+def flows_above_range(position, device) -> dict:
+    """{field: message} for the position's process flows above the device's calibrated range high."""
+    errors = {}
+    high = number_or_none(device.range_max)
+    if high is None:
+        return errors
+    for field in ("normal_flow", "min_flow"):
+        value = number_or_none(getattr(position, field))
+        if value is None:
+            continue
+        in_device_units = position.flow_in(value, device.flow_units)
+        if in_device_units is not None and in_device_units > high * (1 + 1e-9):
+            label = position._meta.get_field(field).verbose_name.capitalize()
+            errors[field] = (
+                f"{label} at {position.tag} ({value:g} {units.label(position.flow_units)}) is above the calibrated "
+                f"range high of device {device.device_label} ({high:g} {units.label(device.flow_units)})."
+            )
+    return errors
 
 
 class Meter(models.Model):
@@ -196,19 +309,10 @@ class Meter(models.Model):
         DRIFTING = "drifting", "drifting"
         OUT_OF_TOLERANCE = "out_of_tolerance", "last found out of tolerance"
 
-    tag = models.CharField(max_length=40, unique=True, error_messages={"unique": "A meter with this tag already exists."})
     principle = models.CharField(max_length=30, choices=Principle.choices)
-    area = models.ForeignKey(Area, on_delete=models.PROTECT, related_name="meters")
-    fluid = models.ForeignKey(Fluid, on_delete=models.PROTECT, related_name="meters")
-    line_size = models.CharField("line size (e.g. DN50)", max_length=20)
-    internal_diameter_mm = models.FloatField(
-        "internal diameter (mm)", validators=[MinValueValidator(0.1, "Internal diameter must be positive.")]
-    )
     range_min = models.FloatField("calibrated range low", default=0.0)
     range_max = models.FloatField("calibrated range high")
     flow_units = models.CharField(max_length=20, default="m³/h")
-    normal_flow = models.FloatField("normal process flow", null=True, blank=True)
-    min_flow = models.FloatField("minimum process flow", null=True, blank=True)
     wetted_material = models.CharField(
         "wetted / electrode material", max_length=60, blank=True, choices=materials.CHOICES,
         error_messages={"invalid_choice": UNKNOWN_MATERIAL},
@@ -246,14 +350,90 @@ class Meter(models.Model):
                                                  "drift_rate_per_year", "predicted_crossing", "last_in_tolerance",
                                                  "risk_severity"])
 
+    # the position the device is installed at now; set only through plant.installations (install/remove/swap)
+    position = models.OneToOneField(Position, null=True, blank=True, on_delete=models.PROTECT,
+                                    related_name="device", editable=False)
+
     class Meta:
-        ordering = ["tag"]
+        ordering = ["position__tag", "serial", "pk"]
+        permissions = [("swap_device", "Can install, remove and swap devices at positions")]
 
     def __str__(self):
-        return self.tag
+        return self.tag or self.device_label
+
+    @property
+    def device_label(self):
+        """How a device is named when no tag names it: its serial, else its register number."""
+        return f"S/N {self.serial}" if self.serial else f"device #{self.pk}"
 
     def get_absolute_url(self):
-        return reverse("plant:meter-detail", args=[self.tag])
+        if self.position_id:
+            return reverse("plant:meter-detail", args=[self.position.tag])
+        return reverse("device-detail", args=[self.pk])
+
+    def calibrate_url(self):
+        """Where this device is calibrated: at its position (by tag), or on the bench when it is a spare."""
+        if self.position_id:
+            return reverse("plant:meter-calibrate", args=[self.position.tag])
+        return reverse("device-calibrate", args=[self.pk])
+
+    # What the device reads of the position it serves (read-only: change them on the position) ------
+    @property
+    def tag(self):
+        return self.position.tag if self.position_id else None
+
+    @property
+    def area(self):
+        return self.position.area if self.position_id else None
+
+    @property
+    def area_id(self):
+        return self.position.area_id if self.position_id else None
+
+    @property
+    def fluid(self):
+        """The fluid of the position served now; for a spare, of the last position it served (its duty
+        history), so a device that served on brine keeps that finding on the shelf."""
+        if self.position_id:
+            return self.position.fluid
+        if not hasattr(self, "_last_duty_fluid"):
+            last = self.duties.select_related("fluid").first() if self.pk else None
+            self._last_duty_fluid = last.fluid if last else None
+        return self._last_duty_fluid
+
+    @property
+    def fluid_id(self):
+        fluid = self.fluid
+        return fluid.pk if fluid else None
+
+    @property
+    def line_size(self):
+        return self.position.line_size if self.position_id else ""
+
+    @property
+    def internal_diameter_mm(self):
+        return self.position.internal_diameter_mm if self.position_id else None
+
+    @property
+    def normal_flow(self):
+        return self.position.normal_flow if self.position_id else None
+
+    @property
+    def min_flow(self):
+        return self.position.min_flow if self.position_id else None
+
+    def position_on(self, day):
+        """The id of the position the device was installed at on `day`, or None (on the shelf or the bench).
+        A device removed on a day is counted off its position that day; one installed that day, on it."""
+        if self.pk is None:
+            return None
+        return (Installation.objects.filter(device=self, since__lte=day)
+                .filter(models.Q(until__isnull=True) | models.Q(until__gt=day))
+                .order_by("-since", "-id").values_list("position_id", flat=True).first())
+
+    def today(self):
+        """Today's date where the device is (its position's site; the plant's time zone for a spare)."""
+        return self.position.area.site.today() if self.position_id else localtime.today("")
 
     def clean(self):
         errors = unstorable_value_errors(self)
@@ -264,21 +444,8 @@ class Meter(models.Model):
                 errors["range_max"] = "The range high must be above the range low."
             elif not math.isfinite(high - low):
                 errors["range_max"] = "The range is too wide: range high minus range low must be a finite number."
-        for field in ("normal_flow", "min_flow"):
-            value = None if field in errors else number_or_none(getattr(self, field))
-            if value is None or high is None:
-                continue
-            if value < 0:
-                errors[field] = "A process flow cannot be negative."
-            elif value > high:
-                errors[field] = (
-                    f"{self._meta.get_field(field).verbose_name.capitalize()} ({value:g}) is above the "
-                    f"calibrated range high ({high:g} {self.flow_units})."
-                )
-        normal = None if "normal_flow" in errors else number_or_none(self.normal_flow)
-        minimum = None if "min_flow" in errors else number_or_none(self.min_flow)
-        if minimum is not None and normal is not None and minimum > normal:
-            errors["min_flow"] = "The minimum flow cannot be above the normal flow."
+        if self.position_id and "range_max" not in errors and "flow_units" not in errors:
+            errors.update({"range_max": message for message in flows_above_range(self.position, self).values()})
         interval = number_or_none(self.base_interval_days)
         if interval is not None and interval > MAX_BASE_INTERVAL_DAYS:
             errors["base_interval_days"] = (
@@ -290,18 +457,16 @@ class Meter(models.Model):
     def save(self, *args, **kwargs):
         self.full_clean()
         self.risk_severity = risk.worst_severity(self.findings())
-        with transaction.atomic():
-            previous = None
-            if self.pk:
-                previous = Meter.objects.filter(pk=self.pk).values("area_id", "fluid_id").first()
-            super().save(*args, **kwargs)
-            if previous is None or previous["area_id"] != self.area_id or previous["fluid_id"] != self.fluid_id:
-                self._record_duty_change()
+        super().save(*args, **kwargs)
 
-    def _record_duty_change(self):
-        today = self.area.site.today()
-        self.duties.filter(until__isnull=True).update(until=today)
-        DutyPeriod.objects.create(meter=self, area_id=self.area_id, fluid_id=self.fluid_id, since=today)
+    def record_duty_change(self, on_date=None):
+        """Close the open duty period and open one for the position served now (none for a spare)."""
+        on_date = on_date or self.today()
+        self.duties.filter(until__isnull=True).update(until=on_date)
+        if self.position_id:
+            DutyPeriod.objects.create(meter=self, position=self.position, area_id=self.position.area_id,
+                                      fluid_id=self.position.fluid_id, since=on_date)
+        self.__dict__.pop("_last_duty_fluid", None)
 
     # Risk ------------------------------------------------------------------------------------------
     def findings(self):
@@ -323,24 +488,16 @@ class Meter(models.Model):
         return meter_evidence(self.pk)
 
     def duty_findings(self):
+        fluid = self.fluid
+        if fluid is None:
+            return []  # a new device that has served nowhere yet
+        position = self.position if self.position_id else None
         return risk.assess(
-            self.principle, self.wetted_material, self.fluid.props(),
-            normal_flow_m3_h=self.normal_flow_m3_h(self.normal_flow),
-            min_flow_m3_h=self.normal_flow_m3_h(self.min_flow),
-            diameter_mm=self.internal_diameter_mm,
+            self.principle, self.wetted_material, fluid.props(),
+            normal_flow_m3_h=position.flow_m3_h(position.normal_flow) if position else None,
+            min_flow_m3_h=position.flow_m3_h(position.min_flow) if position else None,
+            diameter_mm=position.internal_diameter_mm if position else None,
         )
-
-    def normal_flow_m3_h(self, value):
-        """Volume flow in m³/h for the Reynolds check; None when the units are not volumetric."""
-        if value is None:
-            return None
-        factors = {"m³/h": 1.0, "m3/h": 1.0, "l/s": 3.6, "L/s": 3.6, "l/min": 0.06, "L/min": 0.06}
-        if self.flow_units in factors:
-            return value * factors[self.flow_units]
-        if self.flow_units in ("kg/h", "t/h") and self.fluid.density_kg_m3:
-            kg_h = value * (1000.0 if self.flow_units == "t/h" else 1.0)
-            return kg_h / self.fluid.density_kg_m3
-        return None
 
     def risk_factor(self):
         return risk.interval_factor(self.findings())
@@ -353,9 +510,10 @@ class Meter(models.Model):
 
 
 class DutyPeriod(models.Model):
-    """Where and on what a meter served, so its risk can be judged from its whole service life."""
+    """Where and on what a device served, so its risk can be judged from its whole service life."""
 
     meter = models.ForeignKey(Meter, on_delete=models.CASCADE, related_name="duties")
+    position = models.ForeignKey(Position, null=True, blank=True, on_delete=models.PROTECT, related_name="duties")
     area = models.ForeignKey(Area, on_delete=models.PROTECT)
     fluid = models.ForeignKey(Fluid, on_delete=models.PROTECT)
     since = models.DateField()
@@ -365,4 +523,35 @@ class DutyPeriod(models.Model):
         ordering = ["meter", "-since", "-id"]
 
     def __str__(self):
-        return f"{self.meter.tag}: {self.fluid} in {self.area} from {self.since}"
+        where = self.position.tag if self.position_id else str(self.area)
+        return f"{self.meter.device_label}: {self.fluid} at {where} from {self.since}"
+
+
+class Installation(models.Model):
+    """A device at a position from one date until another (open while it is there)."""
+
+    device = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="installations")
+    position = models.ForeignKey(Position, on_delete=models.PROTECT, related_name="installations")
+    since = models.DateField()
+    until = models.DateField(null=True, blank=True)
+    installed_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                     related_name="+")
+    removed_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                   related_name="+")
+    removal_reason = models.CharField(max_length=200, blank=True)
+    # the as-left of the device's last calibration before it was installed here (its starting point)
+    starting_point = models.JSONField(default=dict, blank=True)
+    history = HistoricalRecords()
+
+    class Meta:
+        ordering = ["position__tag", "-since", "-id"]
+        constraints = [
+            models.UniqueConstraint(fields=["device"], condition=models.Q(until__isnull=True),
+                                    name="one_open_installation_per_device"),
+            models.UniqueConstraint(fields=["position"], condition=models.Q(until__isnull=True),
+                                    name="one_open_installation_per_position"),
+        ]
+
+    def __str__(self):
+        until = self.until or "now"
+        return f"{self.device.device_label} at {self.position.tag} {self.since} – {until}"

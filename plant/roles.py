@@ -1,7 +1,7 @@
 """The three roles and what each may do, as Django groups with model permissions.
 
-technician: read the register, enter calibrations and sign their own.
-reviewer: read everything, the weekly review and statistics, change meters/fluids/standards (intervals
+technician: read the register, enter calibrations and sign their own, swap devices at positions.
+reviewer: read everything, the weekly review and statistics, change positions/devices/fluids/standards (intervals
 and rules), import the register, countersign others' calibrations.
 administrator: everything, including the admin site and accounts.
 """
@@ -10,15 +10,17 @@ from django.contrib.auth.models import Group, Permission
 TECHNICIAN, REVIEWER, ADMINISTRATOR = "technician", "reviewer", "administrator"
 
 READ = ["plant.view_site", "plant.view_area", "plant.view_fluid", "plant.view_meter", "plant.view_dutyperiod",
+        "plant.view_position", "plant.view_installation",
         "calibration.view_referencestandard", "calibration.view_calibrationevent", "calibration.view_calibrationpoint"]
 
 ROLE_PERMISSIONS = {
     TECHNICIAN: READ + ["calibration.add_calibrationevent", "calibration.add_calibrationpoint",
-                        "calibration.sign_calibration",
+                        "calibration.sign_calibration", "plant.swap_device",
                         "maintenance.view_maintenancetask", "maintenance.view_maintenancerecord",
                         "maintenance.add_maintenancerecord", "maintenance.sign_maintenance"],
     REVIEWER: READ + ["calibration.view_review", "calibration.countersign_calibration",
-                      "plant.add_meter", "plant.change_meter", "plant.add_fluid", "plant.change_fluid",
+                      "plant.add_meter", "plant.change_meter", "plant.add_position", "plant.change_position",
+                      "plant.swap_device", "plant.add_fluid", "plant.change_fluid",
                       "plant.add_site", "plant.add_area", "calibration.add_referencestandard",
                       "calibration.change_referencestandard",
                       "maintenance.view_maintenancetask", "maintenance.view_maintenancerecord",

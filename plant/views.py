@@ -1,21 +1,22 @@
 from django.contrib import messages
 from django.contrib.auth.decorators import permission_required
 from django.db import transaction
+from django.db.models import F
 from django.shortcuts import get_object_or_404, redirect, render
 from django_tables2 import RequestConfig
 
 from calibration.trend import meter_drift_chart
 from maintenance.views import meter_section
+from plant import installations, risk
+from plant.forms import FluidForm, MeterForm, PositionForm, SwapForm
+from plant.models import Fluid, Installation, Meter, Position
 from plant.filters import MeterFilter
-from plant.forms import FluidForm, MeterForm
-from plant import risk
-from plant.models import Fluid, Meter
 from plant.tables import MeterTable
 
 
 @permission_required("plant.view_meter", raise_exception=True)
 def meter_list(request):
-    queryset = Meter.objects.select_related("area__site", "fluid")
+    queryset = Meter.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
     meter_filter = MeterFilter(request.GET, queryset=queryset)
     can_calibrate = request.user.has_perm("calibration.add_calibrationevent")
     table = MeterTable(meter_filter.qs, exclude=() if can_calibrate else ("calibrate",))
@@ -23,32 +24,107 @@ def meter_list(request):
     return render(request, "plant/meter_list.html", {"filter": meter_filter, "table": table})
 
 
-@permission_required("plant.view_meter", raise_exception=True)
-def meter_detail(request, tag):
-    meter = get_object_or_404(Meter.objects.select_related("area__site", "fluid"), tag=tag)
+POSITION_RELATED = ("position__area__site", "position__fluid")
+
+
+def _device_context(meter):
+    """What the page shows of a device: its risk at the duty served, due date, drift, records, moves."""
     findings = meter.findings()
     factor = min((f.interval_factor for f in findings), default=1.0)
-    deciding = [f for f in findings if f.interval_factor == factor and factor < 1.0]
-    return render(request, "plant/meter_detail.html", {
+    return {
         "meter": meter,
         "findings": findings,
         "factor": factor,
-        "deciding": deciding,
+        "deciding": [f for f in findings if f.interval_factor == factor and factor < 1.0],
         "recommendation": risk.recommendation(findings),
-        "duties": meter.duties.select_related("area__site", "fluid"),
+        "duties": meter.duties.select_related("area__site", "fluid", "position"),
         "due": meter.due_rationale or {},
         "drift_chart": meter_drift_chart(meter),
-        "calibrations": meter.calibrations.all()[:20],
+        "calibrations": meter.calibrations.select_related("position")[:20],
         "audit": _audit_rows(meter),
         "maintenance": meter_section(meter),
+        "device_moves": meter.installations.select_related("position", "installed_by", "removed_by"),
+    }
+
+
+@permission_required("plant.view_meter", raise_exception=True)
+def meter_detail(request, tag):
+    """A position's page (URLs by tag): the position, the device installed there now, and its history."""
+    position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
+    meter = position.installed_device()
+    context = _device_context(meter) if meter is not None else {"meter": None, "audit": _audit_rows(None, position)}
+    context.update({
+        "position": position,
+        "position_moves": position.installations.select_related("device", "installed_by", "removed_by"),
+        "fit_warnings": installations.fit_warnings(meter, position) if meter is not None else [],
     })
+    return render(request, "plant/meter_detail.html", context)
 
 
-def _audit_rows(meter, limit=30):
-    """Who changed what on this meter and its current fluid, newest first, with old and new values."""
+@permission_required("plant.view_meter", raise_exception=True)
+def device_detail(request, pk):
+    """A device's own page, wherever it is: installed (its position's page says the same), or a spare."""
+    meter = get_object_or_404(Meter.objects.select_related(*POSITION_RELATED), pk=pk)
+    context = _device_context(meter)
+    context.update({"position": meter.position if meter.position_id else None, "device_page": True})
+    return render(request, "plant/meter_detail.html", context)
+
+
+@permission_required("plant.view_meter", raise_exception=True)
+def device_list(request):
+    """Devices not installed anywhere: spares on the shelf (first the ones that may be installed) and retired."""
+    spares = (Meter.objects.filter(position__isnull=True).order_by("-status", F("next_due_date").asc(nulls_first=True),
+                                                                  "serial", "pk"))
+    return render(request, "plant/device_list.html", {"devices": spares})
+
+
+@permission_required("plant.swap_device", raise_exception=True)
+def position_swap(request, tag):
+    """Remove the device at a position and install a spare or a new device; both recorded, nothing half done."""
+    position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
+    current = position.installed_device()
+    form = SwapForm(request.POST or None, position=position)
+    if request.method == "POST" and form.is_valid():
+        data = form.cleaned_data
+        try:
+            if current is None:
+                installations.install(data["device"], position, data["on_date"], request.user,
+                                      new_device=data["brand_new"])
+            else:
+                installations.swap(position, data["device"], data["on_date"], data["reason"], request.user,
+                                   to=data["removed_to"], brand_new=data["brand_new"])
+        except installations.InstallationError as refused:
+            for field, messages_ in refused.errors.items():
+                for message in messages_:
+                    form.add_error(field if field in form.fields else None, message)
+        else:
+            what = f"Device {data['device'].device_label} installed at {position.tag}"
+            if current is not None:
+                what += f"; {current.device_label} removed ({data['reason']})"
+            messages.success(request, what + ".")
+            return redirect(position.get_absolute_url())
+    spares = list(form.fields["device"].queryset.order_by(F("next_due_date").desc(nulls_last=True), "serial"))
+    return render(request, "plant/swap.html", {
+        "position": position, "current": current, "form": form, "fluid": position.fluid,
+        "spares": [(d, installations.install_problems(d, position, position.area.site.today()),
+                    installations.fit_warnings(d, position)) for d in spares],
+    }, status=400 if request.method == "POST" else 200)
+
+
+def _audit_rows(meter, position=None, limit=30):
+    """Who changed what on this device, the position it serves (or `position`), its installations and the
+    position's fluid, newest first, with old and new values."""
     rows = []
-    for label, records in (("meter", meter.history.select_related("history_user")[:limit]),
-                           (f"fluid {meter.fluid.name}", meter.fluid.history.select_related("history_user")[:limit])):
+    position = position or (meter.position if meter is not None and meter.position_id else None)
+    sources = []
+    if meter is not None:
+        sources.append((f"device {meter.device_label}", meter.history.select_related("history_user")[:limit]))
+        sources.append(("installation", Installation.history.filter(device=meter)
+                        .select_related("history_user", "position")[:limit]))
+    if position is not None:
+        sources.append((f"position {position.tag}", position.history.select_related("history_user")[:limit]))
+        sources.append((f"fluid {position.fluid.name}", position.fluid.history.select_related("history_user")[:limit]))
+    for label, records in sources:
         records = list(records)
         for newer, older in zip(records, records[1:] + [None]):
             changes = []
@@ -71,10 +147,16 @@ def _edit(request, instance, form_class, template, title):
     return render(request, template, {"form": form, "title": title, "instance": instance}, status=status)
 
 
-@permission_required("plant.change_meter", raise_exception=True)
+@permission_required("plant.change_position", raise_exception=True)
 def meter_edit(request, tag):
-    meter = get_object_or_404(Meter, tag=tag)
-    return _edit(request, meter, MeterForm, "plant/record_form.html", f"Meter {meter.tag}")
+    position = get_object_or_404(Position, tag=tag)
+    return _edit(request, position, PositionForm, "plant/record_form.html", f"Position {position.tag}")
+
+
+@permission_required("plant.change_meter", raise_exception=True)
+def device_edit(request, pk):
+    meter = get_object_or_404(Meter, pk=pk)
+    return _edit(request, meter, MeterForm, "plant/record_form.html", f"Device {meter.device_label}")
 
 
 @permission_required("plant.change_fluid", raise_exception=True)

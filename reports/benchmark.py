@@ -52,7 +52,7 @@ def naive_recompute(meters_qs=None, progress=None):
     from plant.models import Meter
 
     cfg = fleet.policy()
-    meters = list((meters_qs if meters_qs is not None else Meter.objects.all()).select_related("fluid").order_by("pk"))
+    meters = list((meters_qs if meters_qs is not None else Meter.objects.all()).select_related("position__fluid").order_by("pk"))
     for meter in meters:
         events, points = fleet.load_history(Meter.objects.filter(pk=meter.pk))
         if events.empty:

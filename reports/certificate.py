@@ -10,6 +10,7 @@ import io
 import zipfile
 
 from django.conf import settings
+from django.db.models import Q
 from django.template.loader import render_to_string
 from django.utils import timezone
 from django.utils.safestring import mark_safe
@@ -123,11 +124,14 @@ def certificate_context(event) -> dict:
     history = drift_history(event)
     unit = error_unit(meter)
     left_or_found = as_left or as_found  # no as-left points: the as-left condition is the as-found one
+    position = event.position  # where the device was installed when calibrated; None on the bench
     return {
         "event": event,
         "meter": meter,
-        "site": meter.area.site,
-        "area": meter.area,
+        "position": position,
+        "site": position.area.site if position else None,
+        "area": position.area if position else None,
+        "duty_fluid": served_on(meter, event.performed_on, position),
         "lab": laboratory(),
         "product": settings.PRODUCT_NAME,
         "number": certificate_number(event),
@@ -151,6 +155,15 @@ def certificate_context(event) -> dict:
     }
 
 
+def served_on(meter, day, position):
+    """The fluid the device served on `day` (its duty history), else the position's; None on the bench."""
+    if position is None:
+        return None
+    duty = (meter.duties.filter(position=position, since__lte=day).filter(Q(until__isnull=True) | Q(until__gte=day))
+            .select_related("fluid").first())
+    return duty.fluid if duty else position.fluid
+
+
 def certificate_html(event) -> str:
     return render_to_string("reports/certificate.html", certificate_context(event))
 
@@ -167,7 +180,7 @@ def load_event(pk):
     """The signed event with everything the certificate reads, or None."""
     return (
         signed_events()
-        .select_related("meter__area__site", "meter__fluid", "supersedes", "countersignature")
+        .select_related("meter", "position__area__site", "position__fluid", "supersedes", "countersignature")
         .filter(pk=pk)
         .first()
     )
@@ -178,7 +191,7 @@ def events_signed_between(start, end):
     return (
         signed_events()
         .filter(signed_at__date__gte=start, signed_at__date__lte=end)
-        .select_related("meter__area__site", "meter__fluid", "supersedes")
+        .select_related("meter", "position__area__site", "position__fluid", "supersedes")
         .order_by("signed_at", "pk")
     )
 

@@ -14,7 +14,7 @@ from django.db.models import Count, F, Q
 
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant import localtime
-from plant.models import Meter, Site
+from plant.models import Meter, Position, Site
 
 SEVERE, HIGH = "misapplied", "high"
 
@@ -29,9 +29,10 @@ class Bucket:
 
 
 def registered(filters: dict):
-    """In-service meters narrowed by the page's filters (site, area, principle, fluid)."""
-    qs = Meter.objects.filter(status=Meter.Status.IN_SERVICE)
-    lookups = {"site": "area__site", "area": "area", "principle": "principle", "fluid": "fluid"}
+    """Devices installed at positions, narrowed by the page's filters (site, area, principle, fluid)."""
+    qs = Meter.objects.filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
+    lookups = {"site": "position__area__site", "area": "position__area", "principle": "principle",
+               "fluid": "position__fluid"}
     for name, value in filters.items():
         if value not in (None, ""):
             qs = qs.filter(**{lookups[name]: value})
@@ -39,7 +40,7 @@ def registered(filters: dict):
 
 
 def in_service(filters: dict):
-    return registered(filters).select_related("area__site", "fluid")
+    return registered(filters).select_related("position__area__site", "position__fluid")
 
 
 def local_todays(filters: dict) -> dict:
@@ -67,7 +68,7 @@ def _per_site(todays, condition):
     """condition(today) for each group of sites sharing today's date, OR-ed (one group: no site condition)."""
     if isinstance(todays, dt.date):
         todays = {todays: None}
-    parts = [condition(day) if pks is None else Q(area__site__in=pks) & condition(day)
+    parts = [condition(day) if pks is None else Q(position__area__site__in=pks) & condition(day)
              for day, pks in todays.items()]
     return reduce(or_, parts)
 
@@ -94,9 +95,38 @@ def standards_expiring(today, days):
     return ReferenceStandard.objects.filter(due_date__lte=today + dt.timedelta(days=days))
 
 
+def spares(filters: dict):
+    """Devices on the shelf (the principle filter applies; a spare has no site, area or fluid of its own)."""
+    qs = Meter.objects.filter(position__isnull=True, status=Meter.Status.SPARE)
+    if filters.get("principle") not in (None, ""):
+        qs = qs.filter(principle=filters["principle"])
+    return qs
+
+
+def spares_overdue(filters: dict, today):
+    """Spares past their due date or never calibrated: each must be calibrated on the bench before it is
+    installed (plant.installations refuses them)."""
+    return spares(filters).filter(Q(next_due_date__lt=today) | Q(next_due_date__isnull=True)).order_by(
+        F("next_due_date").asc(nulls_first=True), "serial", "pk")
+
+
+def vacant_positions(filters: dict):
+    """Positions with no device installed: the process runs unmeasured there, or the tag is out of use."""
+    qs = Position.objects.filter(device__isnull=True).select_related("area__site", "fluid")
+    # a vacant position has no principle: the principle filter does not narrow this list
+    lookups = {"site": "area__site", "area": "area", "fluid": "fluid"}
+    for name, value in filters.items():
+        if name in lookups and value not in (None, ""):
+            qs = qs.filter(**{lookups[name]: value})
+    return qs
+
+
 def unsigned_drafts(filters: dict):
     meters = in_service(filters)
-    return CalibrationEvent.objects.filter(state=CalibrationEvent.State.DRAFT, meter__in=meters).select_related("meter")
+    on_bench = spares(filters) if not any(filters.get(k) not in (None, "") for k in ("site", "area", "fluid")) \
+        else Meter.objects.none()
+    return (CalibrationEvent.objects.filter(Q(meter__in=meters) | Q(meter__in=on_bench), state=CalibrationEvent.State.DRAFT)
+            .select_related("meter__position"))
 
 
 def build(filters: dict, days: int = 14, today: dt.date | None = None):
@@ -110,7 +140,7 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     standards = standards_expiring(today or localtime.today(), days)  # the plant's date: standards serve all sites
     drafts = unsigned_drafts(filters)
     titles = {
-        "overdue": ("Overdue", tables.OverdueTable),
+        "overdue": ("Positions whose installed device is overdue", tables.OverdueTable),
         "due": (f"Due in the next {days} days", tables.DueTable),
         "drifting": ("Drifting", tables.DriftingTable),
         "failed": ("Last as-found out of tolerance", tables.FailedTable),
@@ -124,6 +154,12 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
                for key, (title, table) in titles.items()]
     buckets.append(Bucket("standards", f"Reference standards expired or due within {days} days", standards,
                           tables.StandardTable, standards.count()))
+    plant_today = today or localtime.today()
+    shelf = spares_overdue(filters, plant_today)
+    buckets.append(Bucket("spares", "Spares overdue: calibrate before installing", shelf, tables.SpareTable,
+                          shelf.count()))
+    vacant = vacant_positions(filters)
+    buckets.append(Bucket("vacant", "Positions with no device installed", vacant, tables.VacantTable, vacant.count()))
     buckets.append(Bucket("drafts", "Draft calibrations not signed", drafts, tables.DraftTable, drafts.count()))
     from maintenance.review import buckets as maintenance_buckets
 

@@ -55,9 +55,9 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
     today = today or timezone.localdate()
     meters = Meter.objects.all()
     if site is not None:
-        meters = meters.filter(area__site=site)
+        meters = meters.filter(position__area__site=site)
     meter_rows = meters.order_by().values_list(
-        "pk", "tag", "principle", "fluid__name", "area__site__name", "drift_rate_per_year"
+        "pk", "position__tag", "principle", "position__fluid__name", "position__area__site__name", "drift_rate_per_year"
     )
     meters_df = pd.DataFrame.from_records(list(meter_rows), columns=METER_COLUMNS)
 
@@ -65,10 +65,10 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
         state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True, performed_on__lte=today,
     )
     if site is not None:
-        events = events.filter(meter__area__site=site)
+        events = events.filter(position__area__site=site)
     event_rows = events.order_by().values_list(
         "pk", "meter_id", "performed_on", "as_found_in_tolerance",
-        "meter__principle", "meter__fluid__name", "meter__area__site__name",
+        "meter__principle", "position__fluid__name", "position__area__site__name",
     )
     events_df = pd.DataFrame.from_records(list(event_rows), columns=EVENT_COLUMNS)
 

@@ -1,4 +1,5 @@
 import django_tables2 as tables
+from django.utils.html import format_html
 
 from plant import risk
 
@@ -13,11 +14,14 @@ class IsoDateColumn(tables.DateColumn):
 
 
 class MeterColumns(tables.Table):
-    tag = tables.Column(linkify=lambda record: record.get_absolute_url())
+    tag = tables.Column(accessor="position__tag", verbose_name="Tag", order_by=("position__tag",),
+                        linkify=lambda record: record.get_absolute_url())
+    serial = tables.Column(verbose_name="Device S/N", default="—")
     principle = tables.Column()
-    site = tables.Column(accessor="area__site__name", verbose_name="Site", order_by=("area__site__name",))
-    area = tables.Column(accessor="area__name", verbose_name="Area", order_by=("area__name",))
-    fluid = tables.Column(accessor="fluid__name", verbose_name="Fluid", order_by=("fluid__name",))
+    site = tables.Column(accessor="position__area__site__name", verbose_name="Site",
+                         order_by=("position__area__site__name",))
+    area = tables.Column(accessor="position__area__name", verbose_name="Area", order_by=("position__area__name",))
+    fluid = tables.Column(accessor="position__fluid__name", verbose_name="Fluid", order_by=("position__fluid__name",))
 
     class Meta:
         attrs = {"class": "grid"}
@@ -40,7 +44,7 @@ class OverdueTable(MeterColumns):
     def render_days_overdue(self, record):
         if record.next_due_date is None:
             return "—"
-        return (record.area.site.today() - record.next_due_date).days  # the meter's own site's date
+        return (record.today() - record.next_due_date).days  # the date at the position's own site
 
     def value_days_overdue(self, record):
         return self.render_days_overdue(record)
@@ -77,8 +81,8 @@ class RiskTable(MeterColumns):
 
     class Meta(MeterColumns.Meta):
         # what to do and the interval meanwhile come first, within an 820 px tablet's view; the long prose last
-        sequence = ("tag", "severity", "interval", "recommendation", "codes", "principle", "fluid", "area", "site",
-                    "reasons")
+        sequence = ("tag", "severity", "interval", "recommendation", "codes", "serial", "principle", "fluid", "area",
+                    "site", "reasons")
 
     @staticmethod
     def _findings(record):
@@ -134,10 +138,51 @@ class StandardTable(tables.Table):
         attrs = {"class": "grid"}
 
 
+class SpareTable(tables.Table):
+    """Spares on the shelf that may not be installed until calibrated on the bench."""
+
+    device = tables.Column(accessor="serial", verbose_name="Device", linkify=lambda record: record.get_absolute_url(),
+                           order_by=("serial",))
+    principle = tables.Column()
+    next_due_date = IsoDateColumn(verbose_name="Due date", default="never calibrated")
+    calibrate = tables.Column(empty_values=(), verbose_name="", orderable=False, exclude_from_export=True)
+
+    class Meta:
+        attrs = {"class": "grid"}
+
+    def render_device(self, record):
+        return record.device_label
+
+    def render_principle(self, record):
+        return record.get_principle_display()
+
+    def value_next_due_date(self, record, value):
+        return value if value is not None else "never calibrated"
+
+    def render_calibrate(self, record):
+        return format_html('<a class="button small" href="{}">Calibrate (bench)</a>', record.calibrate_url())
+
+
+class VacantTable(tables.Table):
+    tag = tables.Column(linkify=lambda record: record.get_absolute_url())
+    site = tables.Column(accessor="area__site__name", verbose_name="Site", order_by=("area__site__name",))
+    area = tables.Column(accessor="area__name", verbose_name="Area", order_by=("area__name",))
+    fluid = tables.Column(accessor="fluid__name", verbose_name="Fluid", order_by=("fluid__name",))
+
+    class Meta:
+        attrs = {"class": "grid"}
+
+
 class DraftTable(tables.Table):
-    meter = tables.Column(accessor="meter__tag", verbose_name="Tag", order_by=("meter__tag",))
+    meter = tables.Column(empty_values=(), verbose_name="Tag or device", order_by=("meter__position__tag",))
     performed_on = IsoDateColumn(linkify=lambda record: record.get_absolute_url(), verbose_name="Date")
     technician = tables.Column()
 
     class Meta:
         attrs = {"class": "grid"}
+
+    def render_meter(self, record):
+        return str(record.meter)
+
+    def value_meter(self, record):
+        return str(record.meter)

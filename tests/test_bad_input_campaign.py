@@ -48,6 +48,7 @@ from calibration.models import CalibrationEvent, CalibrationPoint, Countersignat
 from plant import importer, spreadsheet
 from plant.forms import FluidForm, MeterForm
 from plant.models import MAX_BASE_INTERVAL_DAYS, Area, DutyPeriod, Fluid, Meter, Site
+from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
 
@@ -119,7 +120,7 @@ def base(db):
     }
     meters = {}
     for tag, (principle, area, fluid, (low, high), units, normal, minimum, mpe, basis, interval) in METERS.items():
-        meters[tag] = Meter.objects.create(
+        meters[tag] = commission(
             tag=tag, principle=principle, area=areas[area], fluid=fluids[fluid], line_size="DN50",
             internal_diameter_mm=52.5, range_min=low, range_max=high, flow_units=units, normal_flow=normal,
             min_flow=minimum, wetted_material="316L", mpe_value=mpe, mpe_basis=basis, base_interval_days=interval,
@@ -634,7 +635,7 @@ def test_meter_form(base):
         tag, data = case
         with rolled_back():
             before = state()
-            instance = Meter.objects.get(tag=tag) if tag else None
+            instance = Meter.objects.get(position__tag=tag) if tag else None
             old = (instance.area_id, instance.fluid_id) if instance else None  # the form edits the instance
             duties = DutyPeriod.objects.count()
             others = set(Meter.objects.exclude(pk=getattr(instance, "pk", None)).values_list("tag", flat=True))

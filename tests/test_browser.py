@@ -17,6 +17,7 @@ from playwright.sync_api import expect, sync_playwright  # in the "test" extra: 
 
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 
 CHROMIUM = Path("/usr/bin/chromium")
@@ -73,7 +74,7 @@ def small_plant():
     site = Site.objects.create(name="Browser test site")
     area = Area.objects.create(site=site, name="Filling hall")
     water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=450)
-    meter = Meter.objects.create(tag="FT-BRW-1", principle="electromagnetic", area=area, fluid=water,
+    meter = commission(tag="FT-BRW-1", principle="electromagnetic", area=area, fluid=water,
                                  line_size="DN50", internal_diameter_mm=52.5, range_min=0, range_max=40,
                                  mpe_value=0.5, mpe_basis="pct_reading", wetted_material="316L")
     standard = ReferenceStandard.objects.create(

@@ -12,6 +12,7 @@ from playwright.sync_api import expect
 
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 from tests.test_browser import (ARTIFACTS, TABLET, TIMEOUT_MS, assert_no_sideways_scroll, assert_touch_size,
                                 browser)  # noqa: F401  (browser is a fixture)
@@ -27,7 +28,7 @@ def pitot_plant(tmp_path, settings):
     area = Area.objects.create(site=site, name="Cooling towers")
     cooling = Fluid.objects.create(name="Cooling tower water", phase="liquid", conductivity_us_cm=1800,
                                    biofouling=True, scaling=True)
-    meter = Meter.objects.create(tag="FT-TAB-1", principle="averaging_pitot", area=area, fluid=cooling,
+    meter = commission(tag="FT-TAB-1", principle="averaging_pitot", area=area, fluid=cooling,
                                  line_size="DN200", internal_diameter_mm=202.7, range_max=400, mpe_value=2.0,
                                  mpe_basis="pct_span", wetted_material="316")
     tech = user_with_role("technician", "padtech")

@@ -9,6 +9,7 @@ from django.core.exceptions import ValidationError
 from calibration.forms import entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, SignedRecordError
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
 TODAY = dt.date(2026, 11, 20)
@@ -19,7 +20,7 @@ def meter():
     site = Site.objects.create(name="Test site")
     area = Area.objects.create(site=site, name="Hall A")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=500)
-    return Meter.objects.create(tag="FT-9", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    return commission(tag="FT-9", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                 internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.5,
                                 mpe_basis="pct_reading", wetted_material="316L")
 

@@ -11,6 +11,7 @@ from pypdf import PdfReader
 
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from reports.certificate import DEFAULT_LAB, certificate_number, drift_history
 from reports.charts import drift_chart_svg
 from tests.test_calibration_records import entry_data as tablet_entry
@@ -26,7 +27,7 @@ def meter():
     site = Site.objects.create(name="Marrowfield Works", address="1 Brine Street\nMarrowfield MF1 2AB")
     area = Area.objects.create(site=site, name="Pickling hall")
     water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=500)
-    return Meter.objects.create(tag="FT-101", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    return commission(tag="FT-101", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                 internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.5,
                                 mpe_basis="pct_reading", wetted_material="316L", serial="SN-778812",
                                 maker="Ternwell Flow", model="TW-300")

@@ -10,6 +10,7 @@ import math
 from calibration import due, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 
 LAST = dt.date(2026, 1, 1)
 STAIR = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)  # the CALIBRATION policy's staircase
@@ -165,7 +166,7 @@ def drifting_meter(db):
     site = Site.objects.create(name="S")
     area = Area.objects.create(site=site, name="A")
     fluid = Fluid.objects.create(name="W", phase="liquid", conductivity_us_cm=400)
-    meter = Meter.objects.create(tag="FT-D", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+    meter = commission(tag="FT-D", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                                  internal_diameter_mm=52.5, range_max=100, mpe_value=1.0, mpe_basis="absolute",
                                  wetted_material="316L", base_interval_days=2000)
     standard = ReferenceStandard.objects.create(identification="RS", description="ref", range_max=200,
@@ -251,7 +252,7 @@ def test_another_meters_failures_do_not_pull_a_meter_that_always_passed(drifting
     settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "reliability", "max_interval_days": 1095}
     good, standard = drifting_meter
     Meter.objects.filter(pk=good.pk).update(base_interval_days=365)
-    bad = Meter.objects.create(tag="FT-BAD", principle="electromagnetic", area=good.area, fluid=good.fluid,
+    bad = commission(tag="FT-BAD", principle="electromagnetic", area=good.area, fluid=good.fluid,
                                line_size="DN50", internal_diameter_mm=52.5, range_max=100, mpe_value=1.0,
                                mpe_basis="absolute", wetted_material="316L", base_interval_days=365)
     for year in (2023, 2024, 2025):

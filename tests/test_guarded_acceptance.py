@@ -25,6 +25,7 @@ from calibration.uncertainty import coverage_factor
 from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from reports.benchmark import naive_recompute
 from reports.certificate import certificate_html
 
@@ -43,7 +44,7 @@ def meter():
     site = Site.objects.create(name="Guard test site")
     area = Area.objects.create(site=site, name="Hall G")
     water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=500)
-    meter = Meter.objects.create(tag="FT-G1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    meter = commission(tag="FT-G1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                  internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=1.0,
                                  mpe_basis="pct_reading", wetted_material="316L", base_interval_days=365)
     assert meter.risk_factor() == 1.0  # no finding for this duty: the risk candidate is the base interval

@@ -8,6 +8,7 @@ from django.urls import reverse
 
 from plant import importer
 from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
 
@@ -27,8 +28,8 @@ def register():
     Fluid.objects.create(name="Brine", phase="liquid", conductivity_us_cm=60000, chlorides=True)
     base = dict(principle="electromagnetic", area=hall, fluid=water, line_size="DN50", internal_diameter_mm=52.5,
                 range_min=0, range_max=40, normal_flow=20, min_flow=5, wetted_material="316L", mpe_value=0.5)
-    Meter.objects.create(tag="FT-100", serial="SN1", **base)
-    Meter.objects.create(tag="FT-101", serial="SN2", **{**base, "wetted_material": "alloy C-276",
+    commission(tag="FT-100", serial="SN1", **base)
+    commission(tag="FT-101", serial="SN2", **{**base, "wetted_material": "alloy C-276",
                                                          "material_details": "PTFE liner"})
     return {"site": site, "hall": hall, "water": water}
 
@@ -85,7 +86,7 @@ def test_dry_run_plans_creates_and_updates_and_saves_nothing(register):
     assert plan.rows[2].notes == ["creates site South", "creates area South / Pump house"]
     assert plan.counts == {"create": 2, "update": 1, "unchanged": 1}
     assert counts() == before
-    assert Meter.objects.get(tag="FT-101").range_max == 40
+    assert Meter.objects.get(position__tag="FT-101").range_max == 40
 
 
 def test_bad_rows_reported_at_row_and_column_with_model_messages(register):
@@ -116,7 +117,7 @@ def test_bad_rows_reported_at_row_and_column_with_model_messages(register):
     result = importer.apply_import(plan)
     assert not result.applied
     assert counts() == before
-    assert not Meter.objects.filter(tag__startswith="FT-30").exists()
+    assert not Meter.objects.filter(position__tag__startswith="FT-30").exists()
 
 
 def test_missing_required_columns_is_one_error(register):
@@ -142,13 +143,13 @@ def test_good_file_applies_everything(register):
     plan = plan_for(good_file())
     result = importer.apply_import(plan)
     assert result.applied and result.counts == {"create": 2, "update": 1, "unchanged": 1}
-    moved = Meter.objects.get(tag="FT-101")
+    moved = Meter.objects.get(position__tag="FT-101")
     assert (moved.fluid.name, moved.range_max) == ("Brine", 60)
     assert list(moved.duties.order_by("id").values_list("fluid__name", flat=True)) == ["Water", "Brine"]
-    new = Meter.objects.get(tag="FT-200")
+    new = Meter.objects.get(position__tag="FT-200")
     assert (new.area.site.name, new.area.name) == ("South", "Pump house")
-    assert Meter.objects.get(tag="FT-201").principle == "coriolis"
-    assert Meter.objects.get(tag="FT-201").min_flow is None
+    assert Meter.objects.get(position__tag="FT-201").principle == "coriolis"
+    assert Meter.objects.get(position__tag="FT-201").min_flow is None
     assert Meter.objects.count() == 4
 
 
@@ -176,7 +177,7 @@ def test_failure_mid_apply_rolls_back_everything(register, monkeypatch):
         importer.apply_import(plan)
     monkeypatch.undo()
     assert counts() == before
-    assert Meter.objects.get(tag="FT-100").serial == "SN1"
+    assert Meter.objects.get(position__tag="FT-100").serial == "SN1"
     assert not Site.objects.filter(name="West").exists()
 
 
@@ -237,7 +238,7 @@ def test_view_dry_run_shows_plan_and_saves_nothing(register, logged_in_client):
     })
     assert response.status_code == 200
     assert response.context["plan"].applied
-    assert Meter.objects.filter(tag__in=["FT-200", "FT-201"]).count() == 2
+    assert Meter.objects.filter(position__tag__in=["FT-200", "FT-201"]).count() == 2
 
 
 def test_view_errors_are_400_and_apply_saves_nothing(register, logged_in_client):
@@ -290,6 +291,6 @@ def test_wetted_material_label_and_code_import_as_the_code(register):
         meter_line("FT-303", wetted_material="TITANIUM", material_details="grade 2"),
     )))
     assert plan.applied, plan.errors
-    assert Meter.objects.get(tag="FT-302").wetted_material == "alloy C-276"
-    assert (Meter.objects.get(tag="FT-303").wetted_material, Meter.objects.get(tag="FT-303").material_details) == (
+    assert Meter.objects.get(position__tag="FT-302").wetted_material == "alloy C-276"
+    assert (Meter.objects.get(position__tag="FT-303").wetted_material, Meter.objects.get(position__tag="FT-303").material_details) == (
         "titanium", "grade 2")

@@ -12,6 +12,7 @@ from django.utils import timezone as django_timezone
 from calibration.forms import CalibrationEntry
 from plant import localtime
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 
 LATE_EVENING_UTC = dt.datetime(2026, 12, 4, 23, 30, tzinfo=dt.timezone.utc)
 EARLY_MORNING_UTC = dt.datetime(2026, 12, 5, 3, 0, tzinfo=dt.timezone.utc)
@@ -38,7 +39,7 @@ def auckland_meter(db, monkeypatch):
     site = Site.objects.create(name="South site", time_zone="Pacific/Auckland")
     area = Area.objects.create(site=site, name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=500, temperature_c=20)
-    return Meter.objects.create(tag="FT-NZ", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    return commission(tag="FT-NZ", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                 internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
 
 

@@ -22,7 +22,7 @@ def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, cli
     assert task.start_days == 45 and task.frequency_days == 11
     assert MaintenanceRecord.objects.filter(task=task, condition="blocked").exists()
     assert MaintenanceRecord.objects.filter(task=task, condition__in=["blocked", "heavy_deposit"]).count() >= 3
-    meter = Meter.objects.get(tag="FT-601")
+    meter = Meter.objects.get(position__tag="FT-601")
     assert "MAINT_FOULED" in [f.code for f in meter.findings()]
     body = client.get("/meters/FT-601/").content.decode()
     # pages show the finding in plain words (the code stays in exports)

@@ -13,6 +13,7 @@ from PIL import Image
 from calibration.models import SignedRecordError
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 
 pytestmark = pytest.mark.django_db
@@ -24,7 +25,7 @@ def plant(tmp_path, settings):
     site = Site.objects.create(name="Maint site")
     area = Area.objects.create(site=site, name="Utilities")
     cooling = Fluid.objects.create(name="Cooling water", phase="liquid", conductivity_us_cm=1800, biofouling=True)
-    pitot = Meter.objects.create(tag="FT-P1", principle="averaging_pitot", area=area, fluid=cooling,
+    pitot = commission(tag="FT-P1", principle="averaging_pitot", area=area, fluid=cooling,
                                  line_size="DN200", internal_diameter_mm=202.7, range_max=400, mpe_value=2.0,
                                  mpe_basis="pct_span", wetted_material="316")
     tech = user_with_role("technician", "tech1")
@@ -159,7 +160,7 @@ def test_fouled_three_of_four_gives_a_finding_that_shortens_calibration(plant):
 
 def test_fouling_finding_lowers_the_factor_of_a_clean_duty(plant, client):
     water = Fluid.objects.create(name="Plain water", phase="liquid", conductivity_us_cm=400)
-    meter = Meter.objects.create(tag="FT-EM1", principle="electromagnetic", area=plant["area"], fluid=water,
+    meter = commission(tag="FT-EM1", principle="electromagnetic", area=plant["area"], fluid=water,
                                  line_size="DN50", internal_diameter_mm=52.5, range_max=40, mpe_value=0.5)
     assert meter.risk_factor() == 1.0 and meter.effective_interval_days() == 365
     today = timezone.localdate()
@@ -253,7 +254,7 @@ def test_bad_field_refused_at_the_field_nothing_saved(plant, tech_client, field,
 
 
 def test_task_of_another_meter_or_retired_is_refused(plant, tech_client):
-    other = Meter.objects.create(tag="FT-P2", principle="pitot", area=plant["area"], fluid=plant["fluid"],
+    other = commission(tag="FT-P2", principle="pitot", area=plant["area"], fluid=plant["fluid"],
                                  line_size="DN100", internal_diameter_mm=102, range_max=100, mpe_value=2)
     foreign = task_of(other, "PITOT_PULL_CLEAN")
     response = tech_client.post("/meters/FT-P1/maintain/", post_data(foreign))

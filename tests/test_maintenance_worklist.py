@@ -13,6 +13,7 @@ from pypdf import PdfReader
 from maintenance import stats, worklist
 from maintenance.models import CalendarToken, MaintenanceRecord, MaintenanceTask, WalkOrder
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 
 pytestmark = pytest.mark.django_db
@@ -20,7 +21,7 @@ D = dt.timedelta
 
 
 def meter(tag, area, fluid, principle="electromagnetic", **stored):
-    m = Meter.objects.create(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
+    m = commission(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
     if stored:
         Meter.objects.filter(pk=m.pk).update(**stored)
@@ -113,7 +114,7 @@ def test_icalendar_feed_parsed_back_and_token_revoked(week):
     calendar = Calendar.from_ical(response.content)
     events = {str(e["summary"]): e for e in calendar.walk("VEVENT")}
     today = week["today"]
-    set_due(Meter.objects.get(tag="FT-B1"), "VISUAL_INSPECTION", today + D(days=10))
+    set_due(Meter.objects.get(position__tag="FT-B1"), "VISUAL_INSPECTION", today + D(days=10))
     response = anonymous.get(url)
     calendar = Calendar.from_ical(response.content)
     events = {str(e["summary"]): e for e in calendar.walk("VEVENT")}
@@ -143,8 +144,8 @@ def test_review_lists_maintenance_overdue_and_due_with_constant_queries(client, 
     from django.test.utils import CaptureQueriesContext
 
     today = week["today"]
-    b = Meter.objects.get(tag="FT-B1")
-    set_due(Meter.objects.get(tag="FT-D1"), "TRANSMITTER_VERIFICATION", today + D(days=100))
+    b = Meter.objects.get(position__tag="FT-B1")
+    set_due(Meter.objects.get(position__tag="FT-D1"), "TRANSMITTER_VERIFICATION", today + D(days=100))
     set_due(b, "VISUAL_INSPECTION", today - D(days=4))
     set_due(b, "TRANSMITTER_VERIFICATION", today + D(days=3))
     overdue = list(csv.reader(io.StringIO(client.get("/review/", {"export": "maint_overdue"}).content.decode())))
@@ -164,8 +165,8 @@ def test_review_lists_maintenance_overdue_and_due_with_constant_queries(client, 
 
 
 def test_findings_statistics_by_principle_and_fluid(client, week):
-    b, c = Meter.objects.get(tag="FT-B1"), Meter.objects.get(tag="FT-C1")
-    a = Meter.objects.get(tag="FT-A1")
+    b, c = Meter.objects.get(position__tag="FT-B1"), Meter.objects.get(position__tag="FT-C1")
+    a = Meter.objects.get(position__tag="FT-A1")
     tech = user_with_role("technician", "stats-tech")
     today = week["today"]
     for m, condition in ((b, "clean"), (b, "heavy_deposit"), (c, "blocked"), (c, "clean"), (a, "corroded")):

@@ -19,6 +19,7 @@ from calibration.forms import CalibrationEntry, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from maintenance.models import MaintenanceRecord
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 from tests.test_browser import (  # noqa: F401 (browser is a fixture)
     ARTIFACTS, CHROMIUM, LAUNCH_ARGS, TABLET, TIMEOUT_MS, assert_touch_size, browser, fill_points,
@@ -75,7 +76,7 @@ def pump_station():
     water = Fluid.objects.create(name="Raw water", phase="liquid", conductivity_us_cm=380)
 
     def meter(tag, due_in_days, range_max):
-        m = Meter.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=water, line_size="DN100",
+        m = commission(tag=tag, principle="electromagnetic", area=area, fluid=water, line_size="DN100",
                                  internal_diameter_mm=102, range_min=0, range_max=range_max, mpe_value=0.5,
                                  mpe_basis="pct_reading", wetted_material="316L")
         Meter.objects.filter(pk=m.pk).update(next_due_date=today + dt.timedelta(days=due_in_days))

@@ -14,6 +14,7 @@ from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStan
 from offline import kinds
 from offline.rules import entry_rules
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import send_twice_at_once, user_with_role
 from tests.test_calibration_records import TODAY as ENTRY_DATE, entry_data
 
@@ -28,7 +29,7 @@ def field(db):
     water = Fluid.objects.create(name="Raw water", phase="liquid", conductivity_us_cm=300)
 
     def meter(tag, due_in_days, status="in_service"):
-        m = Meter.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=water, line_size="DN80",
+        m = commission(tag=tag, principle="electromagnetic", area=area, fluid=water, line_size="DN80",
                                  internal_diameter_mm=80, range_max=40, mpe_value=0.5, wetted_material="316L",
                                  status=status)
         due = None if due_in_days is None else TODAY + dt.timedelta(days=due_in_days)

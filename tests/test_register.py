@@ -11,6 +11,7 @@ from django.db import connection
 from calibration.intervals import whole_days
 from plant.forms import FluidForm, MeterForm
 from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 
 pytestmark = pytest.mark.django_db
@@ -144,7 +145,7 @@ def test_wetted_material_off_the_list_refused_at_field(site_area_fluid, text):
         f'"{text}" is not on the list of wetted materials; choose one of the list (its code or name), '
         "or leave it blank and describe it under material details."]
     with pytest.raises(ValidationError) as refused:
-        Meter.objects.create(tag="FT-X", principle="coriolis", area=area, fluid=fluid, line_size="DN25",
+        commission(tag="FT-X", principle="coriolis", area=area, fluid=fluid, line_size="DN25",
                              internal_diameter_mm=26.6, range_max=8, mpe_value=0.2, wetted_material=text)
     assert "wetted_material" in refused.value.message_dict
     assert Meter.objects.count() == 0 and DutyPeriod.objects.count() == 0
@@ -174,13 +175,13 @@ def small_register(site_area_fluid):
     _, area, fluid = site_area_fluid
     make = dict(principle="electromagnetic", area=area, fluid=fluid, line_size="DN50", internal_diameter_mm=52.5,
                 range_max=40, mpe_value=0.5, wetted_material="316L")
-    Meter.objects.create(tag="FT-NEVER", **make)
-    Meter.objects.create(tag="FT-GOOD", **make)
-    Meter.objects.create(tag="FT-BAD", **make)
+    commission(tag="FT-NEVER", **make)
+    commission(tag="FT-GOOD", **make)
+    commission(tag="FT-BAD", **make)
     # the stored fields the due-date recompute keeps (tested in test_due_dates.py)
-    Meter.objects.filter(tag="FT-GOOD").update(next_due_date=dt.date(2027, 6, 1), last_calibrated=dt.date(2026, 6, 1),
+    Meter.objects.filter(position__tag="FT-GOOD").update(next_due_date=dt.date(2027, 6, 1), last_calibrated=dt.date(2026, 6, 1),
                                                last_in_tolerance=True, drift_status="flat")
-    Meter.objects.filter(tag="FT-BAD").update(next_due_date=dt.date(2027, 1, 15), last_calibrated=dt.date(2026, 11, 1),
+    Meter.objects.filter(position__tag="FT-BAD").update(next_due_date=dt.date(2027, 1, 15), last_calibrated=dt.date(2026, 11, 1),
                                               last_in_tolerance=False, drift_status="out_of_tolerance")
     return area, fluid
 
@@ -223,7 +224,7 @@ def test_register_query_count_does_not_grow_with_fleet(client, small_register):
     with CaptureQueriesContext(connection) as small:
         assert client.get("/meters/", {"sort": "next_due_date"}).status_code == 200
     for i in range(60):
-        Meter.objects.create(tag=f"FT-X{i:03d}", principle="vortex", area=area, fluid=fluid, line_size="DN50",
+        commission(tag=f"FT-X{i:03d}", principle="vortex", area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=52.5, range_max=40, mpe_value=1)
     with CaptureQueriesContext(connection) as large:
         body = client.get("/meters/", {"sort": "next_due_date"}).content.decode()
@@ -235,8 +236,8 @@ def test_overdue_due_dates_stand_out(client, small_register):
     # Due yesterday at the site is overdue, due tomorrow is not, never calibrated is due now. (The clock is not
     # moved: the login session would expire with it.)
     today = Site.objects.get().today()
-    Meter.objects.filter(tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
-    Meter.objects.filter(tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
+    Meter.objects.filter(position__tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
+    Meter.objects.filter(position__tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
     body = client.get("/meters/").content.decode()
     marked = re.findall(r'<td class="nowrap overdue"[^>]*>\s*([^<]*?)\s*</td>', body)
     assert sorted(marked) == [(today - dt.timedelta(days=1)).isoformat(), "now (never calibrated)"]

@@ -3,6 +3,7 @@ import pytest
 from django.test import Client
 
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 
 pytestmark = pytest.mark.django_db
@@ -12,7 +13,7 @@ pytestmark = pytest.mark.django_db
 def meter():
     area = Area.objects.create(site=Site.objects.create(name="Edit site"), name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
-    return Meter.objects.create(tag="FT-E1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    return commission(tag="FT-E1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                 internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
 
 

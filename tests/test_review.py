@@ -9,12 +9,13 @@ from django.utils import timezone
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant import risk
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
 
 
 def make_meter(tag, area, fluid, principle="electromagnetic", **due):
-    meter = Meter.objects.create(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
+    meter = commission(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
                                  internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
     if due:
         Meter.objects.filter(pk=meter.pk).update(**due)
@@ -212,7 +213,7 @@ def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
 
     monkeypatch.setattr(django_timezone, "now", lambda: dt.datetime(2026, 12, 4, 23, 30, tzinfo=dt.timezone.utc))
     site = Site.objects.get()
-    meter = Meter.objects.get(tag="LATER-1")
+    meter = Meter.objects.get(position__tag="LATER-1")
     Meter.objects.filter(pk=meter.pk).update(next_due_date=dt.date(2026, 12, 4))
     Meter.objects.exclude(pk=meter.pk).update(next_due_date=dt.date(2027, 6, 1))
     assert "LATER-1" not in tags(client, "overdue")  # the site has no zone: the plant's (UTC here) 2026-12-04
@@ -224,7 +225,7 @@ def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
     assert dict(zip(header, rows[0]))["Days overdue"] == "1"
     # a second site west of UTC (Chicago, UTC-6: still 2026-12-04 17:30) keeps its own date in the same list
     west = Site.objects.create(name="West site", time_zone="America/Chicago")
-    Meter.objects.filter(tag="DUE-1").update(area=Area.objects.create(site=west, name="Yard"),
+    Meter.objects.filter(position__tag="DUE-1").update(area=Area.objects.create(site=west, name="Yard"),
                                              next_due_date=dt.date(2026, 12, 4))
     assert tags(client, "overdue") == ["LATER-1"]
     assert "DUE-1" in tags(client, "due")

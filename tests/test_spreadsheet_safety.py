@@ -18,6 +18,7 @@ from hypothesis import given, settings as hypothesis_settings, strategies as st
 from calibration.models import CalibrationEvent
 from plant import importer, spreadsheet
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 
 HOSTILE = [
     "=1+1",
@@ -78,7 +79,7 @@ def hostile_register(db):
     area = Area.objects.create(site=site, name="-Hall")
     fluid = Fluid.objects.create(name="=HYPERLINK(\"http://example.invalid\")", phase="liquid",
                                  conductivity_us_cm=500, temperature_c=-5.5, notes="+SUM(A1)\nsecond line")
-    meter = Meter.objects.create(tag="=1+1", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+    meter = commission(tag="=1+1", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                                  internal_diameter_mm=52.5, range_min=-10, range_max=40, mpe_value=0.5,
                                  mpe_basis="pct_reading", wetted_material="316L", serial="-2+3+cmd|' /C calc'!A0",
                                  maker="@maker", model="'=already quoted")

@@ -9,6 +9,7 @@ from django.utils import timezone
 
 from calibration.models import CalibrationEvent
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from reports import stats
 
 pytestmark = pytest.mark.django_db
@@ -17,7 +18,7 @@ TODAY = timezone.localdate()
 
 
 def meter(tag, principle, area, fluid, drift):
-    return Meter.objects.create(
+    return commission(
         tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50", internal_diameter_mm=52.5,
         range_max=40, mpe_value=0.5, drift_rate_per_year=drift,
     )

@@ -13,6 +13,7 @@ from django.test import Client
 
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard, SignedRecordError
 from plant.models import Area, Fluid, Meter, Site
+from plant.installations import commission
 from tests.conftest import user_with_role
 from tests.test_calibration_records import entry_data
 
@@ -24,7 +25,7 @@ def world(db):
     site = Site.objects.create(name="Trust site")
     area = Area.objects.create(site=site, name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
-    meter = Meter.objects.create(tag="FT-T1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    meter = commission(tag="FT-T1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                  internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
     standard = ReferenceStandard.objects.create(identification="RS-T", description="ref", range_max=50,
                                                 certificate_number="C-T", due_date=dt.date(2099, 1, 1),

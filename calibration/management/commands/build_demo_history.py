@@ -20,6 +20,8 @@ from calibration.synthetic import NOMINALS, invented_found_errors
 from plant.models import Meter
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_history.json"
+BENCH_SPARE = "SN730118"  # the demo's spare calibrated on the bench (plant/management/commands/build_demo_plant.py)
+BENCH_PROCEDURE = "Bench comparison against the workshop reference meter in series, five points up the range (WP-FL-05)."
 TODAY = dt.date(2026, 12, 4)  # the generator's fixed "today" (tests/test_demo_history.py GENERATED_ON)
 LATE_WINDOW_DAYS = 150  # a calibration falling due in this many days before TODAY ...
 LATE_CHANCE = 0.3  # ... is missed with this chance: the meter shows overdue
@@ -58,8 +60,10 @@ class Command(BaseCommand):
         rng = random.Random(seed)
         standards = _standards()
         events = 0
-        for meter in Meter.objects.select_related("fluid").order_by("tag"):
+        for meter in (Meter.objects.filter(position__isnull=False).select_related("position__fluid")
+                      .order_by("position__tag")):
             events += self._history(meter, rng, standards)
+        events += self._bench(Meter.objects.get(serial=BENCH_SPARE, position__isnull=True), rng, standards)
         # the records only: the audit trail (historical rows) is written again as the fixture loads, and
         # dumped ids of it would collide with that on PostgreSQL, whose sequences do not skip loaded ids
         call_command("dumpdata", "calibration.referencestandard", "calibration.calibrationevent",
@@ -118,6 +122,20 @@ class Command(BaseCommand):
                 return count
             if day >= TODAY - dt.timedelta(days=LATE_WINDOW_DAYS) and rng.random() < LATE_CHANCE:
                 return count  # the last one is missed: its due date has passed
+
+    def _bench(self, meter, rng, standards):
+        """The spare's calibration on the workshop bench a month ago, so it may be installed."""
+        day = TODAY - dt.timedelta(days=30)
+        event = CalibrationEvent.objects.create(
+            meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=BENCH_PROCEDURE,
+            ambient_temp_c=20.5, fluid_temp_c=18.0, pressure_bar=2.0, reason="scheduled", decision_rule="simple",
+            condition_received="New from stores, sealed.")
+        event.reference_standards.add(standards["liquid"])
+        self._points(event, meter, CalibrationPoint.Kind.AS_FOUND,
+                     [rng.gauss(0, 0.1 * meter.mpe_value) for _ in NOMINALS], rng)
+        event.sign(event.technician, "Instrument technician",
+                   at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc))
+        return 1
 
     def _points(self, event, meter, kind, errors_in_basis, rng):
         span = meter.range_max - meter.range_min

@@ -59,14 +59,15 @@ class Command(BaseCommand):
 
     @transaction.atomic
     def handle(self, *args, seed, output, **options):
-        if MaintenanceRecord.objects.exists() or not Meter.objects.filter(tag="FT-601").exists():
+        if MaintenanceRecord.objects.exists() or not Meter.objects.filter(position__tag="FT-601").exists():
             raise CommandError("Load fixtures/demo_plant.json into an empty database first (no maintenance yet).")
         rng = random.Random(seed)
         MaintenanceTask.objects.all().delete()  # the ones derived on loading, if any: rebuilt with the demo's dates
         for position, name in enumerate(WALK, start=1):
             WalkOrder.objects.create(area=Area.objects.get(name=name), position=position)
         records = 0
-        for meter in Meter.objects.select_related("fluid").order_by("tag"):
+        for meter in (Meter.objects.filter(position__isnull=False).select_related("position__fluid")
+                      .order_by("position__tag")):
             tasks = synthetic.build_tasks(meter, SINCE)
             MaintenanceTask.objects.bulk_create(tasks)
             for task in tasks:

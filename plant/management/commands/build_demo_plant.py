@@ -2,6 +2,7 @@
 
 All names and tags are invented for the demo.
 """
+import datetime as dt
 import random
 from pathlib import Path
 
@@ -9,7 +10,9 @@ from django.conf import settings
 from django.core.management import BaseCommand, call_command
 from django.db import transaction
 
-from plant.models import Area, Fluid, Meter, Site
+from plant import risk
+from plant.installations import commission
+from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 
 FLUIDS = [
     # name, phase, conductivity, density, viscosity, solids, chlorides, scaling, slime, sticky, gas, temp
@@ -83,6 +86,14 @@ MAKERS = ["Northbeck Instruments", "Calder & Wray", "Tessel Flow", "Orrin Meteri
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_plant.json"
 
+COMMISSIONED_ON = dt.date(2016, 3, 1)  # the invented plant's register starts here
+MOVED_ON = dt.date(2019, 3, 1)
+# serial, principle, range max, units, material, MPE (% of reading): spare devices on the shelf
+SPARES = [
+    ("SN730118", "electromagnetic", 30, "m³/h", "316L", 0.5),
+    ("SN730342", "vortex", 4000, "kg/h", "316L", 1.0),
+]
+
 
 class Command(BaseCommand):
     help = "Create the invented demo plant in the database and write it to fixtures/demo_plant.json."
@@ -105,7 +116,8 @@ class Command(BaseCommand):
             minimum = round(rmax * rng.uniform(0.05, 0.15), 2)
             if tag in ("FT-304", "FT-505"):  # vortex meters run far below their normal flow at night
                 minimum = round(rmax * 0.03, 3)
-            Meter.objects.create(
+            commission(
+                since=MOVED_ON if tag == "FT-305" else COMMISSIONED_ON,
                 tag=tag, principle=principle, area=areas[area], fluid=fluids[fluid], line_size=size,
                 internal_diameter_mm=bore, range_min=0, range_max=rmax, flow_units=units,
                 normal_flow=normal, min_flow=minimum, wetted_material=material,
@@ -114,13 +126,25 @@ class Command(BaseCommand):
                 model=f"M{rng.randint(10, 99)}", mpe_value=mpe, mpe_basis=basis,
                 base_interval_days=rng.choice([365, 365, 730, 180]),
             )
-        # one meter moved: FT-305 served on brine before the syrup kitchen
-        moved = Meter.objects.get(tag="FT-305")
-        duty = moved.duties.get()
-        duty.since = duty.since.replace(year=duty.since.year - 2)
-        duty.save()
-        moved.duties.create(area=areas["Brine & pickling"], fluid=fluids["Pickling brine"],
-                            since=duty.since.replace(year=duty.since.year - 3), until=duty.since)
+        # one device moved: the one at FT-305 served on brine at FT-115 before the syrup kitchen; FT-115 has
+        # stood empty since (the brine pre-dosing it measured was stopped)
+        moved = Meter.objects.get(position__tag="FT-305")
+        brine = Position.objects.create(tag="FT-115", area=areas["Brine & pickling"], fluid=fluids["Pickling brine"],
+                                        line_size="DN25", internal_diameter_mm=26.6, flow_units="m3/h",
+                                        normal_flow=2.5, min_flow=0.4)
+        Installation.objects.create(device=moved, position=brine, since=COMMISSIONED_ON, until=MOVED_ON,
+                                    removal_reason="moved to the syrup kitchen; brine pre-dosing stopped")
+        DutyPeriod.objects.create(meter=moved, position=brine, area=brine.area, fluid=brine.fluid,
+                                  since=COMMISSIONED_ON, until=MOVED_ON)
+        Meter.objects.filter(pk=moved.pk).update(risk_severity=risk.worst_severity(moved.findings()))
+        # two spares in stores: one calibrated on the bench (demo history), one never calibrated
+        for serial, principle, rmax, units_text, material, mpe in SPARES:
+            Meter.objects.create(principle=principle, range_min=0, range_max=rmax, flow_units=units_text,
+                                 wetted_material=material, serial=serial, maker=rng.choice(MAKERS),
+                                 model=f"M{rng.randint(10, 99)}", mpe_value=mpe, status=Meter.Status.SPARE)
         FIXTURE.parent.mkdir(exist_ok=True)
-        call_command("dumpdata", "plant", indent=1, output=str(FIXTURE))
-        self.stdout.write(self.style.SUCCESS(f"{Meter.objects.count()} meters written to {FIXTURE}"))
+        # the records only: the audit trail is written again as the fixture loads (see build_demo_history)
+        call_command("dumpdata", "plant.site", "plant.area", "plant.fluid", "plant.position", "plant.meter",
+                     "plant.installation", "plant.dutyperiod", indent=1, output=str(FIXTURE))
+        self.stdout.write(self.style.SUCCESS(f"{Position.objects.count()} positions and {Meter.objects.count()} devices "
+                                             f"written to {FIXTURE}"))

@@ -119,7 +119,7 @@ class Command(BaseCommand):
                      f"< {TARGETS['review'] * 1000:.0f} ms", seconds < TARGETS["review"] and status == 200))
         from plant.models import Area
 
-        area = Area.objects.annotate(n=Count("meters")).order_by("-n", "pk").first()
+        area = Area.objects.annotate(n=Count("positions")).order_by("-n", "pk").first()
         seconds, work_queries, status = benchmark.page(client, f"/maintenance/worklist/?area={area.pk}", repeat)
         rows.append((f"Work list page, this week, one area ({area.n} meters)",
                      f"{seconds * 1000:.0f} ms, {work_queries} queries (HTTP {status})", "", status == 200))
@@ -131,7 +131,8 @@ class Command(BaseCommand):
                      f"≤ {queries} queries", few_queries <= queries))
         rows += self._register(technician, rare, repeat)
 
-        meter = Meter.objects.annotate(n=Count("calibrations")).order_by("-n", "pk").first()
+        meter = (Meter.objects.filter(position__isnull=False).annotate(n=Count("calibrations"))
+                 .order_by("-n", "pk").first())
         event = certificate.load_event(meter.calibrations.filter(state="signed").order_by("-performed_on")
                                        .values_list("pk", flat=True).first())
         first, _ = benchmark.timed(lambda: certificate.certificate_pdf(event))

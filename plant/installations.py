@@ -1,0 +1,189 @@
+"""Installing, removing and swapping devices at positions: the only path that moves a device.
+
+Each step checks everything first and writes in one transaction, so a refused swap changes nothing. The
+device's calibration and maintenance history stay with the device; the position keeps its tag, duty and
+installations; the duty history (DutyPeriod) of the device gains a period for each position it serves.
+"""
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass
+
+from django.db import transaction
+
+from calibration import units
+from plant import risk
+from plant.models import Installation, Meter, Position, flows_above_range
+
+
+class InstallationError(Exception):
+    """A step refused, with {field: [messages]} for the form that asked for it."""
+
+    def __init__(self, errors: dict[str, list[str]]):
+        self.errors = errors
+        super().__init__("; ".join(m for ms in errors.values() for m in ms))
+
+
+class Removal:
+    """Where a removed device goes."""
+    SHELF = "spare"      # back to stores as a spare (it may be installed again)
+    RETIRED = "removed"  # scrapped or returned: never installed again
+
+
+POSITION_FIELDS = ("tag", "area", "fluid", "line_size", "internal_diameter_mm", "flow_units", "normal_flow",
+                   "min_flow", "required_accuracy_pct")
+
+
+def starting_point(device: Meter) -> dict:
+    """The as-left of the device's last signed, not superseded calibration: its state when it was put away,
+    which is where its drift starts again at the new position. Empty when it was never calibrated."""
+    from calibration.models import CalibrationEvent, CalibrationPoint
+
+    event = (CalibrationEvent.objects.filter(meter=device, state=CalibrationEvent.State.SIGNED,
+                                             superseded_by__isnull=True)
+             .order_by("-performed_on", "-id").prefetch_related("points").first())
+    if event is None:
+        return {}
+    as_left = event.points_of(CalibrationPoint.Kind.AS_LEFT) or event.points_of(CalibrationPoint.Kind.AS_FOUND)
+    return {
+        "event_id": event.pk, "performed_on": event.performed_on.isoformat(),
+        "in_tolerance": event.as_left_in_tolerance,
+        "points": [{"nominal_pct": p.nominal_pct, "error": p.error, "mpe": p.mpe} for p in as_left],
+    }
+
+
+def install_problems(device: Meter, position: Position, on_date: dt.date, *, new_device: bool = False) -> list[str]:
+    """Why `device` may not be installed at `position` on `on_date` (empty = it may)."""
+    found = []
+    if device.status == Meter.Status.REMOVED:
+        found.append(f"Device {device.device_label} is retired and cannot be installed again.")
+    if device.position_id and device.position_id != position.pk:
+        found.append(f"Device {device.device_label} is installed at {device.position.tag}; remove it there first.")
+    occupant = position.installed_device()
+    if occupant is not None and occupant.pk != device.pk:
+        found.append(f"{position.tag} already holds device {occupant.device_label}; swap or remove it first.")
+    if not new_device:
+        if device.last_calibrated is None:
+            found.append(f"Device {device.device_label} has no signed calibration: calibrate it on the bench "
+                         "before it is installed.")
+        elif device.next_due_date is not None and device.next_due_date < on_date:
+            found.append(f"Device {device.device_label} was due for calibration on {device.next_due_date:%d %b %Y}; "
+                         "calibrate it on the bench before it is installed.")
+    for message in flows_above_range(position, device).values():
+        found.append(message)
+    return found
+
+
+def fit_warnings(device: Meter, position: Position) -> list[str]:
+    """What the technician should know before fitting `device` at `position` (not refusals): units that differ,
+    an MPE wider than the accuracy the position needs, and the principle×fluid findings it would meet there."""
+    warnings = []
+    if units.code_for(device.flow_units) != units.code_for(position.flow_units):
+        warnings.append(f"The device reads in {units.label(device.flow_units)}; the position's flows are stated "
+                        f"in {units.label(position.flow_units)}.")
+    if (position.required_accuracy_pct and device.mpe_basis == Meter.MpeBasis.PERCENT_READING
+            and device.mpe_value > position.required_accuracy_pct):
+        warnings.append(f"The device's MPE (±{device.mpe_value:g} % of reading) is wider than the ±"
+                        f"{position.required_accuracy_pct:g} % {position.tag} requires.")
+    findings = risk.assess(device.principle, device.wetted_material, position.fluid.props(),
+                           normal_flow_m3_h=position.flow_m3_h(position.normal_flow),
+                           min_flow_m3_h=position.flow_m3_h(position.min_flow),
+                           diameter_mm=position.internal_diameter_mm)
+    warnings += [f"{f.title}: {f.reason}" for f in findings if f.severity in ("high", "critical")]
+    return warnings
+
+
+def _after_move(device: Meter, on_date: dt.date, recompute=True):
+    """The duty history follows the move and the due date is recomputed with the new duty's risk (the stored
+    risk and the derived maintenance tasks followed at device.save())."""
+    from calibration.fleet import recompute_due_dates
+
+    device.record_duty_change(on_date)
+    if recompute:
+        recompute_due_dates(Meter.objects.filter(pk=device.pk))
+
+
+def _install(device, position, on_date, user, *, new_device=False, recompute=True) -> Installation:
+    problems = install_problems(device, position, on_date, new_device=new_device)
+    if problems:
+        raise InstallationError({"device": problems})
+    installation = Installation.objects.create(device=device, position=position, since=on_date, installed_by=user,
+                                               starting_point=starting_point(device))
+    device.position = position
+    device.status = Meter.Status.IN_SERVICE
+    device.save()
+    _after_move(device, on_date, recompute)
+    return installation
+
+
+def _remove(device, on_date, user, reason, to=Removal.SHELF) -> Installation:
+    if not device.position_id:
+        raise InstallationError({"device": [f"Device {device.device_label} is not installed anywhere."]})
+    if not (reason or "").strip():
+        raise InstallationError({"reason": ["Say why the device is removed."]})
+    installation = Installation.objects.select_for_update().get(device=device, until__isnull=True)
+    if on_date < installation.since:
+        raise InstallationError({"on_date": [f"The removal date cannot be before the device was installed "
+                                             f"({installation.since:%d %b %Y})."]})
+    installation.until, installation.removed_by, installation.removal_reason = on_date, user, reason.strip()
+    installation.save()
+    device.position = None
+    device.status = to
+    device.save()
+    _after_move(device, on_date)
+    return installation
+
+
+def install(device: Meter, position: Position, on_date: dt.date, user=None, *, new_device=False,
+            recompute=True) -> Installation:
+    with transaction.atomic():
+        return _install(device, position, on_date, user, new_device=new_device, recompute=recompute)
+
+
+def remove(device: Meter, on_date: dt.date, reason: str, user=None, to=Removal.SHELF) -> Installation:
+    with transaction.atomic():
+        return _remove(device, on_date, user, reason, to)
+
+
+@dataclass
+class SwapResult:
+    removed: Installation
+    installed: Installation
+
+
+def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, user=None,
+         to=Removal.SHELF, *, brand_new=False) -> SwapResult:
+    """Remove the device at `position` (reason; to the shelf or retired) and install `new_device` there."""
+    with transaction.atomic():
+        old = position.installed_device()
+        if old is None:
+            raise InstallationError({"device": [f"No device is installed at {position.tag}; install one instead."]})
+        if old.pk == new_device.pk:
+            raise InstallationError({"device": [f"Device {old.device_label} is already installed at {position.tag}."]})
+        # refuse before anything is written (the removal below would otherwise free the position first)
+        problems = install_problems(new_device, position, on_date, new_device=brand_new)
+        problems = [p for p in problems if not p.startswith(f"{position.tag} already holds")]
+        if problems:
+            raise InstallationError({"device": problems})
+        removed = _remove(old, on_date, user, reason, to)
+        position.refresh_from_db()
+        installed = _install(new_device, position, on_date, user, new_device=brand_new)
+        return SwapResult(removed, installed)
+
+
+def commission(*, since: dt.date | None = None, user=None, **fields) -> Meter:
+    """A new position and a new device installed there at once (the register's "new meter"): position fields
+    (tag, area, fluid, line size, flows...) go to the position, the rest to the device."""
+    position_fields = {k: fields.pop(k) for k in POSITION_FIELDS if k in fields and k != "flow_units"}
+    position_fields["flow_units"] = units.code_for(fields.get("flow_units", "m3/h"))
+    with transaction.atomic():
+        position = Position.objects.create(**position_fields)
+        status = fields.pop("status", Meter.Status.IN_SERVICE)
+        device = Meter.objects.create(**fields, status=Meter.Status.SPARE)
+        if status == Meter.Status.IN_SERVICE:
+            # a new device's due fields are set by the next recompute, as for any new register entry
+            _install(device, position, since or position.area.site.today(), user, new_device=True, recompute=False)
+        else:
+            device.status = status
+            device.save()
+        return device
