@@ -227,6 +227,11 @@ def _cell(obj, column: str) -> str:
             return position.area.name if position.area_id else ""
         if column == "fluid":
             return position.fluid.name if position.fluid_id else ""
+        if column == "flow_units":  # the device's unit, as its code (a spelling from before codes reads as its code)
+            try:
+                return units.code_for(obj.device.flow_units)
+            except units.UnitError:
+                return _format(obj.device.flow_units)
         return _format(getattr(position if column in POSITION_COLUMNS else obj.device, column))
     return _format(getattr(obj, column))
 
@@ -252,12 +257,15 @@ class RegisterRowForm:
     def is_valid(self) -> bool:
         # the flows-against-range check needs both rows' new values: it is made once, below, not by the position
         self.instance.position._device_checked_elsewhere = True
-        forms_ok = [self.position_form.is_valid(), self.device_form.is_valid()]
+        self.instance.device._position_checked_elsewhere = True
+        self.position_form.is_valid()
+        self.device_form.is_valid()
         self.errors = {**{k: list(v) for k, v in self.position_form.errors.items()},
                        **{k: list(v) for k, v in self.device_form.errors.items()}}
-        if all(forms_ok) and self.new:
+        if self.errors.keys().isdisjoint({"range_min", "range_max", "flow_units", "fluid"}):
             for name, message in flows_above_range(self.instance.position, self.instance.device).items():
-                self.errors.setdefault(name, []).append(message)
+                if name not in self.errors:
+                    self.errors[name] = [message]
         return not self.errors
 
     def save(self):

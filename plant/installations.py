@@ -52,8 +52,17 @@ def starting_point(device: Meter) -> dict:
     }
 
 
+def refresh_due(device: Meter):
+    """The device's stored due date recomputed from its signed records, so the check below trusts no stale value."""
+    from calibration.fleet import recompute_due_dates
+
+    recompute_due_dates(Meter.objects.filter(pk=device.pk))
+    device.refresh_from_db(fields=["last_calibrated", "next_due_date", "due_rationale", "risk_severity"])
+
+
 def install_problems(device: Meter, position: Position, on_date: dt.date, *, new_device: bool = False) -> list[str]:
-    """Why `device` may not be installed at `position` on `on_date` (empty = it may)."""
+    """Why `device` may not be installed at `position` on `on_date` (empty = it may), from its stored due
+    date (steps that install call refresh_due first)."""
     found = []
     if device.status == Meter.Status.REMOVED:
         found.append(f"Device {device.device_label} is retired and cannot be installed again.")
@@ -104,6 +113,8 @@ def _after_move(device: Meter, on_date: dt.date, recompute=True):
 
 
 def _install(device, position, on_date, user, *, new_device=False, recompute=True) -> Installation:
+    if not new_device:
+        refresh_due(device)
     problems = install_problems(device, position, on_date, new_device=new_device)
     if problems:
         raise InstallationError({"device": problems})
@@ -161,6 +172,8 @@ def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, u
         if old.pk == new_device.pk:
             raise InstallationError({"device": [f"Device {old.device_label} is already installed at {position.tag}."]})
         # refuse before anything is written (the removal below would otherwise free the position first)
+        if not brand_new:
+            refresh_due(new_device)
         problems = install_problems(new_device, position, on_date, new_device=brand_new)
         problems = [p for p in problems if not p.startswith(f"{position.tag} already holds")]
         if problems:

@@ -269,9 +269,10 @@ def flows_above_range(position, device) -> dict:
         in_device_units = position.flow_in(value, device.flow_units)
         if in_device_units is not None and in_device_units > high * (1 + 1e-9):
             label = position._meta.get_field(field).verbose_name.capitalize()
+            which = f"of device {device.device_label}" if device.pk else "of the device"
             errors[field] = (
                 f"{label} at {position.tag} ({value:g} {units.label(position.flow_units)}) is above the calibrated "
-                f"range high of device {device.device_label} ({high:g} {units.label(device.flow_units)})."
+                f"range high ({high:g} {units.label(device.flow_units)}) {which}."
             )
     return errors
 
@@ -371,6 +372,13 @@ class Meter(models.Model):
             return reverse("plant:meter-detail", args=[self.position.tag])
         return reverse("device-detail", args=[self.pk])
 
+    def get_flow_units_display(self):
+        """The unit's label (m³/h, US gal/min...); a spelling from before units were codes shows as written."""
+        try:
+            return units.label(units.code_for(self.flow_units))
+        except units.UnitError:
+            return self.flow_units
+
     def calibrate_url(self):
         """Where this device is calibrated: at its position (by tag), or on the bench when it is a spare."""
         if self.position_id:
@@ -427,9 +435,16 @@ class Meter(models.Model):
         A device removed on a day is counted off its position that day; one installed that day, on it."""
         if self.pk is None:
             return None
-        return (Installation.objects.filter(device=self, since__lte=day)
-                .filter(models.Q(until__isnull=True) | models.Q(until__gt=day))
-                .order_by("-since", "-id").values_list("position_id", flat=True).first())
+        moves = list(Installation.objects.filter(device=self).order_by("since", "id")
+                     .values_list("since", "until", "position_id"))
+        for since, until, position_id in reversed(moves):
+            if since <= day and (until is None or until > day):
+                return position_id
+        # a record dated before the register knew the device (entered from paper, say) belongs to the
+        # position it was first installed at, if it has never been anywhere else before that
+        if moves and day < moves[0][0]:
+            return moves[0][2]
+        return None
 
     def today(self):
         """Today's date where the device is (its position's site; the plant's time zone for a spare)."""
@@ -444,7 +459,8 @@ class Meter(models.Model):
                 errors["range_max"] = "The range high must be above the range low."
             elif not math.isfinite(high - low):
                 errors["range_max"] = "The range is too wide: range high minus range low must be a finite number."
-        if self.position_id and "range_max" not in errors and "flow_units" not in errors:
+        if (self.position_id and "range_max" not in errors and "flow_units" not in errors
+                and not getattr(self, "_position_checked_elsewhere", False)):
             errors.update({"range_max": message for message in flows_above_range(self.position, self).values()})
         interval = number_or_none(self.base_interval_days)
         if interval is not None and interval > MAX_BASE_INTERVAL_DAYS:

@@ -65,10 +65,10 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
         state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True, performed_on__lte=today,
     )
     if site is not None:
-        events = events.filter(position__area__site=site)
+        events = events.filter(meter__position__area__site=site)
     event_rows = events.order_by().values_list(
         "pk", "meter_id", "performed_on", "as_found_in_tolerance",
-        "meter__principle", "position__fluid__name", "position__area__site__name",
+        "meter__principle", "meter__position__fluid__name", "meter__position__area__site__name",
     )
     events_df = pd.DataFrame.from_records(list(event_rows), columns=EVENT_COLUMNS)
 

@@ -122,7 +122,7 @@ def test_expired_or_out_of_range_standard_refused(client, meter, standard):
     assert "was past its due date (2026-01-01)" in response.content.decode()
     # a standard whose range (0–30) does not cover the meter's (0–40) is neither offered nor accepted
     ReferenceStandard.objects.filter(pk=standard.pk).update(due_date=dt.date(2027, 6, 1), range_max=30)
-    assert f'value="{standard.pk}"' not in client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    assert f'name="ev-reference_standards" value="{standard.pk}"' not in client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 400
     assert "is withdrawn or does not suit this meter (phase or range)" in html.unescape(response.content.decode())
@@ -238,7 +238,7 @@ def test_only_suitable_standards_are_offered(client, meter, standard):
     short = make("RS-SHORT", range_max=30)
     offset = make("RS-OFF", range_min=5)
     body = client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
-    offered = {s.identification for s in ReferenceStandard.objects.all() if f'value="{s.pk}"' in body}
+    offered = {s.identification for s in ReferenceStandard.objects.all() if f'name="ev-reference_standards" value="{s.pk}"' in body}
     assert offered == {standard.identification, liquid.identification}
     for refused in (withdrawn, gas, short, offset):
         before = counts()

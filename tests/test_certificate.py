@@ -154,7 +154,7 @@ def test_certificate_contains_every_required_element(client, signed_event, stand
     # signatory
     assert has(text, "Authorised by", "B. Signatory") and has(text, "Role", "Technician")
     assert has(text, "Signed", "2026-11-23")
-    assert "Drift history of FT-101" in text
+    assert f"Drift history of device S/N {signed_event.meter.serial}" in text
     assert "supersedes" not in text
     assert f"End of certificate {number}" in text
 

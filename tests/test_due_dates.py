@@ -219,7 +219,7 @@ def test_meter_without_history_has_no_due_date_and_says_so(drifting_meter):
 
 def test_recompute_command_on_demo_fleet(demo_history, client):
     call_command("recompute_due_dates")
-    meters = list(Meter.objects.all())
+    meters = list(Meter.objects.filter(position__isnull=False))
     assert all(m.next_due_date is not None for m in meters)
     winners = {m.due_rationale["winner"] for m in meters}
     assert winners == {"risk", "drift", "method"}
@@ -269,8 +269,8 @@ def test_meter_page_shows_one_truth(demo_history, client):
     """The heading's interval is the one the due date uses (due - last calibrated), and every candidate is
     listed beside it with its date, days and reason; findings are said in words."""
     call_command("recompute_due_dates")
-    for meter in Meter.objects.exclude(next_due_date=None):
-        body = client.get(f"/meters/{meter.tag}/").content.decode()
+    for meter in Meter.objects.exclude(next_due_date=None).select_related("position"):
+        body = client.get(meter.get_absolute_url()).content.decode()
         used = (meter.next_due_date - meter.last_calibrated).days
         assert f'<strong id="used-interval">{used} days</strong>' in body, meter.tag
         assert meter.due_rationale["interval_days"] == used

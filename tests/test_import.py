@@ -43,7 +43,7 @@ def meter_line(tag, **overrides):
         "line_size": "DN50", "internal_diameter_mm": "52.5", "range_min": "0", "range_max": "40",
         "flow_units": "m³/h", "normal_flow": "20", "min_flow": "5", "wetted_material": "316L", "material_details": "",
         "serial": "", "maker": "", "model": "", "mpe_value": "0.5", "mpe_basis": "pct_reading", "base_interval_days": "365",
-        "status": "in_service",
+        "required_accuracy_pct": "",
     }
     values.update(overrides)
     return ",".join(values[c] for c in importer.METER_COLUMNS)

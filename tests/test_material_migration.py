@@ -4,7 +4,6 @@ import importlib
 import pytest
 from django.db import connection
 from django.db.migrations.executor import MigrationExecutor
-from plant.installations import commission
 
 mapping = importlib.import_module("plant.migrations.0006_map_wetted_material_to_list")
 
@@ -35,7 +34,7 @@ def test_migration_maps_existing_meters_and_keeps_the_text():
     Meter = old.get_model("plant", "Meter")
     rows = {"M-1": "316L", "M-2": "Hastelloy C", "M-3": "PTFE liner, Hastelloy C", "M-4": "", "M-5": "ss 316l"}
     for tag, text in rows.items():
-        commission(tag=tag, principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+        Meter.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=50, range_max=10, mpe_value=0.5, wetted_material=text)
     executor = MigrationExecutor(connection)
     executor.migrate([AFTER])

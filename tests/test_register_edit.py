@@ -2,7 +2,7 @@
 import pytest
 from django.test import Client
 
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Meter, Position, Site
 from plant.installations import commission
 from tests.conftest import user_with_role
 
@@ -14,7 +14,8 @@ def meter():
     area = Area.objects.create(site=Site.objects.create(name="Edit site"), name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
     return commission(tag="FT-E1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
-                                internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
+                                internal_diameter_mm=52.5, range_max=40, normal_flow=20, min_flow=12,
+                      mpe_value=0.5, wetted_material="316L")
 
 
 @pytest.fixture
@@ -40,7 +41,8 @@ def form_data(instance, **changes):
 
 
 def test_reviewer_changes_the_interval_and_the_change_is_audited(reviewer, meter):
-    response = reviewer.post(f"/meters/{meter.tag}/edit/", form_data(meter, base_interval_days=180))
+    # the interval is the device's: edited on the device, the page then shown is its position's
+    response = reviewer.post(f"/devices/{meter.pk}/edit/", form_data(meter, base_interval_days=180))
     assert response.status_code == 302 and response["Location"] == f"/meters/{meter.tag}/"
     meter.refresh_from_db()
     assert meter.base_interval_days == 180
@@ -51,19 +53,23 @@ def test_reviewer_changes_the_interval_and_the_change_is_audited(reviewer, meter
 
 
 def test_bad_values_are_refused_at_the_field_and_nothing_is_saved(reviewer, meter):
-    before = Meter.objects.values().get(pk=meter.pk)
+    before = Meter.objects.values().get(pk=meter.pk), Position.objects.values().get(pk=meter.position_id)
+    audit = meter.history.count(), meter.position.history.count()
     cases = [
-        ({"base_interval_days": "0"}, "The interval must be at least one day."),
-        ({"min_flow": "50"}, "is above the calibrated range high"),
-        ({"range_max": "abc"}, "Enter a number."),
-        ({"mpe_value": "-1"}, "MPE must be greater than zero."),
+        (meter, {"base_interval_days": "0"}, "The interval must be at least one day."),
+        (meter, {"range_max": "abc"}, "Enter a number."),
+        (meter, {"mpe_value": "-1"}, "MPE must be greater than zero."),
+        (meter, {"range_max": "10", "range_min": "0"}, "is above the calibrated range high"),  # below FT-E1's flows
+        (meter.position, {"min_flow": "50", "normal_flow": "60"}, "is above the calibrated range high"),
+        (meter.position, {"min_flow": "-1"}, "A process flow cannot be negative."),
     ]
-    for change, message in cases:
-        response = reviewer.post(f"/meters/{meter.tag}/edit/", form_data(meter, **change))
+    for instance, change, message in cases:
+        url = f"/meters/{meter.tag}/edit/" if isinstance(instance, Position) else f"/devices/{meter.pk}/edit/"
+        response = reviewer.post(url, form_data(instance, **change))
         assert response.status_code == 400, change
         assert message in response.content.decode(), (change, message)
-    assert Meter.objects.values().get(pk=meter.pk) == before
-    assert meter.history.count() == 1  # only the creation
+    assert (Meter.objects.values().get(pk=meter.pk), Position.objects.values().get(pk=meter.position_id)) == before
+    assert (meter.history.count(), meter.position.history.count()) == audit  # nothing recorded
 
 
 def test_fluid_change_rejudges_its_meters(reviewer, meter):

@@ -8,7 +8,7 @@ from django.utils import timezone
 
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant import risk
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Meter, Position, Site
 from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
@@ -225,7 +225,7 @@ def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
     assert dict(zip(header, rows[0]))["Days overdue"] == "1"
     # a second site west of UTC (Chicago, UTC-6: still 2026-12-04 17:30) keeps its own date in the same list
     west = Site.objects.create(name="West site", time_zone="America/Chicago")
-    Meter.objects.filter(position__tag="DUE-1").update(area=Area.objects.create(site=west, name="Yard"),
-                                             next_due_date=dt.date(2026, 12, 4))
+    Position.objects.filter(tag="DUE-1").update(area=Area.objects.create(site=west, name="Yard"))
+    Meter.objects.filter(position__tag="DUE-1").update(next_due_date=dt.date(2026, 12, 4))
     assert tags(client, "overdue") == ["LATER-1"]
     assert "DUE-1" in tags(client, "due")
