@@ -45,10 +45,7 @@ class CalibrationKind(RecordKind):
         known = self.known(user, client_id)
         if known is not None:
             return known
-        meter = self.meter_for(target, data)
-        if meter.status == Meter.Status.REMOVED:
-            raise Refused({"__all__": [f"Meter {meter.tag} has been removed from service; "
-                                       f"a calibration cannot be added to it."]})
+        meter = self.meter_for(target, data)  # the device installed at the tag now (never a retired one)
         entry = CalibrationEntry(meter, data, user=user)
         if not entry.is_valid():
             raise Refused(entry_errors(entry))

@@ -262,10 +262,10 @@ class RegisterRowForm:
         self.device_form.is_valid()
         self.errors = {**{k: list(v) for k, v in self.position_form.errors.items()},
                        **{k: list(v) for k, v in self.device_form.errors.items()}}
-        if self.errors.keys().isdisjoint({"range_min", "range_max", "flow_units", "fluid"}):
-            for name, message in flows_above_range(self.instance.position, self.instance.device).items():
-                if name not in self.errors:
-                    self.errors[name] = [message]
+        # judged whenever both values are numbers (a refused range rule does not hide a flow above it)
+        for name, message in flows_above_range(self.instance.position, self.instance.device).items():
+            if name not in self.errors:
+                self.errors[name] = [message]
         return not self.errors
 
     def save(self):

@@ -416,6 +416,11 @@ def stored(instance, name):
     return getattr(instance, field.attname)
 
 
+def stored_in_row(device, name):
+    """A register row's value: the position's columns from the position the device is installed at."""
+    return stored(device.position if name in importer.POSITION_COLUMNS else device, name)
+
+
 # Value pools --------------------------------------------------------------------------------------------------------
 ABSENT = None
 MUTATIONS = st.sampled_from([0, 0, 0, 1, 1, 2, 3])
@@ -1307,7 +1312,8 @@ def judge_import(kind, table, base):
         return missing, set(), {}
     spec = FLUID_SPEC if kind == "fluids" else meter_spec(base)
     fluids = {f.name: f for f in Fluid.objects.all()}
-    meters = {m.tag: m for m in Meter.objects.select_related("area__site", "fluid")}
+    meters = {m.tag: m for m in Meter.objects.filter(position__isnull=False)
+              .select_related("position__area__site", "position__fluid")}
     sites = {}
     for site, area in base["areas"]:
         sites.setdefault(site, set()).add(area)
@@ -1328,9 +1334,9 @@ def judge_import(kind, table, base):
         current = None
         if key and key_column not in row_bad:
             current = fluids.get(_find(fluids, key)) if kind == "fluids" else meters.get(key)
-        values = {name: (stored(current, name) if current else
+        values = {name: ((stored(current, name) if kind == "fluids" else stored_in_row(current, name)) if current else
                          Fluid._meta.get_field(name).get_default() if kind == "fluids" else
-                         Meter._meta.get_field(name).get_default()) for name in spec}
+                         importer._field(Meter, name).get_default()) for name in spec}
         for name, field in spec.items():
             if name not in raw or name in ("area", "fluid") or name in row_bad:
                 continue
@@ -1386,12 +1392,14 @@ def check_accepted_import(kind, expected):
         if kind == "fluids":
             obj = Fluid.objects.get(name=key)
         else:
-            obj = Meter.objects.select_related("area__site", "fluid").get(tag=key)
+            obj = Meter.objects.select_related("position__area__site", "position__fluid").get(position__tag=key)
         for name, value in values.items():
             if name == "area":
                 assert (obj.area.site.name, obj.area.name) == value
             elif name == "fluid":
                 assert obj.fluid.name == value
+            elif kind == "meters":
+                assert stored_in_row(obj, name) == value, (key, name, value, stored_in_row(obj, name))
             else:
                 assert stored(obj, name) == value, (key, name, value, stored(obj, name))
         if kind == "meters":

@@ -18,7 +18,7 @@ from calibration import drift
 from calibration.drift_fleet import predict_crossings
 from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint
-from plant.models import Meter
+from plant.models import Meter, Position
 from reports.benchmark import naive_recompute
 
 
@@ -139,8 +139,10 @@ def test_single_meter_recompute_equals_the_whole_fleet_recompute():
 @pytest.mark.django_db
 def test_make_fleet_is_realistic_and_refuses_a_second_fleet():
     call_command("make_fleet", meters=30, seed=3, verbosity=0)
-    tags = list(Meter.objects.order_by("tag").values_list("tag", flat=True))
-    assert tags[0] == "SYN-000001" and len(tags) == 30
+    assert Meter.objects.count() == 30
+    tags = list(Position.objects.order_by("tag").values_list("tag", flat=True))  # in-service devices' positions
+    assert tags[0] == "SYN-000001" and 25 <= len(tags) <= 30
+    assert Meter.objects.filter(position__isnull=False).count() == len(tags)
     events = CalibrationEvent.objects.filter(state="signed")
     points = CalibrationPoint.objects.filter(event__state="signed")
     assert 30 <= points.count() / 30 <= 80  # about 50 points per meter over ten years: 20,000 meters -> ~1,000,000
@@ -165,9 +167,9 @@ def test_make_fleet_same_seed_same_history():
     def build_and_read(seed):
         with transaction.atomic():
             FleetBuilder(12, seed=seed).build()
-            rows = list(CalibrationPoint.objects.order_by("event__meter__tag", "event__performed_on", "kind",
+            rows = list(CalibrationPoint.objects.order_by("event__meter__serial", "event__performed_on", "kind",
                                                           "nominal_pct")
-                        .values_list("event__meter__tag", "event__performed_on", "kind", "nominal_pct", "error"))
+                        .values_list("event__meter__serial", "event__performed_on", "kind", "nominal_pct", "error"))
             transaction.set_rollback(True)
         return rows
 

@@ -17,7 +17,7 @@ def demo(demo_maintenance):
 
 
 def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, client):
-    task = MaintenanceTask.objects.get(meter__tag="FT-601", code="PITOT_PULL_CLEAN")
+    task = MaintenanceTask.objects.get(meter__position__tag="FT-601", code="PITOT_PULL_CLEAN")
     # the duty says 90 d × 0.5 = 45 d; what was found brought it down (to the lower bound, 45/4 -> 11 d)
     assert task.start_days == 45 and task.frequency_days == 11
     assert MaintenanceRecord.objects.filter(task=task, condition="blocked").exists()
@@ -31,7 +31,7 @@ def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, cli
 
 
 def test_syrup_magmeter_found_clean_for_years_lengthened(demo, client):
-    task = MaintenanceTask.objects.get(meter__tag="FT-303", code="ELECTRODE_CLEAN")
+    task = MaintenanceTask.objects.get(meter__position__tag="FT-303", code="ELECTRODE_CLEAN")
     conditions = list(MaintenanceRecord.objects.filter(task=task).values_list("condition", flat=True))
     assert len(conditions) >= 5 and set(conditions) == {"clean"}
     # 135 d (180 × 0.75, sticky fluid) × 1.5 after each three cleans: 135 -> 203 -> 305 (202.5 and 304.5 half up)
@@ -76,7 +76,7 @@ def test_signed_demo_record_refuses_a_model_form_edit(demo_maintenance):
     from calibration.models import SignedRecordError
     from maintenance.forms import RecordForm
 
-    record = MaintenanceRecord.objects.filter(meter__tag="FT-601", condition="blocked").first()
+    record = MaintenanceRecord.objects.filter(meter__position__tag="FT-601", condition="blocked").first()
     form = RecordForm(data={"performed_on": record.performed_on.isoformat(), "task": record.task_id,
                             "condition": "clean", "action": "changed", "minutes_spent": "5"},
                       instance=record, meter=record.meter)

@@ -70,12 +70,13 @@ def test_tasks_derived_when_the_meter_is_registered(plant):
 def test_duty_change_retires_with_reason_and_a_fluid_change_updates_frequency(plant):
     meter = plant["meter"]
     clean = Fluid.objects.create(name="Clean water", phase="liquid", conductivity_us_cm=400)
-    meter.fluid = clean
-    meter.save()
+    position = meter.position  # the duty is the position's; the device installed there follows it
+    position.fluid = clean
+    position.save()
     task = task_of(meter, "PITOT_PULL_CLEAN")
     assert not task.active and task.change_reason.startswith("No longer called for")
-    meter.fluid = plant["fluid"]
-    meter.save()
+    position.fluid = plant["fluid"]
+    position.save()
     assert task_of(meter, "PITOT_PULL_CLEAN").active
     fluid = plant["fluid"]
     fluid.biofouling, fluid.scaling = False, False

@@ -83,7 +83,7 @@ def test_a_bad_value_is_refused_at_its_field_and_nothing_saved(plant, tech, fiel
 def test_an_unknown_meter_or_an_id_of_another_account_is_refused(plant, tech):  # noqa: F811
     gone = send(tech, uuid.uuid4(), entry(plant), target="FT-GONE")
     assert gone.status_code == 422 and gone.json()["errors"] == {
-        "__all__": ["Meter FT-GONE is not in the register any more."]}
+        "__all__": ["Position FT-GONE is not in the register any more."]}
     cid = uuid.uuid4()
     assert send(tech, cid, entry(plant)).status_code == 201
     other = Client()

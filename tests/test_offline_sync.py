@@ -110,12 +110,14 @@ def test_a_refused_entry_saves_nothing_and_names_the_field(field):
 
 def test_refusals_that_only_an_entry_kept_offline_meets(field):
     tech, meters = field["clients"]["tech"], field["meters"]
-    removed = send(tech, uuid.uuid4(), meters["removed"].tag, entry_data(field["standard"]))
+    # the device at FT-OFF-5 was taken out of service after the entry was kept on the tablet
+    assert meters["removed"].position is None
+    removed = send(tech, uuid.uuid4(), "FT-OFF-5", entry_data(field["standard"]))
     assert removed.status_code == 422
     assert removed.json()["errors"] == {"__all__": [
-        "Meter FT-OFF-5 has been removed from service; a calibration cannot be added to it."]}
+        "No device is installed at FT-OFF-5 now; the entry cannot be saved to it."]}
     gone = send(tech, uuid.uuid4(), "FT-NOT-THERE", entry_data(field["standard"]))
-    assert gone.json()["errors"] == {"__all__": ["Meter FT-NOT-THERE is not in the register any more."]}
+    assert gone.json()["errors"] == {"__all__": ["Position FT-NOT-THERE is not in the register any more."]}
     lapsed = send(tech, uuid.uuid4(), meters["soon"].tag, entry_data(field["lapsed"], **{"ev-performed_on": TODAY}))
     assert lapsed.status_code == 422
     assert lapsed.json()["errors"]["ev-reference_standards"] == [
