@@ -68,7 +68,9 @@ class ReferenceStandard(models.Model):
         """Standards the tablet form offers for `meter`: not withdrawn, of the meter's fluid phase (or of none
         stated), a range covering the meter's calibrated range, and, when `on_date` is given, in date then."""
         qs = cls.objects.filter(withdrawn=False, range_min__lte=meter.range_min, range_max__gte=meter.range_max)
-        qs = qs.filter(models.Q(phase="") | models.Q(phase=meter.fluid.phase))
+        fluid = meter.fluid  # None for a new spare that has served nowhere yet: any phase may be used on the bench
+        if fluid is not None:
+            qs = qs.filter(models.Q(phase="") | models.Q(phase=fluid.phase))
         if on_date is not None:
             qs = qs.filter(due_date__gte=on_date)
         return qs

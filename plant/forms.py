@@ -89,7 +89,7 @@ class SwapForm(forms.Form):
                         "invalid_choice": "That device is not a spare on the shelf any more; choose another."})
     brand_new = YesNoField(required=False, label="New from the maker (no calibration of ours yet; its maker's "
                                                  "certificate stands until the first one)")
-    on_date = forms.DateField(label="Date of the swap")
+    on_date = forms.DateField(label="Date of the swap", widget=forms.DateInput(attrs={"type": "date"}, format="%Y-%m-%d"))
     reason = forms.CharField(max_length=200, label="Why the installed device comes out",
                              error_messages={"required": "Say why the installed device is removed."})
     removed_to = forms.ChoiceField(label="Removed device goes", choices=[

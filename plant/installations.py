@@ -60,7 +60,8 @@ def refresh_due(device: Meter):
     device.refresh_from_db(fields=["last_calibrated", "next_due_date", "due_rationale", "risk_severity"])
 
 
-def install_problems(device: Meter, position: Position, on_date: dt.date, *, new_device: bool = False) -> list[str]:
+def install_problems(device: Meter, position: Position, on_date: dt.date, *, new_device: bool = False,
+                     replacing: bool = False) -> list[str]:
     """Why `device` may not be installed at `position` on `on_date` (empty = it may), from its stored due
     date (steps that install call refresh_due first)."""
     found = []
@@ -68,7 +69,7 @@ def install_problems(device: Meter, position: Position, on_date: dt.date, *, new
         found.append(f"Device {device.device_label} is retired and cannot be installed again.")
     if device.position_id and device.position_id != position.pk:
         found.append(f"Device {device.device_label} is installed at {device.position.tag}; remove it there first.")
-    occupant = position.installed_device()
+    occupant = None if replacing else position.installed_device()  # a swap takes the occupant out first
     if occupant is not None and occupant.pk != device.pk:
         found.append(f"{position.tag} already holds device {occupant.device_label}; swap or remove it first.")
     if not new_device:
@@ -174,8 +175,7 @@ def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, u
         # refuse before anything is written (the removal below would otherwise free the position first)
         if not brand_new:
             refresh_due(new_device)
-        problems = install_problems(new_device, position, on_date, new_device=brand_new)
-        problems = [p for p in problems if not p.startswith(f"{position.tag} already holds")]
+        problems = install_problems(new_device, position, on_date, new_device=brand_new, replacing=True)
         if problems:
             raise InstallationError({"device": problems})
         removed = _remove(old, on_date, user, reason, to)

@@ -106,7 +106,7 @@ def position_swap(request, tag):
     spares = list(form.fields["device"].queryset.order_by(F("next_due_date").desc(nulls_last=True), "serial"))
     return render(request, "plant/swap.html", {
         "position": position, "current": current, "form": form, "fluid": position.fluid,
-        "spares": [(d, installations.install_problems(d, position, position.area.site.today()),
+        "spares": [(d, installations.install_problems(d, position, position.area.site.today(), replacing=True),
                     installations.fit_warnings(d, position)) for d in spares],
     }, status=400 if request.method == "POST" else 200)
 

@@ -237,3 +237,18 @@ def test_migration_turns_each_meter_into_a_position_and_a_device():
     executor = MigrationExecutor(connection)
     executor.loader.build_graph()
     call_command("migrate", verbosity=0)  # to the latest, for the next tests (flushed by transaction=True)
+
+
+def test_spare_pages_and_bench_calibration(client, demo_maintenance):
+    never = spare("SN730342")
+    page = client.get(f"/devices/{never.pk}/")
+    assert page.status_code == 200
+    body = page.content.decode()
+    assert "Device S/N SN730342" in body and "spare, not installed" in body and "Never installed." in body
+    assert client.get("/devices/").status_code == 200
+    entry = client.get(f"/devices/{never.pk}/calibrate/").content.decode()
+    assert "device S/N SN730342 on the bench" in entry
+    assert 'name="offline-kind"' not in entry  # a bench entry is made online only
+    installed = Position.objects.get(tag="FT-204").installed_device()
+    # an installed device is calibrated at its position, not on the bench
+    assert client.get(f"/devices/{installed.pk}/calibrate/").status_code == 404
