@@ -153,7 +153,7 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         assert page.get_by_text("1 meter", exact=True).is_visible()
         # a technician is not offered pages they may not open
         nav = page.get_by_role("navigation")
-        assert nav.get_by_role("link").all_inner_texts() == ["Meters", "Offline work", "Work list"]
+        assert nav.get_by_role("link").all_inner_texts() == ["Meters", "Spares", "Offline work", "Work list"]
         shot("register")
 
         # Register -> meter page -> new calibration form.

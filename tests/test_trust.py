@@ -12,7 +12,8 @@ from django.db import connection
 from django.test import Client
 
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard, SignedRecordError
-from plant.models import Area, Fluid, Meter, Site
+from plant import installations
+from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 from plant.installations import commission
 from tests.conftest import user_with_role
 from tests.test_calibration_records import entry_data
@@ -189,14 +190,20 @@ def test_audit_trail_records_who_and_what(world):
 
 
 def snapshot():
-    models = [Site, Area, Fluid, Meter, ReferenceStandard, CalibrationEvent, CalibrationPoint, Countersignature,
-              Meter.history.model, CalibrationEvent.history.model]
+    models = [Site, Area, Fluid, Position, Meter, Installation, DutyPeriod, ReferenceStandard, CalibrationEvent,
+              CalibrationPoint, Countersignature, Meter.history.model, Position.history.model,
+              Installation.history.model, CalibrationEvent.history.model]
     return {m.__name__: serializers.serialize("json", m._base_manager.order_by("pk")) for m in models}
 
 
 @pytest.mark.django_db(transaction=True)  # flush truncates tables: not inside the test's own transaction
 def test_backup_restored_into_empty_database_is_identical(world, tmp_path):
     world["clients"]["reviewer"].post(f"/calibrations/{world['signed'].pk}/countersign/")
+    # a swap too: a closed installation, a device on the shelf, the new one installed
+    meter = world["signed"].meter
+    spare = Meter.objects.create(principle=meter.principle, range_min=0, range_max=meter.range_max,
+                                 flow_units=meter.flow_units, serial="SN-RT-1", mpe_value=1.0, status="spare")
+    installations.swap(meter.position, spare, meter.today(), "round trip", brand_new=True)
     before = snapshot()
     path = tmp_path / "backup.json"
     call_command("backup", str(path))
@@ -207,6 +214,7 @@ def test_backup_restored_into_empty_database_is_identical(world, tmp_path):
     for name in before:
         assert after[name] == before[name], name
     assert CalibrationEvent.objects.get(pk=world["signed"].pk).is_signed
+    assert Installation.objects.exists() and Position.objects.exists()  # positions and devices round-trip too
     with pytest.raises(Exception, match="not empty"):
         call_command("restore", str(path))
 
