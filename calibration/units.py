@@ -61,6 +61,10 @@ FLOW_UNITS: dict[str, FlowUnit] = {u.code: u for u in (
 
 UNIT_CHOICES = [(u.code, u.label) for u in FLOW_UNITS.values()]
 
+# The message of a model field with UNIT_CHOICES for a value that is not a code (Django's invalid_choice).
+UNKNOWN_UNIT = ('"%(value)s" is not one of the flow units in use; choose one of '
+                + ", ".join(FLOW_UNITS) + " (e.g. m3/h for m³/h).")
+
 # Free-text spellings found in registers before units were codes (for the data migration and imports).
 LEGACY_SPELLINGS = {
     "m³/h": "m3/h", "m3/h": "m3/h", "m^3/h": "m3/h", "cu m/h": "m3/h",

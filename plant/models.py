@@ -7,6 +7,7 @@ from django.db import models, transaction
 from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
+from calibration import units
 from plant import localtime, materials, risk
 
 UNKNOWN_MATERIAL = (
@@ -206,7 +207,8 @@ class Meter(models.Model):
     )
     range_min = models.FloatField("calibrated range low", default=0.0)
     range_max = models.FloatField("calibrated range high")
-    flow_units = models.CharField(max_length=20, default="m³/h")
+    flow_units = models.CharField(max_length=20, choices=units.UNIT_CHOICES, default="m3/h",
+                                  error_messages={"invalid_choice": units.UNKNOWN_UNIT})
     normal_flow = models.FloatField("normal process flow", null=True, blank=True)
     min_flow = models.FloatField("minimum process flow", null=True, blank=True)
     wetted_material = models.CharField(
