@@ -115,7 +115,7 @@ class ReferenceStandard(models.Model):
 
     @property
     def units_label(self):
-        return units.FLOW_UNITS[self.units].label if self.units in units.FLOW_UNITS else self.units
+        return units.label_for(self.units)
 
     def snapshot(self):
         """What a calibration record keeps of this standard at sign-off, as it was that day."""

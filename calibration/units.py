@@ -97,6 +97,14 @@ def code_for(text: str) -> str:
     raise AssertionError("unreachable")
 
 
+def label_for(text: str) -> str:
+    """The label of a unit code or legacy spelling (m3/h -> m³/h), for pages; other text is shown as it is."""
+    try:
+        return FLOW_UNITS[code_for(text)].label
+    except UnitError:
+        return text or ""
+
+
 def _factor(src: FlowUnit, dst: FlowUnit) -> float:
     return float(Q_(1.0, src.pint_unit).to(dst.pint_unit).magnitude)
 

@@ -2,6 +2,7 @@ from django import forms
 from django.core.exceptions import ValidationError
 from django.db import models
 
+from calibration.units import UNKNOWN_UNIT
 from plant.models import UNKNOWN_MATERIAL, Fluid, Meter
 
 YES_WORDS = frozenset({"on", "yes", "y", "true", "t", "1"})
@@ -64,4 +65,5 @@ class MeterForm(forms.ModelForm):
     class Meta:
         model = Meter
         fields = "__all__"
-        error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL}}
+        error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL},
+                          "flow_units": {"invalid_choice": UNKNOWN_UNIT}}

@@ -27,7 +27,7 @@ def site_area_fluid():
 def meter_data(area, fluid, **overrides):
     data = {
         "tag": "FT-1", "principle": "electromagnetic", "area": area.pk, "fluid": fluid.pk, "line_size": "DN50",
-        "internal_diameter_mm": 52.5, "range_min": 0, "range_max": 40, "flow_units": "m³/h", "normal_flow": 20,
+        "internal_diameter_mm": 52.5, "range_min": 0, "range_max": 40, "flow_units": "m3/h", "normal_flow": 20,
         "min_flow": 5, "wetted_material": "316L", "mpe_value": 0.5, "mpe_basis": "pct_reading",
         "base_interval_days": 365, "status": "in_service",
     }
@@ -48,7 +48,7 @@ def test_min_flow_above_range_rejected_at_field(site_area_fluid):
     _, area, fluid = site_area_fluid
     form = MeterForm(data=meter_data(area, fluid, min_flow=55, normal_flow=None))
     assert not form.is_valid()
-    assert "above the calibrated range high (40 m³/h)" in form.errors["min_flow"][0]
+    assert "above the calibrated range high (40 m3/h)" in form.errors["min_flow"][0]
     assert Meter.objects.count() == 0
     assert DutyPeriod.objects.count() == 0
 
