@@ -32,6 +32,6 @@ class CalibrationEventAdmin(LockedWhenSigned, admin.ModelAdmin):
 
 @admin.register(ReferenceStandard)
 class ReferenceStandardAdmin(admin.ModelAdmin):
-    list_display = ("identification", "description", "phase", "range_min", "range_max", "due_date",
+    list_display = ("identification", "description", "phase", "range_min", "range_max", "units", "due_date",
                     "certificate_number", "issuer", "withdrawn")
     list_filter = ("withdrawn", "phase")

@@ -5,9 +5,9 @@ from decimal import Decimal, InvalidOperation
 from django import forms
 from django.db import transaction
 
-from calibration import uncertainty
+from calibration import uncertainty, units
 from calibration.errors import point_error
-from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
+from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, entry_can_convert
 from plant.forms import YesNoField
 
 NOMINAL_POINTS = (10, 25, 50, 75, 100)
@@ -32,7 +32,7 @@ class EventForm(forms.ModelForm):
     class Meta:
         model = CalibrationEvent
         fields = ["performed_on", "contractor", "reference_standards", "procedure", "condition_received",
-                  "deviations", "ambient_temp_c", "fluid_temp_c", "pressure_bar", "reason", "adjusted",
+                  "deviations", "ambient_temp_c", "fluid_temp_c", "pressure_bar", "density_kg_m3", "reason", "adjusted",
                   "decision_rule", "notes"]
         labels = {"contractor": "Outside contractor (only if a contractor did the work)",
                   "deviations": "Deviations from the method (blank: none)"}
@@ -46,6 +46,7 @@ class EventForm(forms.ModelForm):
             "ambient_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
             "fluid_temp_c": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
             "pressure_bar": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
+            "density_kg_m3": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
         }
 
     def __init__(self, *args, meter=None, **kwargs):
@@ -58,13 +59,62 @@ class EventForm(forms.ModelForm):
             # accepted: any suitable standard, so one expired on the date of calibration gets its own message;
             # listed: those in date today, and whatever was ticked
             field = self.fields["reference_standards"]
-            field.queryset = ReferenceStandard.offered_for(meter)
+            # accepted also: a standard whose units cannot be converted here, so it is refused with the reason
+            field.queryset = ReferenceStandard.offered_for(meter, convertible_only=False)
             key = self.add_prefix("reference_standards")
             sent = (self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound else []
             ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
             today = meter.today()  # the date at the meter's site
-            field.widget.choices = [(value, label) for value, label in field.choices
-                                    if value.instance.due_date >= today or str(value) in ticked]
+            field.widget.choices = [
+                (value, f"{label} · {value.instance.units_label}") for value, label in field.choices
+                if (value.instance.due_date >= today and entry_can_convert(value.instance.units, meter.flow_units))
+                or str(value) in ticked]
+            self.fields["density_kg_m3"].help_text = (
+                "Needed when the reference standard measures mass and this meter volume (it is in "
+                f"{units.label_for(meter.flow_units)}), or the other way round: the density at the conditions of the "
+                "calibration converts the reference readings.")
+
+
+def density_required_message(standard_units, meter_units):
+    return (f"The reference standard reads in {units.label_for(standard_units)} and this meter in "
+            f"{units.label_for(meter_units)}: enter the fluid density at the conditions of the calibration, so the "
+            "reference readings can be converted.")
+
+
+def inconvertible_message(standard, meter_units):
+    needs = units.conversion_needs(standard.units, meter_units)
+    what = {"line_conditions": "the line's absolute pressure and temperature",
+            "reference_density": "the gas density at reference conditions"}
+    missing = " and ".join(what[n] for n in sorted(needs) if n in what)
+    return (f"Reference standard {standard.identification} reads in {standard.units_label} and this meter in "
+            f"{units.label_for(meter_units)}: converting between them needs {missing}, which this form does not take. "
+            "Choose a standard whose readings convert to the meter's units.")
+
+
+class ReferenceConversion:
+    """How a row's reference reading, entered in the standard's units, becomes the meter's units.
+
+    ``units``: the code the readings are entered in; ``known``: False when the units of the readings cannot be
+    settled (standards of different units ticked, a pair the form cannot convert, the density missing): the rows
+    are then not range-checked, as the entry is refused at the standards or density field anyway."""
+
+    def __init__(self, meter_units, entered_units=None, density=None, known=True):
+        self.meter_units = meter_units
+        self.units = entered_units or meter_units
+        self.density = density
+        self.known = known
+
+    @property
+    def converts(self):
+        return self.known and self.units != self.meter_units
+
+    def to_meter(self, value):
+        if not self.converts:
+            return value
+        return units.convert(value, self.units, self.meter_units, density_kg_m3=self.density)
+
+    def factor(self):
+        return self.to_meter(1.0) if self.converts else 1.0
 
 
 def _finite(value, label):
@@ -89,8 +139,9 @@ class PointRowForm(forms.Form):
         error_messages={"invalid": "Enter the resolution as a number.", "min_value": "Resolution cannot be negative."},
     )
 
-    def __init__(self, *args, meter=None, **kwargs):
+    def __init__(self, *args, meter=None, conversion=None, **kwargs):
         self.meter = meter
+        self.conversion = conversion or ReferenceConversion(meter.flow_units if meter is not None else "")
         super().__init__(*args, **kwargs)
 
     def clean_reference_value(self):
@@ -146,15 +197,29 @@ class PointRowForm(forms.Form):
                     "readings.")
             else:
                 data["indicated_value"] = mean
+        # the reading as entered (the standard's units) is kept; the error is computed in the meter's units
+        data["reference_entered"] = ref
+        conversion = self.conversion
         if ref is not None and self.meter is not None:
             meter = self.meter
+            label = units.label_for(meter.flow_units)
+            converted = ref
+            if conversion.converts:
+                converted = data["reference_value"] = conversion.to_meter(ref)
             if ref < 0:
                 self.add_error("reference_value", "The reference flow cannot be negative.")
-            elif ref < meter.range_min or ref > meter.range_max:
+            elif not conversion.known:
+                pass  # refused at the standards or density field; the range cannot be judged in unknown units
+            elif not math.isfinite(converted):
+                self.add_error("reference_value", "The reference flow is too large to convert to the meter's units; "
+                                                  "check the value, the standard and the density.")
+            elif converted < meter.range_min or converted > meter.range_max:
+                shown = (f"{ref:g} {units.label_for(conversion.units)} ({converted:.6g} {label})" if conversion.converts
+                         else f"{ref:g} {label}")
                 self.add_error("reference_value",
-                               f"{ref:g} {meter.flow_units} is outside the meter's calibrated range "
-                               f"{meter.range_min:g}–{meter.range_max:g} {meter.flow_units}.")
-            elif ref == 0 and meter.mpe_basis == "pct_reading":
+                               f"{shown} is outside the meter's calibrated range "
+                               f"{meter.range_min:g}–{meter.range_max:g} {label}.")
+            elif converted == 0 and meter.mpe_basis == "pct_reading":
                 self.add_error("reference_value", "A % of reading error needs a reference flow above zero.")
         return data
 
@@ -167,10 +232,11 @@ class PointRowForm(forms.Form):
         data = self.cleaned_data
         point = CalibrationPoint(
             nominal_pct=data["nominal_pct"], reference_value=data["reference_value"],
+            reference_entered=data.get("reference_entered"),
             indicated_value=data["indicated_value"], repeats=data["repeats"], resolution=data["resolution"] or 0.0,
         )
         try:
-            point.compute(self.meter, standards, rule)
+            point.compute(self.meter, standards, rule, factor=self.conversion.factor())
             if math.isfinite(point.error) and math.isfinite(point.expanded_uncertainty):
                 return point
         except (ValueError, ArithmeticError):
@@ -249,9 +315,41 @@ class CalibrationEntry:
         self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)
         self.as_left = PointGrid(data, prefix="al", meter=meter) if bound else PointGrid(prefix="al", meter=meter)
         self.non_field_errors = []
+        self.conversion = ReferenceConversion(meter.flow_units)
+
+    def _conversion(self):
+        """The units of the reference readings (the ticked standards') and how they become the meter's; a
+        pair that cannot be converted, or a missing density, is refused at its field here."""
+        form, meter_units = self.event_form, self.meter.flow_units
+        data = getattr(form, "cleaned_data", {})
+        standards = list(data.get("reference_standards") or [])
+        if not standards:
+            return ReferenceConversion(meter_units)  # refused at the field; rows checked in the meter's units
+        found = {s.units for s in standards}
+        if len(found) > 1:
+            form.add_error("reference_standards",
+                           "The standards ticked read in different units ("
+                           + ", ".join(sorted(units.label_for(u) for u in found))
+                           + "); the reference readings are entered in one: tick standards of one unit.")
+            return ReferenceConversion(meter_units, known=False)
+        entered = found.pop()
+        if not entry_can_convert(entered, meter_units):
+            form.add_error("reference_standards", inconvertible_message(standards[0], meter_units))
+            return ReferenceConversion(meter_units, entered, known=False)
+        density = data.get("density_kg_m3")
+        if "density" in units.conversion_needs(entered, meter_units) and density is None:
+            if "density_kg_m3" not in form.errors:
+                form.add_error("density_kg_m3", density_required_message(entered, meter_units))
+            return ReferenceConversion(meter_units, entered, known=False)
+        return ReferenceConversion(meter_units, entered, density)
 
     def is_valid(self):
-        ok = all([self.event_form.is_valid(), self.as_found.is_valid(), self.as_left.is_valid()])
+        event_ok = self.event_form.is_valid()
+        self.conversion = self._conversion()
+        for grid in (self.as_found, self.as_left):
+            for form in grid.forms:
+                form.conversion = self.conversion
+        ok = all([event_ok, not self.event_form.errors, self.as_found.is_valid(), self.as_left.is_valid()])
         if not ok:
             return False
         found_rows = self.as_found.filled_rows()
@@ -266,7 +364,7 @@ class CalibrationEntry:
             for form in self.as_left.forms:
                 form.add_error("reference_value", "As-left point required after an adjustment.")
         date = self.event_form.cleaned_data.get("performed_on")
-        values = [r["reference_value"] for r in found_rows + self.as_left.filled_rows()]
+        values = [r["reference_entered"] for r in found_rows + self.as_left.filled_rows()]  # the standard's units
         problems = []
         for standard in self.event_form.cleaned_data.get("reference_standards", []):
             problems.extend(standard.problems(date, values))
@@ -282,7 +380,8 @@ class CalibrationEntry:
                         computed.append(form.check_results(list(standards), rule))
             low = [p for p in computed if p is not None and p.tur < uncertainty.TUR_WARNING]
             if low and uncertainty.low_tur_requires_guarded(rule, [p.tur for p in low], self.low_tur_policy):
-                where = ", ".join(f"{p.reference_value:g} {self.meter.flow_units} ({p.tur:.1f}:1)" for p in low)
+                label = units.label_for(self.meter.flow_units)
+                where = ", ".join(f"{p.reference_value:.6g} {label} ({p.tur:.1f}:1)" for p in low)
                 self.event_form.add_error(
                     "decision_rule",
                     f"The test uncertainty ratio is below {uncertainty.TUR_WARNING:g}:1 at {where}: the "
@@ -296,6 +395,8 @@ class CalibrationEntry:
         event = self.event_form.save(commit=False)
         event.meter = self.meter
         event.created_by = self.user
+        event.meter_units = self.meter.flow_units
+        event.reference_units = self.conversion.units
         if event.contractor:
             event.performed_by, event.technician = None, event.contractor
         else:
@@ -304,13 +405,15 @@ class CalibrationEntry:
         event.save()
         self.event_form.save_m2m()
         standards = list(event.reference_standards.all())
+        factor = self.conversion.factor()
         for kind, grid in ((CalibrationPoint.Kind.AS_FOUND, self.as_found), (CalibrationPoint.Kind.AS_LEFT, self.as_left)):
             for row in grid.filled_rows():
                 point = CalibrationPoint(
                     event=event, kind=kind, nominal_pct=row["nominal_pct"], reference_value=row["reference_value"],
+                    reference_entered=row["reference_entered"],
                     indicated_value=row["indicated_value"], repeats=row["repeats"], resolution=row["resolution"] or 0.0,
                 )
-                point.compute(self.meter, standards, event.decision_rule)
+                point.compute(self.meter, standards, event.decision_rule, factor=factor)
                 point.save()
         event.evaluate()
         event.save()

@@ -4,6 +4,7 @@ A signed event and its points are locked at the model level: save(), delete() an
 update()/delete() on signed rows raise SignedRecordError and change nothing.
 """
 import datetime as dt
+import math
 import random
 import time
 
@@ -15,8 +16,21 @@ from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
-from calibration import decision, errors, uncertainty
+from calibration import decision, errors, uncertainty, units
 from plant.models import Fluid, Meter, Position, number_or_none
+
+# What the tablet form can supply for a conversion between a standard's units and a meter's
+# (calibration.units.conversion_needs): the fluid density at the calibration. A pair that needs more (line
+# pressure and temperature, a gas density at reference conditions) is refused at entry.
+ENTRY_SUPPLIES = {"density"}
+
+
+def entry_can_convert(from_code, to_code):
+    """Whether readings in `from_code` can be entered for a meter in `to_code` (fixed factor, or density)."""
+    try:
+        return units.conversion_needs(from_code, to_code) <= ENTRY_SUPPLIES
+    except units.UnitError:
+        return False
 
 
 FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
@@ -35,7 +49,9 @@ class ReferenceStandard(models.Model):
     description = models.CharField(max_length=200)
     range_min = models.FloatField(default=0.0)
     range_max = models.FloatField()
-    units = models.CharField(max_length=20, default="m³/h")
+    units = models.CharField(max_length=20, choices=units.UNIT_CHOICES, default="m3/h",
+                             error_messages={"invalid_choice": units.UNKNOWN_UNIT},
+                             help_text="the unit its readings and its range are stated in")
     certificate_number = models.CharField(max_length=60)
     due_date = models.DateField("calibration due date")
     expanded_uncertainty = models.FloatField(
@@ -64,16 +80,47 @@ class ReferenceStandard(models.Model):
         super().save(*args, **kwargs)
 
     @classmethod
-    def offered_for(cls, meter, on_date=None):
+    def offered_for(cls, meter, on_date=None, convertible_only=True):
         """Standards the tablet form offers for `meter`: not withdrawn, of the meter's fluid phase (or of none
-        stated), a range covering the meter's calibrated range, and, when `on_date` is given, in date then."""
-        qs = cls.objects.filter(withdrawn=False, range_min__lte=meter.range_min, range_max__gte=meter.range_max)
-        fluid = meter.fluid  # None for a new spare that has served nowhere yet: any phase may be used on the bench
+        stated), and, when `on_date` is given, in date then; by units (one query whatever the units):
+
+        * a standard whose unit converts to the meter's by a fixed factor (the same unit included): its range
+          covers the meter's calibrated range, compared after conversion;
+        * a standard whose readings convert with the density entered on the calibration (mass against volume):
+          offered whatever its range, which is checked at entry against the readings in its own unit
+          (ReferenceStandard.problems);
+        * any other unit (a conversion the form cannot make): only with ``convertible_only=False`` (the form
+          accepts such a standard so that it can refuse it with the reason).
+
+        A new spare that has served nowhere yet has no fluid: on the bench any phase may be used."""
+        qs = cls.objects.filter(withdrawn=False)
+        fluid = meter.fluid
         if fluid is not None:
             qs = qs.filter(models.Q(phase="") | models.Q(phase=fluid.phase))
+        qs = qs.filter(cls._units_and_range_q(meter, convertible_only))
         if on_date is not None:
             qs = qs.filter(due_date__gte=on_date)
         return qs
+
+    @staticmethod
+    def _units_and_range_q(meter, convertible_only):
+        low, high = meter.range_min, meter.range_max
+        if meter.flow_units not in units.FLOW_UNITS:  # not a code (not saved through the model): same text only
+            return models.Q(units=meter.flow_units, range_min__lte=low, range_max__gte=high)
+        allowed = models.Q(pk__in=[])
+        for code in units.FLOW_UNITS:
+            needs = units.conversion_needs(code, meter.flow_units)
+            if not needs:
+                lo, hi = (units.convert(v, meter.flow_units, code) for v in (low, high))
+                slack = 1e-9 * max(abs(lo), abs(hi), 1.0)  # a converted bound is not exact in binary
+                allowed |= models.Q(units=code, range_min__lte=lo + slack, range_max__gte=hi - slack)
+            elif needs <= ENTRY_SUPPLIES or not convertible_only:
+                allowed |= models.Q(units=code)
+        return allowed
+
+    @property
+    def units_label(self):
+        return units.label_for(self.units)
 
     def snapshot(self):
         """What a calibration record keeps of this standard at sign-off, as it was that day."""
@@ -96,8 +143,8 @@ class ReferenceStandard(models.Model):
         outside = [v for v in values if v < self.range_min or v > self.range_max]
         if outside:
             found.append(
-                f"Reference standard {self.identification} covers {self.range_min:g}–{self.range_max:g} {self.units}; "
-                f"{', '.join(f'{v:g}' for v in outside)} is outside its range."
+                f"Reference standard {self.identification} covers {self.range_min:g}–{self.range_max:g} "
+                f"{self.units_label}; {', '.join(f'{v:g}' for v in outside)} is outside its range."
             )
         return found
 
@@ -161,6 +208,15 @@ class CalibrationEvent(models.Model):
     ambient_temp_c = models.FloatField("ambient temperature (°C)", null=True, blank=True)
     fluid_temp_c = models.FloatField("fluid temperature (°C)", null=True, blank=True)
     pressure_bar = models.FloatField("line pressure (bar g)", null=True, blank=True)
+    density_kg_m3 = models.FloatField(
+        "fluid density at the calibration (kg/m³)", null=True, blank=True,
+        help_text="needed when the reference standard measures mass and the meter volume, or the other way round")
+    # the units the reference readings were entered in (the standard's) and the meter's units that day;
+    # blank on records entered before units were codes: both were then the meter's units
+    reference_units = models.CharField("units of the reference readings", max_length=20, blank=True,
+                                       choices=units.UNIT_CHOICES, editable=False)
+    meter_units = models.CharField("meter's units at the calibration", max_length=20, blank=True,
+                                   choices=units.UNIT_CHOICES, editable=False)
     reason = models.CharField(max_length=20, choices=Reason.choices, default=Reason.SCHEDULED)
     adjusted = models.BooleanField("adjustment made", default=False)
     notes = models.TextField(blank=True)
@@ -199,6 +255,9 @@ class CalibrationEvent(models.Model):
             value = number_or_none(getattr(self, name))
             if value is not None and value < -273.15:
                 errors[name] = "Temperature is below absolute zero."
+        density = number_or_none(self.density_kg_m3)
+        if density is not None and not (math.isfinite(density) and density > 0):
+            errors["density_kg_m3"] = "The density must be a number above zero (kg/m³)."
         pressure = number_or_none(self.pressure_bar)
         if pressure is not None and pressure < FULL_VACUUM_BAR_G:
             errors["pressure_bar"] = f"A gauge pressure cannot be below full vacuum ({FULL_VACUUM_BAR_G} bar g)."
@@ -217,6 +276,38 @@ class CalibrationEvent(models.Model):
     @property
     def is_signed(self):
         return self.state == self.State.SIGNED
+
+    # Units -----------------------------------------------------------------------------------------
+    @property
+    def device_units(self):
+        """The meter's units on this record: as recorded at entry, else (older records) the meter's now."""
+        return self.meter_units or self.meter.flow_units
+
+    @property
+    def entered_units(self):
+        """The units the reference readings were entered in (the standard's)."""
+        return self.reference_units or self.device_units
+
+    @property
+    def converted(self):
+        """Whether the reference readings were converted from the standard's units to the meter's."""
+        return self.entered_units != self.device_units
+
+    def unit_factor(self):
+        """Meter units per standard unit (every conversion made at entry is a proportion)."""
+        if not self.converted:
+            return 1.0
+        return units.convert(1.0, self.entered_units, self.device_units, density_kg_m3=self.density_kg_m3)
+
+    @property
+    def density_used(self):
+        """Whether the density entered converted the readings (mass against volume)."""
+        if not self.converted or self.density_kg_m3 is None:
+            return False
+        try:
+            return "density" in units.conversion_needs(self.entered_units, self.device_units)
+        except units.UnitError:
+            return False
 
     def _stored_state(self):
         if not self.pk:
@@ -255,8 +346,12 @@ class CalibrationEvent(models.Model):
         standards = list(self.reference_standards.all())
         if not standards:
             found.append("No reference standard selected.")
-        values = [p.reference_value for p in as_found + as_left]
+        values = [p.reference_as_entered for p in as_found + as_left]
         for standard in standards:
+            if self.reference_units and standard.units != self.reference_units:
+                found.append(f"Reference standard {standard.identification} is stated in {standard.units_label}, "
+                             f"but the reference readings were entered in {units.unit(self.reference_units).label}.")
+                continue
             found.extend(standard.problems(self.performed_on, values))
         return found
 
@@ -277,8 +372,9 @@ class CalibrationEvent(models.Model):
     def evaluate(self):
         """Compute every point and the event verdicts; returns nothing, updates unsaved fields."""
         standards = list(self.reference_standards.all())
+        factor = self.unit_factor()
         for point in self.points.all():
-            point.compute(self.meter, standards, self.decision_rule)
+            point.compute(self.meter, standards, self.decision_rule, factor=factor)
         as_found = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_FOUND)]
         as_left = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_LEFT)] or as_found
         self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
@@ -321,8 +417,9 @@ class CalibrationEvent(models.Model):
             if problems:
                 raise ValidationError(problems)
             standards = list(fresh.reference_standards.all())
+            factor = fresh.unit_factor()
             for point in fresh.points.all():
-                point.compute(fresh.meter, standards, fresh.decision_rule)
+                point.compute(fresh.meter, standards, fresh.decision_rule, factor=factor)
                 point.save()
             fresh.evaluate()
             fresh.standards_snapshot = [s.snapshot() for s in standards]
@@ -350,7 +447,10 @@ class CalibrationPoint(models.Model):
     event = models.ForeignKey(CalibrationEvent, on_delete=models.CASCADE, related_name="points")
     kind = models.CharField(max_length=10, choices=Kind.choices)
     nominal_pct = models.FloatField("nominal (% of range)")
+    # in the meter's units (converted from the standard's at entry when they differ); the error is computed from it
     reference_value = models.FloatField(validators=[MinValueValidator(0.0, "The reference flow cannot be negative.")])
+    # the reading as entered, in the reference standard's units (event.entered_units); blank on older records
+    reference_entered = models.FloatField("reference value as entered (standard's units)", null=True, blank=True)
     indicated_value = models.FloatField()
     repeats = models.JSONField(default=list, blank=True)
     resolution = models.FloatField(default=0.0, validators=[MinValueValidator(0.0, "Resolution cannot be negative.")])
@@ -383,6 +483,10 @@ class CalibrationPoint(models.Model):
         return super().delete(*args, **kwargs)
 
     @property
+    def reference_as_entered(self):
+        return self.reference_value if self.reference_entered is None else self.reference_entered
+
+    @property
     def indication_used(self):
         """The indication the error is computed from: the mean of the repeat readings when there are any
         (the tablet form then stores that mean as the indicated value), else the indicated value."""
@@ -400,10 +504,12 @@ class CalibrationPoint(models.Model):
         tur = self.tur
         return None if tur is None else uncertainty.tur_warning(tur)
 
-    def compute(self, meter, standards, rule):
+    def compute(self, meter, standards, rule, factor=1.0):
         """Error, MPE, expanded uncertainty (all in the meter's error basis), k, nu_eff and the decision.
 
-        `standards`: the reference standards used (all of them enter U), or one standard, or None."""
+        `standards`: the reference standards used (all of them enter U), or one standard, or None.
+        `factor`: meter units per unit of the standards (CalibrationEvent.unit_factor): a standard's absolute
+        uncertainty is stated in its own units and is converted by it."""
         if standards is None:
             standards = []
         elif isinstance(standards, ReferenceStandard):
@@ -415,7 +521,9 @@ class CalibrationPoint(models.Model):
         self.mpe = meter.mpe_value
         if standards:
             budget = uncertainty.point_uncertainty(
-                self.reference_value, [(s.expanded_uncertainty, s.uncertainty_basis) for s in standards],
+                self.reference_value,
+                [(s.expanded_uncertainty * factor if s.uncertainty_basis == ReferenceStandard.UncertaintyBasis.ABSOLUTE
+                  else s.expanded_uncertainty, s.uncertainty_basis) for s in standards],
                 self.repeats, self.resolution,
             )
             self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)

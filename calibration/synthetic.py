@@ -50,15 +50,19 @@ def fluids():
 
 
 def standards(today):
-    liquid, _ = ReferenceStandard.objects.get_or_create(identification="RS-SY-L", defaults=dict(
-        description="Portable reference meter, liquids (synthetic fleet)", range_min=0, range_max=100000,
-        units="per meter's units", certificate_number="SY-EXT-0001", due_date=today + dt.timedelta(days=200),
-        expanded_uncertainty=0.1, uncertainty_basis="pct_reading"))
-    gas, _ = ReferenceStandard.objects.get_or_create(identification="RS-SY-G", defaults=dict(
-        description="Transfer standard, gases and steam (synthetic fleet)", range_min=0, range_max=100000,
-        units="per meter's units", certificate_number="SY-EXT-0002", due_date=today + dt.timedelta(days=9),
-        expanded_uncertainty=0.3, uncertainty_basis="pct_reading"))
-    return {"liquid": liquid, "gas": gas}
+    """One standard per service (liquids; gases and steam) and unit: a standard reads in one unit, and the synthetic
+    readings are in the meter's own."""
+    out = {}
+    for ident, service, units, description, cert, days, U in (
+            ("RS-SY-L", "liquid", "m3/h", "Portable reference meter, liquids", "SY-EXT-0001", 200, 0.1),
+            ("RS-SY-LM", "liquid", "kg/h", "Portable Coriolis reference, liquids", "SY-EXT-0003", 200, 0.1),
+            ("RS-SY-G", "gas", "m3/h", "Transfer standard, gases", "SY-EXT-0002", 9, 0.3),
+            ("RS-SY-GM", "gas", "kg/h", "Transfer standard, gases and steam (mass)", "SY-EXT-0004", 9, 0.3)):
+        out[(service, units)], _ = ReferenceStandard.objects.get_or_create(identification=ident, defaults=dict(
+            description=f"{description} (synthetic fleet)", range_min=0, range_max=100000, units=units,
+            certificate_number=cert, due_date=today + dt.timedelta(days=days), expanded_uncertainty=U,
+            uncertainty_basis="pct_reading"))
+    return out
 
 
 class FleetBuilder:
@@ -167,7 +171,7 @@ class FleetBuilder:
         rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.5) * rng.choice([-1, 1])
         interval = max(365, meter.effective_interval_days())
         day = self.today - dt.timedelta(days=int(365.25 * YEARS) - rng.randint(0, 120))
-        standard = self.standards["gas" if meter.fluid.phase in ("gas", "steam") else "liquid"]
+        standard = self.standards[("gas" if meter.fluid.phase in ("gas", "steam") else "liquid", meter.flow_units)]
         rule = "guarded" if rng.random() < 0.1 else "simple"
         baseline = rng.uniform(-0.1, 0.1) * mpe
         history = []

@@ -61,6 +61,10 @@ FLOW_UNITS: dict[str, FlowUnit] = {u.code: u for u in (
 
 UNIT_CHOICES = [(u.code, u.label) for u in FLOW_UNITS.values()]
 
+# The message of a model field with UNIT_CHOICES for a value that is not a code (Django's invalid_choice).
+UNKNOWN_UNIT = ('"%(value)s" is not one of the flow units in use; choose one of '
+                + ", ".join(FLOW_UNITS) + " (e.g. m3/h for m³/h).")
+
 # Free-text spellings found in registers before units were codes (for the data migration and imports).
 LEGACY_SPELLINGS = {
     "m³/h": "m3/h", "m3/h": "m3/h", "m^3/h": "m3/h", "cu m/h": "m3/h",
@@ -91,6 +95,14 @@ def code_for(text: str) -> str:
         return lowered[text.lower()]
     unit(text)  # raises with the list of known codes
     raise AssertionError("unreachable")
+
+
+def label_for(text: str) -> str:
+    """The label of a unit code or legacy spelling (m3/h -> m³/h), for pages; other text is shown as it is."""
+    try:
+        return FLOW_UNITS[code_for(text)].label
+    except UnitError:
+        return text or ""
 
 
 def _factor(src: FlowUnit, dst: FlowUnit) -> float:
@@ -185,9 +197,3 @@ def conversion_needs(from_code: str, to_code: str) -> set[str]:
     if kinds == {"reference_volume", "volume"}:
         return {"line_conditions"}
     return {"reference_density"}
-
-
-def label(code: str) -> str:
-    """The unit's label for pages and certificates (the code itself when it is not a known unit)."""
-    found = FLOW_UNITS.get(code)
-    return found.label if found else code

@@ -5,7 +5,9 @@ answers for a few probing inputs), so the tablet says what the server would say,
 or of the range rule there reaches the tablet without a second copy here. The server checks everything again
 when the entry is sent.
 """
-from calibration.forms import EventForm, PointRowForm
+from calibration import units
+from calibration.forms import EventForm, PointRowForm, density_required_message
+from calibration.models import ReferenceStandard
 
 # Same wording as CalibrationEntry.is_valid (form-wide messages, not reachable by probing a single row).
 AS_FOUND_REQUIRED = "Enter at least one as-found point."
@@ -31,12 +33,19 @@ def entry_rules(meter):
     probe = meter.range_max + (meter.range_max - meter.range_min) + 1
     outside = _row_message(meter, "reference_value", reference_value=probe, indicated_value=probe)
     row = PointRowForm.base_fields
+    # readings are entered in the ticked standard's units: the tablet checks the meter's range only when those
+    # are the meter's, and asks for the density where the server would (CalibrationEntry._conversion)
+    standard_units = {str(pk): code for pk, code in ReferenceStandard.offered_for(meter).values_list("pk", "units")}
+    density_required = {pk: density_required_message(code, meter.flow_units) for pk, code in standard_units.items()
+                        if "density" in units.conversion_needs(code, meter.flow_units)}
     return {
         "required": required,
         "range_min": meter.range_min,
         "range_max": meter.range_max,
         "mpe_basis": meter.mpe_basis,
         "grids": ["af", "al"],
+        "meter_units": meter.flow_units,
+        "standard_units": standard_units,
         "messages": {
             "reference_invalid": str(row["reference_value"].error_messages["invalid"]),
             "indicated_invalid": str(row["indicated_value"].error_messages["invalid"]),
@@ -51,5 +60,6 @@ def entry_rules(meter):
             "as_found_required": AS_FOUND_REQUIRED,
             "as_left_required": AS_LEFT_REQUIRED,
             "future_date": "The date of calibration is in the future.",
+            "density_required": density_required,  # by standard id
         },
     }

@@ -4,6 +4,7 @@ from django.db import models
 
 import datetime as dt
 
+from calibration.units import UNKNOWN_UNIT, label_for
 from plant.installations import Removal
 from plant.models import UNKNOWN_MATERIAL, Fluid, Meter, Position
 
@@ -69,6 +70,7 @@ class PositionForm(forms.ModelForm):
     class Meta:
         model = Position
         fields = "__all__"
+        error_messages = {"flow_units": {"invalid_choice": UNKNOWN_UNIT}}
 
 
 class MeterForm(forms.ModelForm):
@@ -77,7 +79,8 @@ class MeterForm(forms.ModelForm):
     class Meta:
         model = Meter
         exclude = ["status"]
-        error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL}}
+        error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL},
+                          "flow_units": {"invalid_choice": UNKNOWN_UNIT}}
 
 
 class SwapForm(forms.Form):
@@ -101,9 +104,9 @@ class SwapForm(forms.Form):
         self.position = position
         self.fields["device"].queryset = Meter.objects.filter(position__isnull=True, status=Meter.Status.SPARE)
         self.fields["device"].label_from_instance = lambda d: (
-            f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {d.flow_units}"
+            f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {label_for(d.flow_units)}"
             f" · due {d.next_due_date:%Y-%m-%d}" if d.next_due_date else
-            f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {d.flow_units}"
+            f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {label_for(d.flow_units)}"
             " · never calibrated")
         self.fields["on_date"].initial = position.area.site.today()
 

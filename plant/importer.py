@@ -11,6 +11,8 @@ Rules for cells:
 * A column that is left out entirely keeps the current value (the default for a new row), except the required
   columns, which must be present.
 * Booleans accept yes/no, true/false, y/n, 1/0 and blank (= no).
+* Flow units are one of the unit codes of calibration/units.py (m3/h, L/s, kg/h, ...) or a usual spelling of one
+  (m³/h, l/s, gpm, lb/hr; calibration.units.code_for); any other text is refused at its cell, never guessed.
 * Choice columns accept the stored value or the label, case-insensitively. The wetted material is one of the fixed
   list (plant/materials.py) or blank; anything else is refused at its cell (liner, grade and other words go in
   material_details).
@@ -30,9 +32,8 @@ from django.core.exceptions import ValidationError
 from django.db import models, transaction
 from django.forms.models import model_to_dict
 
-from plant import spreadsheet
 from calibration import units
-from plant import installations
+from plant import installations, spreadsheet
 from plant.forms import FluidForm, MeterForm, PositionForm
 from plant.models import Area, Fluid, Meter, Position, Site, flows_above_range
 
@@ -227,11 +228,6 @@ def _cell(obj, column: str) -> str:
             return position.area.name if position.area_id else ""
         if column == "fluid":
             return position.fluid.name if position.fluid_id else ""
-        if column == "flow_units":  # the device's unit, as its code (a spelling from before codes reads as its code)
-            try:
-                return units.code_for(obj.device.flow_units)
-            except units.UnitError:
-                return _format(obj.device.flow_units)
         return _format(getattr(position if column in POSITION_COLUMNS else obj.device, column))
     return _format(getattr(obj, column))
 
@@ -464,10 +460,10 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, s
             continue  # keep the current value (the default for a new row)
         if column == "flow_units":
             try:
-                value = units.code_for(value)
-            except units.UnitError as exc:
-                field_errors[column] = str(exc)
-                continue
+                data[column] = units.code_for(value)
+            except units.UnitError:
+                field_errors[column] = units.UNKNOWN_UNIT % {"value": value}
+            continue
         if model_field.choices and value:
             value = _normalise_choice(model_field, value)
         data[column] = value

@@ -89,8 +89,8 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
     an MPE wider than the accuracy the position needs, and the principle×fluid findings it would meet there."""
     warnings = []
     if units.code_for(device.flow_units) != units.code_for(position.flow_units):
-        warnings.append(f"The device reads in {units.label(device.flow_units)}; the position's flows are stated "
-                        f"in {units.label(position.flow_units)}.")
+        warnings.append(f"The device reads in {units.label_for(device.flow_units)}; the position's flows are stated "
+                        f"in {units.label_for(position.flow_units)}.")
     if (position.required_accuracy_pct and device.mpe_basis == Meter.MpeBasis.PERCENT_READING
             and device.mpe_value > position.required_accuracy_pct):
         warnings.append(f"The device's MPE (±{device.mpe_value:g} % of reading) is wider than the ±"

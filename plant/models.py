@@ -181,8 +181,8 @@ class Position(models.Model):
         "internal diameter (mm)", validators=[MinValueValidator(0.1, "Internal diameter must be positive.")]
     )
     flow_units = models.CharField(
-        "units of the process flows", max_length=10, choices=units.UNIT_CHOICES, default="m3/h",
-        error_messages={"invalid_choice": "%(value)s is not one of the flow units in use."},
+        "units of the process flows", max_length=20, choices=units.UNIT_CHOICES, default="m3/h",
+        error_messages={"invalid_choice": units.UNKNOWN_UNIT},
     )
     normal_flow = models.FloatField("normal process flow", null=True, blank=True)
     min_flow = models.FloatField("minimum process flow", null=True, blank=True)
@@ -273,8 +273,8 @@ def flows_above_range(position, device) -> dict:
             label = position._meta.get_field(field).verbose_name.capitalize()
             which = f"of device {device.device_label}" if device.pk else "of the device"
             errors[field] = (
-                f"{label} at {position.tag} ({value:g} {units.label(position.flow_units)}) is above the calibrated "
-                f"range high ({high:g} {units.label(device.flow_units)}) {which}."
+                f"{label} at {position.tag} ({value:g} {units.label_for(position.flow_units)}) is above the calibrated "
+                f"range high ({high:g} {units.label_for(device.flow_units)}) {which}."
             )
     return errors
 
@@ -315,7 +315,8 @@ class Meter(models.Model):
     principle = models.CharField(max_length=30, choices=Principle.choices)
     range_min = models.FloatField("calibrated range low", default=0.0)
     range_max = models.FloatField("calibrated range high")
-    flow_units = models.CharField(max_length=20, default="m³/h")
+    flow_units = models.CharField(max_length=20, choices=units.UNIT_CHOICES, default="m3/h",
+                                  error_messages={"invalid_choice": units.UNKNOWN_UNIT})
     wetted_material = models.CharField(
         "wetted / electrode material", max_length=60, blank=True, choices=materials.CHOICES,
         error_messages={"invalid_choice": UNKNOWN_MATERIAL},
@@ -373,13 +374,6 @@ class Meter(models.Model):
         if self.position_id:
             return reverse("plant:meter-detail", args=[self.position.tag])
         return reverse("device-detail", args=[self.pk])
-
-    def get_flow_units_display(self):
-        """The unit's label (m³/h, US gal/min...); a spelling from before units were codes shows as written."""
-        try:
-            return units.label(units.code_for(self.flow_units))
-        except units.UnitError:
-            return self.flow_units
 
     def calibrate_url(self):
         """Where this device is calibrated: at its position (by tag), or on the bench when it is a spare."""

@@ -43,10 +43,10 @@ from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
 from scipy import stats as scipy_stats
 
 from calibration import due
+from calibration import units as flow_units
 from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard
 from plant import importer, spreadsheet
-from calibration import units
 from plant.forms import FluidForm
 from plant.models import MAX_BASE_INTERVAL_DAYS, Area, DutyPeriod, Fluid, Meter, Position, Site
 from plant.installations import commission
@@ -88,7 +88,7 @@ def campaign_report(terminal_summary_lines):
 # The register every case starts from ------------------------------------------------------------------------------
 METERS = {
     # tag: principle, (site, area), fluid, range, units, normal, min, MPE, basis, base interval
-    "FT-100": ("electromagnetic", ("North", "Hall A"), "Water", (0.0, 40.0), "m³/h", 20.0, 5.0,
+    "FT-100": ("electromagnetic", ("North", "Hall A"), "Water", (0.0, 40.0), "m3/h", 20.0, 5.0,
                0.5, "pct_reading", 365),
     "FT-200": ("vortex", ("North", "Pump house"), "Steam 10 bar", (5.0, 100.0), "t/h", 60.0, 10.0,
                1.0, "pct_span", 180),
@@ -126,14 +126,20 @@ def base(db):
             internal_diameter_mm=52.5, range_min=low, range_max=high, flow_units=units, normal_flow=normal,
             min_flow=minimum, wetted_material="316L", mpe_value=mpe, mpe_basis=basis, base_interval_days=interval,
         )
-    standards = {
-        ident: ReferenceStandard.objects.create(
-            identification=ident, description="Master meter", range_min=STANDARD_RANGE[0],
-            range_max=STANDARD_RANGE[1], certificate_number=f"C-{ident}", due_date=due_date,
-            expanded_uncertainty=U, uncertainty_basis=basis,
-        )
-        for ident, (U, basis, due_date) in STANDARDS.items()
+    # one set of standards per meter unit: a standard reads in one unit, and the campaign enters readings in the
+    # meter's own (conversions are tested in test_unit_entry.py)
+    by_units = {
+        units: {
+            ident: ReferenceStandard.objects.create(
+                identification=ident if units == "m3/h" else f"{ident} {units}", description="Master meter",
+                range_min=STANDARD_RANGE[0], range_max=STANDARD_RANGE[1], units=units,
+                certificate_number=f"C-{ident}", due_date=due_date, expanded_uncertainty=U, uncertainty_basis=basis,
+            )
+            for ident, (U, basis, due_date) in STANDARDS.items()
+        }
+        for units in sorted({spec[4] for spec in METERS.values()})
     }
+    standards = by_units["m3/h"]
     # A signed calibration whose record must never move. Signed by flipping the state of a computed draft, so the
     # baseline does not depend on the fleet recompute that sign() runs afterwards.
     event = CalibrationEvent.objects.create(meter=meters["FT-100"], performed_on=SIGNED_ON, technician="A. Fieldtech",
@@ -148,7 +154,8 @@ def base(db):
     event.save()
     CalibrationEvent.objects.filter(pk=event.pk).update(state="signed", signed_by="A. Fieldtech",
                                                         signed_role="Technician")
-    return {"sites": sites, "areas": areas, "fluids": fluids, "meters": meters, "standards": standards}
+    return {"sites": sites, "areas": areas, "fluids": fluids, "meters": meters, "standards": standards,
+            "standards_by_units": by_units}
 
 
 # State that a rejected case must leave untouched --------------------------------------------------------------------
@@ -271,13 +278,6 @@ class Choice:
         return self.form(raw)
 
 
-class UnitCode(Choice):
-    """A flow unit code of the fixed list (calibration/units.py)."""
-
-    def __init__(self):
-        self.pairs = [(code, label) for code, label in units.UNIT_CHOICES]
-
-
 class Material(Choice):
     """The fixed list of wetted materials (issue 17 item 7): a code of the list, or blank for "not recorded"."""
 
@@ -293,6 +293,22 @@ class Material(Choice):
 
     def imported(self, raw):
         return (True, "") if raw == "" else super().imported(raw)
+
+
+class FlowUnits(Choice):
+    """A unit code of calibration/units.py; the importer also takes a usual spelling (code_for) or the label."""
+
+    def __init__(self):
+        self.pairs = [(str(value), str(label)) for value, label in Meter._meta.get_field("flow_units").choices]
+
+    def imported(self, raw):
+        ok, value = super().imported(raw)
+        if ok:
+            return ok, value
+        try:
+            return True, flow_units.code_for(raw)
+        except flow_units.UnitError:
+            return False, None
 
 
 class Num:
@@ -373,7 +389,7 @@ def meter_spec(base):
         "area": ForeignKey(a.pk for a in base["areas"].values()),
         "fluid": ForeignKey(f.pk for f in base["fluids"].values()),
         "line_size": Text(20, required=True), "internal_diameter_mm": Num(0.1, required=True),
-        "range_min": Num(required=True), "range_max": Num(required=True), "flow_units": UnitCode(),
+        "range_min": Num(required=True), "range_max": Num(required=True), "flow_units": FlowUnits(),
         "normal_flow": Num(), "min_flow": Num(), "wetted_material": Material(),
         "material_details": Text(120), "serial": Text(60),
         "maker": Text(80), "model": Text(80), "mpe_value": Num(1e-9, required=True),
@@ -569,7 +585,7 @@ METER_JUNK = {
     "range_max": number_or_junk(-1e6, 1e6, "1e308"),
     "normal_flow": number_or_junk(-1e6, 1e7, "-5"),
     "min_flow": number_or_junk(-1e6, 1e7, "-0.1"),
-    "flow_units": st.sampled_from(["", "   ", "z" * 21, "m3/h\x00"]),
+    "flow_units": st.sampled_from(["", "   ", "z" * 21, "m3/h\x00", "m³/h", "gpm", "furlongs", "Nm³/h (0 °C)"]),
     "wetted_material": st.sampled_from(["x" * 61, "316\x00L", "Hastelloy C-276", "titanium Gr2", "316 L",
                                         "Stainless steel 316L", "not titanium: 316L"]),
     "material_details": st.sampled_from(["x" * 121, "PTFE\x00"]),
@@ -701,7 +717,8 @@ def model_case(draw, base):
         floats = ["internal_diameter_mm", "range_min", "range_max", "normal_flow", "min_flow", "mpe_value"]
         texts = {"tag": st.sampled_from(["", "FT-100", "y" * 41, "T\x00"]), "serial": st.just("S\x00"),
                  "line_size": st.sampled_from(["", "z" * 21]), "principle": st.sampled_from(["", "Turbine", "pump"]),
-                 "base_interval_days": st.integers(-10, 10**12), "flow_units": st.just("")}
+                 "base_interval_days": st.integers(-10, 10**12),
+                 "flow_units": st.sampled_from(["", "m³/h", "furlongs"])}
     for _ in range(draw(MUTATIONS)):
         name = draw(st.sampled_from(floats + sorted(texts)))
         values[name] = draw(ANY_FLOAT if name in floats else texts[name])
@@ -911,7 +928,8 @@ def calibration_case(draw):
 
 def post_data(case, base):
     data = {f"ev-{k}": v for k, v in case["event"].items() if v is not ABSENT}
-    pks = {ident: str(s.pk) for ident, s in base["standards"].items()}
+    units = base["meters"][case["tag"]].flow_units
+    pks = {ident: str(s.pk) for ident, s in base["standards_by_units"][units].items()}
     data["ev-reference_standards"] = [pks.get(s, s) for s in case["standards"]]
     for prefix in ("af", "al"):
         rows = case[prefix]
@@ -1050,7 +1068,8 @@ def judge_calibration(case, base):
     if performed_on is None or performed_on > dt.date.today() + dt.timedelta(days=1):  # unreadable or in the future
         bad.add(("ev", "performed_on"))
     event["performed_on"] = performed_on
-    standards = [base["standards"][s] for s in case["standards"] if s in base["standards"]]
+    offered = base["standards_by_units"][meter.flow_units]
+    standards = [offered[s] for s in case["standards"] if s in offered]
     if not standards or len(standards) != len(case["standards"]):
         bad.add(("ev", "reference_standards"))
     rows = {}

@@ -3,7 +3,10 @@
 Drift is invented for the demo: stable meters, meters drifting steadily, and meters that jump after
 fouling; the risk factor of each meter's duty scales how far it moves. Each calibration is done around
 the due date the tracker set after the previous one, as a plant that is looked after would; a few meters
-miss their last one and show overdue. Written to
+miss their last one and show overdue. Each reference standard reads in one unit: volumetric meters are compared
+with a volumetric reference, mass meters with a mass one, except that the demineralised-water meter FT-206 is
+calibrated on the weigh-tank rig (kg/h) from 2025: its readings are converted to m³/h with the water's density,
+so the demo shows a conversion on a certificate. Written to
 fixtures/demo_history.json (load it after fixtures/demo_plant.json).
 """
 import datetime as dt
@@ -14,7 +17,7 @@ from django.conf import settings
 from django.core.management import BaseCommand, call_command
 from django.db import transaction
 
-from calibration import errors
+from calibration import errors, units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from calibration.synthetic import NOMINALS, invented_found_errors
 from plant.models import Meter
@@ -32,19 +35,36 @@ PROCEDURE = {
 }
 
 
+# demineralised water at about 20 °C, kg/m³ (from memory: the usual table value for pure water at 20 °C)
+WEIGH_TANK_DENSITY = 998.2
+WEIGH_TANK_METER, WEIGH_TANK_FROM = "FT-206", dt.date(2025, 1, 1)
+
+
 def _standards():
     return {
-        "liquid": ReferenceStandard.objects.create(
+        ("liquid", "kg/h"): ReferenceStandard.objects.create(
             identification="RS-101", description="Portable Coriolis reference, liquids", range_min=0,
-            range_max=60000, units="per meter's units", certificate_number="EXT-24-5531",
+            range_max=60000, units="kg/h", certificate_number="EXT-24-5531",
             due_date=dt.date(2027, 3, 31), expanded_uncertainty=0.1, uncertainty_basis="pct_reading"),
-        "gas": ReferenceStandard.objects.create(
-            identification="RS-102", description="Transfer standard for gases and steam", range_min=0,
-            range_max=10000, units="per meter's units", certificate_number="EXT-24-5532",
+        ("liquid", "m3/h"): ReferenceStandard.objects.create(
+            identification="RS-103", description="Portable electromagnetic reference, liquids", range_min=0,
+            range_max=500, units="m3/h", certificate_number="EXT-24-5533",
+            due_date=dt.date(2027, 3, 31), expanded_uncertainty=0.1, uncertainty_basis="pct_reading"),
+        ("gas", "m3/h"): ReferenceStandard.objects.create(
+            identification="RS-102", description="Transfer standard for gases", range_min=0,
+            range_max=1500, units="m3/h", certificate_number="EXT-24-5532", phase="gas",
             due_date=dt.date(2027, 1, 15), expanded_uncertainty=0.3, uncertainty_basis="pct_reading"),
+        ("steam", "kg/h"): ReferenceStandard.objects.create(
+            identification="RS-104", description="Transfer standard for steam", range_min=0,
+            range_max=10000, units="kg/h", certificate_number="EXT-24-5534", phase="steam",
+            due_date=dt.date(2027, 1, 15), expanded_uncertainty=0.3, uncertainty_basis="pct_reading"),
+        "weigh_tank": ReferenceStandard.objects.create(
+            identification="RS-105", description="Weigh-tank rig (gravimetric, diverter and 2 t tank), liquids",
+            range_min=0, range_max=20000, units="kg/h", certificate_number="EXT-25-0117", phase="liquid",
+            due_date=dt.date(2027, 6, 30), expanded_uncertainty=0.05, uncertainty_basis="pct_reading"),
         "spare": ReferenceStandard.objects.create(
             identification="RS-090", description="Old turbine master meter (withdrawn)", range_min=0,
-            range_max=100, units="m³/h", certificate_number="EXT-21-0410",
+            range_max=100, units="m3/h", certificate_number="EXT-21-0410",
             due_date=dt.date(2026, 8, 1), expanded_uncertainty=0.25, uncertainty_basis="pct_reading"),
     }
 
@@ -83,7 +103,8 @@ class Command(BaseCommand):
         years = rng.randint(5, 8)
         day = TODAY - dt.timedelta(days=int(365.25 * years)) + dt.timedelta(days=rng.randint(0, 20))
         baseline = rng.uniform(-0.1, 0.1) * mpe
-        standard = standards["gas"] if meter.fluid.phase in ("gas", "steam") else standards["liquid"]
+        phase = meter.fluid.phase if meter.fluid.phase in ("gas", "steam") else "liquid"
+        standard = standards[(phase, meter.flow_units)]
         count = 0
         jumped = False
         previous = None
@@ -95,15 +116,20 @@ class Command(BaseCommand):
                 jumped = True
             found = invented_found_errors(rng, offset, mpe)
             adjust = max(abs(e) for e in found) > 0.6 * mpe
+            used = standard
+            if meter.tag == WEIGH_TANK_METER and day >= WEIGH_TANK_FROM:
+                used = standards["weigh_tank"]
             event = CalibrationEvent.objects.create(
                 meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS),
+                meter_units=meter.flow_units, reference_units=used.units,
+                density_kg_m3=WEIGH_TANK_DENSITY if used.units != meter.flow_units else None,
                 procedure=PROCEDURE["clampon" if meter.principle == "ultrasonic_clampon" else "flow"],
                 ambient_temp_c=round(rng.uniform(8, 28), 1), fluid_temp_c=meter.fluid.temperature_c,
                 pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
                 decision_rule="simple",
                 notes="Zero and span adjusted." if adjust else "",
             )
-            event.reference_standards.add(standard)
+            event.reference_standards.add(used)
             self._points(event, meter, CalibrationPoint.Kind.AS_FOUND, found, rng)
             if adjust:
                 left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS]
@@ -126,11 +152,13 @@ class Command(BaseCommand):
     def _bench(self, meter, rng, standards):
         """The spare's calibration on the workshop bench a month ago, so it may be installed."""
         day = TODAY - dt.timedelta(days=30)
+        standard = standards[("liquid", meter.flow_units)]
         event = CalibrationEvent.objects.create(
             meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=BENCH_PROCEDURE,
+            meter_units=meter.flow_units, reference_units=standard.units,
             ambient_temp_c=20.5, fluid_temp_c=18.0, pressure_bar=2.0, reason="scheduled", decision_rule="simple",
             condition_received="New from stores, sealed.")
-        event.reference_standards.add(standards["liquid"])
+        event.reference_standards.add(standard)
         self._points(event, meter, CalibrationPoint.Kind.AS_FOUND,
                      [rng.gauss(0, 0.1 * meter.mpe_value) for _ in NOMINALS], rng)
         event.sign(event.technician, "Instrument technician",
@@ -141,8 +169,14 @@ class Command(BaseCommand):
         span = meter.range_max - meter.range_min
         for nominal, error in zip(NOMINALS, errors_in_basis):
             reference = round(meter.range_min + span * nominal / 100 * rng.uniform(0.97, 1.03), 4)
+            entered = reference
+            if event.converted:  # the rig's reading in its own units, as the technician would type it
+                entered = round(units.convert(reference, event.device_units, event.entered_units,
+                                              density_kg_m3=event.density_kg_m3), 2)
+                reference = units.convert(entered, event.entered_units, event.device_units,
+                                          density_kg_m3=event.density_kg_m3)
             indicated = errors.indication_for_error(reference, error, meter.mpe_basis, span)
             point = CalibrationPoint(event=event, kind=kind, nominal_pct=nominal, reference_value=reference,
-                                     indicated_value=round(indicated, 5))
-            point.compute(meter, event.reference_standards.first(), event.decision_rule)
+                                     reference_entered=entered, indicated_value=round(indicated, 5))
+            point.compute(meter, event.reference_standards.first(), event.decision_rule, factor=event.unit_factor())
             point.save()

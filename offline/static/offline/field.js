@@ -442,6 +442,13 @@
     const dateName = dateField(rules);
     const date = text(dateName);
     if (date && date > localToday(1)) add(dateName, m.future_date);
+    // reference readings are in the ticked standard's units: the range (in the meter's) is checked only when
+    // those are the meter's; a standard reading mass against volume (or back) needs the density
+    const ticked = data.getAll("ev-reference_standards").map(String);
+    const standardUnits = rules.standard_units || {};
+    const meterUnits = ticked.every((pk) => !standardUnits[pk] || standardUnits[pk] === rules.meter_units);
+    const density = ticked.map((pk) => (m.density_required || {})[pk]).find(Boolean);
+    if (density && !text("ev-density_kg_m3")) add("ev-density_kg_m3", density);
     const filled = {};
     (rules.grids || []).forEach((prefix) => {
       filled[prefix] = 0;
@@ -463,7 +470,7 @@
         if (!ind && !repeats) add(name("indicated_value"), m.indicated_required);
         if (ref && Number.isFinite(refValue)) {
           if (refValue < 0) add(name("reference_value"), m.negative);
-          else if (refValue < rules.range_min || refValue > rules.range_max) {
+          else if (meterUnits && (refValue < rules.range_min || refValue > rules.range_max)) {
             add(name("reference_value"), m.outside_range.replace("{value}", String(refValue)));
           } else if (refValue === 0) add(name("reference_value"), m.zero_of_reading);
         }

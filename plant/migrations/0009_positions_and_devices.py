@@ -17,6 +17,16 @@ def _unit_code(text, where):
                            f"migration ({exc})") from None
 
 
+def _audit_unit(text):
+    """An audit row keeps what was written then: its code when the spelling is known, else the text."""
+    from calibration.units import UnitError, code_for
+
+    try:
+        return code_for(text)
+    except UnitError:
+        return text
+
+
 def split_meters(apps, schema_editor):
     """Every meter becomes a position (same id, its tag and duty) and a device (the meter row) with one
     installation. In-service meters stay installed; spare and removed ones leave their position vacant with
@@ -53,7 +63,7 @@ def split_meters(apps, schema_editor):
     copies = []
     for row in HistoricalMeter.objects.order_by("history_id").iterator():
         copies.append(HistoricalPosition(
-            id=row.id, flow_units=_unit_code(row.flow_units, f"audit row of meter {row.tag}"),
+            id=row.id, flow_units=_audit_unit(row.flow_units),
             history_date=row.history_date, history_user_id=row.history_user_id, history_type=row.history_type,
             history_change_reason=row.history_change_reason, **{f: getattr(row, f) for f in fields}))
     HistoricalPosition.objects.bulk_create(copies, batch_size=1000)
@@ -77,7 +87,7 @@ def join_meters(apps, schema_editor):
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('plant', '0007_merge_20261204_1610'),
+        ('plant', '0008_flow_units_codes'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 
@@ -93,7 +103,7 @@ class Migration(migrations.Migration):
                 ('tag', models.CharField(db_index=True, error_messages={'unique': 'A position with this tag already exists.'}, max_length=40)),
                 ('line_size', models.CharField(max_length=20, verbose_name='line size (e.g. DN50)')),
                 ('internal_diameter_mm', models.FloatField(validators=[django.core.validators.MinValueValidator(0.1, 'Internal diameter must be positive.')], verbose_name='internal diameter (mm)')),
-                ('flow_units', models.CharField(choices=[('m3/h', 'm³/h'), ('L/s', 'L/s'), ('L/min', 'L/min'), ('USgpm', 'US gal/min'), ('kg/h', 'kg/h'), ('kg/s', 'kg/s'), ('t/h', 't/h'), ('lb/h', 'lb/h'), ('Nm3/h', 'Nm³/h (0 °C, 101.325 kPa)'), ('Sm3/h', 'Sm³/h (15 °C, 101.325 kPa)')], default='m3/h', error_messages={'invalid_choice': '%(value)s is not one of the flow units in use.'}, max_length=10, verbose_name='units of the process flows')),
+                ('flow_units', models.CharField(choices=[('m3/h', 'm³/h'), ('L/s', 'L/s'), ('L/min', 'L/min'), ('USgpm', 'US gal/min'), ('kg/h', 'kg/h'), ('kg/s', 'kg/s'), ('t/h', 't/h'), ('lb/h', 'lb/h'), ('Nm3/h', 'Nm³/h (0 °C, 101.325 kPa)'), ('Sm3/h', 'Sm³/h (15 °C, 101.325 kPa)')], default='m3/h', error_messages={'invalid_choice': '"%(value)s" is not one of the flow units in use; choose one of m3/h, L/s, L/min, USgpm, kg/h, kg/s, t/h, lb/h, Nm3/h, Sm3/h (e.g. m3/h for m³/h).'}, max_length=20, verbose_name='units of the process flows')),
                 ('normal_flow', models.FloatField(blank=True, null=True, verbose_name='normal process flow')),
                 ('min_flow', models.FloatField(blank=True, null=True, verbose_name='minimum process flow')),
                 ('required_accuracy_pct', models.FloatField(blank=True, help_text='What the process needs of the measurement here; a device whose MPE is wider is flagged.', null=True, validators=[django.core.validators.MinValueValidator(1e-06, 'The required accuracy must be greater than zero.')], verbose_name='required accuracy (± % of reading)')),
@@ -120,7 +130,7 @@ class Migration(migrations.Migration):
                 ('tag', models.CharField(error_messages={'unique': 'A position with this tag already exists.'}, max_length=40, unique=True)),
                 ('line_size', models.CharField(max_length=20, verbose_name='line size (e.g. DN50)')),
                 ('internal_diameter_mm', models.FloatField(validators=[django.core.validators.MinValueValidator(0.1, 'Internal diameter must be positive.')], verbose_name='internal diameter (mm)')),
-                ('flow_units', models.CharField(choices=[('m3/h', 'm³/h'), ('L/s', 'L/s'), ('L/min', 'L/min'), ('USgpm', 'US gal/min'), ('kg/h', 'kg/h'), ('kg/s', 'kg/s'), ('t/h', 't/h'), ('lb/h', 'lb/h'), ('Nm3/h', 'Nm³/h (0 °C, 101.325 kPa)'), ('Sm3/h', 'Sm³/h (15 °C, 101.325 kPa)')], default='m3/h', error_messages={'invalid_choice': '%(value)s is not one of the flow units in use.'}, max_length=10, verbose_name='units of the process flows')),
+                ('flow_units', models.CharField(choices=[('m3/h', 'm³/h'), ('L/s', 'L/s'), ('L/min', 'L/min'), ('USgpm', 'US gal/min'), ('kg/h', 'kg/h'), ('kg/s', 'kg/s'), ('t/h', 't/h'), ('lb/h', 'lb/h'), ('Nm3/h', 'Nm³/h (0 °C, 101.325 kPa)'), ('Sm3/h', 'Sm³/h (15 °C, 101.325 kPa)')], default='m3/h', error_messages={'invalid_choice': '"%(value)s" is not one of the flow units in use; choose one of m3/h, L/s, L/min, USgpm, kg/h, kg/s, t/h, lb/h, Nm3/h, Sm3/h (e.g. m3/h for m³/h).'}, max_length=20, verbose_name='units of the process flows')),
                 ('normal_flow', models.FloatField(blank=True, null=True, verbose_name='normal process flow')),
                 ('min_flow', models.FloatField(blank=True, null=True, verbose_name='minimum process flow')),
                 ('required_accuracy_pct', models.FloatField(blank=True, help_text='What the process needs of the measurement here; a device whose MPE is wider is flagged.', null=True, validators=[django.core.validators.MinValueValidator(1e-06, 'The required accuracy must be greater than zero.')], verbose_name='required accuracy (± % of reading)')),

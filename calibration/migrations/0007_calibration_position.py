@@ -6,7 +6,7 @@ from django.db import migrations, models
 
 def events_at_their_positions(apps, schema_editor):
     """Before positions and devices were kept apart every meter was its own position (same id, see plant
-    0008): each existing record was calibrated at that position. Signed rows are locked by the model's
+    0009): each existing record was calibrated at that position. Signed rows are locked by the model's
     own manager, not by the table; this fills a new column and changes nothing that was signed."""
     Event = apps.get_model("calibration", "CalibrationEvent")
     Event.objects.update(position_id=models.F("meter_id"))
@@ -17,8 +17,8 @@ def events_at_their_positions(apps, schema_editor):
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('calibration', '0005_merge_20261204_1629'),
-        ('plant', '0008_positions_and_devices'),
+        ('calibration', '0006_units_density_entered'),
+        ('plant', '0009_positions_and_devices'),
     ]
 
     operations = [
