@@ -99,7 +99,7 @@ def test_bad_rows_reported_at_row_and_column_with_model_messages(register):
     )
     plan = plan_for(content)
     found = {(e.row_number, e.column): e.message for e in plan.errors}
-    assert "above the calibrated range high (40 m3/h)" in found[(3, "min_flow")]
+    assert "above the calibrated range high (40 m³/h)" in found[(3, "min_flow")]
     assert found[(4, "tag")] == 'Duplicate tag "FT-300" in the file (first on row 2).'
     assert 'Unknown fluid "Mercury"' in found[(5, "fluid")]
     assert found[(6, "internal_diameter_mm")] == "Enter a number."

@@ -204,6 +204,9 @@ def test_migration_turns_each_meter_into_a_position_and_a_device():
     old = executor.loader.project_state(BEFORE).apps
     meters = [r for r in _load_old(old, "demo_plant") if r["model"] == "plant.meter"]
     events = [r for r in _load_old(old, "demo_history") if r["model"] == "calibration.calibrationevent"]
+    # the old demo standards said "per meter's units", which the unit migration (calibration 0006) refuses,
+    # naming them; corrected here as a reviewer would before migrating
+    old.get_model("calibration", "ReferenceStandard").objects.update(units="m³/h")
     signed_before = {r["pk"]: r["fields"]["signed_at"] for r in events}
     OldMeter = old.get_model("plant", "Meter")
     OldMeter.objects.filter(pk=meters[-1]["pk"]).update(status="spare")  # one on the shelf before the change

@@ -55,7 +55,7 @@ def test_min_flow_above_range_rejected_at_field(site_area_fluid):
     _, area, fluid = site_area_fluid
     form = new_row(meter_data(area, fluid, min_flow=55, normal_flow=None))
     assert not form.is_valid()
-    assert "above the calibrated range high (40 m3/h)" in form.errors["min_flow"][0]
+    assert "above the calibrated range high (40 m³/h)" in form.errors["min_flow"][0]
     assert Meter.objects.count() == 0
     assert DutyPeriod.objects.count() == 0
 

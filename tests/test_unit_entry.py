@@ -23,7 +23,8 @@ from calibration.forms import CalibrationEntry, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, SignedRecordError
 from offline.rules import entry_rules
 from plant import importer
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Meter, Position, Site
+from plant.installations import commission
 from reports.certificate import certificate_html
 from tests.conftest import user_with_role
 
@@ -38,13 +39,13 @@ def plant():
     area = Area.objects.create(site=site, name="Hall A")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=500, density_kg_m3=998)
     gas = Fluid.objects.create(name="Natural gas", phase="gas")
-    volume = Meter.objects.create(tag="FT-V", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    volume = commission(tag="FT-V", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                   internal_diameter_mm=52.5, range_min=0, range_max=40, flow_units="m3/h",
                                   mpe_value=0.5, mpe_basis="pct_reading", wetted_material="316L")
-    mass = Meter.objects.create(tag="FT-M", principle="thermal_mass", area=area, fluid=gas, line_size="DN50",
+    mass = commission(tag="FT-M", principle="thermal_mass", area=area, fluid=gas, line_size="DN50",
                                 internal_diameter_mm=52.5, range_min=0, range_max=500, flow_units="kg/h",
                                 mpe_value=1.0, mpe_basis="pct_reading", wetted_material="316L")
-    gas_volume = Meter.objects.create(tag="FT-G", principle="turbine", area=area, fluid=gas, line_size="DN50",
+    gas_volume = commission(tag="FT-G", principle="turbine", area=area, fluid=gas, line_size="DN50",
                                       internal_diameter_mm=52.5, range_min=0, range_max=400, flow_units="m3/h",
                                       mpe_value=1.0, mpe_basis="pct_reading", wetted_material="316L")
     return {"area": area, "water": water, "volume": volume, "mass": mass, "gas_volume": gas_volume}
@@ -315,7 +316,7 @@ def test_unit_codes_on_the_models_and_the_importer(plant):
                   "fluid": "Water", "line_size": "DN50", "internal_diameter_mm": "52.5", "range_min": "0",
                   "range_max": "40", "flow_units": units, "normal_flow": "", "min_flow": "",
                   "wetted_material": "316L", "material_details": "", "serial": "", "maker": "", "model": "",
-                  "mpe_value": "0.5", "mpe_basis": "pct_reading", "base_interval_days": "365", "status": "in_service"}
+                  "mpe_value": "0.5", "mpe_basis": "pct_reading", "base_interval_days": "365", "required_accuracy_pct": ""}
         return ",".join(values[c] for c in importer.METER_COLUMNS)
 
     content = "\n".join([header, row("FT-A", "gpm"), row("FT-B", "Nm³/h"), row("FT-C", "kg/h"),
@@ -326,5 +327,8 @@ def test_unit_codes_on_the_models_and_the_importer(plant):
     content = "\n".join([header, row("FT-A", "gpm"), row("FT-B", "Nm³/h"), row("FT-C", "kg/h")]) + "\n"
     applied = importer.apply_import(importer.plan_import("meters", importer.read_table(content.encode(), "m.csv")))
     assert applied.applied
-    assert dict(Meter.objects.filter(tag__in=["FT-A", "FT-B", "FT-C"]).values_list("tag", "flow_units")) == {
+    assert dict(Meter.objects.filter(position__tag__in=["FT-A", "FT-B", "FT-C"])
+                .values_list("position__tag", "flow_units")) == {"FT-A": "USgpm", "FT-B": "Nm3/h", "FT-C": "kg/h"}
+    # the position's flows are stated in the same unit as the row's device
+    assert dict(Position.objects.filter(tag__in=["FT-A", "FT-B", "FT-C"]).values_list("tag", "flow_units")) == {
         "FT-A": "USgpm", "FT-B": "Nm3/h", "FT-C": "kg/h"}
