@@ -53,13 +53,13 @@ def standards(today):
     """One standard per service (liquids; gases and steam) and unit: a standard reads in one unit, and the synthetic
     readings are in the meter's own."""
     out = {}
-    for ident, service, units, description, cert, days, U in (
+    for ident, service, unit_code, description, cert, days, U in (
             ("RS-SY-L", "liquid", "m3/h", "Portable reference meter, liquids", "SY-EXT-0001", 200, 0.1),
             ("RS-SY-LM", "liquid", "kg/h", "Portable Coriolis reference, liquids", "SY-EXT-0003", 200, 0.1),
             ("RS-SY-G", "gas", "m3/h", "Transfer standard, gases", "SY-EXT-0002", 9, 0.3),
             ("RS-SY-GM", "gas", "kg/h", "Transfer standard, gases and steam (mass)", "SY-EXT-0004", 9, 0.3)):
-        out[(service, units)], _ = ReferenceStandard.objects.get_or_create(identification=ident, defaults=dict(
-            description=f"{description} (synthetic fleet)", range_min=0, range_max=100000, units=units,
+        out[(service, unit_code)], _ = ReferenceStandard.objects.get_or_create(identification=ident, defaults=dict(
+            description=f"{description} (synthetic fleet)", range_min=0, range_max=100000, units=unit_code,
             certificate_number=cert, due_date=today + dt.timedelta(days=days), expanded_uncertainty=U,
             uncertainty_basis="pct_reading"))
     return out

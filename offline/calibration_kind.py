@@ -7,7 +7,6 @@ from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent
 from offline.kinds import RecordKind, Refused
 from offline.rules import entry_rules
-from plant.models import Meter
 
 
 def entry_errors(entry):

@@ -12,7 +12,6 @@ from dataclasses import dataclass
 from django.db import transaction
 
 from calibration import units
-from plant import risk
 from plant.models import Installation, Meter, Position, flows_above_range
 
 
@@ -95,10 +94,7 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
             and device.mpe_value > position.required_accuracy_pct):
         warnings.append(f"The device's MPE (±{device.mpe_value:g} % of reading) is wider than the ±"
                         f"{position.required_accuracy_pct:g} % {position.tag} requires.")
-    findings = risk.assess(device.principle, device.wetted_material, position.fluid.props(),
-                           normal_flow_m3_h=position.flow_m3_h(position.normal_flow),
-                           min_flow_m3_h=position.flow_m3_h(position.min_flow),
-                           diameter_mm=position.internal_diameter_mm)
+    findings = position.assess(device.principle, device.wetted_material)
     warnings += [f"{f.title}: {f.reason}" for f in findings if f.severity in ("high", "critical")]
     return warnings
 

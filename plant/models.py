@@ -255,6 +255,14 @@ class Position(models.Model):
         """Volume flow in m³/h for the Reynolds check; None when it cannot be converted."""
         return self.flow_in(value, "m3/h")
 
+    def assess(self, principle, wetted_material, fluid=None):
+        """The principle×fluid findings a device of this principle and material meets here (plant/risk.py)."""
+        return risk.assess(
+            principle, wetted_material, (fluid or self.fluid).props(),
+            normal_flow_m3_h=self.flow_m3_h(self.normal_flow), min_flow_m3_h=self.flow_m3_h(self.min_flow),
+            diameter_mm=self.internal_diameter_mm,
+        )
+
 
 def flows_above_range(position, device) -> dict:
     """{field: message} for the position's process flows above the device's calibrated range high."""
@@ -500,16 +508,12 @@ class Meter(models.Model):
         return meter_evidence(self.pk)
 
     def duty_findings(self):
-        fluid = self.fluid
+        if self.position_id:
+            return self.position.assess(self.principle, self.wetted_material)
+        fluid = self.fluid  # a spare: the fluid it last served, without the flows of a place
         if fluid is None:
             return []  # a new device that has served nowhere yet
-        position = self.position if self.position_id else None
-        return risk.assess(
-            self.principle, self.wetted_material, fluid.props(),
-            normal_flow_m3_h=position.flow_m3_h(position.normal_flow) if position else None,
-            min_flow_m3_h=position.flow_m3_h(position.min_flow) if position else None,
-            diameter_mm=position.internal_diameter_mm if position else None,
-        )
+        return risk.assess(self.principle, self.wetted_material, fluid.props())
 
     def risk_factor(self):
         return risk.interval_factor(self.findings())

@@ -12,7 +12,7 @@ from playwright.sync_api import expect
 from plant.models import Installation, Meter, Position
 from tests.conftest import user_with_role
 from tests.test_browser import (  # noqa: F401  (the browser and shots fixtures)
-    MIN_TOUCH, TABLET, TIMEOUT_MS, assert_no_sideways_scroll, assert_touch_size, browser, shots)
+    TABLET, TIMEOUT_MS, assert_no_sideways_scroll, assert_touch_size, browser, shots)
 
 pytestmark = pytest.mark.django_db(transaction=True)
 PASSWORD = "swap-on-the-tablet-7"

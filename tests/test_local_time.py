@@ -11,7 +11,7 @@ from django.utils import timezone as django_timezone
 
 from calibration.forms import CalibrationEntry
 from plant import localtime
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Site
 from plant.installations import commission
 
 LATE_EVENING_UTC = dt.datetime(2026, 12, 4, 23, 30, tzinfo=dt.timezone.utc)

@@ -172,7 +172,7 @@ def test_moved_device_history_shows_both_positions(client, demo_maintenance):
 
 # The migration: every meter of the register before positions becomes a position + device ---------------------------
 BEFORE = [("plant", "0007_merge_20261204_1610"), ("calibration", "0005_merge_20261204_1629")]
-AFTER = [("plant", "0009_positions_and_devices"), ("calibration", "0007_calibration_position")]
+AFTER = [("plant", "0011_remove_meter_position_fields"), ("calibration", "0008_events_at_their_positions")]
 OLD_FIXTURES = "tests/data/before_positions"
 
 

@@ -6,53 +6,14 @@ changed. Events and points recorded before keep blank units and no entered value
 meter's units (CalibrationEvent.entered_units, CalibrationPoint.reference_as_entered). Sign-off snapshots keep the
 text they were signed with (the pages show a known spelling by its label).
 """
+import importlib
+
 from django.db import migrations, models
 
 
-CODES = ("m3/h", "L/s", "L/min", "USgpm", "kg/h", "kg/s", "t/h", "lb/h", "Nm3/h", "Sm3/h")
-LEGACY_SPELLINGS = {
-    "m³/h": "m3/h", "m3/h": "m3/h", "m^3/h": "m3/h", "cu m/h": "m3/h",
-    "l/s": "L/s", "L/s": "L/s", "l/min": "L/min", "L/min": "L/min", "lpm": "L/min",
-    "gpm": "USgpm", "US gal/min": "USgpm", "usgpm": "USgpm",
-    "kg/h": "kg/h", "kg/s": "kg/s", "t/h": "t/h", "lb/h": "lb/h", "lb/hr": "lb/h",
-    "Nm³/h": "Nm3/h", "Nm3/h": "Nm3/h", "Sm³/h": "Sm3/h", "Sm3/h": "Sm3/h",
-}
-
-
-def code_for(text):
-    """The unit code for a code or a legacy spelling, or None."""
-    text = (text or "").strip()
-    if text in CODES:
-        return text
-    if text in LEGACY_SPELLINGS:
-        return LEGACY_SPELLINGS[text]
-    return {k.lower(): v for k, v in LEGACY_SPELLINGS.items()}.get(text.lower())
-
-
-class UnknownUnits(Exception):
-    pass
-
-
-def map_units(model, field, key, what):
-    """Map every row's `field` onto a code; stop, naming the rows, when any text is not a known spelling."""
-    unknown = []
-    for pk, name, text in model.objects.values_list("pk", key, field):
-        code = code_for(text)
-        if code is None:
-            unknown.append(f"{what} {name} ({text!r})")
-        elif code != text:
-            model.objects.filter(pk=pk).update(**{field: code})
-    if unknown:
-        raise UnknownUnits(
-            f"These flow units are not one of the codes ({', '.join(CODES)}) nor a known spelling of one: "
-            f"{'; '.join(unknown)}. Nothing was changed: correct them to one of the codes and migrate again.")
-
-
-def map_history(model, field):
-    for pk, text in model.objects.values_list("pk", field):
-        code = code_for(text)
-        if code is not None and code != text:
-            model.objects.filter(pk=pk).update(**{field: code})
+# the frozen spellings and the mapping rule of plant 0008, so both registers are read the same way
+_plant_units = importlib.import_module("plant.migrations.0008_flow_units_codes")
+UnknownUnits, map_units, map_history = _plant_units.UnknownUnits, _plant_units.map_units, _plant_units.map_history
 
 
 def forwards(apps, schema_editor):
