@@ -109,8 +109,9 @@ def _after_move(device: Meter, on_date: dt.date, recompute=True):
         recompute_due_dates(Meter.objects.filter(pk=device.pk))
 
 
-def _install(device, position, on_date, user, *, new_device=False, recompute=True) -> Installation:
-    if not new_device:
+def _install(device, position, on_date, user, *, new_device=False, recompute=True,
+             due_refreshed=False) -> Installation:
+    if not new_device and not due_refreshed:
         refresh_due(device)
     problems = install_problems(device, position, on_date, new_device=new_device)
     if problems:
@@ -176,7 +177,7 @@ def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, u
             raise InstallationError({"device": problems})
         removed = _remove(old, on_date, user, reason, to)
         position.refresh_from_db()
-        installed = _install(new_device, position, on_date, user, new_device=brand_new)
+        installed = _install(new_device, position, on_date, user, new_device=brand_new, due_refreshed=True)
         return SwapResult(removed, installed)
 
 
