@@ -30,7 +30,8 @@ def buckets(filters: dict, days: int, today: dt.date):
     }
     base = tasks_in_service(filters)
     counts = base.aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
-    rows = base.select_related("meter__position__area__site")
+    # installed devices' tags are unique: tag, code and id order the list as the register does
+    rows = base.select_related("meter__position__area__site").order_by("meter__position__tag", "code", "pk")
     return [
         Bucket("maint_overdue", "Maintenance overdue", rows.filter(conditions["maint_overdue"]),
                MaintenanceOverdueTable, counts["maint_overdue"]),

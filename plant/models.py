@@ -369,6 +369,11 @@ class Meter(models.Model):
     class Meta:
         ordering = ["position__tag", "serial", "pk"]
         permissions = [("swap_device", "Can install, remove and swap devices at positions")]
+        # The review's counts and page reads are answered from this index alone, without reading the device rows
+        # (wide with their due rationale): status and position pick the installed devices, the rest are the
+        # stored fields each review list tests.
+        indexes = [models.Index(fields=["status", "position", "next_due_date", "predicted_crossing", "drift_status",
+                                        "last_in_tolerance", "risk_severity"], name="device_review_idx")]
 
     def __str__(self):
         return self.tag or self.device_label

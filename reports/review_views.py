@@ -3,7 +3,9 @@ from django.core.paginator import Paginator
 from django.http import HttpResponse
 from django.shortcuts import render
 from django.utils.functional import cached_property
+from django.db.models import QuerySet
 from django_tables2 import RequestConfig
+from django_tables2.rows import BoundRows
 
 from plant import spreadsheet
 from reports import review
@@ -11,7 +13,12 @@ from reports.forms import ReviewFilterForm
 
 
 class CountedPaginator(Paginator):
-    """A paginator told its count: the review counts all its lists in one query beforehand."""
+    """A paginator told its count (the review counts all its lists in one query beforehand) that reads a page
+    in two steps: the page's ids in the list's order, then those rows whole.
+
+    Sorting every matching row with all its columns (and the tables it is joined to) only to keep ten is what
+    made the page slow at 20,000 devices; the ids come from the review indexes alone.
+    """
 
     def __init__(self, object_list, per_page, known_count=None, **kwargs):
         super().__init__(object_list, per_page, **kwargs)
@@ -20,6 +27,19 @@ class CountedPaginator(Paginator):
     @cached_property
     def count(self):
         return super().count if self.known_count is None else self.known_count
+
+    def page(self, number):
+        number = self.validate_number(number)
+        bottom = (number - 1) * self.per_page
+        top = bottom + self.per_page
+        if top + self.orphans >= self.count:
+            top = self.count
+        rows = self.object_list  # the table's BoundRows
+        queryset = getattr(rows.data, "data", None)
+        if not isinstance(queryset, QuerySet):
+            return super().page(number)
+        records = review.page_of(queryset, bottom, top)
+        return self._get_page(BoundRows(records, table=rows.table, pinned_data=rows.pinned_data), number, self)
 
 
 def _buckets(request):
