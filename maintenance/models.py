@@ -56,7 +56,8 @@ class MaintenanceTask(models.Model):
         indexes = [models.Index(fields=["next_due_date"], condition=models.Q(active=True),
                                 name="maint_task_due_idx"),
                    # the review joins tasks to installed devices: this answers it without reading the task rows
-                   models.Index(fields=["meter", "active", "next_due_date", "code"], name="maint_task_meter_due_idx")]
+                   models.Index(fields=["meter", "active", "next_due_date", "code"], include=["id"],
+                                name="maint_task_meter_due_idx")]
         permissions = [("review_maintenance", "Can add, change and retire maintenance tasks")]
 
     def __str__(self):

@@ -370,10 +370,13 @@ class Meter(models.Model):
         ordering = ["position__tag", "serial", "pk"]
         permissions = [("swap_device", "Can install, remove and swap devices at positions")]
         # The review's counts and page reads are answered from this index alone, without reading the device rows
-        # (wide with their due rationale): status and position pick the installed devices, the rest are the
-        # stored fields each review list tests.
+        # (wide with their due rationale): status and position pick the installed devices, then the stored fields
+        # each review list tests, and the principle the page may be filtered by.
+        # (PostgreSQL keeps the id in the index too, so that its index-only scans can count and join by it;
+        # SQLite's indexes carry the row id already.)
         indexes = [models.Index(fields=["status", "position", "next_due_date", "predicted_crossing", "drift_status",
-                                        "last_in_tolerance", "risk_severity"], name="device_review_idx")]
+                                        "last_in_tolerance", "risk_severity", "principle"], include=["id"],
+                                name="device_review_idx")]
 
     def __str__(self):
         return self.tag or self.device_label
