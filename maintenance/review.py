@@ -4,20 +4,12 @@ import datetime as dt
 
 from django.db.models import Count, Q
 
-LOOKUPS = {"site": "meter__position__area__site", "area": "meter__position__area", "principle": "meter__principle",
-           "fluid": "meter__position__fluid"}
-
 
 def tasks_in_service(filters: dict):
     from maintenance.models import MaintenanceTask
-    from plant.models import Meter
+    from reports.review import installed
 
-    qs = MaintenanceTask.objects.filter(active=True, meter__status=Meter.Status.IN_SERVICE,
-                                         meter__position__isnull=False)
-    for name, value in filters.items():
-        if value not in (None, "") and name in LOOKUPS:
-            qs = qs.filter(**{LOOKUPS[name]: value})
-    return qs
+    return MaintenanceTask.objects.filter(installed(filters, via="meter__"), active=True)
 
 
 def buckets(filters: dict, days: int, today: dt.date):

@@ -32,13 +32,29 @@ DEVICE_LOOKUPS = {"site": "position__area__site", "area": "position__area", "pri
                   "fluid": "position__fluid"}
 
 
-def registered(filters: dict):
-    """Devices installed at positions, narrowed by the page's filters (site, area, principle, fluid)."""
-    qs = Meter.objects.filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
+def installed(filters: dict, via: str = "") -> Q:
+    """Devices installed at positions, narrowed by the page's filters (site, area, principle, fluid).
+
+    ``via`` is the path from the rows filtered to their device: "" for devices, "meter__" for calibrations and
+    maintenance tasks (joined, so the database need not list every installed device first)."""
+    condition = Q(**{f"{via}status": Meter.Status.IN_SERVICE, f"{via}position__isnull": False})
     for name, value in filters.items():
         if value not in (None, ""):
-            qs = qs.filter(**{DEVICE_LOOKUPS[name]: value})
-    return qs
+            condition &= Q(**{via + DEVICE_LOOKUPS[name]: value})
+    return condition
+
+
+def on_shelf(filters: dict, via: str = "") -> Q:
+    """Spare devices (the principle filter applies; a spare has no site, area or fluid of its own)."""
+    condition = Q(**{f"{via}position__isnull": True, f"{via}status": Meter.Status.SPARE})
+    if filters.get("principle") not in (None, ""):
+        condition &= Q(**{f"{via}principle": filters["principle"]})
+    return condition
+
+
+def registered(filters: dict):
+    """The installed devices in the page's scope."""
+    return Meter.objects.filter(installed(filters))
 
 
 def in_service(filters: dict):
@@ -99,11 +115,8 @@ def standards_expiring(today, days):
 
 
 def spares(filters: dict):
-    """Devices on the shelf (the principle filter applies; a spare has no site, area or fluid of its own)."""
-    qs = Meter.objects.filter(position__isnull=True, status=Meter.Status.SPARE)
-    if filters.get("principle") not in (None, ""):
-        qs = qs.filter(principle=filters["principle"])
-    return qs
+    """Devices on the shelf in the page's scope."""
+    return Meter.objects.filter(on_shelf(filters))
 
 
 def spares_overdue(filters: dict, today):
@@ -126,15 +139,9 @@ def vacant_positions(filters: dict):
 
 def unsigned_drafts(filters: dict):
     # joined to the few drafts, not "meter in (every installed device)": the drafts index decides the plan
-    wanted = Q(meter__status=Meter.Status.IN_SERVICE, meter__position__isnull=False)
-    for name, value in filters.items():
-        if value not in (None, ""):
-            wanted &= Q(**{f"meter__{DEVICE_LOOKUPS[name]}": value})
+    wanted = installed(filters, via="meter__")
     if not any(filters.get(k) not in (None, "") for k in ("site", "area", "fluid")):
-        on_bench = Q(meter__status=Meter.Status.SPARE, meter__position__isnull=True)
-        if filters.get("principle") not in (None, ""):
-            on_bench &= Q(meter__principle=filters["principle"])
-        wanted |= on_bench
+        wanted |= on_shelf(filters, via="meter__")
     return (CalibrationEvent.objects.filter(wanted, state=CalibrationEvent.State.DRAFT)
             .select_related("meter__position"))
 
