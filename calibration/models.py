@@ -8,16 +8,21 @@ import math
 import random
 import time
 
+from django.apps import apps
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MinValueValidator
 from django.db import OperationalError, models, transaction
+from django.db.models.signals import m2m_changed, post_save
+from django.dispatch import receiver
 from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty, units
-from plant.models import Fluid, Meter, Position, number_or_none
+from plant import citations
+from plant.citations import CitedQuerySet, ProtectedWhileCited
+from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, number_or_none
 
 # What the tablet form can supply for a conversion between a standard's units and a meter's
 # (calibration.units.conversion_needs): the fluid density at the calibration. A pair that needs more (line
@@ -40,7 +45,7 @@ class SignedRecordError(Exception):
     """Raised on any attempt to change or delete a signed calibration record."""
 
 
-class ReferenceStandard(models.Model):
+class ReferenceStandard(ProtectedWhileCited, models.Model):
     class UncertaintyBasis(models.TextChoices):
         PERCENT_READING = "pct_reading", "% of reading"
         ABSOLUTE = "absolute", "absolute (flow units)"
@@ -64,6 +69,8 @@ class ReferenceStandard(models.Model):
                              help_text="blank: not tied to one phase")
     withdrawn = models.BooleanField("withdrawn from use", default=False)
     history = HistoricalRecords()
+
+    objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["identification"]
@@ -150,26 +157,79 @@ class ReferenceStandard(models.Model):
 
 
 class LockedQuerySet(models.QuerySet):
-    """Refuses bulk update/delete that would touch a signed record."""
+    """Refuses bulk update/delete that would touch a signed record, and an update that would move rows into
+    one (`parent`: the foreign key to the signed record, for the rows that belong to one)."""
 
     signed_lookup = "state"
+    parent = None
+    record_model = "calibration.CalibrationEvent"  # the signed record (its state "signed" locks it)
+    changed_message = "Signed calibration records cannot be changed."
+    deleted_message = "Signed calibration records cannot be deleted."
 
     def _touches_signed(self):
-        return self.filter(**{self.signed_lookup: CalibrationEvent.State.SIGNED}).exists()
+        return self.filter(**{self.signed_lookup: "signed"}).exists()
+
+    def _moves_into_signed(self, kwargs):
+        target = kwargs.get(self.parent, kwargs.get(f"{self.parent}_id")) if self.parent else None
+        return target is not None and apps.get_model(self.record_model)._base_manager.filter(
+            pk=getattr(target, "pk", target), state="signed").exists()
 
     def update(self, **kwargs):
-        if self._touches_signed():
-            raise SignedRecordError("Signed calibration records cannot be changed.")
+        if self._touches_signed() or self._moves_into_signed(kwargs):
+            raise SignedRecordError(self.changed_message)
         return super().update(**kwargs)
 
     def delete(self):
         if self._touches_signed():
-            raise SignedRecordError("Signed calibration records cannot be deleted.")
+            raise SignedRecordError(self.deleted_message)
         return super().delete()
 
 
 class PointQuerySet(LockedQuerySet):
     signed_lookup = "event__state"
+    parent = "event"
+
+
+class StandardLinkQuerySet(LockedQuerySet):
+    signed_lookup = "calibrationevent__state"
+    parent = "calibrationevent"
+    changed_message = deleted_message = "The reference standards of a signed calibration cannot be changed."
+
+
+def history_model_name(name):
+    """The audit trail's model names: the links' history keeps the name (and table) it had before StandardLink
+    was a model of its own."""
+    return "HistoricalCalibrationEvent_reference_standards" if name == "StandardLink" else f"Historical{name}"
+
+
+class StandardLink(models.Model):
+    """A reference standard used by a calibration: the table behind CalibrationEvent.reference_standards (the
+    one Django made for it before, same table and columns). A model of its own so that its rows are locked like
+    the event's: the standards of a signed calibration are neither removed nor re-pointed, whether through the
+    event's or the standard's link manager (`refuse_relinking_signed`), a query on this table or a save."""
+
+    calibrationevent = models.ForeignKey("calibration.CalibrationEvent", on_delete=models.CASCADE, related_name="+")
+    referencestandard = models.ForeignKey(ReferenceStandard, on_delete=models.CASCADE, related_name="+")
+
+    objects = StandardLinkQuerySet.as_manager()
+
+    class Meta:
+        db_table = "calibration_calibrationevent_reference_standards"
+        unique_together = [("calibrationevent", "referencestandard")]
+
+    def _signed(self, event_id):
+        return CalibrationEvent.objects.filter(pk=event_id, state=CalibrationEvent.State.SIGNED).exists()
+
+    def save(self, *args, **kwargs):
+        stored = StandardLink.objects.filter(pk=self.pk).values_list("calibrationevent_id", flat=True).first()
+        if any(event_id and self._signed(event_id) for event_id in {stored, self.calibrationevent_id}):
+            raise SignedRecordError(StandardLinkQuerySet.changed_message)
+        super().save(*args, **kwargs)
+
+    def delete(self, *args, **kwargs):
+        if self._signed(self.calibrationevent_id):
+            raise SignedRecordError(StandardLinkQuerySet.deleted_message)
+        return super().delete(*args, **kwargs)
 
 
 class CalibrationEvent(models.Model):
@@ -203,7 +263,7 @@ class CalibrationEvent(models.Model):
     deviations = models.TextField("deviations from the method", blank=True)
     # each reference standard as it was at sign-off (ReferenceStandard.snapshot); certificates print this
     standards_snapshot = models.JSONField(default=list, blank=True)
-    reference_standards = models.ManyToManyField(ReferenceStandard, related_name="events")
+    reference_standards = models.ManyToManyField(ReferenceStandard, related_name="events", through=StandardLink)
     procedure = models.TextField("method / procedure")
     ambient_temp_c = models.FloatField("ambient temperature (°C)", null=True, blank=True)
     fluid_temp_c = models.FloatField("fluid temperature (°C)", null=True, blank=True)
@@ -232,7 +292,7 @@ class CalibrationEvent(models.Model):
                                    related_name="calibrations_entered")
     # the id a tablet gave the entry while offline; unique, so a repeated or interrupted send adds nothing twice
     client_id = models.UUIDField(null=True, blank=True, unique=True, editable=False)
-    history = HistoricalRecords(m2m_fields=[reference_standards])
+    history = HistoricalRecords(m2m_fields=[reference_standards], custom_model_name=history_model_name)
 
     objects = LockedQuerySet.as_manager()
 
@@ -535,6 +595,42 @@ class CalibrationPoint(models.Model):
         self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
 
 
+@receiver(post_save, sender=CalibrationEvent)
+def note_loaded_raw(sender, instance, raw, **kwargs):
+    """A fixture or a backup being loaded saves a signed event as it was, then sets its standards (loaddata):
+    that first setting is the record as it was signed, not a change of it."""
+    if raw:
+        instance._links_being_loaded = True
+
+
+@receiver(m2m_changed, sender=StandardLink)
+def refuse_relinking_signed(sender, instance, action, reverse, pk_set, **kwargs):
+    """add/remove/clear/set on a signed event's standards, from either side, is refused before anything moves."""
+    if action not in ("pre_add", "pre_remove", "pre_clear"):
+        return
+    if reverse:  # `instance` is a standard; pk_set holds events (None: all of the standard's, for clear)
+        events = CalibrationEvent.objects.filter(pk__in=instance.events.all() if pk_set is None else pk_set)
+        signed = list(events.filter(state=CalibrationEvent.State.SIGNED).order_by("pk").values_list("pk", flat=True))
+        if signed:
+            raise SignedRecordError(
+                f"Reference standard {instance.identification} is cited by signed "
+                f"{'calibration' if len(signed) == 1 else 'calibrations'} {', '.join(map(str, signed[:10]))}"
+                f"{' …' if len(signed) > 10 else ''}; the standards of a signed calibration cannot be changed.")
+    elif instance.pk and not (action == "pre_add" and getattr(instance, "_links_being_loaded", False)):
+        if CalibrationEvent.objects.filter(pk=instance.pk, state=CalibrationEvent.State.SIGNED).exists():
+            raise SignedRecordError(f"Calibration {instance.pk} is signed; its reference standards cannot be changed.")
+
+
+class CountersignatureQuerySet(models.QuerySet):
+    """Every countersignature is signed: no bulk update (it would re-point the signer or the event) or delete."""
+
+    def update(self, **kwargs):
+        raise SignedRecordError("A countersignature cannot be changed.")
+
+    def delete(self):
+        raise SignedRecordError("A countersignature cannot be deleted.")
+
+
 class Countersignature(models.Model):
     """A reviewer's countersignature: a separate, append-only record, so the signed event stays untouched."""
 
@@ -544,6 +640,8 @@ class Countersignature(models.Model):
     role = models.CharField(max_length=60)
     at = models.DateTimeField(default=timezone.now)
 
+    objects = CountersignatureQuerySet.as_manager()
+
     def save(self, *args, **kwargs):
         if self.pk:
             raise SignedRecordError("A countersignature cannot be changed.")
@@ -551,3 +649,28 @@ class Countersignature(models.Model):
 
     def delete(self, *args, **kwargs):
         raise SignedRecordError("A countersignature cannot be deleted.")
+
+
+# What signed calibrations and countersignatures cite (plant/citations.py) --------------------------------------------
+SIGNED_CALIBRATIONS = ("signed calibration", "signed calibrations")
+SIGNED_ONLY = {"state": CalibrationEvent.State.SIGNED}
+citations.protect(ReferenceStandard, label=lambda s: f"Reference standard {s.identification}",
+                  instead="withdraw it from use instead", action=("withdraw_from_use", "Withdraw from use"))
+for cited, lookup, noun in (
+    (ReferenceStandard, "reference_standards", SIGNED_CALIBRATIONS),
+    (Meter, "meter", SIGNED_CALIBRATIONS),
+    (Position, "position", SIGNED_CALIBRATIONS),
+    (Area, "position__area", ("signed calibration at its positions", "signed calibrations at its positions")),
+    (Site, "position__area__site", ("signed calibration at its positions", "signed calibrations at its positions")),
+    (Fluid, "position__fluid", ("signed calibration at positions on it", "signed calibrations at positions on it")),
+):
+    citations.cite(cited, citations.Citation(CalibrationEvent._meta.label, lookup, "is cited by", noun, SIGNED_ONLY))
+for cited, device_field in ((DutyPeriod, "meter"), (Installation, "device")):
+    citations.cite(cited, citations.Coverage(CalibrationEvent._meta.label, "covers the dates of", SIGNED_CALIBRATIONS,
+                                             device_field, SIGNED_ONLY))
+# the signer is the user who entered the record (the sign-off views allow no one else): signed_by keeps the name
+for lookup, verb, noun in (("performed_by", "performed", SIGNED_CALIBRATIONS),
+                           ("created_by", "entered and signed", ("calibration", "calibrations"))):
+    citations.cite(settings.AUTH_USER_MODEL, citations.Citation(CalibrationEvent._meta.label, lookup, verb, noun, SIGNED_ONLY))
+citations.cite(settings.AUTH_USER_MODEL, citations.Citation("calibration.Countersignature", "user", "countersigned",
+                                                            ("calibration", "calibrations")))

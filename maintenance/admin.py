@@ -2,6 +2,7 @@ from django.contrib import admin
 from simple_history.admin import SimpleHistoryAdmin
 
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask, WalkOrder
+from plant.admin import RefuseCitedDeletes
 
 
 class LockedWhenSigned:
@@ -32,7 +33,7 @@ class MaintenanceRecordAdmin(LockedWhenSigned, SimpleHistoryAdmin):
 
 
 @admin.register(MaintenanceTask)
-class MaintenanceTaskAdmin(SimpleHistoryAdmin):
+class MaintenanceTaskAdmin(RefuseCitedDeletes, SimpleHistoryAdmin):
     list_display = ("meter", "title", "frequency_days", "next_due_date", "origin", "active")
     list_filter = ("origin", "active", "code")
     actions = None

@@ -16,14 +16,17 @@ from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
+from calibration import models as calibration_models
 from calibration.models import SignedRecordError
 from maintenance import loop
-from plant.models import Meter, unstorable_value_errors
+from plant import citations
+from plant.citations import CitedQuerySet, ProtectedWhileCited
+from plant.models import DutyPeriod, Installation, Meter, unstorable_value_errors
 
 MAX_TASK_DAYS = 3650  # a sanity bound, as the meter's base interval
 
 
-class MaintenanceTask(models.Model):
+class MaintenanceTask(ProtectedWhileCited, models.Model):
     class Origin(models.TextChoices):
         DERIVED = "derived", "From the duty"
         REVIEWER = "reviewer", "Set by a reviewer"
@@ -50,6 +53,8 @@ class MaintenanceTask(models.Model):
     last_condition = models.CharField(max_length=20, blank=True, editable=False)
     next_due_date = models.DateField(null=True, blank=True, editable=False)
     history = HistoricalRecords(excluded_fields=["frequency_days", "last_done", "last_condition", "next_due_date"])
+
+    objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["meter", "code", "id"]
@@ -80,27 +85,17 @@ class MaintenanceTask(models.Model):
         super().save(*args, **kwargs)
 
 
-class LockedQuerySet(models.QuerySet):
-    """Refuses bulk update/delete that would touch a signed record."""
+class LockedQuerySet(calibration_models.LockedQuerySet):
+    """Refuses bulk update/delete that would touch a signed record, as for calibrations."""
 
-    signed_lookup = "state"
-
-    def _touches_signed(self):
-        return self.filter(**{self.signed_lookup: MaintenanceRecord.State.SIGNED}).exists()
-
-    def update(self, **kwargs):
-        if self._touches_signed():
-            raise SignedRecordError("Signed maintenance records cannot be changed.")
-        return super().update(**kwargs)
-
-    def delete(self):
-        if self._touches_signed():
-            raise SignedRecordError("Signed maintenance records cannot be deleted.")
-        return super().delete()
+    record_model = "maintenance.MaintenanceRecord"
+    changed_message = "Signed maintenance records cannot be changed."
+    deleted_message = "Signed maintenance records cannot be deleted."
 
 
 class PhotoQuerySet(LockedQuerySet):
     signed_lookup = "record__state"
+    parent = "record"
 
 
 class MaintenanceRecord(models.Model):
@@ -263,3 +258,20 @@ class WalkOrder(models.Model):
 
     def __str__(self):
         return f"{self.area}: {self.position}"
+
+
+# What signed maintenance records cite (plant/citations.py): a task's meter is frozen while signed records of it exist
+# (moved to another meter, the records would say the work was done on a device it was not done on)
+citations.protect(MaintenanceTask, label=lambda t: f"Maintenance task {t}", instead="retire it instead (untick Active)",
+                  frozen=("meter",))
+SIGNED_RECORDS = ("signed maintenance record", "signed maintenance records")
+SIGNED_ONLY = {"state": MaintenanceRecord.State.SIGNED}
+for cited, lookup in ((Meter, "meter"), (MaintenanceTask, "task")):
+    citations.cite(cited, citations.Citation(MaintenanceRecord._meta.label, lookup, "is cited by", SIGNED_RECORDS,
+                                             SIGNED_ONLY))
+for cited, device_field in ((DutyPeriod, "meter"), (Installation, "device")):
+    citations.cite(cited, citations.Coverage(MaintenanceRecord._meta.label, "covers the dates of", SIGNED_RECORDS,
+                                             device_field, SIGNED_ONLY))
+citations.cite(settings.AUTH_USER_MODEL, citations.Citation(
+    MaintenanceRecord._meta.label, "created_by", "entered and signed", ("maintenance record", "maintenance records"),
+    SIGNED_ONLY))

@@ -9,7 +9,8 @@ from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
 from calibration import units
-from plant import localtime, materials, risk
+from plant import citations, localtime, materials, risk
+from plant.citations import CitedQuerySet, ProtectedWhileCited
 
 UNKNOWN_MATERIAL = (
     '"%(value)s" is not on the list of wetted materials; choose one of the list (its code or name), '
@@ -43,7 +44,7 @@ def unstorable_value_errors(instance) -> dict:
     return errors
 
 
-class Site(models.Model):
+class Site(ProtectedWhileCited, models.Model):
     name = models.CharField(max_length=120, unique=True)
     address = models.TextField(blank=True)
     time_zone = models.CharField(
@@ -51,6 +52,8 @@ class Site(models.Model):
         help_text="IANA time zone name, e.g. Europe/London; blank means the plant's TIME_ZONE setting. "
                   "Today's date, due dates and date defaults for this site are taken here.",
     )
+
+    objects = CitedQuerySet.as_manager()
 
     def __str__(self):
         return self.name
@@ -72,9 +75,11 @@ class Site(models.Model):
         return localtime.today(self.time_zone)
 
 
-class Area(models.Model):
+class Area(ProtectedWhileCited, models.Model):
     site = models.ForeignKey(Site, on_delete=models.PROTECT, related_name="areas")
     name = models.CharField(max_length=120)
+
+    objects = CitedQuerySet.as_manager()
 
     class Meta:
         constraints = [models.UniqueConstraint(fields=["site", "name"], name="area_unique_per_site")]
@@ -84,7 +89,7 @@ class Area(models.Model):
         return f"{self.site.name} / {self.name}"
 
 
-class Fluid(models.Model):
+class Fluid(ProtectedWhileCited, models.Model):
     """A service duty: the fluid and the properties that decide which meters suit it."""
 
     class Phase(models.TextChoices):
@@ -119,6 +124,8 @@ class Fluid(models.Model):
     )
     notes = models.TextField(blank=True)
     history = HistoricalRecords()
+
+    objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["name"]
@@ -165,7 +172,7 @@ class Fluid(models.Model):
             Meter.objects.filter(pk__in=pks).update(risk_severity=severity)
 
 
-class Position(models.Model):
+class Position(ProtectedWhileCited, models.Model):
     """A place in the process, named by its tag: where a device is installed and the duty it serves there.
 
     The device (a `Meter`) is installed, removed and swapped through `plant.installations`; calibration and
@@ -192,6 +199,8 @@ class Position(models.Model):
         help_text="What the process needs of the measurement here; a device whose MPE is wider is flagged.",
     )
     history = HistoricalRecords()
+
+    objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["tag"]
@@ -287,7 +296,7 @@ def flows_above_range(position, device) -> dict:
     return errors
 
 
-class Meter(models.Model):
+class Meter(ProtectedWhileCited, models.Model):
     class Principle(models.TextChoices):
         ELECTROMAGNETIC = "electromagnetic", "Electromagnetic"
         CORIOLIS = "coriolis", "Coriolis"
@@ -365,6 +374,8 @@ class Meter(models.Model):
     # the position the device is installed at now; set only through plant.installations (install/remove/swap)
     position = models.OneToOneField(Position, null=True, blank=True, on_delete=models.PROTECT,
                                     related_name="device", editable=False)
+
+    objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["position__tag", "serial", "pk"]
@@ -533,7 +544,7 @@ class Meter(models.Model):
         return max(1, whole_days(self.base_interval_days * self.risk_factor()))
 
 
-class DutyPeriod(models.Model):
+class DutyPeriod(ProtectedWhileCited, models.Model):
     """Where and on what a device served, so its risk can be judged from its whole service life."""
 
     meter = models.ForeignKey(Meter, on_delete=models.CASCADE, related_name="duties")
@@ -543,6 +554,8 @@ class DutyPeriod(models.Model):
     since = models.DateField()
     until = models.DateField(null=True, blank=True)
 
+    objects = CitedQuerySet.as_manager()
+
     class Meta:
         ordering = ["meter", "-since", "-id"]
 
@@ -551,7 +564,7 @@ class DutyPeriod(models.Model):
         return f"{self.meter.device_label}: {self.fluid} at {where} from {self.since}"
 
 
-class Installation(models.Model):
+class Installation(ProtectedWhileCited, models.Model):
     """A device at a position from one date until another (open while it is there)."""
 
     device = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="installations")
@@ -567,6 +580,8 @@ class Installation(models.Model):
     starting_point = models.JSONField(default=dict, blank=True)
     history = HistoricalRecords()
 
+    objects = CitedQuerySet.as_manager()
+
     class Meta:
         ordering = ["position__tag", "-since", "-id"]
         constraints = [
@@ -579,3 +594,25 @@ class Installation(models.Model):
     def __str__(self):
         until = self.until or "now"
         return f"{self.device.device_label} at {self.position.tag} {self.since} – {until}"
+
+
+# What the register keeps while signed records cite it (plant/citations.py; the citing records are declared by the
+# calibration and maintenance apps). A duty period or an installation says where and on what a device served on the
+# dates of its signed records (the certificate reads the fluid served that day from the duty history): its device,
+# place and start stay fixed; closing it (until) is how a device moves and stays allowed.
+STAYS = "it stays in the register with them"
+citations.protect(Site, label=lambda s: f"Site {s.name}", instead=STAYS)
+citations.protect(Area, label=lambda a: f"Area {a}", instead=STAYS)
+citations.protect(Fluid, label=lambda f: f"Fluid {f.name}", instead=STAYS)
+citations.protect(Position, label=lambda p: f"Position {p.tag}", instead=f"{STAYS} as the place they were made")
+citations.protect(Meter, label=lambda m: f"Device S/N {m.serial}" if m.serial else f"Device #{m.pk}",
+                  instead=f"{STAYS}; take it out of service instead")
+citations.protect(DutyPeriod, label=lambda d: f"Duty period {d}", instead="it stays in the device's duty history",
+                  frozen=("meter", "position", "area", "fluid", "since"))
+citations.protect(Installation, label=lambda i: f"Installation {i}",
+                  instead="it stays in the device's installation history", frozen=("device", "position", "since"))
+# users: every link from a signed record to a user is a PROTECT foreign key, so Django refuses the delete itself;
+# this gives the admin the sentence and the alternative
+citations.protect(settings.AUTH_USER_MODEL,
+                  label=lambda u: f"User {u.get_username()}" + (f" ({u.get_full_name()})" if u.get_full_name() else ""),
+                  instead="deactivate the account instead", action=("deactivate_accounts", "Deactivate"))
