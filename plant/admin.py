@@ -29,7 +29,8 @@ class RefuseCitedInlineDeletes(BaseInlineFormSet):
 
     def clean(self):
         super().clean()
-        ticked = [form.instance for form in self.deleted_forms if form.instance.pk is not None]
+        ticked = [form.instance for form in self.forms
+                  if self.can_delete and self._should_delete_form(form) and form.instance.pk is not None]
         refused = citations.refusals(ticked)
         if refused:
             raise ValidationError(list(refused))

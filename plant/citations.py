@@ -20,7 +20,6 @@ RS-07 is cited by 216 signed calibrations; withdraw it from use instead."
 from __future__ import annotations
 
 import datetime as dt
-
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -84,8 +83,8 @@ class Citation:
 
 @dataclass(frozen=True)
 class Coverage:
-    """Signed records of a device dated within a period of its history (a duty period, an installation): the
-    period says where and on what the device served on those dates."""
+    """Signed records of a device (`meter`) dated (`performed_on`) within a period of its history (a duty period,
+    an installation): the period says where and on what the device served on those dates."""
 
     record: str
     verb: str

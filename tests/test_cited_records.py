@@ -474,6 +474,7 @@ def test_admin_offers_deactivate_for_a_user_on_signed_records(world):
     assert "Deactivated techc: they can no longer log in" in response.content.decode()
     tech.refresh_from_db()
     assert not tech.is_active and User.objects.filter(pk=tech.pk).exists()
+    assert client.get(f"/admin/auth/user/{tech.pk}/change/").status_code == 200  # the accounts admin as before
 
 
 def admin_form_data(obj, **changes):
