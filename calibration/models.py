@@ -1,7 +1,8 @@
 """Reference standards, calibration events and their points.
 
-A signed event and its points are locked at the model level: save(), delete() and queryset
-update()/delete() on signed rows raise SignedRecordError and change nothing.
+A signed event, its points and its links to reference standards are locked at the model level: save(), delete(),
+queryset update()/delete() and the link managers on signed rows raise SignedRecordError and change nothing. What
+a signed event cites is protected in turn (plant/citations.py; the declarations are at the end of this module).
 """
 import datetime as dt
 import math
@@ -671,6 +672,7 @@ for cited, device_field in ((DutyPeriod, "meter"), (Installation, "device")):
 # the signer is the user who entered the record (the sign-off views allow no one else): signed_by keeps the name
 for lookup, verb, noun in (("performed_by", "performed", SIGNED_CALIBRATIONS),
                            ("created_by", "entered and signed", ("calibration", "calibrations"))):
-    citations.cite(settings.AUTH_USER_MODEL, citations.Citation(CalibrationEvent._meta.label, lookup, verb, noun, SIGNED_ONLY))
+    citations.cite(settings.AUTH_USER_MODEL,
+                   citations.Citation(CalibrationEvent._meta.label, lookup, verb, noun, SIGNED_ONLY))
 citations.cite(settings.AUTH_USER_MODEL, citations.Citation("calibration.Countersignature", "user", "countersigned",
                                                             ("calibration", "calibrations")))

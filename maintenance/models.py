@@ -262,8 +262,8 @@ class WalkOrder(models.Model):
 
 # What signed maintenance records cite (plant/citations.py): a task's meter is frozen while signed records of it exist
 # (moved to another meter, the records would say the work was done on a device it was not done on)
-citations.protect(MaintenanceTask, label=lambda t: f"Maintenance task “{t.title}” of {t.meter}", instead="retire it instead (untick Active)",
-                  frozen=("meter",))
+citations.protect(MaintenanceTask, label=lambda t: f"Maintenance task “{t.title}” of {t.meter}",
+                  instead="retire it instead (untick Active)", frozen=("meter",))
 SIGNED_RECORDS = ("signed maintenance record", "signed maintenance records")
 SIGNED_ONLY = {"state": MaintenanceRecord.State.SIGNED}
 for cited, lookup in ((Meter, "meter"), (MaintenanceTask, "task")):

@@ -604,7 +604,8 @@ STAYS = "it stays in the register with them"
 citations.protect(Site, label=lambda s: f"Site {s.name}", instead=STAYS)
 citations.protect(Area, label=lambda a: f"Area {a}", instead=STAYS)
 citations.protect(Fluid, label=lambda f: f"Fluid {f.name}", instead=STAYS)
-citations.protect(Position, label=lambda p: f"Position {p.tag}", instead="it stays in the register as the place they were made")
+citations.protect(Position, label=lambda p: f"Position {p.tag}",
+                  instead="it stays in the register as the place they were made")
 citations.protect(Meter, label=lambda m: f"Device S/N {m.serial}" if m.serial else f"Device #{m.pk}",
                   instead="take it out of service instead")
 citations.protect(DutyPeriod, label=lambda d: f"Duty period {d}", instead="it stays in the device's duty history",

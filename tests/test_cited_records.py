@@ -462,7 +462,8 @@ def test_admin_offers_withdraw_instead_and_withdraws(world):
     standard.refresh_from_db()
     assert standard.withdrawn and list(StandardLink.objects.values()) == before_links
     assert standard.history.first().withdrawn  # the withdrawal is in the audit trail
-    assert "Withdraw the selected standards from use" in client.get("/admin/calibration/referencestandard/").content.decode()
+    changelist = client.get("/admin/calibration/referencestandard/").content.decode()
+    assert "Withdraw the selected standards from use" in changelist
 
 
 def test_admin_offers_deactivate_for_a_user_on_signed_records(world):
