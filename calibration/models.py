@@ -17,6 +17,8 @@ from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty, units
+from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
+from ledger import chain
 from plant.models import Fluid, Meter, Position, number_or_none
 
 # What the tablet form can supply for a conversion between a standard's units and a meter's
@@ -38,6 +40,14 @@ FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
 
 class SignedRecordError(Exception):
     """Raised on any attempt to change or delete a signed calibration record."""
+
+
+def signature_errors(record):
+    """A record in the signed state names who signed it and when (sign() sets both; a restore checks them)."""
+    if record.state != "signed":
+        return {}
+    missing = [name for name in ("signed_by", "signed_at") if not getattr(record, name)]
+    return {name: "A signed record must say who signed it and when." for name in missing}
 
 
 class ReferenceStandard(models.Model):
@@ -267,6 +277,7 @@ class CalibrationEvent(models.Model):
             errors["performed_on"] = "The date of calibration is in the future."
         if self.contractor and self.performed_by_id:
             errors["contractor"] = "Work is performed either by the logged-in technician or by an outside contractor, not both."
+        errors.update(signature_errors(self))
         if errors:
             raise ValidationError(errors)
 
@@ -428,6 +439,7 @@ class CalibrationEvent(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(CalibrationEvent, fresh).save()
+            chain.append(CALIBRATION.name, fresh.pk)  # sealed as signed, in the same transaction
             from calibration.fleet import recompute_due_dates
 
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
@@ -547,7 +559,9 @@ class Countersignature(models.Model):
     def save(self, *args, **kwargs):
         if self.pk:
             raise SignedRecordError("A countersignature cannot be changed.")
-        super().save(*args, **kwargs)
+        with transaction.atomic():
+            super().save(*args, **kwargs)
+            chain.append(COUNTERSIGNATURE.name, self.pk)
 
     def delete(self, *args, **kwargs):
         raise SignedRecordError("A countersignature cannot be deleted.")

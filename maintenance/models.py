@@ -16,8 +16,10 @@ from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
-from calibration.models import SignedRecordError
+from calibration.models import SignedRecordError, signature_errors
+from ledger import chain
 from maintenance import loop
+from maintenance.ledger_kinds import MAINTENANCE
 from plant.models import Meter, unstorable_value_errors
 
 MAX_TASK_DAYS = 3650  # a sanity bound, as the meter's base interval
@@ -159,6 +161,7 @@ class MaintenanceRecord(models.Model):
         if (isinstance(self.performed_on, dt.date) and self._state.adding
                 and self.performed_on > timezone.localdate() + dt.timedelta(days=1)):
             errors["performed_on"] = "The date of the work is in the future."
+        errors.update(signature_errors(self))
         if errors:
             raise ValidationError(errors)
 
@@ -192,6 +195,7 @@ class MaintenanceRecord(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(MaintenanceRecord, fresh).save()
+            chain.append(MAINTENANCE.name, fresh.pk)  # sealed as signed, with its photos, in the same transaction
             from calibration.fleet import recompute_due_dates
 
             # the calibration recompute refreshes this meter's maintenance due dates first (maintenance.fleet)
