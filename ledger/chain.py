@@ -105,8 +105,10 @@ def seal_unsealed(how, models_registry=None):
                 model = reg.get_model(kind.model)
             except LookupError:  # a kind whose model does not exist yet at this migration
                 continue
-            layouts[kind.name] = _layout_row(kind, Layout, reg)
-            order += _unsealed(kind, model, Entry)
+            unsealed = _unsealed(kind, model, Entry)
+            if unsealed:
+                layouts[kind.name] = _layout_row(kind, Layout, reg)
+                order += unsealed
         order.sort()
         for start in range(0, len(order), content.BATCH):
             batch = order[start:start + content.BATCH]
