@@ -87,7 +87,7 @@ def append(kind_name, record_id, models_registry=None):
 
 def _unsealed(kind, model, Entry):
     sealed = set(Entry._base_manager.filter(kind=kind.name).values_list("record_id", flat=True))
-    rows = model._base_manager.filter(**kind.signed).values_list(kind.signed_at, "pk")
+    rows = model._base_manager.filter(**kind.signed).order_by().values_list(kind.signed_at, "pk")
     return [(at is None, at or EPOCH, kind.name, pk) for at, pk in rows if pk not in sealed]
 
 

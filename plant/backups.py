@@ -227,8 +227,10 @@ def _check_links(path, loaded):
             if not field.is_relation or field.many_to_many:
                 continue
             target = field.related_model
-            named = (model._base_manager.exclude(**{f"{field.attname}__isnull": True})
-                     .exclude(**{f"{field.attname}__in": target._base_manager.values(field.target_field.attname)}))
+            # ordered by the key alone: a default ordering through the link would join it and hide the orphans
+            named = (model._base_manager.order_by("pk").exclude(**{f"{field.attname}__isnull": True})
+                     .exclude(**{f"{field.attname}__in": target._base_manager.order_by()
+                                 .values(field.target_field.attname)}))
             bad = named.values_list("pk", field.attname).first()
             if bad is not None:
                 raise RestoreError(f"{_where(path, model._meta.label_lower, bad[0], field.name)}: it names "
@@ -359,19 +361,19 @@ def restore(path):
                 chain.seal_unsealed(f"on restoring {Path(path).name}, a backup written before the record chain")
             problems, _ = chain.verify_and_record()
             if problems:
-                raise RestoreError("\n".join(f"{path}: {_named(p)}" for p in problems[:MAX_REPORTED]))
+                raise RestoreError("\n".join(_named(path, p) for p in problems[:MAX_REPORTED]))
     except BaseException:
         written.remove()
         raise
     return len(rows)
 
 
-def _named(problem):
-    """A verification problem with the record's model and key beside its kind and id."""
+def _named(path, problem):
+    """A verification problem as a refusal: the file, the record's model and key, then what is wrong."""
     kind = registry.kinds().get(problem.kind)
     if kind is None or problem.record_id is None:
-        return problem.text
-    return f"{problem.text} (record {kind.model.lower()} {problem.record_id})"
+        return f"{path}: {problem.text}"
+    return f"{_where(path, kind.model.lower(), problem.record_id)}: {problem.text}"
 
 
 def _reset_sequences(loaded):
