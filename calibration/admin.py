@@ -28,6 +28,8 @@ class CalibrationEventAdmin(LockedWhenSigned, admin.ModelAdmin):
     list_filter = ("state", "reason")
     inlines = [PointInline]
     actions = None  # no bulk delete of calibration records
+    # signing is sign()'s alone (its checks, and the record chain in the same transaction)
+    readonly_fields = ("state", "signed_by", "signed_role", "signed_at")
 
 
 @admin.register(ReferenceStandard)

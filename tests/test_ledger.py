@@ -379,3 +379,15 @@ def test_calibration_maintenance_and_countersignature_at_once_chain_as_one(setti
         expected += [("calibration", calibration.pk), ("maintenance", record.pk),
                      ("countersignature", Countersignature.objects.get(event=event).pk)]
     assert_one_chain(expected)
+
+
+def test_the_admin_cannot_sign_past_sign_off(world):
+    """Signing is sign()'s alone: the admin shows the signature fields of a draft but cannot set them."""
+    admin = Client()
+    admin.force_login(user_with_role("administrator", "admin-l"))
+    for url in (f"/admin/calibration/calibrationevent/{world['draft'].pk}/change/",
+                f"/admin/maintenance/maintenancerecord/{draft_maintenance(world['meter'], world['tech']).pk}/change/"):
+        page = admin.get(url)
+        assert page.status_code == 200
+        body = page.content.decode()
+        assert 'name="state"' not in body and 'name="signed_by"' not in body and 'name="signed_at' not in body
