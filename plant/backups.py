@@ -104,15 +104,15 @@ def safe_name(name):
 # Backup -------------------------------------------------------------------------------------------------------
 def write_backup(path, warn=lambda text: None):
     """Write the archive to `path` (through a temporary file, so that a failed backup leaves no half archive).
-    Returns (records, files). A file a record names that is missing on disk is reported through `warn` and left
-    out: the restore then names that record."""
+    Returns (bytes of data, files). A file a record names that is missing on disk is reported through `warn` and
+    left out: the restore then names that record."""
     path = Path(path)
     files = 0
     with tempfile.TemporaryDirectory() as scratch:
         data = Path(scratch) / DATA
         call_command("dumpdata", format="exact-json", natural_foreign=True, exclude=EXCLUDED, indent=1,
                      output=str(data), verbosity=0)
-        records = len(json.loads(data.read_text(encoding="utf-8")))
+        size = data.stat().st_size
         partial = path.with_name(path.name + ".part")
         with zipfile.ZipFile(partial, "w", compression=zipfile.ZIP_DEFLATED) as archive:
             archive.write(data, DATA)
@@ -125,7 +125,7 @@ def write_backup(path, warn=lambda text: None):
                     warn(f"The file {name} of {label} {pk} (field {field.name}) is missing from MEDIA_ROOT; "
                          "the backup is written without it.")
         os.replace(partial, path)
-    return records, files
+    return size, files
 
 
 # Restore ------------------------------------------------------------------------------------------------------
@@ -272,6 +272,7 @@ def _files_of(path, rows, archive):
     """{file name: (label, pk, field)} of every file the rows name; each must be in the archive (a plain-JSON
     backup: in MEDIA_ROOT already)."""
     wanted = {}
+    members = set(archive.namelist()) if archive is not None else set()
     for row in rows:
         model = apps.get_model(row["model"])
         for field in file_fields(model):
@@ -282,7 +283,7 @@ def _files_of(path, rows, archive):
             if not safe_name(name):
                 raise RestoreError(f"{where}: the file name {name!r} is not a plain path inside the media folder.")
             if archive is not None:
-                if MEDIA + name not in archive.NameToInfo:
+                if MEDIA + name not in members:
                     raise RestoreError(f"{where}: the file {name} is not in the backup.")
                 if default_storage.exists(name):
                     raise RestoreError(f"{where}: the file {name} is already in the media folder "
@@ -331,19 +332,23 @@ def restore(path):
         raise RestoreError(f"The database is not empty (it holds rows in {', '.join(held[:8])}"
                            f"{' and more' if len(held) > 8 else ''}): restore only into a new, migrated database.")
     rows, archive = _read(path)
+    with archive or contextlib.nullcontext():
+        return _restore(path, rows, archive)
+
+
+def _restore(path, rows, archive):
     has_chain = any(r["model"] == "ledger.ledgerhead" for r in rows)
     if archive is not None and not has_chain:
         raise RestoreError(f"{path} holds no record chain (ledger.ledgerhead): its signed records cannot be "
                            "verified, so it is refused.")
     written = _Written()
     try:
-        with archive or contextlib.nullcontext():
-            for name, where in _files_of(path, rows, archive).items():
-                if archive is not None:
-                    try:
-                        written.write(name, archive.read(MEDIA + name))
-                    except (zipfile.BadZipFile, zlib.error, EOFError) as exc:
-                        raise RestoreError(f"{where}: the file {name} is damaged in the backup ({exc}).")
+        for name, where in _files_of(path, rows, archive).items():
+            if archive is not None:
+                try:
+                    written.write(name, archive.read(MEDIA + name))
+                except (zipfile.BadZipFile, zlib.error, EOFError) as exc:
+                    raise RestoreError(f"{where}: the file {name} is damaged in the backup ({exc}).")
         # The backup carries the audit trail itself; recording the restore's own writes (the many-to-many links
         # are set through the ORM) would add history rows that never happened.
         with transaction.atomic(), override_settings(SIMPLE_HISTORY_ENABLED=False):

@@ -13,5 +13,6 @@ class Command(BaseCommand):
         parser.add_argument("path")
 
     def handle(self, *args, path, **options):
-        records, files = backups.write_backup(path, warn=lambda text: self.stderr.write(self.style.WARNING(text)))
-        self.stdout.write(self.style.SUCCESS(f"Backup written to {path}: {records} records, {files} files."))
+        size, files = backups.write_backup(path, warn=lambda text: self.stderr.write(self.style.WARNING(text)))
+        self.stdout.write(self.style.SUCCESS(f"Backup written to {path}: {size / 1e6:.1f} MB of records and "
+                                             f"{files} files."))
