@@ -439,10 +439,12 @@ class CalibrationEvent(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(CalibrationEvent, fresh).save()
-            chain.append(CALIBRATION.name, fresh.pk)  # sealed as signed, in the same transaction
             from calibration.fleet import recompute_due_dates
 
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+            # sealed in the record chain as stored now, in the same transaction: keep this the last write of the
+            # sign-off, after anything written to the event or its points
+            chain.append(CALIBRATION.name, fresh.pk)
         # take the signed values from `fresh` rather than reading them back: a read here could itself meet a lock,
         # and a retry after a committed sign-off would wrongly report "already signed"
         for field in self._meta.concrete_fields:

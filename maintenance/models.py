@@ -195,11 +195,12 @@ class MaintenanceRecord(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(MaintenanceRecord, fresh).save()
-            chain.append(MAINTENANCE.name, fresh.pk)  # sealed as signed, with its photos, in the same transaction
             from calibration.fleet import recompute_due_dates
 
             # the calibration recompute refreshes this meter's maintenance due dates first (maintenance.fleet)
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+            # sealed in the record chain with its photos, in the same transaction: keep this the last write
+            chain.append(MAINTENANCE.name, fresh.pk)
         self.refresh_from_db()
         return self
 
