@@ -29,6 +29,8 @@ class CalibrationEventAdmin(LockedWhenSigned, admin.ModelAdmin):
     list_filter = ("state", "reason")
     inlines = [PointInline]
     actions = None  # no bulk delete of calibration records
+    # signing is sign()'s alone (its checks, and the record chain in the same transaction)
+    readonly_fields = ("state", "signed_by", "signed_role", "signed_at")
 
     def formfield_for_manytomany(self, db_field, request, **kwargs):
         # the admin leaves out a link with a through model of its own; StandardLink holds nothing but the link

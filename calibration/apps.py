@@ -6,6 +6,10 @@ class CalibrationConfig(AppConfig):
     name = "calibration"
 
     def ready(self):
+        from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
+        from ledger import registry
         from plant.roles import ensure_roles
 
         post_migrate.connect(ensure_roles, sender=self)
+        registry.register(CALIBRATION)  # signed calibrations and countersignatures are sealed in the ledger
+        registry.register(COUNTERSIGNATURE)

@@ -21,6 +21,8 @@ from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import decision, errors, uncertainty, units
+from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
+from ledger import chain
 from plant import citations
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, number_or_none
@@ -44,6 +46,14 @@ FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
 
 class SignedRecordError(Exception):
     """Raised on any attempt to change or delete a signed calibration record."""
+
+
+def signature_errors(record):
+    """A record in the signed state names who signed it and when (sign() sets both; a restore checks them)."""
+    if record.state != "signed":
+        return {}
+    missing = [name for name in ("signed_by", "signed_at") if not getattr(record, name)]
+    return {name: "A signed record must say who signed it and when." for name in missing}
 
 
 class ReferenceStandard(ProtectedWhileCited, models.Model):
@@ -328,6 +338,7 @@ class CalibrationEvent(models.Model):
             errors["performed_on"] = "The date of calibration is in the future."
         if self.contractor and self.performed_by_id:
             errors["contractor"] = "Work is performed either by the logged-in technician or by an outside contractor, not both."
+        errors.update(signature_errors(self))
         if errors:
             raise ValidationError(errors)
 
@@ -492,6 +503,9 @@ class CalibrationEvent(models.Model):
             from calibration.fleet import recompute_due_dates
 
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+            # sealed in the record chain as stored now, in the same transaction: keep this the last write of the
+            # sign-off, after anything written to the event or its points
+            chain.append(CALIBRATION.name, fresh.pk)
         # take the signed values from `fresh` rather than reading them back: a read here could itself meet a lock,
         # and a retry after a committed sign-off would wrongly report "already signed"
         for field in self._meta.concrete_fields:
@@ -646,7 +660,9 @@ class Countersignature(models.Model):
     def save(self, *args, **kwargs):
         if self.pk:
             raise SignedRecordError("A countersignature cannot be changed.")
-        super().save(*args, **kwargs)
+        with transaction.atomic():
+            super().save(*args, **kwargs)
+            chain.append(COUNTERSIGNATURE.name, self.pk)
 
     def delete(self, *args, **kwargs):
         raise SignedRecordError("A countersignature cannot be deleted.")

@@ -30,6 +30,8 @@ class MaintenanceRecordAdmin(LockedWhenSigned, SimpleHistoryAdmin):
     list_filter = ("state", "condition")
     inlines = [PhotoInline]
     actions = None  # no bulk delete of maintenance records
+    # signing is sign()'s alone (the record chain is written in the same transaction)
+    readonly_fields = ("state", "signed_by", "signed_role", "signed_at")
 
 
 @admin.register(MaintenanceTask)

@@ -8,10 +8,13 @@ class MaintenanceConfig(AppConfig):
     def ready(self):
         from django.db.models.signals import post_migrate
 
+        from ledger import registry
         from maintenance import signals  # noqa: F401  (registers the receivers)
+        from maintenance.ledger_kinds import MAINTENANCE
         from maintenance.offline_kind import MaintenanceKind
         from offline import kinds
         from plant.roles import ensure_roles
 
         post_migrate.connect(ensure_roles, sender=self)
         kinds.register(MaintenanceKind())  # maintenance records can be kept on a tablet offline
+        registry.register(MAINTENANCE)  # signed maintenance records are sealed in the ledger

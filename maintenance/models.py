@@ -17,8 +17,10 @@ from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
 from calibration import models as calibration_models
-from calibration.models import SignedRecordError
+from calibration.models import SignedRecordError, signature_errors
+from ledger import chain
 from maintenance import loop
+from maintenance.ledger_kinds import MAINTENANCE
 from plant import citations
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 from plant.models import DutyPeriod, Installation, Meter, unstorable_value_errors
@@ -154,6 +156,7 @@ class MaintenanceRecord(models.Model):
         if (isinstance(self.performed_on, dt.date) and self._state.adding
                 and self.performed_on > timezone.localdate() + dt.timedelta(days=1)):
             errors["performed_on"] = "The date of the work is in the future."
+        errors.update(signature_errors(self))
         if errors:
             raise ValidationError(errors)
 
@@ -191,6 +194,8 @@ class MaintenanceRecord(models.Model):
 
             # the calibration recompute refreshes this meter's maintenance due dates first (maintenance.fleet)
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+            # sealed in the record chain with its photos, in the same transaction: keep this the last write
+            chain.append(MAINTENANCE.name, fresh.pk)
         self.refresh_from_db()
         return self
 

@@ -26,6 +26,7 @@ INSTALLED_APPS = [
     "django_filters",
     "simple_history",
     "axes",
+    "ledger",  # before the apps whose records it seals; its loaddata seals the signed records a fixture brings
     "plant",
     "calibration",
     "reports",

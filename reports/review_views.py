@@ -7,6 +7,7 @@ from django.db.models import QuerySet
 from django_tables2 import RequestConfig
 from django_tables2.rows import BoundRows
 
+from ledger.models import VerificationRun
 from plant import spreadsheet
 from reports import review
 from reports.forms import ReviewFilterForm
@@ -64,7 +65,12 @@ def weekly_review(request):
                                          "known_count": bucket.count}).configure(table)
         shown.append((bucket, table))
     status = 400 if form.is_bound and not form.is_valid() else 200
-    return render(request, "reports/review.html", {"form": form, "buckets": shown, "days": days}, status=status)
+    # the last run of `manage.py verify_records` (or of a restore): a failure is shown above every list
+    verification = VerificationRun.objects.order_by("-at", "-id").first()
+    return render(request, "reports/review.html", {
+        "form": form, "buckets": shown, "days": days,
+        "failed_verification": verification if verification is not None and not verification.ok else None,
+    }, status=status)
 
 
 def _csv(buckets, key):

@@ -5,6 +5,7 @@ queryset, many-to-many link, form, admin page, admin bulk action, import, restor
 what cites the object. What nothing signed cites may still be deleted."""
 import datetime as dt
 import json
+import zipfile
 from contextlib import contextmanager
 
 import pytest
@@ -19,7 +20,7 @@ from django.test import Client
 from calibration.models import (CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard,
                                 SignedRecordError, StandardLink)
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
-from plant import citations, importer, installations
+from plant import backups, citations, importer, installations
 from plant.citations import CitedRecordError
 from plant.installations import commission
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
@@ -546,9 +547,11 @@ def test_loading_a_fixture_sets_a_signed_calibrations_standards_once(demo_histor
 @pytest.mark.django_db(transaction=True)  # flush truncates tables: not inside the test's own transaction
 def test_backup_and_restore_keep_the_links_and_the_locks(world, tmp_path):
     links = list(StandardLink.objects.order_by("pk").values())
-    path = tmp_path / "backup.json"
+    path = tmp_path / "backup.zip"
     call_command("backup", str(path))
-    assert any(row["model"] == "calibration.standardlink" for row in json.loads(path.read_text()))
+    with zipfile.ZipFile(path) as archive:
+        rows = json.loads(archive.read(backups.DATA))
+    assert any(row["model"] == "calibration.standardlink" for row in rows)
     call_command("flush", interactive=False, verbosity=0)
     call_command("restore", str(path))
     assert list(StandardLink.objects.order_by("pk").values()) == links

@@ -148,6 +148,9 @@ def test_make_fleet_is_realistic_and_refuses_a_second_fleet():
     assert 30 <= points.count() / 30 <= 80  # about 50 points per meter over ten years: 20,000 meters -> ~1,000,000
     assert events.order_by("performed_on").first().performed_on <= dt.date(2016, 12, 31)
     assert Meter.objects.filter(next_due_date__isnull=False).exists()  # due dates computed at the end
+    from ledger import chain
+
+    assert chain.verify() == []  # written in bulk, then sealed in the record chain (with a note saying so)
     # every stored error and decision is what the point's own computation gives
     for point in points.select_related("event__meter").order_by("pk")[:50]:
         stored = (point.error, point.expanded_uncertainty, point.decision)

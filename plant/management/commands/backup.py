@@ -1,16 +1,18 @@
-"""Write every record, keeping primary keys, (register, calibrations incl. signed ones, history, accounts) to one JSON file."""
-from django.core.management import BaseCommand, call_command
+"""Write every record (keys kept; register, calibrations incl. signed ones, the record chain, history, accounts)
+and every file the records keep under MEDIA_ROOT (maintenance photos) into one zip archive (plant.backups)."""
+from django.core.management import BaseCommand
 
-EXCLUDED = ["contenttypes", "auth.permission", "sessions", "admin.logentry"]
+from plant import backups
 
 
 class Command(BaseCommand):
-    help = "Back up the whole database to a JSON file (restore it with `manage.py restore FILE`)."
+    help = ("Back up the whole database and the files its records name (maintenance photos) to one zip archive; "
+            "restore it with `manage.py restore FILE`.")
 
     def add_arguments(self, parser):
         parser.add_argument("path")
 
     def handle(self, *args, path, **options):
-        call_command("dumpdata", natural_foreign=True, exclude=EXCLUDED, indent=1,
-                     output=path, verbosity=0)
-        self.stdout.write(self.style.SUCCESS(f"Backup written to {path}"))
+        size, files = backups.write_backup(path, warn=lambda text: self.stderr.write(self.style.WARNING(text)))
+        self.stdout.write(self.style.SUCCESS(f"Backup written to {path}: {size / 1e6:.1f} MB of records and "
+                                             f"{files} files."))

@@ -1,0 +1,8 @@
+"""The calibration records the ledger seals (ledger.registry), registered from CalibrationConfig.ready()."""
+from ledger.registry import Kind
+
+# a signed calibration: the event, its points and its reference-standard links
+CALIBRATION = Kind(name="calibration", model="calibration.CalibrationEvent", signed={"state": "signed"},
+                   parts=("points",))
+# every countersignature row is a signature: it is created signed and never changes
+COUNTERSIGNATURE = Kind(name="countersignature", model="calibration.Countersignature", signed_at="at")
