@@ -12,6 +12,7 @@ from maintenance.fleet import recompute_maintenance
 from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 from plant.models import Meter
+from plant.params import query_id
 from plant.roles import role_of
 
 
@@ -26,9 +27,9 @@ def new_record(request, tag):
         from django.utils import timezone
 
         initial = {"performed_on": timezone.localdate()}
-        task = request.GET.get("task")
-        if task and task.isdigit():
-            initial["task"] = int(task)
+        task = query_id(request, "task")
+        if task is not None:
+            initial["task"] = task
         form = RecordForm(meter=meter, user=request.user, initial=initial)
     return render(request, "maintenance/entry.html", {"meter": meter, "form": form},
                   status=400 if request.method == "POST" else 200)

@@ -4,10 +4,10 @@ from django.http import HttpResponse
 from django.shortcuts import render
 from django.utils.functional import cached_property
 from django.db.models import QuerySet
-from django_tables2 import RequestConfig
 from django_tables2.rows import BoundRows
 
 from plant import spreadsheet
+from plant.params import configure_table
 from reports import review
 from reports.forms import ReviewFilterForm
 
@@ -60,8 +60,7 @@ def weekly_review(request):
     shown = []
     for bucket in buckets:
         table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-")
-        RequestConfig(request, paginate={"per_page": 10, "paginator_class": CountedPaginator,
-                                         "known_count": bucket.count}).configure(table)
+        configure_table(request, table, per_page=10, paginator_class=CountedPaginator, known_count=bucket.count)
         shown.append((bucket, table))
     status = 400 if form.is_bound and not form.is_valid() else 200
     return render(request, "reports/review.html", {"form": form, "buckets": shown, "days": days}, status=status)
