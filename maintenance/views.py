@@ -11,6 +11,7 @@ from maintenance import loop
 from maintenance.fleet import recompute_maintenance
 from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
+from plant.db_failures import nothing_saved_page
 from plant.models import Meter
 from plant.params import query_id
 from plant.roles import role_of
@@ -48,6 +49,7 @@ def record_detail(request, pk, sign_error=None):
 
 @require_POST
 @permission_required("maintenance.sign_maintenance", raise_exception=True)
+@nothing_saved_page("sign-off", back="maintenance:record-detail")
 def sign_record(request, pk):
     record = get_object_or_404(MaintenanceRecord, pk=pk)
     if record.created_by_id != request.user.pk:
