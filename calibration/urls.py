@@ -4,7 +4,7 @@ from calibration import views
 
 app_name = "calibration"
 urlpatterns = [
-    path("<int:pk>/", views.event_detail, name="event-detail"),
-    path("<int:pk>/sign/", views.sign_event, name="event-sign"),
-    path("<int:pk>/countersign/", views.countersign_event, name="event-countersign"),
+    path("<id:pk>/", views.event_detail, name="event-detail"),
+    path("<id:pk>/sign/", views.sign_event, name="event-sign"),
+    path("<id:pk>/countersign/", views.countersign_event, name="event-countersign"),
 ]

@@ -2,7 +2,7 @@ import math
 
 from django.contrib.auth.decorators import permission_required
 from django.core.exceptions import PermissionDenied, ValidationError
-from django.db import IntegrityError, OperationalError, transaction
+from django.db import IntegrityError, transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
@@ -16,6 +16,7 @@ from calibration.models import (
     SignedRecordError,
 )
 from offline.kinds import device_mismatch
+from plant.db_failures import nothing_saved_page
 from plant.models import Meter
 from plant.roles import role_of
 
@@ -103,6 +104,7 @@ def _can_countersign(user, event):
 
 @require_POST
 @permission_required("calibration.sign_calibration", raise_exception=True)
+@nothing_saved_page("sign-off", back="calibration:event-detail")
 def sign_event(request, pk):
     event = get_object_or_404(CalibrationEvent, pk=pk)
     if event.created_by_id != request.user.pk:
@@ -113,13 +115,13 @@ def sign_event(request, pk):
         return event_detail(request, pk, sign_error=" ".join(exc.messages))
     except SignedRecordError as exc:
         return event_detail(request, pk, sign_error=str(exc))
-    except OperationalError:  # SQLite still locked after sign()'s retries
-        return event_detail(request, pk, sign_error="The database is busy; nothing was signed. Try again.")
+    # a database failure (SQLite still locked after sign()'s retries, a server gone): nothing_saved_page
     return redirect(event)
 
 
 @require_POST
 @permission_required("calibration.countersign_calibration", raise_exception=True)
+@nothing_saved_page("countersignature", back="calibration:event-detail")
 def countersign_event(request, pk):
     event = get_object_or_404(CalibrationEvent, pk=pk)
     if not event.is_signed:

@@ -1,6 +1,4 @@
 """Maintenance findings by principle × fluid (/maintenance/stats/) and its CSV / XLSX exports."""
-import io
-
 import pandas as pd
 from django.contrib.auth.decorators import permission_required
 from django.http import HttpResponse
@@ -8,6 +6,7 @@ from django.shortcuts import render
 from django.utils import timezone
 
 from maintenance import stats
+from plant import spreadsheet
 from reports.stats_views import XLSX_TYPE, StatsFilterForm
 
 
@@ -40,7 +39,7 @@ def maintenance_stats_csv(request):
     form, table = _table(request)
     if table is None:
         return _bad(form)
-    response = HttpResponse(table.to_csv(index=False), content_type="text/csv; charset=utf-8")
+    response = HttpResponse(spreadsheet.frame_csv_text(table, lineterminator="\n"), content_type="text/csv; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="maintenance_findings_{timezone.localdate()}.csv"'
     return response
 
@@ -50,9 +49,7 @@ def maintenance_stats_xlsx(request):
     form, table = _table(request)
     if table is None:
         return _bad(form)
-    buffer = io.BytesIO()
-    with pd.ExcelWriter(buffer, engine="openpyxl") as writer:
-        table.rename(columns=stats.LABELS).to_excel(writer, sheet_name="findings", index=False)
-    response = HttpResponse(buffer.getvalue(), content_type=XLSX_TYPE)
+    workbook = spreadsheet.frames_xlsx_bytes({"findings": table.rename(columns=stats.LABELS)})
+    response = HttpResponse(workbook, content_type=XLSX_TYPE)
     response["Content-Disposition"] = f'attachment; filename="maintenance_findings_{timezone.localdate()}.xlsx"'
     return response

@@ -11,7 +11,9 @@ from maintenance import loop
 from maintenance.fleet import recompute_maintenance
 from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
+from plant.db_failures import nothing_saved_page
 from plant.models import Meter
+from plant.params import query_id
 from plant.roles import role_of
 
 
@@ -26,9 +28,9 @@ def new_record(request, tag):
         from django.utils import timezone
 
         initial = {"performed_on": timezone.localdate()}
-        task = request.GET.get("task")
-        if task and task.isdigit():
-            initial["task"] = int(task)
+        task = query_id(request, "task")
+        if task is not None:
+            initial["task"] = task
         form = RecordForm(meter=meter, user=request.user, initial=initial)
     return render(request, "maintenance/entry.html", {"meter": meter, "form": form},
                   status=400 if request.method == "POST" else 200)
@@ -47,6 +49,7 @@ def record_detail(request, pk, sign_error=None):
 
 @require_POST
 @permission_required("maintenance.sign_maintenance", raise_exception=True)
+@nothing_saved_page("sign-off", back="maintenance:record-detail")
 def sign_record(request, pk):
     record = get_object_or_404(MaintenanceRecord, pk=pk)
     if record.created_by_id != request.user.pk:

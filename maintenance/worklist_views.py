@@ -1,5 +1,4 @@
 """The week's work list (page, PDF, CSV) and the iCalendar feeds of due work per area behind a per-user token."""
-import csv
 import datetime as dt
 
 from django import forms
@@ -13,6 +12,7 @@ from django.views.decorators.http import require_POST
 
 from maintenance import worklist
 from maintenance.models import CalendarToken
+from plant import spreadsheet
 from plant.models import Area, Site
 
 FEED_WEEKS = 8  # the feed holds what is overdue and what falls due in the next eight weeks
@@ -69,14 +69,13 @@ def work_list_csv(request):
     form, work = _work(request)
     if work is None:
         return _bad(form)
-    response = HttpResponse(content_type="text/csv; charset=utf-8")
+    rows = [CSV_COLUMNS] + [
+        [item.site, item.area, "" if item.walk == worklist.NO_WALK_POSITION else item.walk, item.tag,
+         item.kind, item.work, item.due.isoformat() if item.due else "never calibrated",
+         item.overdue_days(work["today"]), item.principle, item.fluid, item.reason]
+        for item in work["items"]]
+    response = HttpResponse(spreadsheet.csv_text(rows), content_type="text/csv; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="work-list-{work["monday"].isoformat()}.csv"'
-    writer = csv.writer(response)
-    writer.writerow(CSV_COLUMNS)
-    for item in work["items"]:
-        writer.writerow([item.site, item.area, "" if item.walk == worklist.NO_WALK_POSITION else item.walk, item.tag,
-                         item.kind, item.work, item.due.isoformat() if item.due else "never calibrated",
-                         item.overdue_days(work["today"]), item.principle, item.fluid, item.reason])
     return response
 
 

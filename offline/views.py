@@ -14,6 +14,7 @@ from django.views.decorators.http import require_GET, require_POST
 from offline import kinds
 from offline.kit import allowed_kinds, due_meters, kit, setting
 from plant.models import Area, Site
+from plant.params import query_id
 
 
 @login_not_required
@@ -44,10 +45,7 @@ def manifest(request):
 
 
 def _filters(request):
-    def number(name):
-        value = request.GET.get(name, "")
-        return int(value) if value.isdigit() else None
-    return number("site"), number("area")
+    return query_id(request, "site"), query_id(request, "area")
 
 
 READ_REGISTER = permission_required("plant.view_meter", raise_exception=True)

@@ -10,6 +10,7 @@ from django.shortcuts import render
 from django.views.decorators.http import require_GET, require_http_methods
 
 from plant import importer, spreadsheet
+from plant.db_failures import DATABASE_FAILURES, nothing_saved_page
 
 logger = logging.getLogger(__name__)
 
@@ -42,6 +43,7 @@ class ImportForm(forms.Form):
 
 @require_http_methods(["GET", "POST"])
 @permission_required(["plant.add_meter", "plant.change_meter", "plant.add_fluid", "plant.change_fluid"], raise_exception=True)
+@nothing_saved_page("import", back="plant:import")
 def import_register(request):
     if request.method == "GET":
         return render(request, "plant/import.html", {"form": ImportForm()})
@@ -62,6 +64,8 @@ def import_register(request):
     if not dry_run and plan.ok:
         try:
             plan = importer.apply_import(plan)
+        except DATABASE_FAILURES:
+            raise  # the database itself failed: our "nothing was saved" page
         except Exception as exc:  # the transaction has rolled back; say so rather than show a bare 500
             logger.exception("Register import of %s failed and was rolled back", filename)
             context.update(plan=plan, apply_failed=str(exc) or exc.__class__.__name__)

@@ -264,13 +264,17 @@ class Position(ProtectedWhileCited, models.Model):
         """Volume flow in m³/h for the Reynolds check; None when it cannot be converted."""
         return self.flow_in(value, "m3/h")
 
+    def _flow_conditions(self):
+        return {"normal_flow_m3_h": self.flow_m3_h(self.normal_flow), "min_flow_m3_h": self.flow_m3_h(self.min_flow),
+                "diameter_mm": self.internal_diameter_mm}
+
     def assess(self, principle, wetted_material, fluid=None):
         """The principle×fluid findings a device of this principle and material meets here (plant/risk.py)."""
-        return risk.assess(
-            principle, wetted_material, (fluid or self.fluid).props(),
-            normal_flow_m3_h=self.flow_m3_h(self.normal_flow), min_flow_m3_h=self.flow_m3_h(self.min_flow),
-            diameter_mm=self.internal_diameter_mm,
-        )
+        return risk.assess(principle, wetted_material, (fluid or self.fluid).props(), **self._flow_conditions())
+
+    def assess_each_principle(self, wetted_material=""):
+        """What a device of each principle would meet here, the least shortened first (plant/risk.py)."""
+        return risk.assess_each_principle(wetted_material, self.fluid.props(), **self._flow_conditions())
 
 
 def flows_above_range(position, device) -> dict:

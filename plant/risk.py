@@ -600,6 +600,14 @@ def assess(principle: str, wetted_material: str, fluid: FluidProps,
     )
 
 
+def assess_each_principle(wetted_material: str, fluid: FluidProps, **flows) -> list[tuple[str, list[Finding]]]:
+    """(principle, findings) for a device of every principle on this duty, the least shortened first (then in
+    the order of PRINCIPLES): what a position with no device installed would meet, since the findings depend on
+    the principle of the device still to be chosen. ``flows`` as for :func:`assess`."""
+    results = [(principle, assess(principle, wetted_material, fluid, **flows)) for principle in PRINCIPLES]
+    return sorted(results, key=lambda pair: (-interval_factor(pair[1]), PRINCIPLES.index(pair[0])))
+
+
 # --------------------------------------------------------------------------
 # Plain words
 # --------------------------------------------------------------------------

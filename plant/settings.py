@@ -68,9 +68,11 @@ TEMPLATES = [
 
 WSGI_APPLICATION = "plant.wsgi.application"
 
+# Connections are kept for a minute between requests; each is checked before a request first uses it, so the
+# first request after the database server restarted reconnects instead of failing on the dead connection.
 DATABASES = {
     "default": dj_database_url.config(
-        default=f"sqlite:///{BASE_DIR / 'db.sqlite3'}", conn_max_age=60
+        default=f"sqlite:///{BASE_DIR / 'db.sqlite3'}", conn_max_age=60, conn_health_checks=True
     )
 }
 # The review indexes carry the id as a non-key column on PostgreSQL; SQLite, whose indexes hold the row id

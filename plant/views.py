@@ -3,11 +3,11 @@ from django.contrib.auth.decorators import permission_required
 from django.db import transaction
 from django.db.models import F
 from django.shortcuts import get_object_or_404, redirect, render
-from django_tables2 import RequestConfig
 
 from calibration.trend import meter_drift_chart
 from maintenance.views import meter_section
 from plant import installations, risk
+from plant.params import configure_table
 from plant.forms import FluidForm, MeterForm, PositionForm, SwapForm
 from plant.models import Fluid, Installation, Meter, Position
 from plant.filters import MeterFilter
@@ -20,7 +20,7 @@ def meter_list(request):
     meter_filter = MeterFilter(request.GET, queryset=queryset)
     can_calibrate = request.user.has_perm("calibration.add_calibrationevent")
     table = MeterTable(meter_filter.qs, exclude=() if can_calibrate else ("calibrate",))
-    RequestConfig(request, paginate={"per_page": 50}).configure(table)
+    configure_table(request, table, per_page=50)
     return render(request, "plant/meter_list.html", {"filter": meter_filter, "table": table})
 
 
@@ -52,13 +52,31 @@ def meter_detail(request, tag):
     """A position's page (URLs by tag): the position, the device installed there now, and its history."""
     position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
     meter = position.installed_device()
-    context = _device_context(meter) if meter is not None else {"meter": None, "audit": _audit_rows(None, position)}
+    moves = list(position.installations.select_related("device", "installed_by", "removed_by"))
+    if meter is not None:
+        context = _device_context(meter)
+    else:
+        context = {"meter": None, "audit": _audit_rows(None, position), "last_move": moves[0] if moves else None,
+                   "by_principle": _findings_by_principle(position, moves[0].device if moves else None)}
     context.update({
         "position": position,
-        "position_moves": position.installations.select_related("device", "installed_by", "removed_by"),
+        "duty_fluid": position.fluid,
+        "position_moves": moves,
         "fit_warnings": installations.fit_warnings(meter, position) if meter is not None else [],
     })
     return render(request, "plant/meter_detail.html", context)
+
+
+def _findings_by_principle(position, last_device):
+    """A position with no device: its findings depend on the principle of the device still to be chosen, so the
+    page shows what a device of each principle would meet here (the last device's own principle marked)."""
+    labels = dict(Meter.Principle.choices)
+    last = last_device.principle if last_device is not None else None
+    return [{"principle": principle, "label": labels.get(principle, principle), "findings": findings,
+             "factor": risk.interval_factor(findings),
+             "risk": risk.SEVERITY_WORDS.get(risk.worst_severity(findings), "no finding"),
+             "last": principle == last}
+            for principle, findings in position.assess_each_principle()]
 
 
 @permission_required("plant.view_meter", raise_exception=True)
@@ -66,7 +84,9 @@ def device_detail(request, pk):
     """A device's own page, wherever it is: installed (its position's page says the same), or a spare."""
     meter = get_object_or_404(Meter.objects.select_related(*POSITION_RELATED), pk=pk)
     context = _device_context(meter)
-    context.update({"position": meter.position if meter.position_id else None, "device_page": True})
+    position = meter.position if meter.position_id else None
+    context.update({"position": position, "device_page": True,
+                    "duty_fluid": position.fluid if position is not None else meter.fluid})
     return render(request, "plant/meter_detail.html", context)
 
 

@@ -4,11 +4,11 @@ from django.http import HttpResponse
 from django.shortcuts import render
 from django.utils.functional import cached_property
 from django.db.models import QuerySet
-from django_tables2 import RequestConfig
 from django_tables2.rows import BoundRows
 
 from ledger.models import VerificationRun
 from plant import spreadsheet
+from plant.params import configure_table
 from reports import review
 from reports.forms import ReviewFilterForm
 
@@ -59,10 +59,11 @@ def weekly_review(request):
     if export:
         return _csv(buckets, export)
     shown = []
+    # the spares' "Calibrate (bench)" only for those who may calibrate (a reviewer followed it to a 403)
+    hidden = () if request.user.has_perm("calibration.add_calibrationevent") else ("calibrate",)
     for bucket in buckets:
-        table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-")
-        RequestConfig(request, paginate={"per_page": 10, "paginator_class": CountedPaginator,
-                                         "known_count": bucket.count}).configure(table)
+        table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-", exclude=hidden)
+        configure_table(request, table, per_page=10, paginator_class=CountedPaginator, known_count=bucket.count)
         shown.append((bucket, table))
     status = 400 if form.is_bound and not form.is_valid() else 200
     # the last run of `manage.py verify_records` (or of a restore): a failure is shown above every list

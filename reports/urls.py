@@ -8,6 +8,6 @@ urlpatterns = [
     path("stats/", stats_views.fleet_stats, name="stats"),
     path("stats.csv", stats_views.fleet_stats_csv, name="stats-csv"),
     path("stats.xlsx", stats_views.fleet_stats_xlsx, name="stats-xlsx"),
-    path("calibrations/<int:pk>/certificate.pdf", views.certificate_pdf, name="certificate"),
+    path("calibrations/<id:pk>/certificate.pdf", views.certificate_pdf, name="certificate"),
     path("certificates.zip", views.certificates_zip, name="certificates-zip"),
 ]

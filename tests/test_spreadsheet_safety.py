@@ -179,3 +179,134 @@ def test_statistics_csv_and_xlsx_are_neutralised(hostile_register, client):
     cells = xlsx_cells(client.get(reverse("reports:stats-xlsx")).content)
     assert_no_formula_xlsx(cells)
     assert "'=HYPERLINK(\"http://example.invalid\")" in [c.value for c in cells]
+
+
+# Every export the site serves, found from the URL configuration ------------------------------------------------
+SPREADSHEET_TYPES = ("text/csv", "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet")
+FILLED_INT = "0"  # placeholder when the URL's own kind of object is unknown; replaced by each hostile object's id
+
+
+@pytest.fixture
+def hostile_everywhere(db, admin_user):
+    """A register whose every printed name starts with one of the four formula characters: site, area, fluid,
+    tag, serial, maker, a reviewer's task title, a calibration technician, a maintenance technician."""
+    from maintenance.models import MaintenanceRecord, MaintenanceTask
+
+    site = Site.objects.create(name="=Site(1)")
+    area = Area.objects.create(site=site, name="+Hall 2")
+    fluid = Fluid.objects.create(name="-Brine @ 3 %", phase="liquid", conductivity_us_cm=5000, chlorides=True,
+                                 temperature_c=20)
+    meter = commission(tag="@FT-9", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+                       internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.5,
+                       mpe_basis="pct_reading", wetted_material="316L", serial="+SN 77", maker="@maker",
+                       model="=M1")
+    task = MaintenanceTask.objects.create(meter=meter, code="CUSTOM", title="=Rod out the ports", reason="+fouling",
+                                          origin=MaintenanceTask.Origin.REVIEWER, base_days=30)
+    today = site.today()
+    record = MaintenanceRecord.objects.create(meter=meter, task=task, performed_on=today, technician="=tech",
+                                              condition="heavy_deposit", action="-rodded", minutes_spent=20,
+                                              created_by=admin_user)
+    record.sign(by="@signer")
+    MaintenanceTask.objects.filter(meter=meter).update(next_due_date=today - dt.timedelta(days=2))
+    CalibrationEvent.objects.create(meter=meter, performed_on=today, technician="@cal tech", procedure="=p")
+    Meter.objects.filter(pk=meter.pk).update(
+        next_due_date=today - dt.timedelta(days=3), predicted_crossing=today - dt.timedelta(days=10),
+        drift_status="drifting", drift_rate_per_year=-0.25, last_in_tolerance=False)
+    return {"meter": meter, "ids": [meter.pk, fluid.pk, area.pk, site.pk, task.pk, record.pk,
+                                    CalibrationEvent.objects.get(meter=meter).pk]}
+
+
+def url_patterns(resolver=None, prefix=""):
+    """(route, pattern) for every URL of the site but Django's admin (which serves no files here)."""
+    from django.urls import URLResolver, get_resolver
+
+    for entry in (resolver or get_resolver()).url_patterns:
+        route = prefix + str(entry.pattern)
+        if isinstance(entry, URLResolver):
+            if getattr(entry, "app_name", None) != "admin":
+                yield from url_patterns(entry, route)
+        else:
+            yield route, entry
+
+
+def concrete_urls(route, tag, ids):
+    """The route with its arguments filled: a tag with the hostile tag, an id with each hostile object's id in
+    turn (the route does not say which model it names; a wrong one gives 404 and is passed over)."""
+    import re
+
+    placeholder = re.compile(r"<(?:(\w+):)?(\w+)>")
+    has_id = any(conv not in (None, "str", "slug", "path") for conv, _ in placeholder.findall(route))
+    for value in (ids if has_id else [None]):
+        def fill(match, value=value):
+            converter, name = match.groups()
+            return tag if name == "tag" else ("x" if converter in (None, "str", "slug", "path") else str(value))
+        yield "/" + placeholder.sub(fill, route)
+
+
+def same_site_links(html: str, base: str):
+    from html.parser import HTMLParser
+    from urllib.parse import urljoin, urlsplit
+
+    found = []
+
+    class Links(HTMLParser):
+        def handle_starttag(self, name, attrs):
+            href = dict(attrs).get("href")
+            if name == "a" and href and not href.startswith(("#", "mailto:", "javascript:")):
+                parts = urlsplit(urljoin("http://testserver" + base, href))
+                if parts.netloc == "testserver":
+                    found.append(parts.path + ("?" + parts.query if parts.query else ""))
+
+    Links().feed(html)
+    return found
+
+
+def test_every_export_of_the_site_writes_no_formula(hostile_everywhere, client):
+    """Walk the URL configuration; fetch every URL (arguments filled from the hostile register) and every
+    same-site link on the pages it gives, as an administrator; whatever comes back as CSV or XLSX is an
+    export and must hold no cell a spreadsheet would run."""
+    from django.urls import resolve
+    from urllib.parse import quote
+
+    tag = quote(hostile_everywhere["meter"].position.tag)
+    seen, exports = set(), {}
+
+    def fetch(url):
+        """The page's links when it is an HTML page; records it when it is an export."""
+        seen.add(url)
+        response = client.get(url)
+        kind = response.get("Content-Type", "").split(";")[0]
+        if kind in SPREADSHEET_TYPES:
+            exports[url] = (kind, response.content)
+        elif kind == "text/html" and response.status_code == 200:
+            return same_site_links(response.content.decode(), url)
+        return []
+
+    linked = []
+    for route, _ in url_patterns():
+        for url in concrete_urls(route, tag, hostile_everywhere["ids"]):
+            if url not in seen:
+                linked.extend(fetch(url))
+    for url in dict.fromkeys(linked):  # one step only: an export reached with a query (?export=, ?by=, ?kind=)
+        if url not in seen:
+            fetch(url)
+    views = {resolve(url.split("?")[0]).view_name for url in exports}
+    # the three that once skipped the safety module must be among what the walk found, besides the others
+    assert {"maintenance:stats-csv", "maintenance:stats-xlsx", "maintenance:worklist-csv"} <= views, views
+    assert {"plant:export-csv", "plant:export-xlsx", "reports:stats-csv", "reports:stats-xlsx", "reports:review"} <= views
+    printed = {"=Site(1)", "+Hall 2", "-Brine @ 3 %", "@FT-9", "=Rod out the ports", "@cal tech"}
+    shown, quoting_views = set(), set()
+    for url, (kind, content) in exports.items():
+        if kind == "text/csv":
+            rows = csv_cells(content)
+            assert_no_formula_csv(rows)
+            values = [cell for row in rows for cell in row]
+        else:
+            cells = xlsx_cells(content)
+            assert_no_formula_xlsx(cells)
+            values = [cell.value for cell in cells]
+        shown |= {spreadsheet.restore(v) for v in values if isinstance(v, str)} & printed
+        if any(isinstance(v, str) and v[:2] in {"'" + c for c in "=+-@"} for v in values):
+            quoting_views.add(resolve(url.split("?")[0]).view_name)
+    assert shown == printed, printed - shown  # each hostile name went through at least one export
+    assert quoting_views == views  # and each export printed at least one of them (with its apostrophe)
