@@ -307,3 +307,10 @@ def test_migration_fills_records_signed_before_from_the_audit_trail(client, mete
         assert CalibrationEvent.objects.get(pk=draft.pk).signed_content == {}  # drafts have none until signed
     finally:
         call_command("migrate", verbosity=0)
+
+
+def test_demo_records_carry_the_content_frozen_at_their_sign_off(demo_history):
+    """The demo fixture is built by signing (build_demo_history): its records hold their frozen content."""
+    events = list(CalibrationEvent.objects.filter(state="signed"))
+    assert events and all(e.signed_content["frozen"]["how"] == signed_content.AT_SIGN_OFF for e in events)
+    assert all(e.signed_content["certificate"]["number"] == signed_content.certificate_number(e) for e in events)
