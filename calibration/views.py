@@ -54,7 +54,10 @@ def _calibration_entry(request, meter, corrects=None):
         except ValidationError as exc:  # the record to correct changed meanwhile (the model's own checks)
             entry.non_field_errors.extend(exc.messages)
         except IntegrityError:  # another correction of it was saved at the same moment: that one is used
-            return redirect(CalibrationEvent.objects.get(supersedes=corrects))
+            started = CalibrationEvent.objects.filter(supersedes=corrects).first() if corrects is not None else None
+            if started is None:
+                raise
+            return redirect(started)
         else:
             return redirect(event)
     status = 400 if request.method == "POST" else 200

@@ -106,7 +106,7 @@ def test_printed_digest_is_the_sha256_of_the_stored_content(client, signed_event
     assert f'id="digest">{expected}<' in html_of(signed_event)
     assert expected in pdf_of(client, signed_event).replace(" ", "")
     page = client.get(f"/calibrations/{signed_event.pk}/").content.decode()
-    assert expected in page and "The certificate prints what was signed" in page
+    assert expected in page and f"Certificate {signed_content.certificate_number(signed_event)} prints what was signed" in page
 
 
 def test_frozen_content_cannot_be_changed(signed_event):
