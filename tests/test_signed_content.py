@@ -80,6 +80,8 @@ def test_reprint_after_register_edits_is_the_same_certificate(client, meter, sta
     edit_the_register(meter, standard, settings)
     assert Meter.objects.get(pk=meter.pk).serial == "SN-NEW-999"  # the register did change
     after_html = html_of(signed_event)
+    # ISO/IEC 17025:2017 §7.8.8: an issued certificate is not changed; §7.8.2.1: what it states is that of the item
+    # as calibrated (identity, range, specification, location, standards, results)
     assert after_html == before_html
     assert pdf_of(client, signed_event) == before_pdf
     for new in ("SN-NEW-999", "Otherco", "FT-999", "Other Works", "Renamed", "Syrup", "NEW-1", "Another Lab",
@@ -201,10 +203,11 @@ def test_correction_from_the_results_page(client, meter, standard, signed_event,
     number = signed_content.certificate_number(signed_event)
     assert f"This certificate supersedes certificate {number} (calibration {signed_event.pk} of 2026-11-20, " \
            f"issued 2026-11-23), which is withdrawn." in new_text
-    assert f"Reason for the correction: {REASON}" in new_text
+    assert f"Reason for the correction: {REASON}" in new_text  # ISO/IEC 17025:2017 §7.8.8: names it and says why
     assert corrected.signed_content["correction"]["reason"] == REASON
 
-    # the replaced certificate stays retrievable, says so, and its signed content and digest are untouched
+    # the replaced certificate stays retrievable and says it was replaced (ISO/IEC 17025:2017 §7.8.8); its signed
+    # content and digest are untouched
     old_text = pdf_of(client, signed_event)
     assert f"This certificate was replaced on 2026-11-26 by certificate {signed_content.certificate_number(corrected)}" \
            in old_text
