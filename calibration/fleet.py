@@ -50,7 +50,7 @@ def load_history(meters_qs):
         columns=["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"],
     )
     points = pd.DataFrame.from_records(
-        CalibrationPoint.objects.filter(in_force("event__"), event__meter__in=meters_qs,
+        CalibrationPoint.objects.filter(in_force("event"), event__meter__in=meters_qs,
                                         event__state=CalibrationEvent.State.SIGNED)
         .order_by("event_id", "kind", "nominal_pct", "id")
         .values("event_id", "kind", "nominal_pct", "error", "expanded_uncertainty"),

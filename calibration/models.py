@@ -165,11 +165,12 @@ class PointQuerySet(LockedQuerySet):
     signed_lookup = "event__state"
 
 
-def in_force(prefix=""):
-    """Signed records not replaced: none supersedes them, or only a draft correction does (a correction replaces
-    the record it corrects when it is signed, not before). `prefix`: the path to the event, e.g. "event__"."""
-    return (models.Q(**{f"{prefix}superseded_by__isnull": True})
-            | models.Q(**{f"{prefix}superseded_by__state": CalibrationEvent.State.DRAFT}))
+def in_force(outer="pk"):
+    """Records not replaced by a signed correction (a draft correction replaces nothing yet: the record it corrects
+    counts until it is signed). `outer`: the event's id in the query it filters, "pk" for events, "event" for points.
+    NOT EXISTS, not a left join with OR: SQLite then scans the whole table for each row (measured by the benchmark)."""
+    return ~models.Exists(CalibrationEvent.objects.filter(supersedes=models.OuterRef(outer),
+                                                          state=CalibrationEvent.State.SIGNED))
 
 
 class CalibrationEvent(models.Model):
