@@ -398,25 +398,15 @@ def rebuilt(event, apps) -> dict:
 
 def fill_missing(apps, batch=500) -> int:
     """Store the rebuilt content on every signed record that has none; returns how many. Writes through the
-    queryset of `apps`' model without the lock of the app's manager: it fills a field no signature covered yet."""
+    base manager of `apps`' model, without the lock of the app's manager: it fills a field no signature covered."""
     Event = apps.get_model("calibration", "CalibrationEvent")
-    pending, done = [], 0
-    missing = Event.objects.filter(state=SIGNED).order_by("pk")
-    for event in missing.iterator(chunk_size=batch):
-        if event.signed_content:
-            continue
-        event.signed_content = rebuilt(event, apps)
-        pending.append(event)
-        if len(pending) >= batch:
-            done += _write(Event, pending)
-    return done + _write(Event, pending)
-
-
-def _write(Event, pending):
-    count = len(pending)
-    if pending:
-        # the lock of the app's manager refuses any update of a signed row; the base manager of the model is
-        # used here on purpose, for this one field that was empty
+    # the ids first, then batches: SQLite does not isolate a running read from writes to the same table
+    ids = list(Event.objects.filter(state=SIGNED).order_by("pk").values_list("pk", flat=True))
+    done = 0
+    for start in range(0, len(ids), batch):
+        pending = [event for event in Event.objects.filter(pk__in=ids[start:start + batch]) if not event.signed_content]
+        for event in pending:
+            event.signed_content = rebuilt(event, apps)
         Event._base_manager.bulk_update(pending, ["signed_content"])
-        pending.clear()
-    return count
+        done += len(pending)
+    return done

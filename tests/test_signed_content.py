@@ -317,3 +317,20 @@ def test_demo_records_carry_the_content_frozen_at_their_sign_off(demo_history):
     events = list(CalibrationEvent.objects.filter(state="signed"))
     assert events and all(e.signed_content["frozen"]["how"] == signed_content.AT_SIGN_OFF for e in events)
     assert all(e.signed_content["certificate"]["number"] == signed_content.certificate_number(e) for e in events)
+
+
+def test_fill_missing_stores_what_a_reprint_would_have_rebuilt(client, meter, standard, monkeypatch):
+    """The migration's filler, in batches smaller than the records: each gets the content its reprint rebuilt."""
+    from django.apps import apps
+
+    events = [sign(client, enter(client, meter, standard, performed_on=day), at(day), monkeypatch)
+              for day in (dt.date(2026, 11, 2), dt.date(2026, 11, 9), dt.date(2026, 11, 16))]
+    for event in events[:2]:
+        _forget_content(event)
+    expected = {e.pk: CalibrationEvent.objects.get(pk=e.pk).content_as_signed() for e in events}
+    assert signed_content.fill_missing(apps, batch=1) == 2
+    for event in events:
+        stored = CalibrationEvent.objects.get(pk=event.pk).signed_content
+        assert stored == expected[event.pk]
+    assert [CalibrationEvent.objects.get(pk=e.pk).signed_content["frozen"]["how"] for e in events] == [
+        signed_content.FROM_AUDIT_TRAIL, signed_content.FROM_AUDIT_TRAIL, signed_content.AT_SIGN_OFF]
