@@ -23,7 +23,7 @@ from django.db.models.functions import Coalesce
 
 from calibration import decision as decision_rules
 from calibration import drift, drift_fleet, due, intervals
-from calibration.models import CalibrationEvent, CalibrationPoint
+from calibration.models import CalibrationEvent, CalibrationPoint, in_force
 from plant import risk
 from plant.models import Fluid, Meter
 
@@ -45,14 +45,13 @@ def policy():
 def load_history(meters_qs):
     """Signed, not superseded events and their points for the meters, as two DataFrames."""
     events = pd.DataFrame.from_records(
-        CalibrationEvent.objects.filter(meter__in=meters_qs, state=CalibrationEvent.State.SIGNED,
-                                        superseded_by__isnull=True)
+        CalibrationEvent.objects.filter(in_force(), meter__in=meters_qs, state=CalibrationEvent.State.SIGNED)
         .values("id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"),
         columns=["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"],
     )
     points = pd.DataFrame.from_records(
-        CalibrationPoint.objects.filter(event__meter__in=meters_qs, event__state=CalibrationEvent.State.SIGNED,
-                                        event__superseded_by__isnull=True)
+        CalibrationPoint.objects.filter(in_force("event"), event__meter__in=meters_qs,
+                                        event__state=CalibrationEvent.State.SIGNED)
         .order_by("event_id", "kind", "nominal_pct", "id")
         .values("event_id", "kind", "nominal_pct", "error", "expanded_uncertainty"),
         columns=["event_id", "kind", "nominal_pct", "error", "expanded_uncertainty"],
@@ -118,7 +117,7 @@ def _flag(values: pd.Series) -> pd.Series:
 def signed_events(where: Q | None = None):
     """Signed, not superseded events (optionally narrowed by `where`): id, meter_id, day (ordinal),
     adjusted, decision_rule, as_found_in_tolerance."""
-    qs = CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True)
+    qs = CalibrationEvent.objects.filter(in_force(), state=CalibrationEvent.State.SIGNED)
     if where is not None:
         qs = qs.filter(where)
     columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"]

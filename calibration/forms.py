@@ -62,7 +62,9 @@ class EventForm(forms.ModelForm):
             # accepted also: a standard whose units cannot be converted here, so it is refused with the reason
             field.queryset = ReferenceStandard.offered_for(meter, convertible_only=False)
             key = self.add_prefix("reference_standards")
-            sent = (self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound else []
+            # a correction starts from the standards of the record it corrects, listed even if out of date today
+            sent = ((self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound
+                    else self.initial.get("reference_standards", []))
             ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
             today = meter.today()  # the date at the meter's site
             field.widget.choices = [
@@ -73,6 +75,39 @@ class EventForm(forms.ModelForm):
                 "Needed when the reference standard measures mass and this meter volume (it is in "
                 f"{units.label_for(meter.flow_units)}), or the other way round: the density at the conditions of the "
                 "calibration converts the reference readings.")
+
+
+class CorrectionForm(EventForm):
+    """The header of a correction (ISO/IEC 17025:2017 §7.8.8): the same fields, and why the record is corrected."""
+
+    class Meta(EventForm.Meta):
+        fields = ["correction_reason", *EventForm.Meta.fields]
+        labels = {**EventForm.Meta.labels, "correction_reason": "Reason for the correction (printed on the new certificate)"}
+        widgets = {**EventForm.Meta.widgets, "correction_reason": forms.Textarea(attrs={"rows": 2})}
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        reason = self.fields["correction_reason"]
+        reason.required = True
+        reason.error_messages["required"] = ("State why the calibration is corrected (e.g. indications entered "
+                                             "against the wrong points): it is printed on the new certificate.")
+
+
+HEADER_COPIED = ["performed_on", "contractor", "procedure", "condition_received", "deviations", "ambient_temp_c",
+                 "fluid_temp_c", "pressure_bar", "density_kg_m3", "reason", "adjusted", "decision_rule", "notes"]
+
+
+def correction_initial(original):
+    """The tablet form filled with a signed record's header and readings (as entered), to correct what was wrong."""
+    header = {name: getattr(original, name) for name in HEADER_COPIED}
+    header["reference_standards"] = [s.pk for s in original.reference_standards.all()]
+    grids = {}
+    for kind in (CalibrationPoint.Kind.AS_FOUND, CalibrationPoint.Kind.AS_LEFT):
+        grids[kind] = [{"nominal_pct": p.nominal_pct, "reference_value": p.reference_as_entered,
+                        "indicated_value": p.indicated_value, "repeats": " ".join(f"{v:g}" for v in p.repeats),
+                        "resolution": p.resolution or None}
+                       for p in original.points_of(kind)] or None
+    return header, grids
 
 
 def density_required_message(standard_units, meter_units):
@@ -302,18 +337,26 @@ PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, 
 class CalibrationEntry:
     """The whole tablet form; validates everything first, then saves in one transaction."""
 
-    def __init__(self, meter, data=None, user=None):
+    def __init__(self, meter, data=None, user=None, corrects=None):
+        """`corrects`: the signed record this entry corrects (ISO/IEC 17025 §7.8.8); the form starts from its values."""
         from django.conf import settings
 
         self.meter = meter
         self.user = user
+        self.corrects = corrects
         bound = data is not None
         initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.today()}  # the date at the meter's site
+        grids = {}
+        if corrects is not None:
+            initial, grids = correction_initial(corrects)
+        header = CorrectionForm if corrects is not None else EventForm
         self.low_tur_policy = settings.CALIBRATION.get("low_tur_policy", "require_guarded")
-        self.event_form = (EventForm(data, prefix="ev", meter=meter) if bound
-                           else EventForm(prefix="ev", initial=initial, meter=meter))
-        self.as_found = PointGrid(data, prefix="af", meter=meter) if bound else PointGrid(prefix="af", meter=meter)
-        self.as_left = PointGrid(data, prefix="al", meter=meter) if bound else PointGrid(prefix="al", meter=meter)
+        self.event_form = (header(data, prefix="ev", meter=meter) if bound
+                           else header(prefix="ev", initial=initial, meter=meter))
+        self.as_found, self.as_left = (
+            PointGrid(data, prefix=prefix, meter=meter) if bound
+            else PointGrid(prefix=prefix, meter=meter, **({"initial": grids[kind]} if grids.get(kind) else {}))
+            for prefix, kind in (("af", CalibrationPoint.Kind.AS_FOUND), ("al", CalibrationPoint.Kind.AS_LEFT)))
         self.non_field_errors = []
         self.conversion = ReferenceConversion(meter.flow_units)
 
@@ -397,8 +440,14 @@ class CalibrationEntry:
         event.created_by = self.user
         event.meter_units = self.meter.flow_units
         event.reference_units = self.conversion.units
+        original = self.corrects
+        if original is not None:
+            event.supersedes = original
         if event.contractor:
             event.performed_by, event.technician = None, event.contractor
+        elif original is not None and not original.contractor:
+            # a correction restates the same calibration: performed by whoever performed it, entered by this user
+            event.performed_by, event.technician = original.performed_by, original.technician
         else:
             event.performed_by = self.user
             event.technician = (self.user.get_full_name() or self.user.username) if self.user else ""

@@ -20,7 +20,7 @@ from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
-from calibration import decision, errors, uncertainty, units
+from calibration import decision, errors, signed_content, uncertainty, units
 from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
 from ledger import chain
 from plant import citations
@@ -142,14 +142,7 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
 
     def snapshot(self):
         """What a calibration record keeps of this standard at sign-off, as it was that day."""
-        return {
-            "identification": self.identification, "description": self.description,
-            "certificate_number": self.certificate_number, "issuer": self.issuer,
-            "expanded_uncertainty": self.expanded_uncertainty, "uncertainty_basis": self.uncertainty_basis,
-            "uncertainty_basis_display": self.get_uncertainty_basis_display(),
-            "range_min": self.range_min, "range_max": self.range_max, "units": self.units,
-            "due_date": self.due_date.isoformat(),
-        }
+        return signed_content.standard_snapshot(self)
 
     def problems(self, on_date, values=()):
         """Reasons this standard cannot be used on `on_date` for these reference values (empty = usable)."""
@@ -243,6 +236,14 @@ class StandardLink(models.Model):
         return super().delete(*args, **kwargs)
 
 
+def in_force(outer="pk"):
+    """Records not replaced by a signed correction (a draft correction replaces nothing yet: the record it corrects
+    counts until it is signed). `outer`: the event's id in the query it filters, "pk" for events, "event" for points.
+    NOT EXISTS, not a left join with OR: SQLite then scans the whole table for each row (measured by the benchmark)."""
+    return ~models.Exists(CalibrationEvent.objects.filter(supersedes=models.OuterRef(outer),
+                                                          state=CalibrationEvent.State.SIGNED))
+
+
 class CalibrationEvent(models.Model):
     class State(models.TextChoices):
         DRAFT = "draft", "Draft"
@@ -296,14 +297,21 @@ class CalibrationEvent(models.Model):
     signed_by = models.CharField(max_length=120, blank=True)
     signed_role = models.CharField(max_length=60, blank=True)
     signed_at = models.DateTimeField(null=True, blank=True)
+    # the signed calibration this one corrects (ISO/IEC 17025 §7.8.8); it replaces that one when it is signed
     supersedes = models.OneToOneField("self", null=True, blank=True, on_delete=models.PROTECT, related_name="superseded_by")
+    correction_reason = models.TextField("reason for the correction", blank=True,
+                                         help_text="why the certificate it replaces is corrected; printed on the new one")
+    # everything the certificate prints, frozen at sign-off (calibration/signed_content.py); locked with the record
+    signed_content = models.JSONField("content as signed", default=dict, blank=True, editable=False)
     as_found_in_tolerance = models.BooleanField(null=True)
     as_left_in_tolerance = models.BooleanField(null=True)
     created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
                                    related_name="calibrations_entered")
     # the id a tablet gave the entry while offline; unique, so a repeated or interrupted send adds nothing twice
     client_id = models.UUIDField(null=True, blank=True, unique=True, editable=False)
-    history = HistoricalRecords(m2m_fields=[reference_standards], custom_model_name=history_model_name)
+    # the signed content is written once, with the signature, and never changes: a copy per version adds nothing
+    history = HistoricalRecords(m2m_fields=[reference_standards], custom_model_name=history_model_name,
+                                excluded_fields=["signed_content"])
 
     objects = LockedQuerySet.as_manager()
 
@@ -339,8 +347,23 @@ class CalibrationEvent(models.Model):
         if self.contractor and self.performed_by_id:
             errors["contractor"] = "Work is performed either by the logged-in technician or by an outside contractor, not both."
         errors.update(signature_errors(self))
+        errors.update(self.correction_errors())
         if errors:
             raise ValidationError(errors)
+
+    def correction_errors(self):
+        """A correction (ISO/IEC 17025 §7.8.8) replaces a signed record of the same device and says why."""
+        if not self.supersedes_id:
+            return {}
+        found = {}
+        if not (self.correction_reason or "").strip():
+            found["correction_reason"] = "State why the calibration is corrected: the reason is printed on the new certificate."
+        replaced = CalibrationEvent.objects.filter(pk=self.supersedes_id).values("state", "meter_id").first()
+        if replaced is None or replaced["state"] != self.State.SIGNED:
+            found["supersedes"] = "Only a signed calibration can be corrected; a draft is signed or left as it is."
+        elif self.meter_id and replaced["meter_id"] != self.meter_id:
+            found["supersedes"] = "A correction is recorded for the same device as the calibration it corrects."
+        return found
 
     def get_absolute_url(self):
         return reverse("calibration:event-detail", args=[self.pk])
@@ -389,6 +412,9 @@ class CalibrationEvent(models.Model):
     def save(self, *args, **kwargs):
         if self._stored_state() == self.State.SIGNED:
             raise SignedRecordError(f"Calibration {self.pk} is signed and cannot be changed; record a correction instead.")
+        problems = self.correction_errors()
+        if problems:
+            raise ValidationError(problems)
         if self._state.adding and self.position_id is None and self.meter_id:
             # where the device served when it was calibrated; a correction keeps the record's it corrects
             if self.supersedes_id:
@@ -415,6 +441,8 @@ class CalibrationEvent(models.Model):
             found.append("No as-found points recorded.")
         if self.adjusted and not as_left:
             found.append("An adjustment was made, so as-left points are required.")
+        if self.supersedes_id and not (self.correction_reason or "").strip():
+            found.append("A correction must state why it replaces the calibration it corrects.")
         standards = list(self.reference_standards.all())
         if not standards:
             found.append("No reference standard selected.")
@@ -440,6 +468,26 @@ class CalibrationEvent(models.Model):
             snap = (version.instance if version is not None else standard).snapshot()
             found.append(dict(snap, due_date=dt.date.fromisoformat(snap["due_date"])))
         return found
+
+    def content_as_signed(self):
+        """What the certificate prints (calibration/signed_content.py): the content frozen at sign-off; for a record
+        stored without it (signed before it was kept, or loaded without a sign-off) the content rebuilt from the
+        audit trail as of the signing time, which says so and names the parts taken from the register as it is."""
+        if not self.is_signed:
+            raise ValueError("Only a signed calibration has signed content.")
+        if self.signed_content:
+            return self.signed_content
+        from django.apps import apps
+
+        return signed_content.rebuilt(self, apps)
+
+    @property
+    def content_stored(self):
+        return bool(self.signed_content)
+
+    def content_digest(self):
+        """SHA-256 of the canonical JSON of the content as signed: equal digests, equal certificates."""
+        return signed_content.digest(self.content_as_signed())
 
     def evaluate(self):
         """Compute every point and the event verdicts; returns nothing, updates unsaved fields."""
@@ -490,7 +538,8 @@ class CalibrationEvent(models.Model):
                 raise ValidationError(problems)
             standards = list(fresh.reference_standards.all())
             factor = fresh.unit_factor()
-            for point in fresh.points.all():
+            points = list(fresh.points.all())
+            for point in points:
                 point.compute(fresh.meter, standards, fresh.decision_rule, factor=factor)
                 point.save()
             fresh.evaluate()
@@ -499,6 +548,8 @@ class CalibrationEvent(models.Model):
             fresh.signed_by = by
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
+            # what the certificate prints, from the register as it stands now, locked with the signature
+            fresh.signed_content = signed_content.at_sign_off(fresh, points)
             super(CalibrationEvent, fresh).save()
             from calibration.fleet import recompute_due_dates
 

@@ -7,4 +7,5 @@ urlpatterns = [
     path("<id:pk>/", views.event_detail, name="event-detail"),
     path("<id:pk>/sign/", views.sign_event, name="event-sign"),
     path("<id:pk>/countersign/", views.countersign_event, name="event-countersign"),
+    path("<id:pk>/correct/", views.correct_event, name="event-correct"),
 ]

@@ -15,6 +15,7 @@ from calibration.models import (
     Countersignature,
     SignedRecordError,
 )
+from calibration.signed_content import certificate_number, digest
 from offline.kinds import device_mismatch
 from plant.db_failures import nothing_saved_page
 from plant.models import Meter
@@ -42,16 +43,43 @@ def new_bench_calibration(request, pk):
     return _calibration_entry(request, meter)
 
 
-def _calibration_entry(request, meter):
-    entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None, user=request.user)
-    swapped = device_mismatch(meter, request.POST) if request.method == "POST" else ""
+def _calibration_entry(request, meter, corrects=None):
+    entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None, user=request.user,
+                             corrects=corrects)
+    swapped = device_mismatch(meter, request.POST) if request.method == "POST" and corrects is None else ""
     if swapped:
         entry.non_field_errors.append(swapped)
     if request.method == "POST" and not swapped and entry.is_valid():
-        event = entry.save()
-        return redirect(event)
+        try:
+            event = entry.save()
+        except ValidationError as exc:  # the record to correct changed meanwhile (the model's own checks)
+            entry.non_field_errors.extend(exc.messages)
+        except IntegrityError:  # another correction of it was saved at the same moment: that one is used
+            started = CalibrationEvent.objects.filter(supersedes=corrects).first() if corrects is not None else None
+            if started is None:
+                raise
+            return redirect(started)
+        else:
+            return redirect(event)
     status = 400 if request.method == "POST" else 200
-    return render(request, "calibration/entry.html", {"meter": meter, "entry": entry}, status=status)
+    return render(request, "calibration/entry.html", {
+        "meter": meter, "entry": entry, "corrects": corrects,
+        "corrects_number": certificate_number(corrects) if corrects is not None else ""}, status=status)
+
+
+@permission_required("calibration.add_calibrationevent", raise_exception=True)
+def correct_event(request, pk):
+    """A correction of a signed calibration (ISO/IEC 17025:2017 §7.8.8): a new record, filled with the signed one's
+    values, that states why and replaces it when signed. A correction already started is reused."""
+    original = get_object_or_404(CalibrationEvent.objects.select_related(
+        "meter__position__area__site", "meter__position__fluid"), pk=pk)
+    existing = CalibrationEvent.objects.filter(supersedes=original).first()
+    if existing is not None:
+        return redirect(existing)
+    if not original.is_signed:
+        return event_detail(request, pk, sign_error="A draft is not corrected: it is signed or left as it is; "
+                                                    "only a signed calibration can be corrected.")
+    return _calibration_entry(request, original.meter, corrects=original)
 
 
 def _result_rows(points):
@@ -68,8 +96,10 @@ def _result_rows(points):
 def event_detail(request, pk, sign_error=None):
     event = get_object_or_404(
         CalibrationEvent.objects.select_related("meter__position__area__site", "meter__position__fluid", "position", "supersedes", "performed_by",
-                                                "created_by"), pk=pk
+                                                "created_by", "superseded_by"), pk=pk
     )
+    correction = getattr(event, "superseded_by", None)
+    content = event.content_as_signed() if event.is_signed else None
     points = list(event.points.all())
     rows = _result_rows(points)
     standards = event.standards_as_signed() if event.is_signed else [s.snapshot() for s in event.reference_standards.all()]
@@ -82,13 +112,21 @@ def event_detail(request, pk, sign_error=None):
         "as_found": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_FOUND],
         "as_left": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_LEFT],
         "low_tur": any(warning for _, _, warning in rows),
-        "error_unit": error_unit(event.meter),
+        # a signed record states its errors in the unit it was signed with
+        "error_unit": content["mpe"]["error_unit"] if content else error_unit(event.meter),
         "standards": standards,
         "countersignature": getattr(event, "countersignature", None),
         "problems": [] if event.is_signed else event.problems(),
         "sign_error": sign_error,
         "can_sign": _can_sign(request.user, event),
         "can_countersign": _can_countersign(request.user, event),
+        "number": certificate_number(event),
+        "digest": digest(content) if content else "",
+        "correction": correction,
+        "correction_number": certificate_number(correction) if correction is not None else "",
+        "supersedes_number": certificate_number(event.supersedes) if event.supersedes_id else "",
+        "can_correct": (event.is_signed and correction is None
+                        and request.user.has_perm("calibration.add_calibrationevent")),
     }, status=400 if sign_error else 200)
 
 

@@ -36,10 +36,9 @@ POSITION_FIELDS = ("tag", "area", "fluid", "line_size", "internal_diameter_mm", 
 def starting_point(device: Meter) -> dict:
     """The as-left of the device's last signed, not superseded calibration: its state when it was put away,
     which is where its drift starts again at the new position. Empty when it was never calibrated."""
-    from calibration.models import CalibrationEvent, CalibrationPoint
+    from calibration.models import CalibrationEvent, CalibrationPoint, in_force
 
-    event = (CalibrationEvent.objects.filter(meter=device, state=CalibrationEvent.State.SIGNED,
-                                             superseded_by__isnull=True)
+    event = (CalibrationEvent.objects.filter(in_force(), meter=device, state=CalibrationEvent.State.SIGNED)
              .order_by("-performed_on", "-id").prefetch_related("points").first())
     if event is None:
         return {}

@@ -13,7 +13,7 @@ from typing import Optional, Tuple
 import pandas as pd
 from django.utils import timezone
 
-from calibration.models import CalibrationEvent
+from calibration.models import CalibrationEvent, in_force
 from plant.models import Meter
 
 WINDOW_DAYS = 365
@@ -62,7 +62,7 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
     meters_df = pd.DataFrame.from_records(list(meter_rows), columns=METER_COLUMNS)
 
     events = CalibrationEvent.objects.filter(
-        state=CalibrationEvent.State.SIGNED, superseded_by__isnull=True, performed_on__lte=today,
+        in_force(), state=CalibrationEvent.State.SIGNED, performed_on__lte=today,
     )
     if site is not None:
         events = events.filter(meter__position__area__site=site)

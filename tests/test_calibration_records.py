@@ -203,9 +203,25 @@ def test_signed_event_locked_in_admin_and_sign_again(client, signed_event):
 
 
 def test_correction_supersedes_signed_event(meter, standard, signed_event):
+    """A correction (ISO/IEC 17025:2017 §7.8.8) names the signed record it replaces and says why."""
     correction = CalibrationEvent.objects.create(meter=meter, performed_on=TODAY, technician="A. Fieldtech",
-                                                 procedure="re-entry", supersedes=signed_event)
+                                                 procedure="re-entry", supersedes=signed_event,
+                                                 correction_reason="Indications typed in the wrong rows")
     assert signed_event.superseded_by == correction
+
+
+def test_a_correction_without_a_reason_or_of_a_draft_is_refused(meter, standard, signed_event):
+    before = counts()
+    with pytest.raises(ValidationError) as refused:
+        CalibrationEvent.objects.create(meter=meter, performed_on=TODAY, technician="T", procedure="p",
+                                        supersedes=signed_event, correction_reason="  ")
+    assert "State why the calibration is corrected" in refused.value.message_dict["correction_reason"][0]
+    draft = CalibrationEvent.objects.create(meter=meter, performed_on=TODAY, technician="T", procedure="p")
+    with pytest.raises(ValidationError) as refused:
+        CalibrationEvent.objects.create(meter=meter, performed_on=TODAY, technician="T", procedure="p",
+                                        supersedes=draft, correction_reason="typo")
+    assert "Only a signed calibration can be corrected" in refused.value.message_dict["supersedes"][0]
+    assert counts() == (before[0] + 1, before[1])  # only the draft was saved
 
 
 def test_sign_refused_when_problems(meter, standard):

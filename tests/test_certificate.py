@@ -159,11 +159,17 @@ def test_certificate_contains_every_required_element(client, signed_event, stand
     assert f"End of certificate {number}" in text
 
 
-def test_lab_identity_comes_from_settings(client, signed_event, settings):
+def test_lab_identity_comes_from_settings_at_sign_off(client, meter, standard, settings, monkeypatch):
+    """The laboratory named is the one of the settings when the record was signed (ISO/IEC 17025:2017 §7.8.2.1 b);
+    a later change of the settings does not reach an issued certificate."""
     settings.CALIBRATION_LAB = {"name": "Test Lab Ltd", "address": "9 Test Road, Testville"}
-    _, text = pdf_text(client.get(f"/calibrations/{signed_event.pk}/certificate.pdf").content)
+    event = sign(client, enter(client, meter, standard), at(TODAY), monkeypatch)
+    _, text = pdf_text(client.get(f"/calibrations/{event.pk}/certificate.pdf").content)
     assert "Test Lab Ltd" in text and "9 Test Road, Testville" in text
     assert DEFAULT_LAB["name"] not in text
+    settings.CALIBRATION_LAB = {"name": "Other Lab Ltd", "address": "1 Elsewhere"}
+    _, again = pdf_text(client.get(f"/calibrations/{event.pk}/certificate.pdf").content)
+    assert again == text
 
 
 def test_draft_has_no_certificate(client, meter, standard):
@@ -189,6 +195,7 @@ def test_correction_says_what_it_supersedes(client, meter, standard, signed_even
     correction = CalibrationEvent.objects.create(
         meter=meter, performed_on=TODAY, technician="A. Fieldtech", procedure="Re-entry of WI-CAL-07 results",
         supersedes=signed_event, created_by=signed_event.created_by,
+        correction_reason="As-found indications entered against the wrong nominal points",
     )
     correction.reference_standards.add(standard)
     for i, (ref, ind) in enumerate(FOUND):
@@ -198,6 +205,7 @@ def test_correction_says_what_it_supersedes(client, meter, standard, signed_even
     _, text = pdf_text(client.get(f"/calibrations/{correction.pk}/certificate.pdf").content)
     text = flat(text)
     assert f"supersedes certificate {certificate_number(signed_event)}" in text
+    assert "Reason for the correction: As-found indications entered against the wrong nominal points" in text
     # the corrected event is replaced by its correction in the drift history
     assert [row[0] for row in drift_history(correction)] == [TODAY]
 

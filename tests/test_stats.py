@@ -44,7 +44,7 @@ def fleet():
     # FT-1: the event 60 days ago was corrected (the original, out of tolerance, is superseded)
     event(m1, 800, False), event(m1, 430, True), event(m1, 100, True), event(m1, 10, False)
     original = event(m1, 60, False)
-    event(m1, 60, True, supersedes=original)
+    event(m1, 60, True, supersedes=original, correction_reason="As-found readings transposed")
     # FT-2: the event exactly 365 days ago is outside the 12-month window
     event(m2, 700, True), event(m2, 365, False), event(m2, 5, True)
     # FT-3: a signed event without an as-found verdict counts as a calibration but not in the rate; drafts are ignored

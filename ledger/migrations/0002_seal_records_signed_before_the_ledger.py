@@ -18,7 +18,8 @@ def unseal(apps, schema_editor):
 class Migration(migrations.Migration):
     dependencies = [
         ("ledger", "0001_record_chain"),
-        ("calibration", "0008_events_at_their_positions"),
+        # after the signed content is frozen into the older records, so that their seal covers it too
+        ("calibration", "0011_merge_signed_content_and_standard_links"),
         ("maintenance", "0003_review_indexes"),
     ]
 
