@@ -112,6 +112,10 @@ def test_tablet_maintenance_record(pitot_plant, live_server, browser, tmp_path):
         expect(page.locator("#record-condition")).to_have_text("Blocked")
         image = page.locator(".photos img")
         expect(image).to_be_visible()
+        # The photo is lazy-loaded: bring it into view and wait until the browser has decoded it
+        # (visible is not loaded; asserting at once raced the image request).
+        image.scroll_into_view_if_needed()
+        page.wait_for_function("img => img.complete && img.naturalWidth > 0", arg=image.element_handle())
         assert page.evaluate("img => img.naturalWidth", image.element_handle()) == 640  # served to the logged-in user
         sign = page.get_by_role("button", name=re.compile("Sign and lock"))
         assert_touch_size(sign, "Sign button")
