@@ -98,10 +98,17 @@ class SwapForm(forms.Form):
     removed_to = forms.ChoiceField(label="Removed device goes", choices=[
         (Removal.SHELF, "to stores as a spare"), (Removal.RETIRED, "out of use (scrapped or returned)")],
         initial=Removal.SHELF)
+    unfit_reason = forms.CharField(
+        required=False, max_length=1000, widget=forms.Textarea(attrs={"rows": 3}),
+        label="Reviewer's reason to install a device not fit for this duty",
+        help_text="Only for a device the duty rules say is not fit here; kept with the installation and shown on "
+                  "the position's page.")
 
-    def __init__(self, *args, position, **kwargs):
+    def __init__(self, *args, position, may_accept_unfit=False, **kwargs):
         super().__init__(*args, **kwargs)
         self.position = position
+        if not may_accept_unfit:
+            del self.fields["unfit_reason"]
         self.fields["device"].queryset = Meter.objects.filter(position__isnull=True, status=Meter.Status.SPARE)
         self.fields["device"].label_from_instance = lambda d: (
             f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {label_for(d.flow_units)}"

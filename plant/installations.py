@@ -12,7 +12,10 @@ from dataclasses import dataclass
 from django.db import transaction
 
 from calibration import units
+from plant import fit
 from plant.models import Installation, Meter, Position, flows_above_range
+
+UNFIT_PERMISSION = "plant.accept_unfit_device"
 
 
 class InstallationError(Exception):
@@ -82,9 +85,52 @@ def install_problems(device: Meter, position: Position, on_date: dt.date, *, new
     return found
 
 
+def unfit_findings(device: Meter, position: Position) -> list:
+    """The principle×fluid findings that make `device` not fit for the duty at `position` (plant/risk.py's
+    misapplied findings: an electromagnetic device on a non-conductive liquid, say)."""
+    if not position.fluid_id:
+        return []
+    return [f for f in position.assess(device.principle, device.wetted_material) if f.severity == "misapplied"]
+
+
+def unfit_sentence(device: Meter, position: Position, findings) -> str:
+    what = "; ".join(f"{f.title} ({f.reason.rstrip('.')})" for f in findings)
+    return f"Device {device.device_label} is not fit for the duty at {position.tag}: {what}."
+
+
+def _accept_unfit(device: Meter, position: Position, user, unfit_reason: str) -> dict:
+    """Refuse a device not fit for the duty unless a reviewer gives a written reason; the fields the installation
+    keeps when one is given. A step run with no user (a management command) is the operator's: the reason is
+    still required."""
+    findings = unfit_findings(device, position)
+    if not findings:
+        return {}
+    sentence = unfit_sentence(device, position, findings)
+    reason = (unfit_reason or "").strip()
+    if user is not None and not user.has_perm(UNFIT_PERMISSION):
+        raise InstallationError({"unfit_reason": [
+            f"{sentence} Only a reviewer may install it, with a written reason; choose another device or ask one."]})
+    if not reason:
+        raise InstallationError({"unfit_reason": [
+            f"{sentence} To install it all the same, write why (the reason is kept with the installation)."]})
+    return {"unfit_reason": reason, "unfit_findings": ", ".join(f.code for f in findings)[:300],
+            "unfit_accepted_by": user}
+
+
+def range_warnings(device: Meter, position: Position) -> list[str]:
+    """How the position's normal and minimum flow sit in the device's range (plant/fit.py), in the device's units."""
+    high = device.range_max
+    if not isinstance(high, (int, float)) or isinstance(high, bool) or not high > 0 or device.principle not in fit.USABLE_MINIMUM_FRACTION:
+        return []
+    return fit.range_fit_warnings(
+        device.principle, high, position.flow_in(position.normal_flow, device.flow_units),
+        position.flow_in(position.min_flow, device.flow_units), units_label=units.label_for(device.flow_units))
+
+
 def fit_warnings(device: Meter, position: Position) -> list[str]:
     """What the technician should know before fitting `device` at `position` (not refusals): units that differ,
-    an MPE wider than the accuracy the position needs, and the principle×fluid findings it would meet there."""
+    an MPE wider than the accuracy the position needs, flows low in its range, and the principle×fluid findings
+    of high risk it would meet there (findings that make it unfit are refusals: unfit_findings)."""
     warnings = []
     if units.code_for(device.flow_units) != units.code_for(position.flow_units):
         warnings.append(f"The device reads in {units.label_for(device.flow_units)}; the position's flows are stated "
@@ -94,7 +140,8 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
         warnings.append(f"The device's MPE (±{device.mpe_value:g} % of reading) is wider than the ±"
                         f"{position.required_accuracy_pct:g} % {position.tag} requires.")
     findings = position.assess(device.principle, device.wetted_material)
-    warnings += [f"{f.title}: {f.reason}" for f in findings if f.severity in ("high", "critical")]
+    warnings += range_warnings(device, position)
+    warnings += [f"{f.title}: {f.reason}" for f in findings if f.severity == "high"]
     return warnings
 
 
@@ -109,14 +156,15 @@ def _after_move(device: Meter, on_date: dt.date, recompute=True):
 
 
 def _install(device, position, on_date, user, *, new_device=False, recompute=True,
-             due_refreshed=False) -> Installation:
+             due_refreshed=False, unfit_reason="") -> Installation:
     if not new_device and not due_refreshed:
         refresh_due(device)
     problems = install_problems(device, position, on_date, new_device=new_device)
     if problems:
         raise InstallationError({"device": problems})
+    accepted = _accept_unfit(device, position, user, unfit_reason)
     installation = Installation.objects.create(device=device, position=position, since=on_date, installed_by=user,
-                                               starting_point=starting_point(device))
+                                               starting_point=starting_point(device), **accepted)
     device.position = position
     device.status = Meter.Status.IN_SERVICE
     device.save()
@@ -143,9 +191,10 @@ def _remove(device, on_date, user, reason, to=Removal.SHELF) -> Installation:
 
 
 def install(device: Meter, position: Position, on_date: dt.date, user=None, *, new_device=False,
-            recompute=True) -> Installation:
+            recompute=True, unfit_reason="") -> Installation:
     with transaction.atomic():
-        return _install(device, position, on_date, user, new_device=new_device, recompute=recompute)
+        return _install(device, position, on_date, user, new_device=new_device, recompute=recompute,
+                        unfit_reason=unfit_reason)
 
 
 def remove(device: Meter, on_date: dt.date, reason: str, user=None, to=Removal.SHELF) -> Installation:
@@ -160,7 +209,7 @@ class SwapResult:
 
 
 def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, user=None,
-         to=Removal.SHELF, *, brand_new=False) -> SwapResult:
+         to=Removal.SHELF, *, brand_new=False, unfit_reason="") -> SwapResult:
     """Remove the device at `position` (reason; to the shelf or retired) and install `new_device` there."""
     with transaction.atomic():
         old = position.installed_device()
@@ -174,15 +223,18 @@ def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, u
         problems = install_problems(new_device, position, on_date, new_device=brand_new, replacing=True)
         if problems:
             raise InstallationError({"device": problems})
+        _accept_unfit(new_device, position, user, unfit_reason)
         removed = _remove(old, on_date, user, reason, to)
         position.refresh_from_db()
-        installed = _install(new_device, position, on_date, user, new_device=brand_new, due_refreshed=True)
+        installed = _install(new_device, position, on_date, user, new_device=brand_new, due_refreshed=True,
+                             unfit_reason=unfit_reason)
         return SwapResult(removed, installed)
 
 
-def commission(*, since: dt.date | None = None, user=None, **fields) -> Meter:
+def commission(*, since: dt.date | None = None, user=None, unfit_reason="", **fields) -> Meter:
     """A new position and a new device installed there at once (the register's "new meter"): position fields
-    (tag, area, fluid, line size, flows...) go to the position, the rest to the device."""
+    (tag, area, fluid, line size, flows...) go to the position, the rest to the device. A device not fit for the
+    duty needs `unfit_reason`, as at a swap."""
     position_fields = {k: fields.pop(k) for k in POSITION_FIELDS if k in fields and k != "flow_units"}
     position_fields["flow_units"] = units.code_for(fields.get("flow_units", "m3/h"))
     with transaction.atomic():
@@ -191,7 +243,8 @@ def commission(*, since: dt.date | None = None, user=None, **fields) -> Meter:
         device = Meter.objects.create(**fields, status=Meter.Status.SPARE)
         if status == Meter.Status.IN_SERVICE:
             # a new device's due fields are set by the next recompute, as for any new register entry
-            _install(device, position, since or position.area.site.today(), user, new_device=True, recompute=False)
+            _install(device, position, since or position.area.site.today(), user, new_device=True, recompute=False,
+                     unfit_reason=unfit_reason)
         else:
             device.status = status
             device.save()

@@ -582,12 +582,18 @@ class Installation(ProtectedWhileCited, models.Model):
     removal_reason = models.CharField(max_length=200, blank=True)
     # the as-left of the device's last calibration before it was installed here (its starting point)
     starting_point = models.JSONField(default=dict, blank=True)
+    # a device not fit for the position's duty goes in only with a reviewer's written reason (plant/installations.py)
+    unfit_reason = models.TextField(blank=True, default="")
+    unfit_findings = models.CharField(max_length=300, blank=True, default="")
+    unfit_accepted_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                          related_name="+")
     history = HistoricalRecords()
 
     objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["position__tag", "-since", "-id"]
+        permissions = [("accept_unfit_device", "Install a device not fit for the position's duty, with a reason")]
         constraints = [
             models.UniqueConstraint(fields=["device"], condition=models.Q(until__isnull=True),
                                     name="one_open_installation_per_device"),

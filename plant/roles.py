@@ -20,7 +20,7 @@ ROLE_PERMISSIONS = {
                         "maintenance.add_maintenancerecord", "maintenance.sign_maintenance"],
     REVIEWER: READ + ["calibration.view_review", "calibration.countersign_calibration",
                       "plant.add_meter", "plant.change_meter", "plant.add_position", "plant.change_position",
-                      "plant.swap_device", "plant.add_fluid", "plant.change_fluid",
+                      "plant.swap_device", "plant.accept_unfit_device", "plant.add_fluid", "plant.change_fluid",
                       "plant.add_site", "plant.add_area", "calibration.add_referencestandard",
                       "calibration.change_referencestandard",
                       "maintenance.view_maintenancetask", "maintenance.view_maintenancerecord",

@@ -43,7 +43,7 @@ def _device_context(meter):
         "calibrations": meter.calibrations.select_related("position")[:20],
         "audit": _audit_rows(meter),
         "maintenance": meter_section(meter),
-        "device_moves": meter.installations.select_related("position", "installed_by", "removed_by"),
+        "device_moves": meter.installations.select_related("position", "installed_by", "removed_by", "unfit_accepted_by"),
     }
 
 
@@ -52,7 +52,7 @@ def meter_detail(request, tag):
     """A position's page (URLs by tag): the position, the device installed there now, and its history."""
     position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
     meter = position.installed_device()
-    moves = list(position.installations.select_related("device", "installed_by", "removed_by"))
+    moves = list(position.installations.select_related("device", "installed_by", "removed_by", "unfit_accepted_by"))
     if meter is not None:
         context = _device_context(meter)
     else:
@@ -103,16 +103,18 @@ def position_swap(request, tag):
     """Remove the device at a position and install a spare or a new device; both recorded, nothing half done."""
     position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
     current = position.installed_device()
-    form = SwapForm(request.POST or None, position=position)
+    may_accept_unfit = request.user.has_perm(installations.UNFIT_PERMISSION)
+    form = SwapForm(request.POST or None, position=position, may_accept_unfit=may_accept_unfit)
     if request.method == "POST" and form.is_valid():
         data = form.cleaned_data
+        unfit_reason = data.get("unfit_reason", "")
         try:
             if current is None:
                 installations.install(data["device"], position, data["on_date"], request.user,
-                                      new_device=data["brand_new"])
+                                      new_device=data["brand_new"], unfit_reason=unfit_reason)
             else:
                 installations.swap(position, data["device"], data["on_date"], data["reason"], request.user,
-                                   to=data["removed_to"], brand_new=data["brand_new"])
+                                   to=data["removed_to"], brand_new=data["brand_new"], unfit_reason=unfit_reason)
         except installations.InstallationError as refused:
             for field, messages_ in refused.errors.items():
                 for message in messages_:
@@ -126,8 +128,11 @@ def position_swap(request, tag):
     spares = list(form.fields["device"].queryset.order_by(F("next_due_date").desc(nulls_last=True), "serial"))
     return render(request, "plant/swap.html", {
         "position": position, "current": current, "form": form, "fluid": position.fluid,
-        "spares": [(d, installations.install_problems(d, position, position.area.site.today(), replacing=True),
-                    installations.fit_warnings(d, position)) for d in spares],
+        "may_accept_unfit": may_accept_unfit,
+        "spares": [{"device": d,
+                    "problems": installations.install_problems(d, position, position.area.site.today(), replacing=True),
+                    "unfit": installations.unfit_findings(d, position),
+                    "warnings": installations.fit_warnings(d, position)} for d in spares],
     }, status=400 if request.method == "POST" else 200)
 
 

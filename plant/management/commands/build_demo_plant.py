@@ -95,6 +95,12 @@ SPARES = [
 ]
 
 
+# the demo's two misapplied devices went in at commissioning, before the duty rules refused them
+DEMO_UNFIT_TAGS = {"FT-206", "FT-401"}
+DEMO_UNFIT_REASON = ("Installed at commissioning in 2016, before the duty rules were applied; "
+                     "replacement is on the capital plan.")
+
+
 class Command(BaseCommand):
     help = "Create the invented demo plant in the database and write it to fixtures/demo_plant.json."
 
@@ -125,6 +131,7 @@ class Command(BaseCommand):
                 serial=f"SN{rng.randint(100000, 999999)}", maker=rng.choice(MAKERS),
                 model=f"M{rng.randint(10, 99)}", mpe_value=mpe, mpe_basis=basis,
                 base_interval_days=rng.choice([365, 365, 730, 180]),
+                unfit_reason=DEMO_UNFIT_REASON if tag in DEMO_UNFIT_TAGS else "",
             )
         # one device moved: the one at FT-305 served on brine at FT-115 before the syrup kitchen; FT-115 has
         # stood empty since (the brine pre-dosing it measured was stopped)
