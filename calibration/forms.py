@@ -306,8 +306,12 @@ class BasePointGrid(forms.BaseFormSet):
     def get_form_kwargs(self, index):
         return {"meter": self.meter}
 
+    def kept_forms(self):
+        """The rows not ticked "remove" (a removed row is neither checked nor saved)."""
+        return [f for f in self.forms if not (getattr(f, "cleaned_data", None) or {}).get("DELETE")]
+
     def filled_rows(self):
-        return [f.cleaned_data for f in self.forms if f.cleaned_data and not f.is_blank()]
+        return [f.cleaned_data for f in self.kept_forms() if f.cleaned_data and not f.is_blank()]
 
     def clean(self):
         # a negative row count would silently drop every row sent (the page never sends one)
@@ -331,27 +335,33 @@ def entry_post_data(header: dict, as_found=(), as_left=()) -> dict:
     return data
 
 
-PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, min_num=0, max_num=20)
+PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, min_num=0, max_num=20, can_delete=True)
 
 
 class CalibrationEntry:
     """The whole tablet form; validates everything first, then saves in one transaction."""
 
-    def __init__(self, meter, data=None, user=None, corrects=None):
-        """`corrects`: the signed record this entry corrects (ISO/IEC 17025 §7.8.8); the form starts from its values."""
+    def __init__(self, meter, data=None, user=None, corrects=None, draft=None):
+        """`corrects`: the signed record this entry corrects (ISO/IEC 17025 §7.8.8); the form starts from its values.
+        `draft`: a draft being edited; the form starts from its values and saving rewrites it (and its points)."""
         from django.conf import settings
 
         self.meter = meter
         self.user = user
-        self.corrects = corrects
+        self.draft = draft
+        self.corrects = corrects if draft is None else draft.supersedes
         bound = data is not None
         initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.today()}  # the date at the meter's site
         grids = {}
-        if corrects is not None:
-            initial, grids = correction_initial(corrects)
-        header = CorrectionForm if corrects is not None else EventForm
+        if self.corrects is not None:
+            initial, grids = correction_initial(self.corrects)
+        if draft is not None:
+            initial, grids = correction_initial(draft)
+            initial["correction_reason"] = draft.correction_reason
+        header = CorrectionForm if self.corrects is not None else EventForm
         self.low_tur_policy = settings.CALIBRATION.get("low_tur_policy", "require_guarded")
-        self.event_form = (header(data, prefix="ev", meter=meter) if bound
+        instance = {"instance": draft} if draft is not None else {}
+        self.event_form = (header(data, prefix="ev", meter=meter, **instance) if bound
                            else header(prefix="ev", initial=initial, meter=meter))
         self.as_found, self.as_left = (
             PointGrid(data, prefix=prefix, meter=meter) if bound
@@ -398,13 +408,13 @@ class CalibrationEntry:
         found_rows = self.as_found.filled_rows()
         if not found_rows:
             self.non_field_errors.append("Enter at least one as-found point.")
-        for form in self.as_found.forms:
+        for form in self.as_found.kept_forms():
             if form.is_blank():
-                form.add_error("reference_value", "Enter the reference flow at this point, or remove the row.")
+                form.add_error("reference_value", "Enter the reference flow at this point, or tick Remove on its row.")
         adjusted = self.event_form.cleaned_data.get("adjusted")
         if adjusted and not self.as_left.filled_rows():
             self.non_field_errors.append("An adjustment was made: enter the as-left points.")
-            for form in self.as_left.forms:
+            for form in self.as_left.kept_forms():
                 form.add_error("reference_value", "As-left point required after an adjustment.")
         date = self.event_form.cleaned_data.get("performed_on")
         values = [r["reference_entered"] for r in found_rows + self.as_left.filled_rows()]  # the standard's units
@@ -418,7 +428,7 @@ class CalibrationEntry:
             rule = self.event_form.cleaned_data.get("decision_rule")
             computed = []
             for grid in (self.as_found, self.as_left):
-                for form in grid.forms:
+                for form in grid.kept_forms():
                     if not form.errors and not form.is_blank():
                         computed.append(form.check_results(list(standards), rule))
             low = [p for p in computed if p is not None and p.tur < uncertainty.TUR_WARNING]
@@ -430,19 +440,30 @@ class CalibrationEntry:
                     f"The test uncertainty ratio is below {uncertainty.TUR_WARNING:g}:1 at {where}: the "
                     "decision-rule policy requires guarded acceptance (ILAC-G8, w = U) then. Choose guarded "
                     "acceptance, or use a better reference standard.")
-        return not (self.non_field_errors or self.event_form.errors or any(f.errors for f in self.as_found.forms)
-                    or any(f.errors for f in self.as_left.forms))
+        return not (self.non_field_errors or self.event_form.errors or any(f.errors for f in self.as_found.kept_forms())
+                    or any(f.errors for f in self.as_left.kept_forms()))
 
     @transaction.atomic
     def save(self):
         event = self.event_form.save(commit=False)
         event.meter = self.meter
-        event.created_by = self.user
         event.meter_units = self.meter.flow_units
         event.reference_units = self.conversion.units
         original = self.corrects
         if original is not None:
             event.supersedes = original
+        if self.draft is not None:
+            # an edited draft keeps who entered and who performed it; its rows are entered again from the form
+            if event.contractor:
+                event.performed_by, event.technician = None, event.contractor
+            elif self.draft.performed_by_id is None and self.draft.created_by_id:
+                event.performed_by = self.draft.created_by
+                event.technician = self.draft.created_by.get_full_name() or self.draft.created_by.username
+            event.save()
+            self.event_form.save_m2m()
+            event.points.all().delete()
+            return self._save_points(event)
+        event.created_by = self.user
         if event.contractor:
             event.performed_by, event.technician = None, event.contractor
         elif original is not None and not original.contractor:
@@ -453,6 +474,9 @@ class CalibrationEntry:
             event.technician = (self.user.get_full_name() or self.user.username) if self.user else ""
         event.save()
         self.event_form.save_m2m()
+        return self._save_points(event)
+
+    def _save_points(self, event):
         standards = list(event.reference_standards.all())
         factor = self.conversion.factor()
         for kind, grid in ((CalibrationPoint.Kind.AS_FOUND, self.as_found), (CalibrationPoint.Kind.AS_LEFT, self.as_left)):

@@ -248,6 +248,8 @@ class CalibrationEvent(models.Model):
     class State(models.TextChoices):
         DRAFT = "draft", "Draft"
         SIGNED = "signed", "Signed"
+        # a draft its author or a reviewer withdrew, with a reason; kept (never signed, never counted), not deleted
+        DISCARDED = "discarded", "Discarded draft"
 
     class Reason(models.TextChoices):
         SCHEDULED = "scheduled", "Scheduled"
@@ -299,6 +301,10 @@ class CalibrationEvent(models.Model):
     signed_at = models.DateTimeField(null=True, blank=True)
     # the signed calibration this one corrects (ISO/IEC 17025 §7.8.8); it replaces that one when it is signed
     supersedes = models.OneToOneField("self", null=True, blank=True, on_delete=models.PROTECT, related_name="superseded_by")
+    discard_reason = models.TextField("why the draft was discarded", blank=True)
+    discarded_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                     related_name="+")
+    discarded_at = models.DateTimeField(null=True, blank=True)
     correction_reason = models.TextField("reason for the correction", blank=True,
                                          help_text="why the certificate it replaces is corrected; printed on the new one")
     # everything the certificate prints, frozen at sign-off (calibration/signed_content.py); locked with the record
@@ -410,8 +416,11 @@ class CalibrationEvent(models.Model):
         return CalibrationEvent.objects.filter(pk=self.pk).values_list("state", flat=True).first()
 
     def save(self, *args, **kwargs):
-        if self._stored_state() == self.State.SIGNED:
+        stored = self._stored_state()
+        if stored == self.State.SIGNED:
             raise SignedRecordError(f"Calibration {self.pk} is signed and cannot be changed; record a correction instead.")
+        if stored == self.State.DISCARDED:
+            raise SignedRecordError(f"Calibration {self.pk} was discarded and cannot be changed; enter a new one.")
         problems = self.correction_errors()
         if problems:
             raise ValidationError(problems)
@@ -427,6 +436,34 @@ class CalibrationEvent(models.Model):
         if self._stored_state() == self.State.SIGNED:
             raise SignedRecordError(f"Calibration {self.pk} is signed and cannot be deleted.")
         return super().delete(*args, **kwargs)
+
+    @property
+    def is_draft(self):
+        return self.state == self.State.DRAFT
+
+    @property
+    def is_discarded(self):
+        return self.state == self.State.DISCARDED
+
+    def discard(self, reason: str, user):
+        """Withdraw this draft with a reason: it stays on file (and in its history) as a discarded draft, is never
+        signed and counts nowhere. A discarded correction no longer holds the record it was to correct, so that one
+        can be corrected again."""
+        reason = (reason or "").strip()
+        if not reason:
+            raise ValidationError({"discard_reason": "Say why the draft is discarded (kept with the record)."})
+        with transaction.atomic():
+            stored = CalibrationEvent.objects.select_for_update().filter(pk=self.pk).values_list("state", flat=True).first()
+            if stored != self.State.DRAFT:
+                raise SignedRecordError(f"Calibration {self.pk} is not a draft any more ({stored}); it cannot be "
+                                        "discarded.")
+            if self.supersedes_id:
+                reason = f"{reason} (it was a correction of calibration {self.supersedes_id})"
+                self.supersedes = None
+            self.state, self.discard_reason = self.State.DISCARDED, reason
+            self.discarded_by, self.discarded_at = user, timezone.now()
+            self._change_reason = f"discarded: {reason}"[:100]
+            super().save()
 
     # Computation ---------------------------------------------------------------------------------
     def points_of(self, kind):
@@ -530,7 +567,9 @@ class CalibrationEvent(models.Model):
             # SQLite, is refused and retries), then finds nothing left to claim.
             claimed = CalibrationEvent.objects.filter(pk=self.pk, state=self.State.DRAFT).update(signed_by=by)
             if not claimed:
-                current = CalibrationEvent.objects.filter(pk=self.pk).values_list("signed_by", flat=True).first()
+                state, current = CalibrationEvent.objects.filter(pk=self.pk).values_list("state", "signed_by").first()
+                if state == self.State.DISCARDED:
+                    raise SignedRecordError(f"Calibration {self.pk} was discarded and cannot be signed.")
                 raise SignedRecordError(f"Calibration {self.pk} is already signed by {current}.")
             fresh = CalibrationEvent.objects.select_for_update().get(pk=self.pk)
             problems = fresh.problems()
@@ -601,6 +640,9 @@ class CalibrationPoint(models.Model):
     def save(self, *args, **kwargs):
         if self.event_id and self._event_signed():
             raise SignedRecordError("Points of a signed calibration cannot be changed.")
+        if self.event_id and CalibrationEvent.objects.filter(pk=self.event_id,
+                                                             state=CalibrationEvent.State.DISCARDED).exists():
+            raise SignedRecordError("Points of a discarded calibration cannot be changed.")
         super().save(*args, **kwargs)
 
     def delete(self, *args, **kwargs):

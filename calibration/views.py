@@ -43,10 +43,11 @@ def new_bench_calibration(request, pk):
     return _calibration_entry(request, meter)
 
 
-def _calibration_entry(request, meter, corrects=None):
+def _calibration_entry(request, meter, corrects=None, draft=None):
     entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None, user=request.user,
-                             corrects=corrects)
-    swapped = device_mismatch(meter, request.POST) if request.method == "POST" and corrects is None else ""
+                             corrects=corrects, draft=draft)
+    swapped = (device_mismatch(meter, request.POST) if request.method == "POST" and corrects is None and draft is None
+               else "")
     if swapped:
         entry.non_field_errors.append(swapped)
     if request.method == "POST" and not swapped and entry.is_valid():
@@ -54,6 +55,8 @@ def _calibration_entry(request, meter, corrects=None):
             event = entry.save()
         except ValidationError as exc:  # the record to correct changed meanwhile (the model's own checks)
             entry.non_field_errors.extend(exc.messages)
+        except SignedRecordError as exc:  # the draft was signed or discarded meanwhile
+            entry.non_field_errors.append(str(exc))
         except IntegrityError:  # another correction of it was saved at the same moment: that one is used
             started = CalibrationEvent.objects.filter(supersedes=corrects).first() if corrects is not None else None
             if started is None:
@@ -63,8 +66,45 @@ def _calibration_entry(request, meter, corrects=None):
             return redirect(event)
     status = 400 if request.method == "POST" else 200
     return render(request, "calibration/entry.html", {
-        "meter": meter, "entry": entry, "corrects": corrects,
-        "corrects_number": certificate_number(corrects) if corrects is not None else ""}, status=status)
+        "meter": meter, "entry": entry, "corrects": entry.corrects, "draft": draft,
+        "corrects_number": certificate_number(entry.corrects) if entry.corrects is not None else ""}, status=status)
+
+
+def _can_edit_draft(user, event):
+    """A draft is edited or discarded by the technician who entered it, or by a reviewer."""
+    return event.is_draft and ((event.created_by_id == user.pk and user.has_perm("calibration.add_calibrationevent"))
+                               or user.has_perm("calibration.countersign_calibration"))
+
+
+@permission_required("calibration.view_calibrationevent", raise_exception=True)
+def edit_draft(request, pk):
+    """Correct a draft before it is signed: the tablet form filled with its values; saving rewrites the draft."""
+    event = get_object_or_404(CalibrationEvent.objects.select_related(
+        "meter__position__area__site", "meter__position__fluid", "supersedes"), pk=pk)
+    if not event.is_draft:
+        return event_detail(request, pk, sign_error=(
+            "Only a draft can be edited; a signed calibration is put right by a correction." if event.is_signed
+            else "This draft was discarded; enter a new calibration."))
+    if not _can_edit_draft(request.user, event):
+        raise PermissionDenied("Only the technician who entered this draft, or a reviewer, can edit it.")
+    return _calibration_entry(request, event.meter, draft=event)
+
+
+@require_POST
+@permission_required("calibration.view_calibrationevent", raise_exception=True)
+def discard_draft(request, pk):
+    event = get_object_or_404(CalibrationEvent, pk=pk)
+    if not event.is_draft:
+        return event_detail(request, pk, sign_error="Only a draft can be discarded.")
+    if not _can_edit_draft(request.user, event):
+        raise PermissionDenied("Only the technician who entered this draft, or a reviewer, can discard it.")
+    try:
+        event.discard(request.POST.get("discard_reason", ""), request.user)
+    except ValidationError as exc:
+        return event_detail(request, pk, sign_error=" ".join(exc.messages))
+    except SignedRecordError as exc:
+        return event_detail(request, pk, sign_error=str(exc))
+    return redirect(event)
 
 
 @permission_required("calibration.add_calibrationevent", raise_exception=True)
@@ -73,7 +113,8 @@ def correct_event(request, pk):
     values, that states why and replaces it when signed. A correction already started is reused."""
     original = get_object_or_404(CalibrationEvent.objects.select_related(
         "meter__position__area__site", "meter__position__fluid"), pk=pk)
-    existing = CalibrationEvent.objects.filter(supersedes=original).first()
+    existing = CalibrationEvent.objects.filter(supersedes=original).exclude(
+        state=CalibrationEvent.State.DISCARDED).first()
     if existing is not None:
         return redirect(existing)
     if not original.is_signed:
@@ -119,6 +160,7 @@ def event_detail(request, pk, sign_error=None):
         "problems": [] if event.is_signed else event.problems(),
         "sign_error": sign_error,
         "can_sign": _can_sign(request.user, event),
+        "can_edit": _can_edit_draft(request.user, event),
         "can_countersign": _can_countersign(request.user, event),
         "number": certificate_number(event),
         "digest": digest(content) if content else "",
@@ -131,7 +173,7 @@ def event_detail(request, pk, sign_error=None):
 
 
 def _can_sign(user, event):
-    return (not event.is_signed and user.has_perm("calibration.sign_calibration")
+    return (event.is_draft and user.has_perm("calibration.sign_calibration")
             and event.created_by_id == user.pk)
 
 

@@ -21,7 +21,7 @@ def entry_errors(entry):
     forms = [entry.event_form]
     for grid in (entry.as_found, entry.as_left):
         add("__all__", grid.non_form_errors())
-        forms.extend(grid.forms)
+        forms.extend(grid.kept_forms())
     for form in forms:
         for field, messages in form.errors.items():
             add("__all__" if field == "__all__" else form.add_prefix(field), messages)

@@ -56,7 +56,7 @@ def entry_rules(meter):
             "outside_range": outside.replace(f"{probe:g}", "{value}", 1),
             "zero_of_reading": (_row_message(meter, "reference_value", reference_value=0, indicated_value=0)
                                 if meter.mpe_basis == "pct_reading" and meter.range_min <= 0 else ""),
-            "blank_as_found_row": "Enter the reference flow at this point, or remove the row.",
+            "blank_as_found_row": "Enter the reference flow at this point, or tick Remove on its row.",
             "as_found_required": AS_FOUND_REQUIRED,
             "as_left_required": AS_LEFT_REQUIRED,
             "future_date": "The date of calibration is in the future.",

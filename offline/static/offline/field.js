@@ -455,6 +455,7 @@
       const rows = Number(text(`${prefix}-TOTAL_FORMS`)) || 0;
       for (let i = 0; i < rows; i += 1) {
         const name = (field) => `${prefix}-${i}-${field}`;
+        if (data.get(name("DELETE"))) continue;  // ticked "remove": neither checked nor sent as a point
         const ref = text(name("reference_value"));
         const ind = text(name("indicated_value"));
         const repeats = text(name("repeats"));
