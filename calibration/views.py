@@ -6,7 +6,7 @@ from django.db import IntegrityError, transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
-from calibration import decision
+from calibration import dcc_sign, decision
 from calibration.errors import error_unit
 from calibration.forms import CalibrationEntry
 from calibration.models import (
@@ -121,6 +121,7 @@ def event_detail(request, pk, sign_error=None):
         "can_sign": _can_sign(request.user, event),
         "can_countersign": _can_countersign(request.user, event),
         "number": certificate_number(event),
+        "dcc_signed": dcc_sign.configured(),
         "digest": digest(content) if content else "",
         "correction": correction,
         "correction_number": certificate_number(correction) if correction is not None else "",
