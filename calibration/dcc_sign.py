@@ -65,15 +65,22 @@ class Verdict:
     subject: str = ""
     issuer: str = ""
     reason: str = ""
+    signed_at: str = ""      # the signing time the signature states (XAdES SigningTime), when it has one
+    valid_until: str = ""    # the end of the signing certificate's validity
 
     def sentence(self) -> str:
         if not self.present:
             return "The file carries no XML signature."
         if self.holds:
+            when = (f" It was checked at its stated signing time {self.signed_at}, within the certificate's validity "
+                    f"(until {self.valid_until})." if self.signed_at else "")
             return (f"Its XML signature holds: the signed content is unchanged and matches the certificate it carries "
-                    f"(subject {self.subject}; issued by {self.issuer}). Whether that certificate is trustworthy "
-                    "(its chain to a known authority) is not checked here.")
+                    f"(subject {self.subject}; issued by {self.issuer}).{when} Whether that certificate is "
+                    "trustworthy (its chain to a known authority) is not checked here.")
         return f"Its XML signature does not hold: {self.reason}"
+
+
+XADES_NS = "http://uri.etsi.org/01903/v1.3.2#"
 
 
 def embedded_certificate(root) -> bytes | None:
@@ -86,19 +93,34 @@ def embedded_certificate(root) -> bytes | None:
     return ("-----BEGIN CERTIFICATE-----\n" + "\n".join(lines) + "\n-----END CERTIFICATE-----\n").encode()
 
 
-def _names(cert_pem: bytes) -> tuple[str, str]:
+def _names(cert_pem: bytes):
     from cryptography import x509
 
     cert = x509.load_pem_x509_certificate(cert_pem)
-    return cert.subject.rfc4514_string(), cert.issuer.rfc4514_string()
+    return cert.subject.rfc4514_string(), cert.issuer.rfc4514_string(), cert.not_valid_after_utc
+
+
+def _signing_time(signature):
+    """The signing time the signature itself states (XAdES SignedSignatureProperties/SigningTime), or None; it is
+    covered by the signature, so it counts only when the signature holds."""
+    import datetime as dt
+
+    found = signature.find(f".//{{{XADES_NS}}}SigningTime")
+    if found is None or not (found.text or "").strip():
+        return None
+    try:
+        return dt.datetime.fromisoformat(found.text.strip().replace("Z", "+00:00"))
+    except ValueError:
+        return None
 
 
 def verify(xml: bytes, cert_pem: bytes | None = None) -> Verdict:
     """Whether the enveloped signature of `xml` holds, against `cert_pem` or the certificate the document carries.
 
-    A signature with XAdES signed properties has two references (the document and the properties); both are
-    checked."""
-    from signxml import XMLVerifier
+    Checked at the signing time the signature states (XAdES), when it states one, else now: a certificate that has
+    expired since the signing does not undo a signature made while it was valid. A signature with XAdES signed
+    properties has two references (the document and the properties); every reference is checked."""
+    from signxml import SignatureConfiguration, XMLVerifier
     from signxml.exceptions import InvalidInput, SignXMLException
 
     parser = etree.XMLParser(resolve_entities=False, no_network=True, load_dtd=False)
@@ -113,18 +135,22 @@ def verify(xml: bytes, cert_pem: bytes | None = None) -> Verdict:
     if cert_pem is None:
         return Verdict(present=True, reason="it carries no certificate to check it against.")
     try:
-        subject, issuer = _names(cert_pem)
+        subject, issuer, not_after = _names(cert_pem)
     except ValueError as exc:
         return Verdict(present=True, reason=f"the certificate it carries cannot be read ({exc}).")
     references = len(signatures[0].findall(f"{{{DS_NS}}}SignedInfo/{{{DS_NS}}}Reference"))
+    signed_at = _signing_time(signatures[0])
+    config = SignatureConfiguration(location="./", expect_references=max(references, 1),
+                                    verification_time=signed_at)
+    facts = {"subject": subject, "issuer": issuer, "valid_until": not_after.isoformat(),
+             "signed_at": signed_at.isoformat() if signed_at else ""}
     try:
-        XMLVerifier().verify(xml, x509_cert=cert_pem.decode(), expect_references=max(references, 1),
-                             parser=parser)
+        XMLVerifier().verify(xml, x509_cert=cert_pem.decode(), parser=parser, expect_config=config)
     except (InvalidInput, SignXMLException, ValueError) as exc:
         reason = " ".join(str(exc).split()) or type(exc).__name__
-        return Verdict(present=True, subject=subject, issuer=issuer,
-                       reason=f"{reason.rstrip('.')}. The file was changed after signing, or was signed with another key.")
-    return Verdict(present=True, holds=True, subject=subject, issuer=issuer)
+        return Verdict(present=True, reason=f"{reason.rstrip('.')}. The file was changed after signing, or was "
+                       "signed with another key.", **facts)
+    return Verdict(present=True, holds=True, **facts)
 
 
 def certificate_fingerprint(cert_pem: bytes) -> str:
