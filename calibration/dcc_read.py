@@ -60,6 +60,19 @@ class DccSummary:
         return max(chosen) if chosen else None
 
 
+def round_up(value: float, digits: int = 2) -> float:
+    """`value` rounded up to `digits` significant digits: U is stated with at most two significant digits
+    (JCGM 100:2008 §7.2.6); rounding up rather than to the nearest keeps it from understating (common practice)."""
+    if value <= 0 or not math.isfinite(value):
+        return value
+    scale = 10 ** (digits - 1 - math.floor(math.log10(value)))
+    scaled = value * scale
+    nearest = round(scaled)
+    # a value already at `digits` digits stays as it is (binary noise below 1e-9 relative is ignored)
+    up = nearest if abs(scaled - nearest) <= 1e-9 * scaled else math.ceil(scaled)
+    return up / scale if scale >= 1 else up * (1 / scale)
+
+
 def _text(element, path):
     found = element.find(path, NS)
     return " ".join(found.text.split()) if found is not None and found.text else ""

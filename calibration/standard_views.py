@@ -30,7 +30,7 @@ class UploadForm(forms.Form):
 class ConfirmForm(forms.Form):
     certificate_number = forms.CharField(max_length=60, label="Certificate number")
     issuer = forms.CharField(max_length=120, label="Issued by (laboratory)")
-    calibrated_on = forms.DateField(label="Calibration date", widget=forms.DateInput(attrs={"type": "date"}))
+    calibrated_on = forms.DateField(label="Calibration date", widget=forms.DateInput(attrs={"type": "date"}, format="%Y-%m-%d"))
     interval_days = forms.IntegerField(label="Calibration interval (days)",
                                        validators=[MinValueValidator(1, "The interval must be at least one day.")])
     expanded_uncertainty = forms.FloatField(label="Expanded uncertainty U (k = 2)",
@@ -140,7 +140,7 @@ def _initial(standard, read):
         "issuer": read.get("issuer") or standard.issuer,
         "calibrated_on": calibrated or standard.calibrated_on,
         "interval_days": standard.interval_days,
-        "expanded_uncertainty": suggested if suggested is not None else standard.expanded_uncertainty,
+        "expanded_uncertainty": dcc_read.round_up(suggested) if suggested is not None else standard.expanded_uncertainty,
         "uncertainty_basis": ReferenceStandard.UncertaintyBasis.PERCENT_READING if suggested is not None
         else standard.uncertainty_basis,
     }
@@ -168,6 +168,8 @@ def dcc_review(request, pk, dcc):
     return render(request, "calibration/standard_dcc_review.html", {
         "standard": standard, "record": record, "form": form, "read": record.read, "shown": shown,
         "other_results": len(record.read.get("results", [])) - len(shown),
+        "offered": (f"{dcc_read.round_up(record.read['suggested_uncertainty']):g}"
+                    if record.read.get("suggested_uncertainty") is not None else ""),
     }, status=400 if form is not None and form.is_bound else 200)
 
 

@@ -13,6 +13,7 @@ from calibration.models import (
     CalibrationEvent,
     CalibrationPoint,
     Countersignature,
+    ReferenceStandard,
     SignedRecordError,
 )
 from calibration.signed_content import certificate_number, digest
@@ -103,6 +104,9 @@ def event_detail(request, pk, sign_error=None):
     points = list(event.points.all())
     rows = _result_rows(points)
     standards = event.standards_as_signed() if event.is_signed else [s.snapshot() for s in event.reference_standards.all()]
+    pages = dict(ReferenceStandard.objects.filter(identification__in=[s["identification"] for s in standards])
+                 .values_list("identification", "pk"))  # each standard's own page, by its unique identification
+    standards = [dict(s, pk=pages.get(s["identification"])) for s in standards]
     found = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
     left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
     return render(request, "calibration/event_detail.html", {

@@ -7,7 +7,7 @@ import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from django.test import Client
 
-from calibration import dcc_schema
+from calibration import dcc_read, dcc_schema
 from calibration.models import ReferenceStandard, StandardDcc
 from reports import certificate
 from tests.conftest import user_with_role
@@ -103,6 +103,9 @@ def test_our_own_export_is_read_with_its_flow_results(client, meter, standard, r
     errors = [r for r in read["results"] if r["ref_type"] == "basic_measurementError"]
     assert [r["values"][0] for r in errors] == [p["error"] for p in points]
     assert [r["U"][0] for r in errors] == [p["expanded_uncertainty"] for p in points]
+    html = reviewer.get(response["Location"]).content.decode()
+    offered = float(re.search(r'name="expanded_uncertainty" value="([^"]+)"', html).group(1))
+    assert offered == dcc_read.round_up(read["suggested_uncertainty"]) >= read["suggested_uncertainty"]
     page = text_of(reviewer.get(response["Location"]))
     assert "holds no flow results" not in page
     assert "carries no XML signature" in page
@@ -114,6 +117,15 @@ def test_our_own_export_is_read_with_its_flow_results(client, meter, standard, r
     bench_standard.refresh_from_db()
     assert bench_standard.expanded_uncertainty == read["suggested_uncertainty"]
     assert bench_standard.due_date == dt.date.fromisoformat(read["calibration_date"]) + dt.timedelta(days=365)
+
+
+@pytest.mark.parametrize("value,expected", [
+    # U to two significant digits (JCGM 100:2008 §7.2.6), rounded up (common practice); worked by hand
+    (0.2939945976810081, 0.3), (0.061, 0.061), (1.234, 1.3), (12.01, 13.0), (0.0123, 0.013), (150.0, 150.0),
+    (0.1 + 0.2, 0.3),  # binary noise above an exact two-digit value is not rounded up
+])
+def test_offered_uncertainty_is_rounded_up_to_two_significant_digits(value, expected):
+    assert dcc_read.round_up(value) == pytest.approx(expected, rel=1e-12)
 
 
 def test_confirm_form_refuses_bad_values_at_the_field(reviewer, bench_standard):
