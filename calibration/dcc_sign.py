@@ -52,10 +52,27 @@ def sign(xml: bytes, key_pem: bytes, cert_pem: bytes) -> bytes:
     return etree.tostring(signed, xml_declaration=True, encoding="UTF-8")
 
 
+class SigningFailed(RuntimeError):
+    """The configured key or certificate cannot be read or used; the message says which and why."""
+
+
 def sign_if_configured(xml: bytes) -> bytes:
+    """`xml` signed with the configured key, or as it is when none is configured; SigningFailed when the configured
+    files cannot be read or used (never an unsigned file in place of a signed one)."""
     if not configured():
         return xml
-    return sign(xml, Path(settings.DCC_KEY).read_bytes(), Path(settings.DCC_CERT).read_bytes())
+    try:
+        key_pem = Path(settings.DCC_KEY).read_bytes()
+        cert_pem = Path(settings.DCC_CERT).read_bytes()
+    except OSError as exc:
+        raise SigningFailed(f"The DCC signing key or certificate cannot be read ({exc.strerror}: {exc.filename}); "
+                            "check QUENBY_DCC_KEY and QUENBY_DCC_CERT. No DCC is issued until it can be signed.") from None
+    try:
+        return sign(xml, key_pem, cert_pem)
+    except (ValueError, TypeError) as exc:
+        raise SigningFailed(f"The DCC could not be signed with the configured key and certificate ({exc}); check "
+                            "that QUENBY_DCC_KEY is an unencrypted PEM private key and QUENBY_DCC_CERT its "
+                            "certificate.") from None
 
 
 @dataclass

@@ -5,6 +5,7 @@ import re
 from django.contrib.auth.decorators import permission_required
 from django.http import Http404, HttpResponse, HttpResponseBadRequest
 
+from calibration import dcc_sign
 from reports import certificate
 
 
@@ -25,7 +26,11 @@ def certificate_xml(request, pk):
     event = certificate.load_event(pk)
     if event is None:
         raise Http404("No signed calibration with this number; drafts have no certificate.")
-    response = HttpResponse(certificate.certificate_xml(event), content_type="application/xml; charset=utf-8")
+    try:
+        xml = certificate.certificate_xml(event)
+    except dcc_sign.SigningFailed as exc:  # the key or certificate configured cannot be read or used
+        return HttpResponse(str(exc), status=503, content_type="text/plain; charset=utf-8")
+    response = HttpResponse(xml, content_type="application/xml; charset=utf-8")
     response["Content-Disposition"] = f'attachment; filename="{certificate.xml_filename(event)}"'
     return response
 

@@ -93,3 +93,15 @@ def test_the_shared_example_signature_holds_at_its_signing_time():
     assert verdict.holds, verdict.reason
     assert verdict.signed_at.startswith("2023-03-27")
     assert not dcc_sign.verify(data.replace(b"306.248", b"306.249")).holds
+
+
+def test_a_configured_key_that_cannot_be_read_is_a_clear_refusal_not_an_unsigned_file(client, signed, settings,  # noqa: F811
+                                                                                       tmp_path):
+    settings.DCC_KEY, settings.DCC_CERT = str(tmp_path / "missing-key.pem"), str(tmp_path / "missing-cert.pem")
+    response = client.get(f"/calibrations/{signed.pk}/certificate.xml")
+    assert response.status_code == 503
+    assert "cannot be read" in response.content.decode() and "QUENBY_DCC_KEY" in response.content.decode()
+    (tmp_path / "missing-key.pem").write_bytes(b"not a key")
+    (tmp_path / "missing-cert.pem").write_bytes(throwaway()[1])
+    response = client.get(f"/calibrations/{signed.pk}/certificate.xml")
+    assert response.status_code == 503 and "could not be signed" in response.content.decode()

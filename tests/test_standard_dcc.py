@@ -197,3 +197,13 @@ def test_technician_sees_standards_but_cannot_read_a_dcc(bench_standard):
     assert page.status_code == 200 and b"Read its DCC" not in page.content
     assert upload(tech, bench_standard, example_bytes()).status_code == 403
     assert StandardDcc.objects.count() == 0
+
+
+def test_without_the_schema_files_the_upload_is_refused_naming_the_folder(reviewer, bench_standard, monkeypatch,
+                                                                          tmp_path):
+    data = example_bytes()
+    monkeypatch.setenv(dcc_schema.ENV, str(tmp_path))
+    response = upload(reviewer, bench_standard, data)
+    assert response.status_code == 400
+    assert f"are not in {tmp_path}" in text_of(response)
+    assert StandardDcc.objects.count() == 0
