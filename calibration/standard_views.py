@@ -186,9 +186,9 @@ def _confirm(standard, record, values, user):
         old = {f: getattr(locked, f) for f in FIELDS}
         for name, value in new.items():
             setattr(locked, name, value)
-        locked._change_reason = (f"Read from its DCC {record.read.get('certificate_number') or record.filename} "
-                                 f"(file SHA-256 {record.sha256[:16]}…), confirmed by "
-                                 f"{user.get_full_name() or user.username}")
+        # the audit trail keeps at most 100 characters of a reason; the file record keeps who, when and the hash
+        number = record.read.get("certificate_number") or record.filename
+        locked._change_reason = f"Read from its DCC (file {record.pk}): {number}"[:100]
         locked.save()
         record.confirmed_at, record.confirmed_by = timezone.now(), user
         record.applied = {f: [_plain(old[f]), _plain(new[f])] for f in FIELDS}

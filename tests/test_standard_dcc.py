@@ -71,7 +71,8 @@ def test_shared_example_is_read_shown_and_confirmed(reviewer, bench_standard):
     assert bench_standard.interval_days == 730
     versions = list(bench_standard.history.order_by("history_date"))
     assert versions[0].certificate_number == "OLD-001" and versions[0].issuer == "Old Lab"
-    assert "Read from its DCC GP_DCC_temperature_typical_1.2" in versions[-1].history_change_reason
+    assert versions[-1].history_change_reason == f"Read from its DCC (file {record.pk}): GP_DCC_temperature_typical_1.2"
+    assert versions[-1].history_user.username == "rev"
     record.refresh_from_db()
     assert record.confirmed and record.applied["certificate_number"] == ["OLD-001", "GP_DCC_temperature_typical_1.2"]
     detail = text_of(reviewer.get(f"/calibrations/standards/{bench_standard.pk}/"))
@@ -126,6 +127,18 @@ def test_our_own_export_is_read_with_its_flow_results(client, meter, standard, r
 ])
 def test_offered_uncertainty_is_rounded_up_to_two_significant_digits(value, expected):
     assert dcc_read.round_up(value) == pytest.approx(expected, rel=1e-12)
+
+
+def test_a_long_certificate_number_fits_the_audit_trail(reviewer, bench_standard):
+    long_number = "N" * 60  # the longest a standard's certificate number may be
+    data = example_bytes().replace(b"GP_DCC_temperature_typical_1.2", long_number.encode())
+    location = upload(reviewer, bench_standard, data)["Location"]
+    form = {"certificate_number": long_number, "issuer": "Kalibrierfirma GmbH", "calibrated_on": "1957-08-13",
+            "interval_days": "365", "expanded_uncertainty": "0.2", "uncertainty_basis": "pct_reading"}
+    assert reviewer.post(location, form).status_code == 302
+    bench_standard.refresh_from_db()
+    assert bench_standard.certificate_number == long_number
+    assert len(bench_standard.history.first().history_change_reason) <= 100
 
 
 def test_confirm_form_refuses_bad_values_at_the_field(reviewer, bench_standard):
