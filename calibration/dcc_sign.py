@@ -11,7 +11,6 @@ names (its chain to a trusted authority) is not checked here; the page says so.
 """
 from __future__ import annotations
 
-import base64
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -168,11 +167,3 @@ def verify(xml: bytes, cert_pem: bytes | None = None) -> Verdict:
         return Verdict(present=True, reason=f"{reason.rstrip('.')}. The file was changed after signing, or was "
                        "signed with another key.", **facts)
     return Verdict(present=True, holds=True, **facts)
-
-
-def certificate_fingerprint(cert_pem: bytes) -> str:
-    from cryptography import x509
-    from cryptography.hazmat.primitives import hashes
-
-    cert = x509.load_pem_x509_certificate(cert_pem)
-    return base64.b16encode(cert.fingerprint(hashes.SHA256())).decode().lower()
