@@ -79,12 +79,21 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
     phase = models.CharField("for fluids of phase", max_length=10, choices=Fluid.Phase.choices, blank=True,
                              help_text="blank: not tied to one phase")
     withdrawn = models.BooleanField("withdrawn from use", default=False)
+    calibrated_on = models.DateField("calibrated on", null=True, blank=True,
+                                     help_text="the date of the calibration its certificate reports")
+    interval_days = models.PositiveIntegerField(
+        "calibration interval (days)", default=365,
+        validators=[MinValueValidator(1, "The interval must be at least one day.")],
+        help_text="the due date is the calibration date plus this interval when a certificate is read in")
     history = HistoricalRecords()
 
     objects = CitedQuerySet.as_manager()
 
     class Meta:
         ordering = ["identification"]
+
+    def get_absolute_url(self):
+        return reverse("calibration:standard-detail", args=[self.pk])
 
     def __str__(self):
         return f"{self.identification} ({self.description})"
@@ -158,6 +167,36 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
                 f"{self.units_label}; {', '.join(f'{v:g}' for v in outside)} is outside its range."
             )
         return found
+
+
+class StandardDcc(models.Model):
+    """A reference standard's own certificate as a DCC file, kept beside it: what was read from it, the signature
+    check, and, once a reviewer confirmed it, the values it set on the standard (the old ones stay in the
+    standard's history). A file read but not confirmed changes nothing on the standard."""
+    standard = models.ForeignKey(ReferenceStandard, on_delete=models.CASCADE, related_name="dcc_files")
+    filename = models.CharField(max_length=200)
+    xml = models.BinaryField("DCC file")
+    sha256 = models.CharField(max_length=64)
+    uploaded_at = models.DateTimeField(default=timezone.now)
+    uploaded_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                    related_name="+")
+    read = models.JSONField("what was read", default=dict)
+    signature = models.TextField("signature check", blank=True)
+    confirmed_at = models.DateTimeField(null=True, blank=True)
+    confirmed_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
+                                     related_name="+")
+    applied = models.JSONField("values set on the standard (old and new)", default=dict, blank=True)
+
+    class Meta:
+        ordering = ["-uploaded_at", "-pk"]
+        verbose_name = "reference standard's DCC"
+
+    def __str__(self):
+        return f"{self.filename} ({self.standard.identification})"
+
+    @property
+    def confirmed(self):
+        return self.confirmed_at is not None
 
 
 class LockedQuerySet(models.QuerySet):

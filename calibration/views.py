@@ -6,13 +6,14 @@ from django.db import IntegrityError, transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
-from calibration import decision
+from calibration import dcc_sign, decision
 from calibration.errors import error_unit
 from calibration.forms import CalibrationEntry
 from calibration.models import (
     CalibrationEvent,
     CalibrationPoint,
     Countersignature,
+    ReferenceStandard,
     SignedRecordError,
 )
 from calibration.signed_content import certificate_number, digest
@@ -144,6 +145,9 @@ def event_detail(request, pk, sign_error=None):
     points = list(event.points.all())
     rows = _result_rows(points)
     standards = event.standards_as_signed() if event.is_signed else [s.snapshot() for s in event.reference_standards.all()]
+    pages = dict(ReferenceStandard.objects.filter(identification__in=[s["identification"] for s in standards])
+                 .values_list("identification", "pk"))  # each standard's own page, by its unique identification
+    standards = [dict(s, pk=pages.get(s["identification"])) for s in standards]
     found = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
     left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
     return render(request, "calibration/event_detail.html", {
@@ -163,6 +167,7 @@ def event_detail(request, pk, sign_error=None):
         "can_edit": _can_edit_draft(request.user, event),
         "can_countersign": _can_countersign(request.user, event),
         "number": certificate_number(event),
+        "dcc_signed": dcc_sign.configured(),
         "digest": digest(content) if content else "",
         "correction": correction,
         "correction_number": certificate_number(correction) if correction is not None else "",

@@ -129,6 +129,14 @@ DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
 DJANGO_TABLES2_TEMPLATE = "django_tables2/table.html"
 DJANGO_TABLES2_TABLE_ATTRS = {"class": "grid"}  # every table, subclasses included, gets the one look
 
+# Digital calibration certificates (DCC 3.2.0, calibration/dcc.py): the laboratory's country (ISO 3166-1), and the
+# PEM files of the key and X.509 certificate that sign each DCC (enveloped XML signature); without both, unsigned.
+DCC_COUNTRY = os.environ.get("QUENBY_DCC_COUNTRY", "GB")
+DCC_KEY = os.environ.get("QUENBY_DCC_KEY", "")
+DCC_CERT = os.environ.get("QUENBY_DCC_CERT", "")
+# the schema files the uploaded DCCs are checked against (calibration/dcc_schema.py); default ../shared/dcc-schema
+DCC_SCHEMA_DIR = os.environ.get("QUENBY_DCC_SCHEMA_DIR", "")
+
 # Calibration policy; every value here is a setting, recorded where it is used.
 CALIBRATION = {
     "decision_rule": os.environ.get("CAL_DECISION_RULE", "simple"),  # ILAC-G8: "simple" or "guarded" (w = U)

@@ -1,4 +1,5 @@
-"""Calibration certificate (ISO/IEC 17025:2017 §7.8.2.1 and §7.8.4.1): context, HTML and PDF.
+"""Calibration certificate (ISO/IEC 17025:2017 §7.8.2.1 and §7.8.4.1): context, HTML and PDF, and the same content
+as a DCC (machine-readable XML, calibration/dcc.py).
 
 Only signed (locked) events get a certificate. What it prints is the content frozen into the record at sign-off
 (calibration/signed_content.py), nothing read from the register now, so a reprint after the device, position, site,
@@ -24,6 +25,41 @@ from reports.charts import drift_chart_svg
 
 def certificate_filename(event) -> str:
     return f"{certificate_number(event)}.pdf"
+
+
+def xml_filename(event) -> str:
+    return f"{certificate_number(event)}.xml"
+
+
+def countersignature_of(event):
+    """{name, role, at} of the event's countersignature (a later record; the PDF prints it too), or None."""
+    record = getattr(event, "countersignature", None)
+    if record is None:
+        return None
+    return {"name": record.name, "role": record.role, "at": record.at.isoformat()}
+
+
+def certificate_xml(event) -> bytes:
+    """The DCC 3.2.0 XML of a signed event, from the same frozen content as its PDF (calibration/dcc.py); signed
+    with the laboratory's key when one is configured (calibration/dcc_sign.py)."""
+    if not event.is_signed:
+        raise ValueError("Certificates are issued for signed calibrations only.")
+    from django.conf import settings
+
+    from calibration import dcc, dcc_sign
+
+    xml = dcc.build(event.content_as_signed(), countersignature=countersignature_of(event),
+                    country=settings.DCC_COUNTRY, software_release=software_release())
+    return dcc_sign.sign_if_configured(xml)
+
+
+def software_release() -> str:
+    from importlib import metadata
+
+    try:
+        return metadata.version("quenby")
+    except metadata.PackageNotFoundError:  # pragma: no cover - running from a checkout not installed
+        return "unknown"
 
 
 def signed_events():
@@ -106,4 +142,5 @@ def certificates_zip(events) -> bytes:
     with zipfile.ZipFile(buffer, "w", compression=zipfile.ZIP_DEFLATED) as archive:
         for event in events:
             archive.writestr(certificate_filename(event), certificate_pdf(event))
+            archive.writestr(xml_filename(event), certificate_xml(event))
     return buffer.getvalue()

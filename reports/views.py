@@ -1,10 +1,11 @@
-"""Printed reports: calibration certificates (one PDF, or a ZIP of those signed in a date range)."""
+"""Printed reports: calibration certificates (one PDF or its DCC XML, or a ZIP of those signed in a date range)."""
 import datetime as dt
 import re
 
 from django.contrib.auth.decorators import permission_required
 from django.http import Http404, HttpResponse, HttpResponseBadRequest
 
+from calibration import dcc_sign
 from reports import certificate
 
 
@@ -16,6 +17,21 @@ def certificate_pdf(request, pk):
     pdf = certificate.certificate_pdf(event)
     response = HttpResponse(pdf, content_type="application/pdf")
     response["Content-Disposition"] = f'inline; filename="{certificate.certificate_filename(event)}"'
+    return response
+
+
+@permission_required("calibration.view_calibrationevent", raise_exception=True)
+def certificate_xml(request, pk):
+    """The DCC (DCC 3.2.0 XML) of a signed calibration; a draft has none (404 saying so)."""
+    event = certificate.load_event(pk)
+    if event is None:
+        raise Http404("No signed calibration with this number; drafts have no certificate.")
+    try:
+        xml = certificate.certificate_xml(event)
+    except dcc_sign.SigningFailed as exc:  # the key or certificate configured cannot be read or used
+        return HttpResponse(str(exc), status=503, content_type="text/plain; charset=utf-8")
+    response = HttpResponse(xml, content_type="application/xml; charset=utf-8")
+    response["Content-Disposition"] = f'attachment; filename="{certificate.xml_filename(event)}"'
     return response
 
 

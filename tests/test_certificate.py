@@ -246,7 +246,7 @@ def test_zip_has_one_certificate_per_event_signed_in_range(client, meter, standa
     assert response["Content-Type"] == "application/zip"
     archive = zipfile.ZipFile(io.BytesIO(response.content))
     names = sorted(archive.namelist())
-    assert names == sorted(f"{certificate_number(e)}.pdf" for e in (inside_a, inside_b))
+    assert names == sorted(f"{certificate_number(e)}.{kind}" for e in (inside_a, inside_b) for kind in ("pdf", "xml"))
     for event in (inside_a, inside_b):
         _, text = pdf_text(archive.read(f"{certificate_number(event)}.pdf"))
         assert certificate_number(event) in text
