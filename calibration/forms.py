@@ -5,8 +5,8 @@ from decimal import Decimal, InvalidOperation
 from django import forms
 from django.db import transaction
 
-from calibration import uncertainty, units
-from calibration.errors import point_error
+from calibration import plausibility, uncertainty, units
+from calibration.errors import mpe_in_flow_units, point_error
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, entry_can_convert
 from plant.forms import YesNoField
 
@@ -28,6 +28,9 @@ class EventForm(forms.ModelForm):
                                           "(phase or range); choose one of those listed."},
     )
     adjusted = YesNoField(label="Adjustment made", required=False)
+    values_checked = YesNoField(
+        label="Readings held are right as typed", required=False,
+        help_text="Tick only after looking again at each reading held with “Check this value”.")
 
     class Meta:
         model = CalibrationEvent
@@ -75,6 +78,24 @@ class EventForm(forms.ModelForm):
                 "Needed when the reference standard measures mass and this meter volume (it is in "
                 f"{units.label_for(meter.flow_units)}), or the other way round: the density at the conditions of the "
                 "calibration converts the reference readings.")
+
+
+def _condition_cleaner(name):
+    def clean(self):
+        value = self.cleaned_data.get(name)
+        if value is not None:
+            try:
+                problem = plausibility.condition_out_of_bounds(name, value)
+            except ValueError:
+                problem = "Enter a finite number."
+            if problem:
+                raise forms.ValidationError(problem)
+        return value
+    return clean
+
+
+for _name in plausibility.CONDITION_BOUNDS:
+    setattr(EventForm, f"clean_{_name}", _condition_cleaner(_name))
 
 
 class CorrectionForm(EventForm):
@@ -177,7 +198,24 @@ class PointRowForm(forms.Form):
     def __init__(self, *args, meter=None, conversion=None, **kwargs):
         self.meter = meter
         self.conversion = conversion or ReferenceConversion(meter.flow_units if meter is not None else "")
+        self.values_checked = False  # the header's tick: readings held with "check this value" are confirmed
         super().__init__(*args, **kwargs)
+
+    def _hold_implausible(self, data):
+        """Hold a reading further from the reference than the meter could explain (calibration/plausibility.py)
+        until the header's tick confirms it."""
+        meter, ref, ind = self.meter, data.get("reference_value"), data.get("indicated_value")
+        if self.values_checked or self.errors or meter is None or ref is None or ind is None or not self.conversion.known:
+            return
+        try:
+            mpe = mpe_in_flow_units(meter.mpe_value, meter.mpe_basis, ref, meter.range_max - meter.range_min)
+            held = plausibility.reading_to_check(ref, ind, meter.range_min, meter.range_max, mpe,
+                                                 units.label_for(meter.flow_units))
+        except (ValueError, ArithmeticError, TypeError):
+            return  # the row's own checks say what is wrong
+        if held:
+            self.add_error("repeats" if data.get("repeats") else "indicated_value",
+                           held + " If it is right as typed, tick “Readings held are right as typed” and save again.")
 
     def clean_reference_value(self):
         return _finite(self.cleaned_data.get("reference_value"), "The reference flow")
@@ -256,6 +294,7 @@ class PointRowForm(forms.Form):
                                f"{meter.range_min:g}–{meter.range_max:g} {label}.")
             elif converted == 0 and meter.mpe_basis == "pct_reading":
                 self.add_error("reference_value", "A % of reading error needs a reference flow above zero.")
+        self._hold_implausible(data)
         return data
 
     def check_results(self, standards, rule):
@@ -399,9 +438,11 @@ class CalibrationEntry:
     def is_valid(self):
         event_ok = self.event_form.is_valid()
         self.conversion = self._conversion()
+        checked = bool(getattr(self.event_form, "cleaned_data", {}).get("values_checked"))
         for grid in (self.as_found, self.as_left):
             for form in grid.forms:
                 form.conversion = self.conversion
+                form.values_checked = checked
         ok = all([event_ok, not self.event_form.errors, self.as_found.is_valid(), self.as_left.is_valid()])
         if not ok:
             return False

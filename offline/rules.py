@@ -5,7 +5,7 @@ answers for a few probing inputs), so the tablet says what the server would say,
 or of the range rule there reaches the tablet without a second copy here. The server checks everything again
 when the entry is sent.
 """
-from calibration import units
+from calibration import plausibility, units
 from calibration.forms import EventForm, PointRowForm, density_required_message
 from calibration.models import ReferenceStandard
 
@@ -61,5 +61,19 @@ def entry_rules(meter):
             "as_left_required": AS_LEFT_REQUIRED,
             "future_date": "The date of calibration is in the future.",
             "density_required": density_required,  # by standard id
+            # the server's sentence names the distance and the MPE; the tablet holds the same rows in general words
+            "check_value": ("Check this value: it is further from the reference than the meter could explain "
+                            f"(more than {plausibility.MPE_FACTOR:g} times the MPE, or off its scale). If it is right "
+                            "as typed, tick “Readings held are right as typed” and save again."),
         },
+        "hold": {"mpe_factor": plausibility.MPE_FACTOR, "range_factor": plausibility.RANGE_FACTOR,
+                 "mpe_value": meter.mpe_value},
+        # the physical bounds of the conditions, with the server's sentence ({value} put back in by the tablet)
+        "conditions": {f"ev-{name}": [low, high, _bound_message(name, high)]
+                       for name, (low, high, _unit, _why) in plausibility.CONDITION_BOUNDS.items()},
     }
+
+
+def _bound_message(name, high):
+    probe = high * 2 + 7
+    return plausibility.condition_out_of_bounds(name, probe).replace(f"{probe:g}", "{value}", 1)

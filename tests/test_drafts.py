@@ -31,7 +31,10 @@ def author(meter, standard):  # noqa: F811
 @pytest.fixture
 def draft(author, meter, standard):  # noqa: F811
     client, _ = author
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, found=TYPO))
+    held = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, found=TYPO))
+    assert held.status_code == 400 and "Check this value" in held.content.decode()  # tests/test_plausibility.py
+    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, found=TYPO,
+                                                                        **{"ev-values_checked": "on"}))
     assert response.status_code == 302, response.content.decode()[:2000]
     event = CalibrationEvent.objects.get()
     assert event.as_found_in_tolerance is False  # the typo made a failure

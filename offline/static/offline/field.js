@@ -475,6 +475,29 @@
             add(name("reference_value"), m.outside_range.replace("{value}", String(refValue)));
           } else if (refValue === 0) add(name("reference_value"), m.zero_of_reading);
         }
+        // a reading the meter could not explain is held until the header's tick confirms it (plausibility.py)
+        const hold = rules.hold;
+        const indValue = ind ? Number(ind) : NaN;
+        const checked = form.querySelector('[name="ev-values_checked"]');
+        if (hold && meterUnits && m.check_value && !(checked && checked.checked)
+            && Number.isFinite(refValue) && Number.isFinite(indValue) && refValue > 0) {
+          const span = rules.range_max - rules.range_min;
+          const mpe = rules.mpe_basis === "pct_reading" ? hold.mpe_value * Math.abs(refValue) / 100
+            : rules.mpe_basis === "pct_span" ? hold.mpe_value * span / 100 : hold.mpe_value;
+          const offScale = indValue > hold.range_factor * rules.range_max
+            || indValue < rules.range_min - (hold.range_factor - 1) * span;
+          if (offScale || (mpe > 0 && Math.abs(indValue - refValue) > hold.mpe_factor * mpe)) {
+            add(name("indicated_value"), m.check_value);
+          }
+        }
+      }
+    });
+    Object.entries(rules.conditions || {}).forEach(([field, [low, high, message]]) => {
+      const raw = text(field);
+      if (!raw) return;
+      const value = Number(raw);
+      if (Number.isFinite(value) && (value < low || value > high || (field === "ev-density_kg_m3" && value <= 0))) {
+        add(field, message.replace("{value}", String(value)));
       }
     });
     if ("af" in filled && filled.af === 0) add("__all__", m.as_found_required);
