@@ -83,6 +83,8 @@ class EventForm(forms.ModelForm):
 def _condition_cleaner(name):
     def clean(self):
         value = self.cleaned_data.get(name)
+        if name.endswith("_temp_c") and value is not None and value < -273.15:
+            return value  # the model's own validator says "below absolute zero"
         if value is not None:
             try:
                 problem = plausibility.condition_out_of_bounds(name, value)

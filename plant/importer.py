@@ -56,6 +56,8 @@ REQUIRED_COLUMNS = {
         "tag", "principle", "site", "area", "fluid", "line_size", "internal_diameter_mm", "range_max", "mpe_value",
     ],
 }
+# columns read when present, never exported (an import-only instruction, not a register value)
+OPTIONAL_COLUMNS = {"meters": ("unfit_reason",)}
 KINDS = {
     "fluids": {"model": Fluid, "form": FluidForm, "key": "name", "columns": FLUID_COLUMNS},
     "meters": {"model": Meter, "form": None, "key": "tag", "columns": METER_COLUMNS},
@@ -244,6 +246,9 @@ class RegisterRowForm:
     def __init__(self, data, instance: RegisterRow):
         self.instance = instance
         self.new = instance.position.pk is None
+        # a device not fit for the duty goes in only with a reviewer's written reason (plant/installations.py);
+        # the import takes it from an optional unfit_reason column (the import is a reviewer's task)
+        self.unfit_reason = str(data.get("unfit_reason") or "").strip()
         self.position_form = PositionForm(data={k: v for k, v in data.items() if k in PositionForm.base_fields},
                                           instance=instance.position)
         self.device_form = MeterForm(data={k: v for k, v in data.items() if k in MeterForm.base_fields},
@@ -262,6 +267,13 @@ class RegisterRowForm:
         for name, message in flows_above_range(self.instance.position, self.instance.device).items():
             if name not in self.errors:
                 self.errors[name] = [message]
+        if self.new and not self.errors and not self.unfit_reason:
+            position, device = self.instance.position, self.instance.device
+            findings = installations.unfit_findings(device, position)
+            if findings:
+                self.errors["principle"] = [
+                    installations.unfit_sentence(device, position, findings)
+                    + " To import it all the same, give a reviewer's reason in an unfit_reason column."]
         return not self.errors
 
     def save(self):
@@ -271,7 +283,8 @@ class RegisterRowForm:
                 device = self.device_form.save(commit=False)
                 device.status = Meter.Status.SPARE
                 device.save()
-                installations.install(device, position, position.area.site.today(), new_device=True, recompute=False)
+                installations.install(device, position, position.area.site.today(), new_device=True, recompute=False,
+                                      unfit_reason=self.unfit_reason)
             else:
                 self.device_form.save()
         return self.instance
@@ -386,7 +399,7 @@ def _process(plan: Plan, save: bool) -> None:
     if missing:
         plan.errors.append(RowError(1, ", ".join(missing), f"Missing required column(s): {', '.join(missing)}."))
         return
-    unknown = sorted(present - set(columns))
+    unknown = sorted(present - set(columns) - set(OPTIONAL_COLUMNS.get(plan.kind, ())))
     if unknown:
         plan.warnings.append(f"Ignored unknown column(s): {', '.join(unknown)}.")
     if not plan.source_rows:
@@ -469,6 +482,7 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, s
         data[column] = value
 
     if model is Meter:
+        data["unfit_reason"] = raw.get("unfit_reason", "")
         _resolve_meter_relations(plan, plan_row, raw, data, field_errors, existing)
 
     for column, message in field_errors.items():

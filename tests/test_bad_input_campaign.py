@@ -635,12 +635,23 @@ def meter_case(draw, base):
     return instance, {k: v for k, v in data.items() if v is not ABSENT}
 
 
-def judge_meter(data, base, other_tags):
+def judge_meter(data, base, other_tags, new=False):
     bad, values = judge(meter_spec(base), data)
     if "tag" not in bad and values["tag"] in other_tags:
         bad.add("tag")
     bad |= meter_rules({k: v for k, v in values.items() if k not in bad})
+    if new and not bad and misapplied(values):
+        bad.add("principle")  # a new device not fit for the duty needs a reviewer's reason (plant/installations.py)
     return bad, values
+
+
+def misapplied(values):
+    """Whether the principle is one the risk rules call not fit for the fluid (plant/risk.py, tested there)."""
+    position = Position(fluid=Fluid.objects.get(pk=values["fluid"]), flow_units=values.get("flow_units") or "m3/h",
+                        normal_flow=values.get("normal_flow"), min_flow=values.get("min_flow"),
+                        internal_diameter_mm=values.get("internal_diameter_mm"))
+    findings = position.assess(values["principle"], values.get("wetted_material") or "")
+    return any(f.severity == "misapplied" for f in findings)
 
 
 def check_accepted_meter(meter, values, base):
@@ -666,7 +677,7 @@ def test_meter_form(base):
             old = (instance.area_id, instance.fluid_id) if instance else None  # the form edits the instance
             duties = DutyPeriod.objects.count()
             others = set(Position.objects.exclude(device=instance).values_list("tag", flat=True))
-            bad, values = judge_meter(data, base, others)
+            bad, values = judge_meter(data, base, others, new=instance is None)
             # the register row: the position and its device checked and saved together (plant/importer.py)
             form = importer.RegisterRowForm(data=data, instance=importer.RegisterRow(instance))
             if form.is_valid():
@@ -820,7 +831,9 @@ EVENT_SPEC = {
     "contractor": Text(120), "procedure": Text(required=True), "notes": Text(),
     "condition_received": Text(required=True), "deviations": Text(),
     "reason": Choice(CalibrationEvent.Reason), "decision_rule": Choice(CalibrationEvent.Rule), "adjusted": Flag(),
-    "ambient_temp_c": Num(-273.15), "fluid_temp_c": Num(-273.15), "pressure_bar": Num(-1.01325),
+    # the air where people work, and no fluid above 1,000 °C (calibration/plausibility.py; below absolute zero the
+    # model's own message)
+    "ambient_temp_c": Num(-60, maximum=60), "fluid_temp_c": Num(-273.15, maximum=1000), "pressure_bar": Num(-1.01325),
 }
 DATE_JUNK = ["", "2026-02-30", "30/02/2026", "2026-13-01", "someday", "0000-01-01", "2031-05-01", "9999-12-31",
              "2019-06-01"]
@@ -892,6 +905,9 @@ def calibration_case(draw):
         "adjusted": draw(st.sampled_from([ABSENT, ABSENT, "on"])),
         "ambient_temp_c": draw(optional(number_text(-30, 50))), "fluid_temp_c": draw(optional(number_text(-20, 200))),
         "pressure_bar": draw(optional(number_text(-1, 40))),
+        # the campaign's readings are wide on purpose: the plausibility hold (tests/test_plausibility.py) is
+        # confirmed here so each row is judged by the rules this campaign checks
+        "values_checked": "on",
     }
     standards = draw(st.sampled_from([["RS-1"], ["RS-1"], ["RS-2"], ["RS-1", "RS-2"]]))
     found = [draw(good_row(tag, i)) for i in range(draw(st.integers(1, 6)))]
