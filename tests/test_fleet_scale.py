@@ -70,14 +70,21 @@ def test_vectorised_crossings_equal_the_scalar_method_series_by_series():
             assert math.isnan(got["day"]), key
         else:
             assert got["day"] == pytest.approx(expected.day, abs=1e-6), key
+            # a crossing is a crossing: strictly after the last calibration (issue 26)
+            assert expected.day > expected.drift.last_day and got["day"] > expected.drift.last_day, key
+            if expected.status == "improving":
+                statuses["improving with a crossing"] += 1
         slope = expected.drift.slope_per_day if expected.drift else None
         if slope is None:
-            assert math.isnan(got["slope"]), key
+            assert math.isnan(got["slope"]) and math.isnan(got["se"]) and math.isnan(got["sd"]), key
         else:
             assert got["slope"] == pytest.approx(slope, rel=1e-9, abs=1e-15), key
+            assert got["se"] == pytest.approx(expected.drift.se_slope, rel=1e-9, abs=1e-15), key
+            assert got["sd"] == pytest.approx(expected.drift.fit.residual_sd, rel=1e-9, abs=1e-15), key
             assert bool(got["significant"]) == bool(expected.drift.significant), key
     # every branch of the method was exercised
-    assert set(statuses) == {"insufficient", "flat", "scatter", "improving", "drifting", "out_of_tolerance"}, statuses
+    assert set(statuses) == {"insufficient", "flat", "scatter", "improving", "drifting", "out_of_tolerance",
+                             "improving with a crossing"}, statuses
 
 
 def test_vectorised_crossing_of_a_known_line():
