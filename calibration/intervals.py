@@ -13,11 +13,18 @@
   within a bracket).  Interval for a reliability target: -ln(target)/lambda.
 * When the reliability model may change an interval (``reliability_method``):
   only with at least a minimum number of observed intervals, and only when
-  the exact binomial test says the observed in-tolerance count differs from
-  the reliability target (two-sided at 5 %: each tail at 2.5 %).  This follows
-  the spirit of NCSL RP-1's interval-test approach, quoted from memory, not
-  from the text; the minimum sample size is our policy setting.  Otherwise
-  the model does not move the interval.
+  the one-sided exact binomial test says the reliability is below the target
+  (H0: R = R*, H1: R < R*; p = P(X <= k | n, R*), as
+  ``scipy.stats.binomtest(k, n, R*, alternative="less")`` gives it; significant
+  at p < 5 %).  The question is one-sided: is the meter less reliable than the
+  target?  This follows the spirit of NCSL RP-1's interval-test approach,
+  quoted from memory, not from the text; the minimum sample size is our policy
+  setting.  Otherwise the model does not move the interval and the staircase
+  does.
+* An out-of-tolerance as-found never yields an interval longer than the one
+  just completed, whatever the method (common practice; the simple response of
+  OIML D 10 / ILAC-G24: a failure shortens): ``interval_by_method`` holds the
+  interval to the last observed interval when the last result is a failure.
 * One rounding rule for every interval: ``whole_days`` (nearest whole day,
   halves upward).
 """
@@ -32,6 +39,14 @@ from scipy import optimize, stats
 
 
 MIN_OBSERVATIONS = 8  # our policy default: observed intervals before the reliability model may move one
+
+
+def _check_fraction(name: str, value) -> float:
+    """``value`` as a float strictly between 0 and 1, else ValueError naming ``name``."""
+    v = float(value)
+    if not (0.0 < v < 1.0):  # NaN fails this too
+        raise ValueError(f"{name} must be a number between 0 and 1 (exclusive), not {value!r}")
+    return v
 
 
 def whole_days(x: float) -> int:
@@ -177,33 +192,41 @@ def reliability_method(intervals: Sequence[float], in_tol: Sequence[bool], targe
     """Interval from one meter's own record by the reliability target, when the evidence allows it.
 
     Conditions (NCSL RP-1 style, from memory): at least ``min_observations``
-    observed intervals, and the exact binomial test (``binomial_tails``) of the
-    in-tolerance count against ``target`` significant two-sided at ``alpha``
-    (each tail below alpha/2).  Then the interval is ``recommended_interval``
-    over the record; otherwise ``days`` is None and the reason says why.
-    The sample size is part of every reason. ``tails``: ``binomial_tails`` already computed for this
-    record (the fleet recompute computes them for every meter at once).
+    observed intervals, and the one-sided exact binomial test of reliability
+    below the target (H1: R < ``target``) significant at ``alpha``: p = P(X <= k)
+    for k in-tolerance results of n (``binomial_tails``' first value; the same
+    number as ``scipy.stats.binomtest(k, n, target, alternative="less").pvalue``).
+    Then the interval is ``recommended_interval`` over the record; otherwise
+    ``days`` is None and the reason says why.  Every reason prints k, n, the
+    target and p. ``tails``: ``binomial_tails`` already computed for this record
+    (the fleet recompute computes them for every meter at once).
     """
     ok = [bool(v) for v in in_tol]
+    t = [float(v) for v in intervals]
+    if len(t) != len(ok):
+        raise ValueError(f"intervals: {len(t)} values for {len(ok)} results in in_tol; give one per result")
+    _check_fraction("target", target)
+    _check_fraction("alpha", alpha)
     n, passes = len(ok), sum(ok)
     failures = n - passes
     if n == 0:
         return ReliabilityVerdict(None, 0, 0, 1.0, 1.0, "no interval observed yet (n = 0)")
     below, above = (float(v) for v in (tails if tails is not None else binomial_tails(n, passes, target)))
-    seen = f"{passes} of {n} intervals in tolerance (n = {n})"
+    seen = f"k = {passes} of n = {n} intervals in tolerance"
+    test = (f"one-sided exact binomial test of reliability below the target, H1: R < {target:.0%}: "
+            f"p = {below:.2g}")
     if n < min_observations:
         return ReliabilityVerdict(None, n, failures, below, above,
                                   f"{seen}: too few for the reliability model, which needs at least "
                                   f"{min_observations} (NCSL RP-1 style, from memory)")
-    if below >= alpha / 2 and above >= alpha / 2:
+    if below >= alpha:
         return ReliabilityVerdict(None, n, failures, below, above,
-                                  f"{seen} is consistent with the {target:.0%} target "
-                                  f"(exact binomial test, p = {min(1.0, 2 * min(below, above)):.2g})")
-    days = recommended_interval(intervals, ok, target=target, min_days=min_days, max_days=max_days)
-    side = "below" if below < alpha / 2 else "above"
+                                  f"{seen}, target {target:.0%}: not shown below the target ({test}, not below "
+                                  f"{alpha:g})")
+    days = recommended_interval(t, ok, target=target, min_days=min_days, max_days=max_days)
     return ReliabilityVerdict(days, n, failures, below, above,
-                              f"{seen}, significantly {side} the {target:.0%} target (exact binomial test, "
-                              f"p = {2 * min(below, above):.2g}): exponential model gives {days} d")
+                              f"{seen}, target {target:.0%}: significantly below the target ({test} < {alpha:g}); "
+                              f"exponential model gives {days} d")
 
 
 @dataclass(frozen=True)
@@ -246,16 +269,30 @@ def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in
         steps = staircase_sequence(base, ok, extend=extend, shorten=shorten, min_days=min_days, max_days=max_days)
     stair = _staircase_reason(base, steps, ok, extend, shorten)
     if method == "staircase":
-        return MethodInterval(steps[-1], stair, len(ok))
+        return _no_longer_after_a_failure(MethodInterval(steps[-1], stair, len(ok)), elapsed, ok, min_days)
     if method != "reliability":
         raise ValueError(f"unknown interval method {method!r}")
     verdict = reliability_method(elapsed, ok, target=target, min_observations=min_observations,
                                  min_days=min_days, max_days=max_days, tails=tails)
     if verdict.days is not None:
-        return MethodInterval(verdict.days, f"reliability target {target:.0%} (NCSL RP-1 exponential model): "
-                                            f"{verdict.reason}", len(ok))
-    return MethodInterval(steps[-1], f"reliability target {target:.0%} not applied: {verdict.reason}; "
-                                     f"so the {stair}", len(ok))
+        chosen = MethodInterval(verdict.days, f"reliability target {target:.0%} (NCSL RP-1 exponential model): "
+                                              f"{verdict.reason}", len(ok))
+    else:
+        chosen = MethodInterval(steps[-1], f"reliability target {target:.0%} not applied: {verdict.reason}; "
+                                           f"so the {stair}", len(ok))
+    return _no_longer_after_a_failure(chosen, elapsed, ok, min_days)
+
+
+def _no_longer_after_a_failure(chosen: MethodInterval, elapsed, ok, min_days) -> MethodInterval:
+    """An out-of-tolerance as-found never yields an interval longer than the one just completed (common
+    practice; OIML D 10 / ILAC-G24 simple response). Held to ``min_days`` at the least."""
+    if not ok or ok[-1]:
+        return chosen
+    completed = max(whole_days(float(elapsed[-1])), int(min_days))
+    if chosen.days <= completed:
+        return chosen
+    return MethodInterval(completed, f"{chosen.reason}; the last as-found was out of tolerance, so no longer than "
+                                     f"the {completed} d interval just completed", chosen.observations)
 
 
 def first_calibration_found_out(method: MethodInterval, shorten: float = 0.5, min_days: int = 30,
