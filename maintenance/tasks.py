@@ -6,8 +6,8 @@ frequency in days, a reason in plain words and the basis of the rule.
 
 Frequencies are shortened by severity the same way calibration intervals are (plant/risk.py): the base
 frequency times the smallest interval factor among the findings that call for the task, rounded to whole
-days (misapplied 0.25, high 0.5, medium 0.75, low 0.9). A task called for by the principle alone keeps its
-base frequency (factor 1.0).
+days (misapplied 0.25, high 0.5, medium 0.75, low 0.9; a note, factor 1.0, does not shorten). A task called
+for by the principle alone keeps its base frequency (factor 1.0).
 
 Every base frequency below is "common practice": a rule of thumb of the trade for installed process meters,
 not a figure from a standard; the plant's own findings then move it (maintenance/loop.py). Finding codes this
@@ -84,6 +84,10 @@ CATALOGUE = {k.code: k for k in [
     TaskKind("VORTEX_BLUFF_BODY", "Inspect and clean the vortex bluff body", 365,
              "Deposits or erosion change the bluff body's shape and so the meter factor; inspect and clean it "
              "and check the sensor is free."),
+    # Common practice: a yearly look for chloride pitting and crevice attack of wetted parts in brine service.
+    TaskKind("CHLORIDE_PITTING_INSPECTION", "Inspect the wetted parts for chloride pitting and crevice attack", 365,
+             "Brine pits and crevice-attacks stainless steel, carbon steel and cast iron; remove or borescope the "
+             "primary element, look for pits at the tappings, edges and gasket faces, and record what is found."),
     # Common practice: twice-yearly cleaning of thermal mass sensors in coating or wet service.
     TaskKind("THERMAL_SENSOR_CLEAN", "Clean and inspect the thermal sensor", 180,
              "A coating or corrosion on the heated sensor changes its heat transfer and the reading; remove the "
@@ -133,6 +137,22 @@ FINDING_TASKS = {
     "THERMAL_CHLORIDES": "THERMAL_SENSOR_CLEAN",
     "USONIC_SIGNAL_LOSS": "USONIC_SIGNAL_CHECK",
     "CLAMPON_SIGNAL_LOSS": "CLAMPON_COUPLING",
+    # chlorides (brine) pit and crevice-attack the wetted parts (plant/risk.py _chloride_pitting; common practice)
+    "TURBINE_CHLORIDES": "TURBINE_ROTOR_STRAINER",
+    "PD_CHLORIDES": "PD_CHAMBER_INSPECTION",
+    "ORIFICE_CHLORIDES": "ORIFICE_PLATE_INSPECTION",
+    "VORTEX_CHLORIDES": "VORTEX_BLUFF_BODY",
+    "VENTURI_CHLORIDES": "CHLORIDE_PITTING_INSPECTION",
+    "PITOT_CHLORIDES": "PITOT_PULL_CLEAN",
+    "AVG_PITOT_CHLORIDES": "PITOT_PULL_CLEAN",
+    # hot chlorides crack austenitic stainless (plant/risk.py _chloride_cracking; common practice)
+    "TURBINE_CHLORIDE_CRACKING": "TURBINE_ROTOR_STRAINER",
+    "PD_CHLORIDE_CRACKING": "PD_CHAMBER_INSPECTION",
+    "ORIFICE_CHLORIDE_CRACKING": "ORIFICE_PLATE_INSPECTION",
+    "VORTEX_CHLORIDE_CRACKING": "VORTEX_BLUFF_BODY",
+    "VENTURI_CHLORIDE_CRACKING": "CHLORIDE_PITTING_INSPECTION",
+    "PITOT_CHLORIDE_CRACKING": "PITOT_PULL_CLEAN",
+    "AVG_PITOT_CHLORIDE_CRACKING": "PITOT_PULL_CLEAN",
 }
 
 

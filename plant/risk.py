@@ -16,7 +16,8 @@ inspection interval; the smallest factor of all findings wins):
 * ``misapplied`` 0.25 - the principle should not be used on this fluid.
 * ``high``       0.5
 * ``medium``     0.75
-* ``low``        0.9, or 1.0 for purely informational notes.
+* ``low``        0.9 ("low risk": a finding, it shortens), or 1.0 for a note (informational: a note never
+  shortens; ``Finding.severity_words`` says "note" only for those).
 
 Wetted materials
 ----------------
@@ -30,6 +31,11 @@ the chloride finding stands.
 
 Rules that read the whole duty (each marked with its basis where it is applied):
 
+* chlorides (brine) at any temperature pit and crevice-attack the wetted parts of turbines, positive-displacement
+  meters, DP primaries (orifice plates, venturis, pitot and averaging pitot probes) and vortex bluff bodies made
+  of austenitic stainless steel, carbon steel or cast iron, or of a material not recorded (a medium finding);
+  titanium, super duplex, nickel alloys and the other materials marked chloride resistant turn it into a note
+  (common practice);
 * chlorides on austenitic stainless above about 60 °C: stress-corrosion cracking (common practice);
   with chlorides on austenitic stainless and no temperature recorded, a note asks for it;
 * a magnetic meter on a liquid with no conductivity recorded: a finding asks for it (common practice);
@@ -122,6 +128,9 @@ class Finding:
 
     @property
     def severity_words(self) -> str:
+        """"note" only for a finding that does not shorten (factor 1); a low finding that shortens is "low risk"."""
+        if self.interval_factor >= 1.0:
+            return "note"
         return SEVERITY_WORDS.get(self.severity, self.severity)
 
 
@@ -223,6 +232,21 @@ def _chloride_cracking(prefix: str, mat: str, fl: FluidProps, severity: str = "h
             "pressure boundary. Use a chloride-resistant material.",
             factor)]
     return []
+
+
+def _chloride_pitting(prefix: str, part: str, mat: str, fl: FluidProps) -> list[Finding]:
+    """Chlorides at any temperature pit and crevice-attack the wetted ``part`` (common practice: austenitic
+    stainless, carbon steel and cast iron suffer; titanium, super duplex, nickel alloys and the materials marked
+    chloride resistant in plant.materials resist it). A medium finding, a note for a resistant material."""
+    if not fl.chlorides:
+        return []
+    material = materials.lookup(mat)
+    what = material.label if material else "a material not recorded"
+    return [_chloride_finding(
+        prefix, part, "medium", FACTOR_MEDIUM,
+        f"Brine (chlorides) pits and crevice-attacks the {part} ({what}); pits and attacked edges change the "
+        "geometry the meter's calibration depends on. Inspect the wetted parts, or use a chloride-resistant "
+        "material (titanium, super duplex, nickel alloy).", mat)]
 
 
 def _entrained_gas(prefix: str, fl: FluidProps, severity: str, factor: float, reason: str) -> list[Finding]:
@@ -342,6 +366,7 @@ def _turbine(mat, fl, **_):
             "Sticky fluid coats the rotor and bearings; the drag slows the rotor and the deposits change the "
             "blade profile, so the meter factor shifts and the meter reads low. Plan cleaning.",
             FACTOR_MEDIUM))
+    out += _chloride_pitting("TURBINE", "rotor and body", mat, fl)
     out += _chloride_cracking("TURBINE", mat, fl)
     return out
 
@@ -362,6 +387,7 @@ def _positive_displacement(mat, fl, **_):
             "Solids wear or jam the close clearances of a positive "
             "displacement meter.",
             FACTOR_HIGH))
+    out += _chloride_pitting("PD", "measuring chamber and rotors", mat, fl)
     out += _chloride_cracking("PD", mat, fl)
     return out
 
@@ -398,12 +424,14 @@ def _orifice(mat, fl, **_):
             "Solids wear the sharp edge of the orifice plate; a rounded edge "
             "makes the meter read low. Inspect the plate edge.",
             FACTOR_HIGH))
+    out += _chloride_pitting("ORIFICE", "plate", mat, fl)
     out += _chloride_cracking("ORIFICE", mat, fl)
     return out
 
 
 def _venturi(mat, fl, **_):
-    return _impulse_line_blocking("VENTURI", fl) + _chloride_cracking("VENTURI", mat, fl)
+    return (_impulse_line_blocking("VENTURI", fl) + _chloride_pitting("VENTURI", "throat and tappings", mat, fl)
+            + _chloride_cracking("VENTURI", mat, fl))
 
 
 def _pitot_ports(prefix, fl):
@@ -428,11 +456,13 @@ def _pitot_ports(prefix, fl):
 
 
 def _pitot(mat, fl, **_):
-    return _pitot_ports("PITOT", fl) + _chloride_cracking("PITOT", mat, fl)
+    return (_pitot_ports("PITOT", fl) + _chloride_pitting("PITOT", "probe", mat, fl)
+            + _chloride_cracking("PITOT", mat, fl))
 
 
 def _averaging_pitot(mat, fl, **_):
-    return _pitot_ports("AVG_PITOT", fl) + _chloride_cracking("AVG_PITOT", mat, fl)
+    return (_pitot_ports("AVG_PITOT", fl) + _chloride_pitting("AVG_PITOT", "probe", mat, fl)
+            + _chloride_cracking("AVG_PITOT", mat, fl))
 
 
 def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
@@ -478,6 +508,7 @@ def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
         "VORTEX", fl, "medium", FACTOR_MEDIUM,
         "Gas bubbles in the liquid damp the vortices and disturb the shedding frequency; the meter reads "
         "wrong or drops out.")
+    out += _chloride_pitting("VORTEX", "bluff body", mat, fl)
     out += _chloride_cracking("VORTEX", mat, fl)
     return out
 
@@ -659,7 +690,7 @@ SEVERITY_WORDS = {
     "misapplied": "not fit for this duty",
     "high": "high risk",
     "medium": "medium risk",
-    "low": "note",
+    "low": "low risk",  # a low finding that does not shorten (factor 1) is called a note (Finding.severity_words)
 }
 
 
