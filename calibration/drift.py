@@ -45,19 +45,28 @@ from typing import Optional, Sequence
 import numpy as np
 from scipy import optimize, stats
 
+from plant import checks
+
 HORIZON_DAYS = 20 * 365.25
 
 
 def bound_words(confidence: float = 0.95) -> str:
     """The name of the bound: the same words on the page, the chart legend, the rationale and docs/method.md."""
+    confidence = checks.fraction("confidence", confidence)
     return f"one-sided {confidence * 100:g} % prediction bound"
 
 
 BOUND_WORDS = bound_words()
 
 
+def bound_name(slope: float, confidence: float = 0.95) -> str:
+    """The bound on the side the trend heads to, named exactly: "one-sided 95 % upper prediction bound"."""
+    return bound_words(confidence).replace("prediction", f"{bound_side(slope)} prediction")
+
+
 def bound_side(slope: float) -> str:
     """The side the bound is drawn on: "upper" for a rising error path, "lower" for a falling one."""
+    slope = checks.number("slope", slope)
     return "upper" if slope >= 0 else "lower"
 
 
@@ -116,8 +125,8 @@ def linear_fit(x: Sequence[float], y: Sequence[float]) -> LineFit:
     se(slope) = s/sqrt(Sxx), se(intercept) = s*sqrt(1/n + xbar^2/Sxx).
     Requires n >= 3 and at least two distinct x values.
     """
-    xa = np.asarray(x, dtype=np.float64)
-    ya = np.asarray(y, dtype=np.float64)
+    xa = np.asarray(checks.numbers_in("x", x), dtype=np.float64)
+    ya = np.asarray(checks.numbers_in("y", y), dtype=np.float64)
     if xa.shape != ya.shape or xa.ndim != 1:
         raise ValueError("x and y must be 1-D sequences of equal length")
     n = int(xa.size)
@@ -175,6 +184,11 @@ class HistoryEvent:
     as_found: Optional[float]
     as_left: Optional[float] = None
     adjusted: bool = False
+
+    def __post_init__(self):
+        checks.number("day", self.day)
+        checks.optional_number("as_found", self.as_found)
+        checks.optional_number("as_left", self.as_left)
 
     def left_value(self) -> Optional[float]:
         if self.as_left is not None:
@@ -272,6 +286,7 @@ def fitted_current_error(series: DriftSeries, slope: float) -> Optional[float]:
     left(A) - Y_A + mean_{i >= A} (Y_i - slope * (t_i - t_last)).
     None when the last calibration's as-left is unknown.
     """
+    slope = checks.number("slope", slope)
     if not series.events or series.events[-1].left_value() is None:
         return None
     k = path_anchor(series)
@@ -296,6 +311,7 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
     |slope| <= negligible_rate), "improving" (drift moves the fitted current
     error toward zero) or "drifting".
     """
+    _drift_arguments(mpe=mpe, guard=guard, negligible_rate=negligible_rate, alpha=alpha, confidence=confidence)
     evs = sorted(events, key=lambda e: e.day)
     series = cumulative_drift(evs)
     n = len(series.days)
@@ -367,6 +383,19 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
         f"(p = {fit.p_slope:.3g}, {n} calibrations)."), **base)
 
 
+def _drift_arguments(mpe=None, guard=0.0, negligible_rate=0.0, alpha=0.05, confidence=0.95, horizon_days=1.0):
+    """Refuse NaN, ±inf and out-of-domain settings of the drift functions, naming the argument."""
+    if mpe is not None:
+        checks.positive("mpe", mpe)
+    guard = checks.non_negative("guard", guard)
+    if mpe is not None and guard >= mpe:
+        raise ValueError(f"guard must be less than mpe (mpe - guard must be positive), not {guard!r} >= {mpe!r}")
+    checks.non_negative("negligible_rate", negligible_rate)
+    checks.fraction("alpha", alpha)
+    checks.fraction("confidence", confidence)
+    checks.positive("horizon_days", horizon_days)
+
+
 @dataclass(frozen=True)
 class CrossingResult:
     day: Optional[float]
@@ -392,9 +421,10 @@ def predict_crossing(events: Sequence[HistoryEvent], mpe: float, guard: float = 
     The root of g(t) = limit is found with scipy.optimize.brentq on
     [t_last, t_last + horizon]; with zero residual SD it is solved exactly.
     """
+    if mpe is None:
+        raise ValueError("mpe must be a finite number greater than zero, not None")
+    _drift_arguments(mpe=mpe, guard=guard, confidence=confidence, horizon_days=horizon_days)
     limit = mpe - guard
-    if limit <= 0:
-        raise ValueError("mpe - guard must be positive")
     dr = fit_drift(events, mpe=mpe, guard=guard, confidence=confidence)
     if dr.status in ("out_of_tolerance", "scatter", "insufficient", "flat"):
         return CrossingResult(None, dr.status, dr.message + " No crossing date predicted.", dr)
@@ -406,7 +436,7 @@ def predict_crossing(events: Sequence[HistoryEvent], mpe: float, guard: float = 
     start = side * dr.current  # the path's value on the side it heads to (negative while improving)
     t_last = dr.last_day
     rate = abs(fit.slope)
-    bound = f"{bound_words(confidence)} ({bound_side(fit.slope)})"
+    bound = bound_name(fit.slope, confidence)
     rate_text = f"drift {fit.slope * 365.25:+.4g} ± {fit.se_slope * 365.25:.2g} per year (standard uncertainty)"
 
     if fit.residual_sd == 0.0:

@@ -26,6 +26,7 @@ import pandas as pd
 from scipy import stats
 
 from calibration.drift import HORIZON_DAYS
+from plant import checks
 
 RESULT_COLUMNS = ["status", "day", "slope", "se", "sd", "significant", "usable"]
 _BISECTIONS = 64  # 20 years / 2**64 is far below the 1e-9 day tolerance of the scalar root finder
@@ -49,6 +50,24 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
         significant  slope significantly non-zero (two-sided t-test at `alpha`)
         usable   events in the unbroken chain used for the fit
     """
+    # the same refusals as the scalar functions (drift.fit_drift / predict_crossing), naming the argument
+    checks.fraction("confidence", confidence)
+    checks.fraction("alpha", alpha)
+    checks.positive("horizon_days", horizon_days)
+    checks.non_negative("negligible_rate", negligible_rate)
+    lim_values = pd.to_numeric(limit, errors="coerce").to_numpy(dtype=float)
+    bad = ~np.isfinite(lim_values) | (lim_values <= 0)
+    if bad.any():
+        key = limit.index[np.flatnonzero(bad)[0]]
+        raise ValueError(f"limit must be a finite number greater than zero (mpe - guard), not {limit.loc[key]!r} "
+                         f"for series {key!r}")
+    if not rows.empty:
+        for column in ("day", "as_found", "as_left"):
+            values = pd.to_numeric(rows[column], errors="coerce").to_numpy(dtype=float)
+            wrong = np.isinf(values) | (np.isnan(values) if column == "day" else False)
+            if wrong.any():
+                raise ValueError(f"rows.{column} must be finite numbers (NaN only for an error not recorded), "
+                                 f"not {values[np.flatnonzero(wrong)[0]]!r}")
     out = pd.DataFrame({"status": "insufficient", "day": np.nan, "slope": np.nan, "se": np.nan, "sd": np.nan,
                         "significant": False, "usable": 0}, index=limit.index)
     if rows.empty:

@@ -23,6 +23,7 @@ import datetime as dt
 from dataclasses import dataclass, field
 
 from calibration.intervals import whole_days
+from plant import checks
 
 ROLES = {"method": "sets the interval", "risk": "may shorten it", "drift": "may shorten it"}
 
@@ -75,10 +76,18 @@ def decide_due(last: dt.date, method_interval_days: int, method_reason: str = ""
     large to predict, a finding worded by `scatter_reason`, e.g. the residual SD beside the MPE);
     last_failed: the last as-found was out of tolerance (the method already shortened).
     """
-    if min_days < 1 or max_days < min_days:
-        raise ValueError("need 1 <= min_days <= max_days")
-    if method_interval_days is None or method_interval_days < 1:
-        raise ValueError("the interval method must give an interval of at least one day")
+    if not isinstance(last, dt.date):
+        raise ValueError(f"last must be a date, not {last!r}")
+    if crossing is not None and not isinstance(crossing, dt.date):
+        raise ValueError(f"crossing must be a date or None, not {crossing!r}")
+    min_days = checks.whole("min_days", min_days, minimum=1)
+    max_days = checks.whole("max_days", max_days, minimum=min_days)
+    if method_interval_days is None:
+        raise ValueError("method_interval_days: the interval method must give an interval of at least one day")
+    method_interval_days = checks.whole("method_interval_days", method_interval_days, minimum=1)
+    risk_factor = checks.fraction("risk_factor", risk_factor, include_one=True)
+    shorten_factor = checks.fraction("shorten_factor", shorten_factor, include_one=True)
+    margin_days = checks.whole("margin_days", margin_days, minimum=0)
     interval = int(min(max(int(method_interval_days), min_days), max_days))
     method_text = method_reason or f"interval {interval} d"
     findings = []

@@ -23,7 +23,11 @@ def _check_basis(basis: str) -> None:
 
 def _check_finite(**values: float) -> None:
     for name, v in values.items():
-        if v is None or not math.isfinite(float(v)):
+        try:
+            finite = v is not None and not isinstance(v, bool) and math.isfinite(float(v))
+        except (TypeError, ValueError):
+            finite = False
+        if not finite:
             raise ValueError(f"{name} must be a finite number, got {v!r}")
 
 
@@ -76,6 +80,8 @@ def indication_for_error(reference: float, error: float, basis: str, span: float
         return reference + error
     _check_finite(reference=reference, error=error)
     if basis == "pct_reading":
+        if reference == 0:
+            raise ValueError("reference: a percent-of-reading error is undefined for a zero reference")
         return reference + error * abs(reference) / 100.0
     _scale(basis, reference, span)  # validates span
     return reference + error * span / 100.0
@@ -84,9 +90,11 @@ def indication_for_error(reference: float, error: float, basis: str, span: float
 def mpe_in_flow_units(mpe_value: float, basis: str, reference: float, span: float | None = None) -> float:
     """Convert a maximum permissible error (MPE) stated on ``basis`` to flow units.
 
-    pct_reading: mpe * |ref| / 100; pct_span: mpe * span / 100; absolute: mpe.
+    pct_reading: mpe * |ref| / 100; pct_span: mpe * span / 100; absolute: mpe. A negative MPE is refused.
     """
     _check_finite(mpe_value=mpe_value)
+    if mpe_value < 0:
+        raise ValueError(f"mpe_value cannot be negative, got {mpe_value!r}")
     s = _scale(basis, reference, span)
     return mpe_value if s is None else mpe_value * s
 

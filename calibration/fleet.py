@@ -166,11 +166,13 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
     """Per meter: earliest crossing (day and nominal point), the drift rate shown and status.
 
     limits: MPE minus guard band per meter_id. Ties go to the lower nominal point, as on the meter page.
-    The rate shown (rate_slope, rate_se: slope and its standard uncertainty, per day) is the slope the
-    crossing uses; with no crossing, the worst significant slope (worst_slope). scatter_sd: the largest
-    residual SD among the meter's "scatter" series (NaN when none); a meter with one gets no crossing.
+    The point shown (shown_nominal; its rate rate_slope, rate_se: slope and standard uncertainty, per day) is
+    the crossing's; with no crossing, the "scatter" point with the largest residual SD; else the point of the
+    worst significant slope (worst_slope). scatter_sd: the largest residual SD among the meter's "scatter"
+    series (NaN when none); a meter with one gets no crossing.
     """
-    columns = ["crossing_day", "crossing_nominal", "worst_slope", "status", "rate_slope", "rate_se", "scatter_sd"]
+    columns = ["crossing_day", "crossing_nominal", "worst_slope", "status", "rate_slope", "rate_se", "shown_nominal",
+               "scatter_sd"]
     if points.empty:
         return pd.DataFrame(columns=columns, index=pd.Index([], name="meter_id"))
     # one value per (event, kind, nominal): the last recorded wins, as in point_histories
@@ -208,8 +210,14 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
     summary["crossing_nominal"] = crossing["nominal_pct"]
     summary["worst_slope"] = worst["slope"]
     summary["status"] = status.map(dict(enumerate(STATUS_PRECEDENCE)))
-    summary["rate_slope"] = crossing["slope"].reindex(summary.index).fillna(worst["slope"])
-    summary["rate_se"] = crossing["se"].reindex(summary.index).fillna(worst["se"])
+    # the point the page shows (its rate and its chart): the crossing's, else the most scattered, else the worst
+    widest = (scattered.sort_values(["meter_id", "sd", "nominal_pct"], ascending=[True, False, True], kind="stable")
+              .drop_duplicates("meter_id").set_index("meter_id"))
+    shown = pd.concat([crossing, widest[~widest.index.isin(crossing.index)]])
+    shown = pd.concat([shown, worst[~worst.index.isin(shown.index)]])
+    summary["rate_slope"] = shown["slope"]
+    summary["rate_se"] = shown["se"]
+    summary["shown_nominal"] = shown["nominal_pct"]
     summary["scatter_sd"] = scattered.groupby("meter_id")["sd"].max()
     return summary[columns]
 
@@ -416,16 +424,17 @@ def _assess(meter, last_event, summary, method, cfg):
     guarded = last_event["decision_rule"] == CalibrationEvent.Rule.GUARDED
     crossing = nominal = None
     crossing_reason = scatter_reason = ""
-    rate = rate_se = None
+    rate = rate_se = shown = None
     status = "insufficient"
     if summary is not None:
         status = summary["status"]
         if not pd.isna(summary["rate_slope"]):
             rate, rate_se = float(summary["rate_slope"]), float(summary["rate_se"])
+            shown = float(summary["shown_nominal"])
         if not pd.isna(summary["crossing_day"]):
             nominal = float(summary["crossing_nominal"])
             crossing = crossing_date(summary["crossing_day"], last)
-            crossing_reason = (f"{drift.bound_words()} at {nominal:g} % of range"
+            crossing_reason = (f"{drift.bound_name(rate)} at {nominal:g} % of range"
                                f"{' (guard band U)' if guarded else ''}, {drift_rate_words(rate, rate_se)}:")
         if status == "scatter" and not pd.isna(summary["scatter_sd"]):
             scatter_reason = scatter_words(float(summary["scatter_sd"]), meter.mpe_value)
@@ -438,7 +447,8 @@ def _assess(meter, last_event, summary, method, cfg):
     status = decision_rules.drift_status_given_verdict(status, meter.last_in_tolerance)
     meter.last_calibrated = last
     meter.next_due_date = decision.due
-    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_status": status,
+    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_chart_pct": shown,
+                           "drift_status": status,
                            "drift_rate_u_per_year": float(f"{rate_se * 365.25:.6g}") if rate_se is not None else None}
     meter.drift_status = status
     meter.drift_rate_per_year = rate * 365.25 if rate is not None else None

@@ -39,7 +39,7 @@ def meter_drift_chart(meter, horizon_days=730) -> str:
             end = crossing.toordinal() + 60 if crossing else t_last + horizon_days
             days = [t_last + (end - t_last) * i / 20 for i in range(21)]
             side = 1.0 if fit.slope >= 0 else -1.0  # the bound on the side the trend heads to
-            bound_label = drift.BOUND_WORDS.replace("prediction", f"{drift.bound_side(fit.slope)} prediction")
+            bound_label = drift.bound_name(fit.slope)
             trend = [(dt.date.fromordinal(int(t)), baseline + fit.slope * (t - t_last)) for t in days]
             bound = [(dt.date.fromordinal(int(t)),
                       baseline + fit.slope * (t - t_last) + side * fit.prediction_margin(t, 0.95)) for t in days]
@@ -50,10 +50,12 @@ def meter_drift_chart(meter, horizon_days=730) -> str:
 
 
 def _chart_nominal(meter, histories):
-    """The point predicted to cross first, else the point with the largest last as-found."""
-    predicted = (meter.due_rationale or {}).get("drift_point_pct")
-    if predicted in histories:
-        return predicted
+    """The point whose rate the page shows (the crossing's, else the most scattered, else the worst significant
+    slope), else the point predicted to cross first, else the point with the largest last as-found."""
+    rationale = meter.due_rationale or {}
+    for key in ("drift_chart_pct", "drift_point_pct"):
+        if rationale.get(key) in histories:
+            return rationale[key]
     best = None
     for nominal, events in histories.items():
         found = [e.as_found for e in events if e.as_found is not None]

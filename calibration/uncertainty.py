@@ -22,6 +22,8 @@ from typing import Iterable, Sequence
 
 from scipy import special
 
+from plant import checks
+
 #: Minimum test uncertainty ratio, 4:1 (ANSI/NCSL Z540.3-2006 §5.3 b, where no
 #: false-accept risk is computed; Z540.3 Handbook).
 TUR_WARNING = 4.0
@@ -38,10 +40,13 @@ LOW_TUR_POLICIES = ("warn", "require_guarded")
 
 
 def _nonneg(name: str, v: float) -> float:
-    v = float(v)
-    if not math.isfinite(v) or v < 0:
+    try:
+        f = float(v) if v is not None and not isinstance(v, bool) else math.nan
+    except (TypeError, ValueError):
+        f = math.nan
+    if not math.isfinite(f) or f < 0:
         raise ValueError(f"{name} must be a finite number >= 0, got {v!r}")
-    return v
+    return f
 
 
 def standard_from_expanded(U: float, k: float = 2) -> float:
@@ -60,6 +65,12 @@ def reference_standard_u(reference_value: float, U_ref: float, basis: str, k: fl
     basis "absolute": U_ref is in flow units. Certificate U assumed at coverage k.
     """
     _nonneg("U_ref", U_ref)
+    try:
+        ref_ok = reference_value is not None and math.isfinite(float(reference_value))
+    except (TypeError, ValueError):
+        ref_ok = False
+    if not ref_ok:
+        raise ValueError(f"reference_value must be a finite number, got {reference_value!r}")
     if basis == "pct_reading":
         U_flow = U_ref * abs(float(reference_value)) / 100.0
     elif basis == "absolute":
@@ -130,7 +141,7 @@ def pooled_sd(groups: Iterable[Sequence[float]]) -> tuple[float, int]:
 def combine(*components: float) -> float:
     """Combined standard uncertainty, root-sum-square of uncorrelated components
     with unit sensitivity (GUM 5.1.2, eq. 10)."""
-    return math.sqrt(sum(_nonneg("component", c) ** 2 for c in components))
+    return math.sqrt(sum(_nonneg("components", c) ** 2 for c in components))
 
 
 def effective_dof(components: Iterable[tuple[float, float]]) -> float:
@@ -142,10 +153,11 @@ def effective_dof(components: Iterable[tuple[float, float]]) -> float:
     bound, GUM G.4.2-G.4.3) contributes nothing to the sum. Returns inf when every
     nu_i is infinite or u_c is 0 (nothing uncertain: the normal quantile applies).
     """
-    pairs = [(_nonneg("u", u), float(nu)) for u, nu in components]
+    pairs = [(_nonneg("components (u)", u), nu) for u, nu in components]
     for _, nu in pairs:
-        if not (nu > 0):  # also refuses NaN
-            raise ValueError(f"degrees of freedom must be > 0, got {nu!r}")
+        if nu is None or isinstance(nu, bool) or not (float(nu) > 0):  # also refuses NaN
+            raise ValueError(f"components (nu): degrees of freedom must be > 0, got {nu!r}")
+    pairs = [(u, float(nu)) for u, nu in pairs]
     u_c = math.sqrt(sum(u * u for u, _ in pairs))
     denominator = sum((u / u_c) ** 4 / nu for u, nu in pairs if math.isfinite(nu)) if u_c > 0 else 0.0
     if denominator == 0:
@@ -161,12 +173,12 @@ def coverage_factor(dof: float, p: float = COVERAGE_PROBABILITY) -> float:
     truncated to the next lower integer (GUM G.4.1 b) nor linearly interpolated in Table G.2
     (G.4.1 note 1 allows interpolation); the three differ by less than 0.02 in k for nu >= 2 (our
     check, from memory). nu = inf gives the normal quantile (1.960 for p = 95 %)."""
+    if p is None or isinstance(p, bool) or not 0 < float(p) < 1:  # NaN fails too
+        raise ValueError(f"p: coverage probability must lie between 0 and 1, got {p!r}")
     p = float(p)
-    if not 0 < p < 1:
-        raise ValueError(f"coverage probability must lie between 0 and 1, got {p!r}")
+    if dof is None or isinstance(dof, bool) or not (float(dof) > 0):
+        raise ValueError(f"dof: degrees of freedom must be > 0, got {dof!r}")
     dof = float(dof)
-    if not (dof > 0):
-        raise ValueError(f"degrees of freedom must be > 0, got {dof!r}")
     q = 0.5 + p / 2
     if math.isinf(dof):
         return float(special.ndtri(q))
@@ -222,7 +234,7 @@ def point_uncertainty(
         raise ValueError(f"reference_value must be a finite number, got {reference_value!r}")
     u_refs = [reference_standard_u(ref, U_ref, basis) for U_ref, basis in references]
     u_ref = combine(*u_refs)
-    values = [float(x) for x in repeats]
+    values = checks.numbers_in("repeats", repeats)
     u_res = resolution_u(resolution)
     if len(values) >= 2:
         u_rep, rep_dof, source = repeatability_u(values), len(values) - 1, f"the {len(values)} repeat readings"
@@ -266,6 +278,8 @@ test_uncertainty_ratio.__test__ = False
 
 def tur_warning(tur: float) -> str | None:
     """Message if TUR is below 4:1 (TUR_WARNING, ANSI/NCSL Z540.3 §5.3 b), else None."""
+    if tur is None or isinstance(tur, bool) or math.isnan(float(tur)) or float(tur) < 0:
+        raise ValueError(f"tur must be a number >= 0 (inf allowed), got {tur!r}")
     if tur < TUR_WARNING:
         return (
             f"Test uncertainty ratio {tur:.2f}:1 is below {TUR_WARNING:g}:1: the uncertainty of the calibration "
@@ -279,4 +293,10 @@ def low_tur_requires_guarded(rule: str, turs: Iterable[float], policy: str) -> b
     policy "require_guarded" and simple acceptance with any TUR below TUR_WARNING."""
     if policy not in LOW_TUR_POLICIES:
         raise ValueError(f"unknown low-TUR policy {policy!r}; expected one of {LOW_TUR_POLICIES}")
+    if rule not in ("simple", "guarded"):
+        raise ValueError(f"rule must be 'simple' or 'guarded', not {rule!r}")
+    turs = list(turs)
+    for t in turs:
+        if t is None or isinstance(t, bool) or math.isnan(float(t)) or float(t) < 0:
+            raise ValueError(f"turs: a TUR must be a number >= 0 (inf allowed), got {t!r}")
     return policy == "require_guarded" and rule == "simple" and any(t < TUR_WARNING for t in turs)

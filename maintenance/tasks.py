@@ -18,6 +18,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from plant import checks
+
 COMMON_PRACTICE = "common practice"
 
 
@@ -177,10 +179,8 @@ class TaskSpec:
 
 def shortened(base_days: int, factor: float) -> int:
     """base_days × factor rounded half up to whole days, never below one day (as effective calibration intervals)."""
-    if base_days < 1:
-        raise ValueError("base_days must be at least 1")
-    if not 0 < factor <= 1:
-        raise ValueError("factor must be in (0, 1]")
+    base_days = checks.whole("base_days", base_days, minimum=1)
+    factor = checks.fraction("factor", factor, include_one=True)
     return max(1, int(base_days * factor + 0.5))
 
 
@@ -194,7 +194,9 @@ def derive_tasks(principle: str, findings) -> list[TaskSpec]:
     for finding in findings:
         code = FINDING_TASKS.get(finding.code)
         if code is not None:
-            calls.setdefault(code, []).append((finding.code, float(finding.interval_factor)))
+            factor = checks.fraction(f"findings ({finding.code}).interval_factor", finding.interval_factor,
+                                     include_one=True)
+            calls.setdefault(code, []).append((finding.code, factor))
     out = []
     for code, kind in CATALOGUE.items():
         if code not in calls:

@@ -54,7 +54,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from plant import materials
+from plant import checks, materials
 
 PRINCIPLES = (
     "electromagnetic",
@@ -113,6 +113,17 @@ class FluidProps:
     entrained_gas: bool = False
     temperature_c: float | None = None
 
+    def __post_init__(self):
+        """NaN, ±inf and out-of-domain properties are refused, naming the field (not silently "no finding")."""
+        if self.phase not in PHASES:
+            raise ValueError(f"phase must be one of {PHASES}, not {self.phase!r}")
+        for name in ("conductivity_us_cm", "density_kg_m3", "viscosity_mpa_s"):
+            value = getattr(self, name)
+            if value is not None and checks.number(name, value) < 0:
+                raise ValueError(f"{name} cannot be negative, not {value!r}")
+        if self.temperature_c is not None and checks.number("temperature_c", self.temperature_c) < -273.15:
+            raise ValueError(f"temperature_c cannot be below absolute zero, not {self.temperature_c!r}")
+
 
 @dataclass(frozen=True)
 class Finding:
@@ -120,6 +131,11 @@ class Finding:
     severity: str  # "misapplied" | "high" | "medium" | "low"
     reason: str  # plain-language reason shown to a technician
     interval_factor: float  # <1 shortens interval; misapplied uses ~0.25
+
+    def __post_init__(self):
+        if self.severity not in SEVERITIES:
+            raise ValueError(f"severity must be one of {SEVERITIES}, not {self.severity!r}")
+        checks.fraction("interval_factor", self.interval_factor, include_one=True)
 
     @property
     def title(self) -> str:
@@ -168,14 +184,19 @@ def reynolds_number(density_kg_m3, viscosity_mpa_s, flow_m3_h, diameter_mm) -> f
 
 
 def worst_severity(findings) -> str:
-    """The most serious severity among the findings ("" when there are none)."""
+    """The most serious severity among the findings ("" when there are none); an unknown severity is refused."""
     present = {f.severity for f in findings}
+    unknown = present - set(SEVERITIES)
+    if unknown:
+        raise ValueError(f"findings: unknown severity {sorted(unknown)!r}; expected one of {SEVERITIES}")
     return next((s for s in SEVERITIES if s in present), "")
 
 
 def interval_factor(findings) -> float:
-    """Smallest interval factor among findings; 1.0 if there are none."""
-    factors = [f.interval_factor for f in findings]
+    """Smallest interval factor among findings; 1.0 if there are none. A factor that is NaN, ±inf, <= 0 or
+    above 1 is refused (ValueError naming the finding): a factor only ever shortens."""
+    factors = [checks.fraction(f"findings[{i}].interval_factor", f.interval_factor, include_one=True)
+               for i, f in enumerate(findings)]
     return min(factors) if factors else 1.0
 
 
@@ -621,8 +642,14 @@ def assess(principle: str, wetted_material: str, fluid: FluidProps,
     """
     if principle not in _RULES:
         raise ValueError(f"unknown principle {principle!r}; expected one of {PRINCIPLES}")
+    if not isinstance(fluid, FluidProps):
+        raise ValueError(f"fluid must be FluidProps, not {type(fluid).__name__}")
     if fluid.phase not in PHASES:
         raise ValueError(f"unknown phase {fluid.phase!r}; expected one of {PHASES}")
+    for name, value in (("normal_flow_m3_h", normal_flow_m3_h), ("min_flow_m3_h", min_flow_m3_h),
+                        ("diameter_mm", diameter_mm)):
+        if value is not None and checks.number(name, value) < 0:
+            raise ValueError(f"{name} cannot be negative, not {value!r}")
     return _RULES[principle](
         wetted_material or "", fluid,
         normal_flow_m3_h=normal_flow_m3_h,
@@ -696,4 +723,6 @@ SEVERITY_WORDS = {
 
 def recommendation(findings) -> str:
     """NOT_FIT when any finding says the principle should not be used on this fluid, else ""."""
+    findings = list(findings)
+    worst_severity(findings)  # refuses an unknown severity
     return NOT_FIT if any(f.severity == "misapplied" for f in findings) else ""
