@@ -335,3 +335,27 @@ def test_a_first_calibration_found_out_shortens_the_base_interval_by_one_stairca
     # with an observed interval the method has already counted the failure: unchanged
     counted = intervals.interval_by_method("staircase", 365, [365], [False])
     assert intervals.first_calibration_found_out(counted) == counted
+
+
+def test_improving_meter_crossing_rate_and_chart_on_the_side_it_heads_to(drifting_meter, settings):
+    """Issue 26 items 1 and 7, worked by hand: as-founds 0.4, 0.3, 0.2, 0.1 a year (365 d) apart, never adjusted,
+    MPE 1.0 absolute: the error falls exactly 0.1 per 365 d toward zero and, continuing, reaches -1.0 after
+    (0.1 + 1.0) / (0.1 / 365) = 4015 days past the last calibration. The page shows that slope with its standard
+    uncertainty (0 on an exact line), and the chart draws the 50 % points and the lower bound."""
+    from calibration.trend import meter_drift_chart
+
+    settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "staircase", "max_interval_days": 3000}
+    meter, standard = drifting_meter
+    start = dt.date(2020, 1, 1)
+    for k, error in enumerate([0.4, 0.3, 0.2, 0.1]):
+        add_event(meter, standard, start + dt.timedelta(days=365 * k), found_error=error)
+    meter.refresh_from_db()
+    last = start + dt.timedelta(days=3 * 365)
+    assert meter.drift_status == "improving"
+    assert meter.predicted_crossing == last + dt.timedelta(days=4015)
+    assert meter.drift_rate_per_year == pytest.approx(-0.1 * 365.25 / 365, rel=1e-6)
+    assert meter.due_rationale["drift_rate_u_per_year"] == pytest.approx(0.0, abs=1e-9)
+    assert meter.due_rationale["drift_chart_pct"] == 50
+    svg = meter_drift_chart(meter)
+    assert "one-sided 95 % lower prediction bound" in svg and "as found (50 % of range)" in svg
+    assert f"predicted crossing {meter.predicted_crossing.isoformat()}" in svg
