@@ -72,13 +72,23 @@ def verdict_in_tolerance(decisions: Iterable[str]) -> bool:
     A "conditional pass" (guard band of the guarded rule) is not conforming; simple acceptance
     gives only "pass" or "fail", so its verdicts are unchanged by this.
     """
+    decisions = list(decisions)
+    _known(decisions)
     return all(d in IN_TOLERANCE for d in decisions)
+
+
+def _known(decisions) -> None:
+    """Refuse a decision that is none of the four (ValueError naming `decisions`)."""
+    for d in decisions:
+        if d not in (PASS, CONDITIONAL_PASS, CONDITIONAL_FAIL, FAIL):
+            raise ValueError(f"decisions: unknown decision {d!r}")
 
 
 def guard_band_only(decisions: Iterable[str]) -> bool:
     """True when the points are not all "pass" only because of guard-band points: at least one
     "conditional pass" and nothing worse (no "conditional fail" or "fail")."""
     decisions = list(decisions)
+    _known(decisions)
     return CONDITIONAL_PASS in decisions and all(d in (PASS, CONDITIONAL_PASS) for d in decisions)
 
 
@@ -100,9 +110,14 @@ def drift_status_given_verdict(status: str, last_as_found_in_tolerance: bool | N
     conforming, and a fit against the mean guard band of the event need not see it. Under simple
     acceptance the fit already reports any point beyond the MPE, so this changes nothing there.
     """
+    if status not in DRIFT_STATUSES:
+        raise ValueError(f"status must be one of {DRIFT_STATUSES}, not {status!r}")
     if last_as_found_in_tolerance is False:
         return "out_of_tolerance"
     return status
+
+
+DRIFT_STATUSES = ("insufficient", "flat", "scatter", "improving", "drifting", "out_of_tolerance")
 
 
 #: Relative tolerance of the limit comparisons: one part in 1e9 of the limit (at least 1e-12 in the
@@ -116,6 +131,12 @@ def at_limit(e: float, limits) -> float:
 
     Floating-point comparison with a stated tolerance (common practice; cf. Python's math.isclose):
     the reported error is left as computed, only the comparison uses this value."""
+    if e is None or isinstance(e, bool) or not math.isfinite(float(e)):
+        raise ValueError(f"e must be a finite number, got {e!r}")
+    limits = list(limits)
+    for limit in limits:
+        if limit is None or isinstance(limit, bool) or not math.isfinite(float(limit)):
+            raise ValueError(f"limits must be finite numbers, got {limit!r}")
     for limit in limits:
         if abs(e - limit) <= LIMIT_TOLERANCE * max(abs(limit), 1e-3):
             return limit

@@ -21,12 +21,20 @@ Methods
   starts at that as-left; with no adjustment it is the regression line of the
   errors.  It is not anchored on the last as-found observation, whose
   residual would move the date by residual / rate.  The conservative date
-  uses the one-sided 95 % prediction bound of the drift fit about the path:
-  |E(t)| + t_{0.95,n-2} * s * sqrt(1 + 1/n + (t - xbar)^2 / Sxx).
-* A slope that is not significant is not "flat" when that bound already
-  reaches the limit at the last calibration: scatter alone can take the
-  meter out of tolerance (status "scatter"; judged from SCATTER_MIN_EVENTS
-  calibrations or more).
+  uses the one-sided 95 % prediction bound of the drift fit about the path,
+  on the side the trend heads to (the upper bound for a rising error, the
+  lower bound for a falling one; BOUND_WORDS):
+  s * E(t) + t_{0.95,n-2} * s_r * sqrt(1 + 1/n + (t - xbar)^2 / Sxx), s = sign(rate).
+  An improving meter (error moving toward zero) gets its crossing on the
+  side it heads to, after it has passed zero.
+* A crossing is reported only strictly after the last calibration.  When the
+  prediction bound already reaches the limit at the last calibration (on
+  either side), while that calibration found the meter in tolerance, the
+  status is "scatter" ("scatter too large to predict"), whether or not the
+  slope is significant and however few the calibrations (a wide bound from
+  3 or 4 calibrations is scatter too): the model cannot place a crossing,
+  and it says so rather than saying the meter "was already out" on a day it
+  was found in.  The residual SD is reported beside the MPE.
 """
 from __future__ import annotations
 
@@ -37,11 +45,29 @@ from typing import Optional, Sequence
 import numpy as np
 from scipy import optimize, stats
 
+from plant import checks
+
 HORIZON_DAYS = 20 * 365.25
-# "Scatter exceeds tolerance" is judged from at least this many calibrations in the chain (3 degrees of
-# freedom, t = 2.35): with 3 or 4 the bound mostly reflects how few points there are (t = 6.31 at one
-# degree of freedom), not the meter. Our choice, not a published figure.
-SCATTER_MIN_EVENTS = 5
+
+
+def bound_words(confidence: float = 0.95) -> str:
+    """The name of the bound: the same words on the page, the chart legend, the rationale and docs/method.md."""
+    confidence = checks.fraction("confidence", confidence)
+    return f"one-sided {confidence * 100:g} % prediction bound"
+
+
+BOUND_WORDS = bound_words()
+
+
+def bound_name(slope: float, confidence: float = 0.95) -> str:
+    """The bound on the side the trend heads to, named exactly: "one-sided 95 % upper prediction bound"."""
+    return bound_words(confidence).replace("prediction", f"{bound_side(slope)} prediction")
+
+
+def bound_side(slope: float) -> str:
+    """The side the bound is drawn on: "upper" for a rising error path, "lower" for a falling one."""
+    slope = checks.number("slope", slope)
+    return "upper" if slope >= 0 else "lower"
 
 
 # --------------------------------------------------------------------------
@@ -99,8 +125,8 @@ def linear_fit(x: Sequence[float], y: Sequence[float]) -> LineFit:
     se(slope) = s/sqrt(Sxx), se(intercept) = s*sqrt(1/n + xbar^2/Sxx).
     Requires n >= 3 and at least two distinct x values.
     """
-    xa = np.asarray(x, dtype=np.float64)
-    ya = np.asarray(y, dtype=np.float64)
+    xa = np.asarray(checks.numbers_in("x", x), dtype=np.float64)
+    ya = np.asarray(checks.numbers_in("y", y), dtype=np.float64)
     if xa.shape != ya.shape or xa.ndim != 1:
         raise ValueError("x and y must be 1-D sequences of equal length")
     n = int(xa.size)
@@ -158,6 +184,11 @@ class HistoryEvent:
     as_found: Optional[float]
     as_left: Optional[float] = None
     adjusted: bool = False
+
+    def __post_init__(self):
+        checks.number("day", self.day)
+        checks.optional_number("as_found", self.as_found)
+        checks.optional_number("as_left", self.as_left)
 
     def left_value(self) -> Optional[float]:
         if self.as_left is not None:
@@ -255,6 +286,7 @@ def fitted_current_error(series: DriftSeries, slope: float) -> Optional[float]:
     left(A) - Y_A + mean_{i >= A} (Y_i - slope * (t_i - t_last)).
     None when the last calibration's as-left is unknown.
     """
+    slope = checks.number("slope", slope)
     if not series.events or series.events[-1].left_value() is None:
         return None
     k = path_anchor(series)
@@ -272,12 +304,14 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
     significant when the two-sided t-test p-value < alpha (default 0.05).
     Status: "insufficient" (< 3 usable events), "out_of_tolerance" (only if
     ``mpe`` given and the last as-found |error| > mpe - guard), "scatter"
-    (slope not significant, but with ``mpe`` given the one-sided
+    ("scatter too large to predict": with ``mpe`` given, the one-sided
     ``confidence`` prediction bound about the fitted path already reaches
-    mpe - guard at the last calibration), "flat" (not significant or
+    mpe - guard at the last calibration, which found the meter in tolerance;
+    significant slope or not, any number of calibrations), "flat" (not significant or
     |slope| <= negligible_rate), "improving" (drift moves the fitted current
     error toward zero) or "drifting".
     """
+    _drift_arguments(mpe=mpe, guard=guard, negligible_rate=negligible_rate, alpha=alpha, confidence=confidence)
     evs = sorted(events, key=lambda e: e.day)
     series = cumulative_drift(evs)
     n = len(series.days)
@@ -323,26 +357,43 @@ def fit_drift(events: Sequence[HistoryEvent], mpe: Optional[float] = None,
                 significant=significant, fit=fit, anchor_value=series.events[anchor].left_value(),
                 anchor_day=float(series.days[anchor]), current=current, **common)
     per_year = rate * 365.25
+    rate_text = f"{per_year:+.4g} ± {fit.se_slope * 365.25:.2g} per year (standard uncertainty)"
+    if mpe is not None and current is not None:
+        reach = abs(current) + fit.prediction_margin(float(last.day), confidence)
+        if reach >= mpe - guard:
+            few = (f"; with only {n} calibrations the bound is wide (t = {fit.t_crit_one_sided_95:.3g})"
+                   if n < 5 else "")
+            return DriftResult(status="scatter", message=(
+                f"Scatter too large to predict: the last calibration found the meter in tolerance, but the "
+                f"{bound_words(confidence)} of the drift model already reaches {reach:.4g} against the limit "
+                f"{mpe - guard:g} on that day, so no crossing date can be placed (residual SD "
+                f"{fit.residual_sd:.3g} beside the MPE {mpe:g}; drift {rate_text}, p = {fit.p_slope:.3g}, "
+                f"{n} calibrations{few})."), **base)
     if not significant or abs(rate) <= negligible_rate:
-        if mpe is not None and current is not None and n >= SCATTER_MIN_EVENTS:
-            reach = abs(current) + fit.prediction_margin(float(last.day), confidence)
-            if reach >= mpe - guard:
-                return DriftResult(status="scatter", message=(
-                    f"Scatter exceeds tolerance: no significant drift (rate {per_year:+.4g} per year, "
-                    f"p = {fit.p_slope:.3g}, {n} calibrations), but the {confidence:.0%} prediction bound "
-                    f"already reaches {reach:.4g} against the limit {mpe - guard:g} at the last calibration."),
-                    **base)
         return DriftResult(status="flat", message=(
-            f"No significant drift: rate {per_year:+.4g} per year "
+            f"No significant drift: rate {rate_text} "
             f"(p = {fit.p_slope:.3g}, {n} calibrations)."), **base)
     if current is not None and current * rate < 0:
         return DriftResult(status="improving", message=(
-            f"Drift of {per_year:+.4g} per year is moving the error "
+            f"Drift of {rate_text} is moving the error "
             f"({current:+.4g} on the fitted path) toward zero; if it continues past zero the error "
             "will grow with the opposite sign."), **base)
     return DriftResult(status="drifting", message=(
-        f"Significant drift of {per_year:+.4g} per year "
+        f"Significant drift of {rate_text} "
         f"(p = {fit.p_slope:.3g}, {n} calibrations)."), **base)
+
+
+def _drift_arguments(mpe=None, guard=0.0, negligible_rate=0.0, alpha=0.05, confidence=0.95, horizon_days=1.0):
+    """Refuse NaN, ±inf and out-of-domain settings of the drift functions, naming the argument."""
+    if mpe is not None:
+        checks.positive("mpe", mpe)
+    guard = checks.non_negative("guard", guard)
+    if mpe is not None and guard >= mpe:
+        raise ValueError(f"guard must be less than mpe (mpe - guard must be positive), not {guard!r} >= {mpe!r}")
+    checks.non_negative("negligible_rate", negligible_rate)
+    checks.fraction("alpha", alpha)
+    checks.fraction("confidence", confidence)
+    checks.positive("horizon_days", horizon_days)
 
 
 @dataclass(frozen=True)
@@ -356,62 +407,57 @@ class CrossingResult:
 def predict_crossing(events: Sequence[HistoryEvent], mpe: float, guard: float = 0.0,
                      confidence: float = 0.95,
                      horizon_days: float = HORIZON_DAYS) -> CrossingResult:
-    """Predict the first day the error may reach the limit mpe - guard.
+    """Predict the first day, strictly after the last calibration, the error may reach the limit mpe - guard.
 
     Error path: the fitted path from the last as-left (see the module
-    docstring and ``fitted_current_error``); b = its value at t_last.  Conservative bound used
-    (one-sided ``confidence`` prediction bound of the cumulative-drift fit
-    about that path):  g(t) = |b| + |rate|*(t - t_last)
-                     + t_{conf,n-2} * s * sqrt(1 + 1/n + (t-xbar)^2/Sxx).
-    Status "scatter" (slope not significant, bound already at the limit)
-    returns the last calibration day: the meter may already be out.
+    docstring and ``fitted_current_error``); b = its value at t_last, s = sign(rate).
+    Conservative bound used (one-sided ``confidence`` prediction bound of the
+    cumulative-drift fit about that path, on the side the trend heads to):
+        g(t) = s*b + |rate|*(t - t_last) + t_{conf,n-2} * s_r * sqrt(1 + 1/n + (t-xbar)^2/Sxx).
+    A drifting meter (s*b >= 0) and an improving one (s*b < 0, heading through zero to the other
+    side) alike get the first t with g(t) = limit.  Status "scatter" (the bound already at the limit
+    at the last calibration, found in tolerance) and "out_of_tolerance" give no crossing day:
+    a crossing is only ever reported after the last calibration.
     The root of g(t) = limit is found with scipy.optimize.brentq on
     [t_last, t_last + horizon]; with zero residual SD it is solved exactly.
     """
+    if mpe is None:
+        raise ValueError("mpe must be a finite number greater than zero, not None")
+    _drift_arguments(mpe=mpe, guard=guard, confidence=confidence, horizon_days=horizon_days)
     limit = mpe - guard
-    if limit <= 0:
-        raise ValueError("mpe - guard must be positive")
     dr = fit_drift(events, mpe=mpe, guard=guard, confidence=confidence)
-    if dr.status in ("out_of_tolerance", "scatter"):
-        return CrossingResult(dr.last_day, dr.status, dr.message, dr)
-    if dr.status in ("insufficient", "flat", "improving"):
+    if dr.status in ("out_of_tolerance", "scatter", "insufficient", "flat"):
         return CrossingResult(None, dr.status, dr.message + " No crossing date predicted.", dr)
-
-    if dr.baseline is None:
+    if dr.baseline is None or dr.current is None:
         return CrossingResult(None, "insufficient",
                               "Last calibration was adjusted but its as-left error is not recorded.", dr)
     fit = dr.fit
-    b = abs(dr.current)
+    side = 1.0 if fit.slope >= 0 else -1.0
+    start = side * dr.current  # the path's value on the side it heads to (negative while improving)
     t_last = dr.last_day
     rate = abs(fit.slope)
-    if b > limit:
-        return CrossingResult(t_last, "drifting",
-                              f"The fitted error path is already at {dr.current:.4g}, beyond the limit {limit:g}, "
-                              "at the last calibration.", dr)
+    bound = bound_name(fit.slope, confidence)
+    rate_text = f"drift {fit.slope * 365.25:+.4g} ± {fit.se_slope * 365.25:.2g} per year (standard uncertainty)"
 
     if fit.residual_sd == 0.0:
-        day = t_last + (limit - b) / rate
+        day = t_last + (limit - start) / rate
         if day - t_last > horizon_days:
-            return CrossingResult(None, "drifting",
+            return CrossingResult(None, dr.status,
                                   f"Limit not reached within {horizon_days / 365.25:g} years.", dr)
-        return CrossingResult(day, "drifting", (
-            f"Error expected to reach {limit:g} {day - t_last:.1f} days after the last "
-            "calibration (exact line, no scatter)."), dr)
+        return CrossingResult(day, dr.status, (
+            f"Error expected to reach {side * limit:+g} {day - t_last:.1f} days after the last "
+            f"calibration (exact line, no scatter; {rate_text})."), dr)
 
     def g(t: float) -> float:
-        return b + rate * (t - t_last) + fit.prediction_margin(t, confidence) - limit
+        return start + rate * (t - t_last) + fit.prediction_margin(t, confidence) - limit
 
-    g0 = g(t_last)
-    if g0 >= 0:
-        return CrossingResult(t_last, "drifting", (
-            f"The {confidence:.0%} prediction bound already reaches the limit {limit:g} "
-            "at the last calibration: scatter alone may take the meter out of tolerance."), dr)
     t_end = t_last + horizon_days
     if g(t_end) < 0:
-        return CrossingResult(None, "drifting",
+        return CrossingResult(None, dr.status,
                               f"Limit not reached within {horizon_days / 365.25:g} years.", dr)
+    # g(t_last) < 0 here: fit_drift calls "scatter" any bound at the limit on the last day
     day = optimize.brentq(g, t_last, t_end, xtol=1e-9, rtol=4 * np.finfo(float).eps)
-    return CrossingResult(day, "drifting", (
-        f"At {confidence:.0%} confidence the error may reach {limit:g} "
+    return CrossingResult(day, dr.status, (
+        f"The {bound} of the error may reach {side * limit:+g} "
         f"{day - t_last:.0f} days after the last calibration "
-        f"(central estimate {(limit - b) / rate:.0f} days)."), dr)
+        f"(central estimate {(limit - start) / rate:.0f} days; {rate_text})."), dr)

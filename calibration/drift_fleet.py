@@ -9,8 +9,10 @@ instead of one Python call per series:
   (NIST/SEMATECH e-Handbook 4.1.4), the two-sided t-test of the slope and the one-sided 95 %
   prediction bound;
 * the fitted error path from the last as-left (the last adjustment of the chain, else its first
-  calibration) and the "scatter exceeds tolerance" check of a slope that is not significant;
-* the first day the bounded error path reaches the limit (MPE minus guard band). The scalar code
+  calibration) and the "scatter too large to predict" check (the bound already at the limit on the
+  last calibration day, which found the meter in tolerance);
+* the first day after the last calibration the bounded error path reaches the limit (MPE minus guard
+  band) on the side the trend heads to (an improving meter too). The scalar code
   finds that root with Brent's method; here all roots are bracketed together and bisected to well
   below a millionth of a day, so both give the same calendar day.
 
@@ -23,9 +25,10 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from calibration.drift import HORIZON_DAYS, SCATTER_MIN_EVENTS
+from calibration.drift import HORIZON_DAYS
+from plant import checks
 
-RESULT_COLUMNS = ["status", "day", "slope", "significant", "usable"]
+RESULT_COLUMNS = ["status", "day", "slope", "se", "sd", "significant", "usable"]
 _BISECTIONS = 64  # 20 years / 2**64 is far below the 1e-9 day tolerance of the scalar root finder
 
 
@@ -42,11 +45,31 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
         status   insufficient | flat | scatter | improving | drifting | out_of_tolerance
         day      predicted crossing day (NaN when none is predicted)
         slope    fitted drift per day (NaN when no fit was made)
+        se       its standard uncertainty (standard error, per day; NaN when no fit was made)
+        sd       residual standard deviation of the fit (error units; NaN when no fit was made)
         significant  slope significantly non-zero (two-sided t-test at `alpha`)
         usable   events in the unbroken chain used for the fit
     """
-    out = pd.DataFrame({"status": "insufficient", "day": np.nan, "slope": np.nan, "significant": False,
-                        "usable": 0}, index=limit.index)
+    # the same refusals as the scalar functions (drift.fit_drift / predict_crossing), naming the argument
+    checks.fraction("confidence", confidence)
+    checks.fraction("alpha", alpha)
+    checks.positive("horizon_days", horizon_days)
+    checks.non_negative("negligible_rate", negligible_rate)
+    lim_values = pd.to_numeric(limit, errors="coerce").to_numpy(dtype=float)
+    bad = ~np.isfinite(lim_values) | (lim_values <= 0)
+    if bad.any():
+        key = limit.index[np.flatnonzero(bad)[0]]
+        raise ValueError(f"limit must be a finite number greater than zero (mpe - guard), not {limit.loc[key]!r} "
+                         f"for series {key!r}")
+    if not rows.empty:
+        for column in ("day", "as_found", "as_left"):
+            values = pd.to_numeric(rows[column], errors="coerce").to_numpy(dtype=float)
+            wrong = np.isinf(values) | (np.isnan(values) if column == "day" else False)
+            if wrong.any():
+                raise ValueError(f"rows.{column} must be finite numbers (NaN only for an error not recorded), "
+                                 f"not {values[np.flatnonzero(wrong)[0]]!r}")
+    out = pd.DataFrame({"status": "insufficient", "day": np.nan, "slope": np.nan, "se": np.nan, "sd": np.nan,
+                        "significant": False, "usable": 0}, index=limit.index)
     if rows.empty:
         return out
     kept = rows[rows["as_found"].notna() | rows["as_left"].notna()]
@@ -79,8 +102,7 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
     lim_found = limit.reindex(last_found.index).to_numpy(dtype=float)
     beyond = np.abs(last_found["found"].to_numpy()) > lim_found
     oot_keys = last_found.index[beyond]
-    out.loc[oot_keys, "status"] = "out_of_tolerance"
-    out.loc[oot_keys, "day"] = last_found["day"].to_numpy()[beyond]
+    out.loc[oot_keys, "status"] = "out_of_tolerance"  # found out: no crossing is predicted
 
     chain_rows = pd.DataFrame({"series": series[used], "x": day[used], "increment": increment[used],
                                "left": left[used]})
@@ -143,38 +165,35 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
         return np.where(s > 0.0, t_crit * s * np.sqrt(1.0 + 1.0 / n + (t - xbar) ** 2 / sxx_safe), 0.0)
 
     not_significant = ~significant | (np.abs(slope) <= negligible_rate)
-    scatter = (not_significant & ~np.isnan(current) & (n >= SCATTER_MIN_EVENTS)
-               & (np.abs(current) + bound_margin(t_last) >= lim))
-    status = np.where(not_significant, np.where(scatter, "scatter", "flat"),
-                      np.where(~np.isnan(current) & (current * slope < 0), "improving", "drifting"))
+    # the bound already at the limit on the last day (either side), found in tolerance: scatter
+    scatter = ~degenerate & ~np.isnan(current) & (np.abs(current) + bound_margin(t_last) >= lim)
+    status = np.where(scatter, "scatter", np.where(
+        not_significant, "flat",
+        np.where(~np.isnan(current) & (current * slope < 0), "improving", "drifting")))
     status = np.where(degenerate, "insufficient", status)
-    status = np.where((status == "drifting") & np.isnan(baseline), "insufficient", status)
+    status = np.where(np.isin(status, ["drifting", "improving"]) & np.isnan(baseline), "insufficient", status)
     crossing = np.full(keys.size, np.nan)
-    crossing[status == "scatter"] = t_last[status == "scatter"]
 
-    b = np.abs(current)
+    # on the side the trend heads to: start = sign(slope) * current (negative while improving)
+    side = np.where(slope >= 0, 1.0, -1.0)
+    start = side * current
     rate = np.abs(slope)
-    drifting = status == "drifting"
-    already = drifting & (b > lim)  # the fitted path is beyond the limit on the last day: still "drifting"
-    crossing[already] = t_last[already]
+    heading = (status == "drifting") | (status == "improving")
 
-    exact = drifting & ~already & (s == 0.0)
+    exact = heading & (s == 0.0)
     with np.errstate(divide="ignore", invalid="ignore"):
-        exact_day = t_last + (lim - b) / rate
+        exact_day = t_last + (lim - start) / rate
     exact_ok = exact & (exact_day - t_last <= horizon_days)
     crossing[exact_ok] = exact_day[exact_ok]
 
-    scattered = drifting & ~already & (s > 0.0)
+    scattered = heading & (s > 0.0)
 
     def gap(t):
         """Bounded error path minus the limit (negative while inside tolerance)."""
-        return b + rate * (t - t_last) + bound_margin(t) - lim
+        return start + rate * (t - t_last) + bound_margin(t) - lim
 
-    at_last = gap(t_last)
-    now = scattered & (at_last >= 0)
-    crossing[now] = t_last[now]
     t_end = t_last + horizon_days
-    solve = scattered & (at_last < 0) & (gap(t_end) >= 0)
+    solve = scattered & (gap(t_end) >= 0)  # gap(t_last) < 0 here: "scatter" took the rest
     lo, hi = t_last.copy(), t_end.copy()
     for _ in range(_BISECTIONS):
         mid = 0.5 * (lo + hi)
@@ -186,5 +205,7 @@ def predict_crossings(rows: pd.DataFrame, limit: pd.Series, *, confidence: float
     out.loc[keys, "status"] = status
     out.loc[keys, "day"] = crossing
     out.loc[keys, "slope"] = np.where(degenerate, np.nan, slope)
+    out.loc[keys, "se"] = np.where(degenerate, np.nan, se)
+    out.loc[keys, "sd"] = np.where(degenerate, np.nan, s)
     out.loc[keys, "significant"] = significant
     return out

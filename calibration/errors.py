@@ -23,7 +23,11 @@ def _check_basis(basis: str) -> None:
 
 def _check_finite(**values: float) -> None:
     for name, v in values.items():
-        if v is None or not math.isfinite(float(v)):
+        try:
+            finite = v is not None and not isinstance(v, bool) and math.isfinite(float(v))
+        except (TypeError, ValueError):
+            finite = False
+        if not finite:
             raise ValueError(f"{name} must be a finite number, got {v!r}")
 
 
@@ -48,7 +52,9 @@ def _scale(basis: str, reference: float, span: float | None) -> float | None:
 def point_error(reference: float, indicated: float, basis: str, span: float | None = None) -> float:
     """Error of indication at one point, on the given basis.
 
-    pct_reading: 100*(ind-ref)/ref (ValueError if ref == 0);
+    pct_reading: 100*(ind-ref)/|ref| (ValueError if ref == 0): one sign convention with the MPE, which is
+                 mpe * |ref| / 100, so in reverse flow (ref < 0) an indication beyond the reference in
+                 magnitude (-11 against -10) reads -10 %, the sign of ind - ref;
     pct_span:    100*(ind-ref)/span (span > 0 required);
     absolute:    ind-ref.
     Method: VIM (JCGM 200:2012) 4.31 error of indication, relative forms as
@@ -62,7 +68,7 @@ def point_error(reference: float, indicated: float, basis: str, span: float | No
     if basis == "pct_reading":
         if reference == 0:
             raise ValueError("percent-of-reading error is undefined for a zero reference")
-        return 100.0 * diff / reference
+        return 100.0 * diff / abs(reference)
     _scale(basis, reference, span)  # validates span
     return 100.0 * diff / span
 
@@ -72,8 +78,11 @@ def indication_for_error(reference: float, error: float, basis: str, span: float
     _check_basis(basis)
     if basis == "absolute":
         return reference + error
+    _check_finite(reference=reference, error=error)
     if basis == "pct_reading":
-        return reference * (1 + error / 100.0)
+        if reference == 0:
+            raise ValueError("reference: a percent-of-reading error is undefined for a zero reference")
+        return reference + error * abs(reference) / 100.0
     _scale(basis, reference, span)  # validates span
     return reference + error * span / 100.0
 
@@ -81,9 +90,11 @@ def indication_for_error(reference: float, error: float, basis: str, span: float
 def mpe_in_flow_units(mpe_value: float, basis: str, reference: float, span: float | None = None) -> float:
     """Convert a maximum permissible error (MPE) stated on ``basis`` to flow units.
 
-    pct_reading: mpe * |ref| / 100; pct_span: mpe * span / 100; absolute: mpe.
+    pct_reading: mpe * |ref| / 100; pct_span: mpe * span / 100; absolute: mpe. A negative MPE is refused.
     """
     _check_finite(mpe_value=mpe_value)
+    if mpe_value < 0:
+        raise ValueError(f"mpe_value cannot be negative, got {mpe_value!r}")
     s = _scale(basis, reference, span)
     return mpe_value if s is None else mpe_value * s
 

@@ -163,11 +163,16 @@ def interval_observations(events: pd.DataFrame):
 
 # Vectorised drift ---------------------------------------------------------------------------------
 def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -> pd.DataFrame:
-    """Per meter: earliest crossing (day and nominal point), worst significant drift rate and status.
+    """Per meter: earliest crossing (day and nominal point), the drift rate shown and status.
 
     limits: MPE minus guard band per meter_id. Ties go to the lower nominal point, as on the meter page.
+    The point shown (shown_nominal; its rate rate_slope, rate_se: slope and standard uncertainty, per day) is
+    the crossing's; with no crossing, the "scatter" point with the largest residual SD; else the point of the
+    worst significant slope (worst_slope). scatter_sd: the largest residual SD among the meter's "scatter"
+    series (NaN when none); a meter with one gets no crossing.
     """
-    columns = ["crossing_day", "crossing_nominal", "worst_slope", "status"]
+    columns = ["crossing_day", "crossing_nominal", "worst_slope", "status", "rate_slope", "rate_se", "shown_nominal",
+               "scatter_sd"]
     if points.empty:
         return pd.DataFrame(columns=columns, index=pd.Index([], name="meter_id"))
     # one value per (event, kind, nominal): the last recorded wins, as in point_histories
@@ -188,7 +193,11 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
     result = drift_fleet.predict_crossings(rows, limit)
     result = pd.concat([key_frame, result.reset_index(drop=True)], axis=1)
 
-    crossing = (result.dropna(subset=["day"]).sort_values(["meter_id", "day", "nominal_pct"], kind="stable")
+    # one statement per meter: when any point's bound is already at the limit on the last calibration day
+    # ("scatter too large to predict"), no crossing date is given from its other points either
+    scattered = result[result["status"] == "scatter"]
+    predicted = result[~result["meter_id"].isin(scattered["meter_id"])]
+    crossing = (predicted.dropna(subset=["day"]).sort_values(["meter_id", "day", "nominal_pct"], kind="stable")
                 .drop_duplicates("meter_id").set_index("meter_id"))
     rated = result[result["significant"].astype(bool) & result["slope"].notna()]
     rated = rated.assign(magnitude=rated["slope"].abs())
@@ -201,7 +210,22 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
     summary["crossing_nominal"] = crossing["nominal_pct"]
     summary["worst_slope"] = worst["slope"]
     summary["status"] = status.map(dict(enumerate(STATUS_PRECEDENCE)))
+    # the point the page shows (its rate and its chart): the crossing's, else the most scattered, else the worst
+    widest = (scattered.sort_values(["meter_id", "sd", "nominal_pct"], ascending=[True, False, True], kind="stable")
+              .drop_duplicates("meter_id").set_index("meter_id"))
+    shown = pd.concat([crossing, widest[~widest.index.isin(crossing.index)]])
+    shown = pd.concat([shown, worst[~worst.index.isin(shown.index)]])
+    summary["rate_slope"] = shown["slope"]
+    summary["rate_se"] = shown["se"]
+    summary["shown_nominal"] = shown["nominal_pct"]
+    summary["scatter_sd"] = scattered.groupby("meter_id")["sd"].max()
     return summary[columns]
+
+
+def drift_rate_words(slope, se, nominal=None) -> str:
+    """The drift rate shown on the page: per year, with its standard uncertainty."""
+    at = f" at {nominal:g} % of range" if nominal is not None else ""
+    return f"drift {slope * 365.25:+.3g} ± {se * 365.25:.2g} per year (standard uncertainty){at}"
 
 
 # Interval method ----------------------------------------------------------------------------------
@@ -369,7 +393,8 @@ def found_out(value) -> bool:
     return value is not None and not pd.isna(value) and not bool(value)
 
 
-def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting"):
+def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting",
+           scatter_reason=""):
     """The pure due-date rule for one meter (calibration/due.py), with the policy's settings."""
     findings = meter.findings()
     if last_failed:
@@ -378,29 +403,43 @@ def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, cro
                                                        max_days=cfg["max_interval_days"])
     return due.decide_due(last, method.days, method.reason, risk_factor=risk.interval_factor(findings),
                           risk_reason=risk_reason(findings), crossing=crossing, crossing_reason=crossing_reason,
-                          crossing_kind=crossing_kind,
+                          crossing_kind=crossing_kind, scatter_reason=scatter_reason,
                           margin_days=cfg["drift_margin_days"], last_failed=last_failed,
                           shorten_factor=cfg["staircase_shorten"], min_days=cfg["min_interval_days"],
                           max_days=cfg["max_interval_days"]), findings
+
+
+def crossing_date(day: float, last: dt.date) -> dt.date:
+    """The calendar day of a crossing (strictly after `last`): the day it falls in, at least the next day."""
+    return max(dt.date.fromordinal(int(math.floor(day))), last + dt.timedelta(days=1))
+
+
+def scatter_words(sd, mpe) -> str:
+    """The residual SD beside the MPE, for the "scatter too large to predict" finding."""
+    return f"residual SD {sd:.3g} beside the MPE {mpe:g}"
 
 
 def _assess(meter, last_event, summary, method, cfg):
     last = dt.date.fromordinal(int(last_event["day"]))
     guarded = last_event["decision_rule"] == CalibrationEvent.Rule.GUARDED
     crossing = nominal = None
-    crossing_reason = ""
-    worst = None
+    crossing_reason = scatter_reason = ""
+    rate = rate_se = shown = None
     status = "insufficient"
     if summary is not None:
         status = summary["status"]
-        if not pd.isna(summary["worst_slope"]):
-            worst = float(summary["worst_slope"])
+        if not pd.isna(summary["rate_slope"]):
+            rate, rate_se = float(summary["rate_slope"]), float(summary["rate_se"])
+            shown = float(summary["shown_nominal"])
         if not pd.isna(summary["crossing_day"]):
             nominal = float(summary["crossing_nominal"])
-            crossing = dt.date.fromordinal(int(math.floor(summary["crossing_day"])))
-            crossing_reason = f"drift at {nominal:g} % of range{' (guard band U)' if guarded else ''}:"
+            crossing = crossing_date(summary["crossing_day"], last)
+            crossing_reason = (f"{drift.bound_name(rate)} at {nominal:g} % of range"
+                               f"{' (guard band U)' if guarded else ''}, {drift_rate_words(rate, rate_se)}:")
+        if status == "scatter" and not pd.isna(summary["scatter_sd"]):
+            scatter_reason = scatter_words(float(summary["scatter_sd"]), meter.mpe_value)
     decision, findings = decide(meter, last, found_out(last_event["as_found_in_tolerance"]), crossing,
-                                crossing_reason, method, cfg, crossing_kind=status)
+                                crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason)
     meter.risk_severity = risk.worst_severity(findings)
     meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
     # a last as-found that is not conforming (under guarded acceptance, a guard-band point too) shows as
@@ -408,9 +447,11 @@ def _assess(meter, last_event, summary, method, cfg):
     status = decision_rules.drift_status_given_verdict(status, meter.last_in_tolerance)
     meter.last_calibrated = last
     meter.next_due_date = decision.due
-    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_status": status}
+    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_chart_pct": shown,
+                           "drift_status": status,
+                           "drift_rate_u_per_year": float(f"{rate_se * 365.25:.6g}") if rate_se is not None else None}
     meter.drift_status = status
-    meter.drift_rate_per_year = worst * 365.25 if worst is not None else None
+    meter.drift_rate_per_year = rate * 365.25 if rate is not None else None
     meter.predicted_crossing = crossing
 
 

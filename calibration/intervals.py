@@ -13,11 +13,18 @@
   within a bracket).  Interval for a reliability target: -ln(target)/lambda.
 * When the reliability model may change an interval (``reliability_method``):
   only with at least a minimum number of observed intervals, and only when
-  the exact binomial test says the observed in-tolerance count differs from
-  the reliability target (two-sided at 5 %: each tail at 2.5 %).  This follows
-  the spirit of NCSL RP-1's interval-test approach, quoted from memory, not
-  from the text; the minimum sample size is our policy setting.  Otherwise
-  the model does not move the interval.
+  the one-sided exact binomial test says the reliability is below the target
+  (H0: R = R*, H1: R < R*; p = P(X <= k | n, R*), as
+  ``scipy.stats.binomtest(k, n, R*, alternative="less")`` gives it; significant
+  at p < 5 %).  The question is one-sided: is the meter less reliable than the
+  target?  This follows the spirit of NCSL RP-1's interval-test approach,
+  quoted from memory, not from the text; the minimum sample size is our policy
+  setting.  Otherwise the model does not move the interval and the staircase
+  does.
+* An out-of-tolerance as-found never yields an interval longer than the one
+  just completed, whatever the method (common practice; the simple response of
+  OIML D 10 / ILAC-G24: a failure shortens): ``interval_by_method`` holds the
+  interval to the last observed interval when the last result is a failure.
 * One rounding rule for every interval: ``whole_days`` (nearest whole day,
   halves upward).
 """
@@ -30,8 +37,15 @@ from typing import Iterable, List, Optional, Sequence
 import numpy as np
 from scipy import optimize, stats
 
+from plant import checks
+
 
 MIN_OBSERVATIONS = 8  # our policy default: observed intervals before the reliability model may move one
+
+
+def _check_fraction(name: str, value) -> float:
+    """``value`` as a float strictly between 0 and 1, else ValueError naming ``name``."""
+    return checks.fraction(name, value)
 
 
 def whole_days(x: float) -> int:
@@ -39,7 +53,15 @@ def whole_days(x: float) -> int:
 
     Used by the staircase, the reliability interval, the risk factor and the drift shortening alike.
     """
-    return int(math.floor(x + 0.5))
+    return int(math.floor(checks.number("x", x) + 0.5))
+
+
+def _stair_settings(extend, shorten, min_days, max_days):
+    """Refuse NaN, ±inf and out-of-domain staircase settings, naming the argument."""
+    checks.positive("extend", extend)
+    checks.fraction("shorten", shorten, include_one=True)
+    low = checks.whole("min_days", min_days, minimum=0)
+    checks.whole("max_days", max_days, minimum=max(low, 1))
 
 
 def staircase(interval_days: float, in_tolerance: bool, extend: float = 1.25,
@@ -49,8 +71,8 @@ def staircase(interval_days: float, in_tolerance: bool, extend: float = 1.25,
     new = interval * extend (in tolerance) or interval * shorten (out),
     rounded half-up to whole days, then clamped to [min_days, max_days].
     """
-    if interval_days <= 0:
-        raise ValueError("interval_days must be positive")
+    interval_days = checks.positive("interval_days", interval_days)
+    _stair_settings(extend, shorten, min_days, max_days)
     new = interval_days * (extend if in_tolerance else shorten)
     return int(min(max(whole_days(new), min_days), max_days))
 
@@ -62,8 +84,9 @@ def staircase_sequence(initial: float, results: Iterable[bool], **kwargs) -> Lis
     shorten = kwargs.get("shorten", 0.5)
     min_days = kwargs.get("min_days", 30)
     max_days = kwargs.get("max_days", 1095)
+    _stair_settings(extend, shorten, min_days, max_days)
     out: List[int] = []
-    cur = initial
+    cur = checks.positive("initial", initial)
     floor = math.floor
     for ok in results:  # the arithmetic of ``staircase``, inlined: the fleet recompute runs it for every meter
         if cur <= 0:
@@ -75,8 +98,8 @@ def staircase_sequence(initial: float, results: Iterable[bool], **kwargs) -> Lis
 
 def log_likelihood(lam: float, intervals: Sequence[float], in_tol: Sequence[bool]) -> float:
     """ln L = -lam * sum_pass t_i + sum_fail ln(1 - exp(-lam t_i))."""
-    t = np.asarray(intervals, dtype=float)
-    ok = np.asarray(in_tol, dtype=bool)
+    lam = checks.non_negative("lam", lam)
+    t, ok = _record(intervals, in_tol)
     ll = -lam * float(t[ok].sum())
     if (~ok).any():
         with np.errstate(divide="ignore"):
@@ -96,12 +119,9 @@ def exponential_mle(intervals: Sequence[float], in_tol: Sequence[bool]) -> float
     (the likelihood keeps rising; use the minimum interval).
     For equal intervals T this equals the closed form -ln(passes/n)/T.
     """
-    t = np.asarray(intervals, dtype=float)
-    ok = np.asarray(in_tol, dtype=bool)
-    if t.shape != ok.shape or t.ndim != 1 or t.size == 0:
+    t, ok = _record(intervals, in_tol)
+    if t.size == 0:
         raise ValueError("intervals and in_tol must be non-empty and of equal length")
-    if (t <= 0).any():
-        raise ValueError("intervals must be positive")
     if ok.all():
         return 0.0
     if not ok.any():
@@ -122,8 +142,22 @@ def exponential_mle(intervals: Sequence[float], in_tol: Sequence[bool]) -> float
                                  maxiter=500))
 
 
+def _record(intervals, in_tol):
+    """(intervals, in_tol) as arrays: intervals finite and > 0, one result per interval (ValueError naming it)."""
+    t = np.asarray(checks.numbers_in("intervals", intervals, checks.positive), dtype=float)
+    ok_list = list(in_tol)
+    if len(ok_list) != t.size:
+        raise ValueError(f"in_tol: {len(ok_list)} results for {t.size} intervals; give one per interval")
+    return t, np.asarray([bool(v) for v in ok_list], dtype=bool)
+
+
 def exponential_closed_form(interval: float, passes: int, n: int) -> float:
     """Closed form for equal intervals T: R = passes/n, lambda = -ln(R)/T."""
+    interval = checks.positive("interval", interval)
+    n = checks.whole("n", n, minimum=1)
+    passes = checks.whole("passes", passes, minimum=0)
+    if passes > n:
+        raise ValueError(f"passes cannot exceed n ({passes} > {n})")
     if passes == 0:
         return math.inf
     return -math.log(passes / n) / interval
@@ -132,8 +166,9 @@ def exponential_closed_form(interval: float, passes: int, n: int) -> float:
 def reliability_interval(lam: float, target: float = 0.95) -> float:
     """Interval at which R(t) = exp(-lam t) falls to ``target``: -ln(target)/lam
     (inf if lam == 0, 0 if lam is inf)."""
-    if not 0 < target < 1:
-        raise ValueError("target must be in (0, 1)")
+    target = _check_fraction("target", target)
+    if lam is None or isinstance(lam, bool) or math.isnan(float(lam)) or float(lam) < 0:
+        raise ValueError(f"lam must be a number >= 0 (inf allowed: every result out of tolerance), not {lam!r}")
     if lam == 0:
         return math.inf
     return -math.log(target) / lam
@@ -144,6 +179,7 @@ def recommended_interval(intervals: Sequence[float], in_tol: Sequence[bool],
                          max_days: int = 1095) -> int:
     """MLE interval for ``target`` reliability, rounded by ``whole_days`` and
     clamped to [min_days, max_days] (all pass -> max_days, all fail -> min_days)."""
+    _stair_settings(1.0, 1.0, min_days, max_days)
     t = reliability_interval(exponential_mle(intervals, in_tol), target)
     if math.isinf(t):
         return int(max_days)
@@ -158,6 +194,12 @@ def binomial_tails(n, passes, target):
     target, a small second value that it is significantly better."""
     n = np.asarray(n, dtype=float)
     passes = np.asarray(passes, dtype=float)
+    target = _check_fraction("target", target)
+    if not np.all(np.isfinite(n)) or np.any(n < 0) or np.any(n != np.floor(n)):
+        raise ValueError(f"n must be whole numbers >= 0, not {n!r}")
+    if (not np.all(np.isfinite(passes)) or np.any(passes < 0) or np.any(passes != np.floor(passes))
+            or np.any(passes > n)):
+        raise ValueError(f"passes must be whole numbers between 0 and n, not {passes!r}")
     return stats.binom.cdf(passes, n, target), stats.binom.sf(passes - 1, n, target)
 
 
@@ -177,33 +219,43 @@ def reliability_method(intervals: Sequence[float], in_tol: Sequence[bool], targe
     """Interval from one meter's own record by the reliability target, when the evidence allows it.
 
     Conditions (NCSL RP-1 style, from memory): at least ``min_observations``
-    observed intervals, and the exact binomial test (``binomial_tails``) of the
-    in-tolerance count against ``target`` significant two-sided at ``alpha``
-    (each tail below alpha/2).  Then the interval is ``recommended_interval``
-    over the record; otherwise ``days`` is None and the reason says why.
-    The sample size is part of every reason. ``tails``: ``binomial_tails`` already computed for this
-    record (the fleet recompute computes them for every meter at once).
+    observed intervals, and the one-sided exact binomial test of reliability
+    below the target (H1: R < ``target``) significant at ``alpha``: p = P(X <= k)
+    for k in-tolerance results of n (``binomial_tails``' first value; the same
+    number as ``scipy.stats.binomtest(k, n, target, alternative="less").pvalue``).
+    Then the interval is ``recommended_interval`` over the record; otherwise
+    ``days`` is None and the reason says why.  Every reason prints k, n, the
+    target and p. ``tails``: ``binomial_tails`` already computed for this record
+    (the fleet recompute computes them for every meter at once).
     """
     ok = [bool(v) for v in in_tol]
+    t = checks.numbers_in("intervals", intervals, checks.positive)
+    if len(t) != len(ok):
+        raise ValueError(f"intervals: {len(t)} values for {len(ok)} results in in_tol; give one per result")
+    _check_fraction("target", target)
+    _check_fraction("alpha", alpha)
+    checks.whole("min_observations", min_observations, minimum=1)
+    _stair_settings(1.0, 1.0, min_days, max_days)
     n, passes = len(ok), sum(ok)
     failures = n - passes
     if n == 0:
         return ReliabilityVerdict(None, 0, 0, 1.0, 1.0, "no interval observed yet (n = 0)")
     below, above = (float(v) for v in (tails if tails is not None else binomial_tails(n, passes, target)))
-    seen = f"{passes} of {n} intervals in tolerance (n = {n})"
+    seen = f"k = {passes} of n = {n} intervals in tolerance"
+    test = (f"one-sided exact binomial test of reliability below the target, H1: R < {target:.0%}: "
+            f"p = {below:.2g}")
     if n < min_observations:
         return ReliabilityVerdict(None, n, failures, below, above,
                                   f"{seen}: too few for the reliability model, which needs at least "
                                   f"{min_observations} (NCSL RP-1 style, from memory)")
-    if below >= alpha / 2 and above >= alpha / 2:
+    if below >= alpha:
         return ReliabilityVerdict(None, n, failures, below, above,
-                                  f"{seen} is consistent with the {target:.0%} target "
-                                  f"(exact binomial test, p = {min(1.0, 2 * min(below, above)):.2g})")
-    days = recommended_interval(intervals, ok, target=target, min_days=min_days, max_days=max_days)
-    side = "below" if below < alpha / 2 else "above"
+                                  f"{seen}, target {target:.0%}: not shown below the target ({test}, not below "
+                                  f"{alpha:g})")
+    days = recommended_interval(t, ok, target=target, min_days=min_days, max_days=max_days)
     return ReliabilityVerdict(days, n, failures, below, above,
-                              f"{seen}, significantly {side} the {target:.0%} target (exact binomial test, "
-                              f"p = {2 * min(below, above):.2g}): exponential model gives {days} d")
+                              f"{seen}, target {target:.0%}: significantly below the target ({test} < {alpha:g}); "
+                              f"exponential model gives {days} d")
 
 
 @dataclass(frozen=True)
@@ -237,7 +289,16 @@ def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in
     ``tails``/``steps``: ``binomial_tails`` and ``staircase_sequence`` already computed for this record
     (the fleet recompute computes them for all meters at once).
     """
+    if method not in ("staircase", "reliability"):
+        raise ValueError(f"unknown interval method {method!r}")
+    base_days = checks.whole("base_days", base_days, minimum=1)
+    _stair_settings(extend, shorten, min_days, max_days)
+    _check_fraction("target", target)
+    checks.whole("min_observations", min_observations, minimum=1)
     ok = [bool(v) for v in in_tol]
+    elapsed = checks.numbers_in("elapsed", elapsed, checks.positive)
+    if len(elapsed) != len(ok):
+        raise ValueError(f"elapsed: {len(elapsed)} intervals for {len(ok)} results in in_tol; give one per result")
     base = int(min(max(int(base_days), min_days), max_days))
     bounded = "" if base == int(base_days) else f" (the set {int(base_days)} d held to the bounds)"
     if not ok:
@@ -246,16 +307,30 @@ def interval_by_method(method: str, base_days: int, elapsed: Sequence[float], in
         steps = staircase_sequence(base, ok, extend=extend, shorten=shorten, min_days=min_days, max_days=max_days)
     stair = _staircase_reason(base, steps, ok, extend, shorten)
     if method == "staircase":
-        return MethodInterval(steps[-1], stair, len(ok))
+        return _no_longer_after_a_failure(MethodInterval(steps[-1], stair, len(ok)), elapsed, ok, min_days)
     if method != "reliability":
         raise ValueError(f"unknown interval method {method!r}")
     verdict = reliability_method(elapsed, ok, target=target, min_observations=min_observations,
                                  min_days=min_days, max_days=max_days, tails=tails)
     if verdict.days is not None:
-        return MethodInterval(verdict.days, f"reliability target {target:.0%} (NCSL RP-1 exponential model): "
-                                            f"{verdict.reason}", len(ok))
-    return MethodInterval(steps[-1], f"reliability target {target:.0%} not applied: {verdict.reason}; "
-                                     f"so the {stair}", len(ok))
+        chosen = MethodInterval(verdict.days, f"reliability target {target:.0%} (NCSL RP-1 exponential model): "
+                                              f"{verdict.reason}", len(ok))
+    else:
+        chosen = MethodInterval(steps[-1], f"reliability target {target:.0%} not applied: {verdict.reason}; "
+                                           f"so the {stair}", len(ok))
+    return _no_longer_after_a_failure(chosen, elapsed, ok, min_days)
+
+
+def _no_longer_after_a_failure(chosen: MethodInterval, elapsed, ok, min_days) -> MethodInterval:
+    """An out-of-tolerance as-found never yields an interval longer than the one just completed (common
+    practice; OIML D 10 / ILAC-G24 simple response). Held to ``min_days`` at the least."""
+    if not ok or ok[-1]:
+        return chosen
+    completed = max(whole_days(float(elapsed[-1])), int(min_days))
+    if chosen.days <= completed:
+        return chosen
+    return MethodInterval(completed, f"{chosen.reason}; the last as-found was out of tolerance, so no longer than "
+                                     f"the {completed} d interval just completed", chosen.observations)
 
 
 def first_calibration_found_out(method: MethodInterval, shorten: float = 0.5, min_days: int = 30,
@@ -267,6 +342,7 @@ def first_calibration_found_out(method: MethodInterval, shorten: float = 0.5, mi
     staircase (OIML D 10:2007 method 1), as any later failure would be. With an observed interval this
     returns the method's interval unchanged.
     """
+    _stair_settings(1.0, shorten, min_days, max_days)
     if method.observations:
         return method
     raw = whole_days(method.days * shorten)

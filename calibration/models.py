@@ -726,20 +726,49 @@ class CalibrationPoint(models.Model):
         # stored to 9 decimals (far below the 3 shown): 20.15 vs 20 is 0.75 %, not 0.7499999999999929 %
         self.error = round(errors.point_error(self.reference_value, self.indication_used, basis, span), 9)
         self.mpe = meter.mpe_value
-        if standards:
-            budget = uncertainty.point_uncertainty(
-                self.reference_value,
-                [(s.expanded_uncertainty * factor if s.uncertainty_basis == ReferenceStandard.UncertaintyBasis.ABSOLUTE
-                  else s.expanded_uncertainty, s.uncertainty_basis) for s in standards],
-                self.repeats, self.resolution,
-            )
-            self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)
-            self.coverage_factor = budget.k
-            self.dof_effective = budget.nu_eff if budget.nu_eff != float("inf") else None
-        else:
-            self.expanded_uncertainty = 0.0
-            self.coverage_factor, self.dof_effective = uncertainty.coverage_factor(float("inf")), None
+        if not standards:
+            raise ValueError("reference_standards: choose the reference standard used; the uncertainty of a point "
+                             "cannot be computed without it")
+        budget = uncertainty.point_uncertainty(
+            self.reference_value,
+            [(s.expanded_uncertainty * factor if s.uncertainty_basis == ReferenceStandard.UncertaintyBasis.ABSOLUTE
+              else s.expanded_uncertainty, s.uncertainty_basis) for s in standards],
+            self.repeats, self.resolution,
+            repeatability=None if len(self.repeats or []) >= 2 else past_repeatability(meter, self.reference_value),
+        )
+        self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)
+        self.coverage_factor = budget.k
+        self.dof_effective = budget.nu_eff if budget.nu_eff != float("inf") else None
         self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
+
+
+def past_repeatability(meter, reference_value):
+    """The device's repeatability from its own past repeats, for a point of fewer than two readings: the pooled
+    relative SD (GUM 4.2.4) of the repeat readings of its signed points with two or more, scaled to this
+    reference flow; None when it has none. Read once per meter object (cached on it)."""
+    if meter is None or meter.pk is None:
+        return None
+    cached = getattr(meter, "_past_repeatability", False)
+    if cached is False:
+        groups = []
+        rows = CalibrationPoint.objects.filter(in_force("event"), event__meter_id=meter.pk,
+                                               event__state=CalibrationEvent.State.SIGNED)
+        for repeats in rows.values_list("repeats", flat=True):
+            values = [float(v) for v in (repeats or [])]
+            mean = sum(values) / len(values) if values else 0.0
+            if len(values) >= 2 and mean != 0 and all(math.isfinite(v) for v in values):
+                groups.append([v / abs(mean) for v in values])  # relative to the mean reading
+        cached = None
+        if groups:
+            relative, dof = uncertainty.pooled_sd(groups)
+            cached = (relative, dof, sum(len(g) for g in groups), len(groups))
+        meter._past_repeatability = cached
+    if cached is None:
+        return None
+    relative, dof, readings, points = cached
+    return uncertainty.KnownRepeatability(
+        sd=relative * abs(float(reference_value)), dof=dof,
+        source=f"pooled SD of the device's own past repeats ({readings} readings in {points} points)")
 
 
 @receiver(post_save, sender=CalibrationEvent)

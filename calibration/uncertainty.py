@@ -22,6 +22,8 @@ from typing import Iterable, Sequence
 
 from scipy import special
 
+from plant import checks
+
 #: Minimum test uncertainty ratio, 4:1 (ANSI/NCSL Z540.3-2006 §5.3 b, where no
 #: false-accept risk is computed; Z540.3 Handbook).
 TUR_WARNING = 4.0
@@ -38,10 +40,13 @@ LOW_TUR_POLICIES = ("warn", "require_guarded")
 
 
 def _nonneg(name: str, v: float) -> float:
-    v = float(v)
-    if not math.isfinite(v) or v < 0:
+    try:
+        f = float(v) if v is not None and not isinstance(v, bool) else math.nan
+    except (TypeError, ValueError):
+        f = math.nan
+    if not math.isfinite(f) or f < 0:
         raise ValueError(f"{name} must be a finite number >= 0, got {v!r}")
-    return v
+    return f
 
 
 def standard_from_expanded(U: float, k: float = 2) -> float:
@@ -60,6 +65,12 @@ def reference_standard_u(reference_value: float, U_ref: float, basis: str, k: fl
     basis "absolute": U_ref is in flow units. Certificate U assumed at coverage k.
     """
     _nonneg("U_ref", U_ref)
+    try:
+        ref_ok = reference_value is not None and math.isfinite(float(reference_value))
+    except (TypeError, ValueError):
+        ref_ok = False
+    if not ref_ok:
+        raise ValueError(f"reference_value must be a finite number, got {reference_value!r}")
     if basis == "pct_reading":
         U_flow = U_ref * abs(float(reference_value)) / 100.0
     elif basis == "absolute":
@@ -72,9 +83,13 @@ def reference_standard_u(reference_value: float, U_ref: float, basis: str, k: fl
 def repeatability_u(readings: Iterable[float]) -> float:
     """Type A standard uncertainty of the mean: s(q)/sqrt(n), s with ddof=1 (GUM 4.2.2-4.2.3).
 
-    Returns 0.0 for fewer than two readings (no Type A estimate possible).
+    Returns 0.0 for fewer than two readings (no Type A estimate possible from them; ``point_uncertainty``
+    then uses the device's known repeatability, see ``KnownRepeatability``). NaN or inf refused.
     """
     values = [float(x) for x in readings]
+    for v in values:
+        if not math.isfinite(v):
+            raise ValueError(f"readings must be finite numbers, got {v!r}")
     n = len(values)
     if n < 2:
         return 0.0
@@ -83,14 +98,50 @@ def repeatability_u(readings: Iterable[float]) -> float:
 
 def resolution_u(resolution: float) -> float:
     """Resolution of a digital indication: rectangular distribution of half-width
-    res/2, u = res/sqrt(12) = res/(2*sqrt(3)) (GUM 4.3.7, F.2.2.1)."""
+    res/2, u = res/sqrt(12) = res/(2*sqrt(3)) (GUM 4.3.7, F.2.2.1).
+
+    A blank (None) resolution is refused, not taken as 0: a resolution left out would drop a component."""
+    if resolution is None:
+        raise ValueError("resolution is blank: enter the resolution of the indication (the smallest step it shows)")
     return _nonneg("resolution", resolution) / math.sqrt(12.0)
+
+
+@dataclass(frozen=True)
+class KnownRepeatability:
+    """The repeatability of a device known before this point, for a point with fewer than two readings.
+
+    sd: standard deviation of a single reading, in flow units at this point; dof: its degrees of freedom
+    (math.inf for a stated specification, Type B, GUM G.4.2; the pooled n - k for a pooled Type A estimate,
+    GUM 4.2.4, G.3.3); source: which it is, in words ("the device's stated repeatability", "pooled SD of the
+    device's own past repeats (n readings in k points)")."""
+
+    sd: float
+    dof: float
+    source: str
+
+
+def pooled_sd(groups: Iterable[Sequence[float]]) -> tuple[float, int]:
+    """Pooled standard deviation of groups of repeat readings and its degrees of freedom (GUM 4.2.4):
+    s_p^2 = sum (n_i - 1) s_i^2 / sum (n_i - 1), dof = sum (n_i - 1). Groups of fewer than two are left out;
+    with none left, ValueError."""
+    num, dof = 0.0, 0
+    for group in groups:
+        values = [float(v) for v in group]
+        for v in values:
+            if not math.isfinite(v):
+                raise ValueError(f"groups: repeat readings must be finite numbers, got {v!r}")
+        if len(values) >= 2:
+            num += (len(values) - 1) * statistics.variance(values)
+            dof += len(values) - 1
+    if dof == 0:
+        raise ValueError("groups: no group has two or more readings; a pooled SD needs repeats")
+    return math.sqrt(num / dof), dof
 
 
 def combine(*components: float) -> float:
     """Combined standard uncertainty, root-sum-square of uncorrelated components
     with unit sensitivity (GUM 5.1.2, eq. 10)."""
-    return math.sqrt(sum(_nonneg("component", c) ** 2 for c in components))
+    return math.sqrt(sum(_nonneg("components", c) ** 2 for c in components))
 
 
 def effective_dof(components: Iterable[tuple[float, float]]) -> float:
@@ -102,10 +153,11 @@ def effective_dof(components: Iterable[tuple[float, float]]) -> float:
     bound, GUM G.4.2-G.4.3) contributes nothing to the sum. Returns inf when every
     nu_i is infinite or u_c is 0 (nothing uncertain: the normal quantile applies).
     """
-    pairs = [(_nonneg("u", u), float(nu)) for u, nu in components]
+    pairs = [(_nonneg("components (u)", u), nu) for u, nu in components]
     for _, nu in pairs:
-        if not (nu > 0):  # also refuses NaN
-            raise ValueError(f"degrees of freedom must be > 0, got {nu!r}")
+        if nu is None or isinstance(nu, bool) or not (float(nu) > 0):  # also refuses NaN
+            raise ValueError(f"components (nu): degrees of freedom must be > 0, got {nu!r}")
+    pairs = [(u, float(nu)) for u, nu in pairs]
     u_c = math.sqrt(sum(u * u for u, _ in pairs))
     denominator = sum((u / u_c) ** 4 / nu for u, nu in pairs if math.isfinite(nu)) if u_c > 0 else 0.0
     if denominator == 0:
@@ -116,15 +168,17 @@ def effective_dof(components: Iterable[tuple[float, float]]) -> float:
 @lru_cache(maxsize=4096)  # most points have nu_eff = inf or a few repeats: the same k again and again
 def coverage_factor(dof: float, p: float = COVERAGE_PROBABILITY) -> float:
     """Coverage factor k = t_p(nu): the two-sided Student-t quantile for coverage
-    probability p (JCGM 100:2008 G.3.2, G.4.1 step d, Table G.2). A non-integer nu is
-    used as it is (interpolation in Table G.2, which G.4.1 note 1 allows); nu = inf gives
-    the normal quantile (1.960 for p = 95 %)."""
+    probability p (JCGM 100:2008 G.3.2, G.4.1 step d, Table G.2). A non-integer nu_eff is
+    used as it is: the t quantile is computed at the fractional nu (scipy's stdtrit), neither
+    truncated to the next lower integer (GUM G.4.1 b) nor linearly interpolated in Table G.2
+    (G.4.1 note 1 allows interpolation); the three differ by less than 0.02 in k for nu >= 2 (our
+    check, from memory). nu = inf gives the normal quantile (1.960 for p = 95 %)."""
+    if p is None or isinstance(p, bool) or not 0 < float(p) < 1:  # NaN fails too
+        raise ValueError(f"p: coverage probability must lie between 0 and 1, got {p!r}")
     p = float(p)
-    if not 0 < p < 1:
-        raise ValueError(f"coverage probability must lie between 0 and 1, got {p!r}")
+    if dof is None or isinstance(dof, bool) or not (float(dof) > 0):
+        raise ValueError(f"dof: degrees of freedom must be > 0, got {dof!r}")
     dof = float(dof)
-    if not (dof > 0):
-        raise ValueError(f"degrees of freedom must be > 0, got {dof!r}")
     q = 0.5 + p / 2
     if math.isinf(dof):
         return float(special.ndtri(q))
@@ -133,7 +187,8 @@ def coverage_factor(dof: float, p: float = COVERAGE_PROBABILITY) -> float:
 
 @dataclass(frozen=True)
 class PointUncertainty:
-    """Uncertainty budget of one point, all in flow units (nu_eff = inf when no component has finite dof)."""
+    """Uncertainty budget of one point, all in flow units (nu_eff = inf when no component has finite dof).
+    rep_source: where the repeatability came from ("the n repeat readings", a KnownRepeatability source)."""
 
     u_ref: float
     u_rep: float
@@ -143,6 +198,7 @@ class PointUncertainty:
     k: float
     nu_eff: float
     p: float = COVERAGE_PROBABILITY
+    rep_source: str = ""
 
 
 def point_uncertainty(
@@ -151,29 +207,56 @@ def point_uncertainty(
     repeats: Iterable[float],
     resolution: float,
     p: float = COVERAGE_PROBABILITY,
+    repeatability: KnownRepeatability | None = None,
+    require_repeatability: bool = False,
 ) -> PointUncertainty:
     """Budget for E = ind - ref (GUM 5.1.2, unit sensitivities, uncorrelated):
 
     * every reference standard used, each a Type B component from its certificate U at k=2,
-      nu = inf (GUM 4.3.3, G.4.2), combined by RSS into u_ref (all standards used enter);
-    * repeatability of the indications, Type A, u = s/sqrt(n), nu = n - 1 (GUM 4.2.3, G.3.3);
-    * resolution of the indication, Type B rectangular, nu = inf (GUM F.2.2.1, G.4.3);
+      nu = inf (GUM 4.3.3, G.4.2), combined by RSS into u_ref (all standards used enter); at least one
+      standard is required (ValueError naming `references`: no standard, no uncertainty);
+    * repeatability of the indications: with two or more readings, Type A, u = s/sqrt(n), nu = n - 1
+      (GUM 4.2.3, G.3.3); with fewer, the device's known repeatability (`repeatability`: its stated
+      specification or the pooled SD of its own past repeats, GUM 4.2.4), u = sd/sqrt(max(n, 1)), nu as
+      given; with fewer and none known, no repeatability term (rep_source says so) or, with
+      `require_repeatability`, ValueError naming `repeats` (a single reading says nothing of it);
+    * resolution of the indication, Type B rectangular, nu = inf (GUM F.2.2.1, G.4.3); blank refused;
 
     u_c by RSS, nu_eff by Welch-Satterthwaite (GUM G.4.1), k = t_p(nu_eff) and U = k u_c
     (GUM 6.2.1, G.4.1). `references` is a sequence of (U_ref, basis) pairs.
     """
-    u_refs = [reference_standard_u(reference_value, U_ref, basis) for U_ref, basis in references]
+    references = list(references)
+    if not references:
+        raise ValueError("references: no reference standard given; the uncertainty of a point cannot be computed "
+                         "without the standard it was compared with")
+    ref = float(reference_value)
+    if not math.isfinite(ref):
+        raise ValueError(f"reference_value must be a finite number, got {reference_value!r}")
+    u_refs = [reference_standard_u(ref, U_ref, basis) for U_ref, basis in references]
     u_ref = combine(*u_refs)
-    values = [float(x) for x in repeats]
-    u_rep = repeatability_u(values)
+    values = checks.numbers_in("repeats", repeats)
     u_res = resolution_u(resolution)
-    u_c = combine(u_ref, u_rep, u_res)
-    if len(values) >= 2:  # the only component with finite degrees of freedom
-        nu_eff = effective_dof([(u, math.inf) for u in u_refs] + [(u_res, math.inf), (u_rep, len(values) - 1)])
+    if len(values) >= 2:
+        u_rep, rep_dof, source = repeatability_u(values), len(values) - 1, f"the {len(values)} repeat readings"
+    elif repeatability is not None:
+        sd = _nonneg("repeatability.sd", repeatability.sd)
+        rep_dof = float(repeatability.dof)
+        if not rep_dof > 0:
+            raise ValueError(f"repeatability.dof must be > 0, got {repeatability.dof!r}")
+        repeatability_u(values)  # refuses a NaN or inf reading
+        u_rep, source = sd / math.sqrt(max(len(values), 1)), repeatability.source
+    elif require_repeatability:
+        raise ValueError("repeats: fewer than two readings and no repeatability known for this device (no stated "
+                         "repeatability, no past repeats to pool); enter at least two repeat readings")
     else:
-        nu_eff = math.inf
+        repeatability_u(values)  # refuses a NaN or inf reading
+        u_rep, rep_dof = 0.0, math.inf
+        source = "none: fewer than two readings and no repeatability known for this device"
+    u_c = combine(u_ref, u_rep, u_res)
+    nu_eff = effective_dof([(u, math.inf) for u in u_refs] + [(u_res, math.inf), (u_rep, rep_dof)])
     k = coverage_factor(nu_eff, p)
-    return PointUncertainty(u_ref=u_ref, u_rep=u_rep, u_res=u_res, u_c=u_c, U=k * u_c, k=k, nu_eff=nu_eff, p=p)
+    return PointUncertainty(u_ref=u_ref, u_rep=u_rep, u_res=u_res, u_c=u_c, U=k * u_c, k=k, nu_eff=nu_eff, p=p,
+                            rep_source=source)
 
 
 def test_uncertainty_ratio(mpe: float, U: float) -> float:
@@ -195,6 +278,8 @@ test_uncertainty_ratio.__test__ = False
 
 def tur_warning(tur: float) -> str | None:
     """Message if TUR is below 4:1 (TUR_WARNING, ANSI/NCSL Z540.3 §5.3 b), else None."""
+    if tur is None or isinstance(tur, bool) or math.isnan(float(tur)) or float(tur) < 0:
+        raise ValueError(f"tur must be a number >= 0 (inf allowed), got {tur!r}")
     if tur < TUR_WARNING:
         return (
             f"Test uncertainty ratio {tur:.2f}:1 is below {TUR_WARNING:g}:1: the uncertainty of the calibration "
@@ -208,4 +293,10 @@ def low_tur_requires_guarded(rule: str, turs: Iterable[float], policy: str) -> b
     policy "require_guarded" and simple acceptance with any TUR below TUR_WARNING."""
     if policy not in LOW_TUR_POLICIES:
         raise ValueError(f"unknown low-TUR policy {policy!r}; expected one of {LOW_TUR_POLICIES}")
+    if rule not in ("simple", "guarded"):
+        raise ValueError(f"rule must be 'simple' or 'guarded', not {rule!r}")
+    turs = list(turs)
+    for t in turs:
+        if t is None or isinstance(t, bool) or math.isnan(float(t)) or float(t) < 0:
+            raise ValueError(f"turs: a TUR must be a number >= 0 (inf allowed), got {t!r}")
     return policy == "require_guarded" and rule == "simple" and any(t < TUR_WARNING for t in turs)

@@ -18,6 +18,7 @@ Every refusal is a `UnitError` whose message says what is missing, so a form can
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import pint
@@ -120,12 +121,25 @@ def _from_si(value: float, u: FlowUnit) -> float:
     return float(Q_(value, source).to(u.pint_unit).magnitude)
 
 
+def _finite_or_refuse(name: str, value) -> None:
+    """NaN, ±inf or a non-number refused, naming the argument (UnitError is a ValueError)."""
+    try:
+        ok = value is not None and not isinstance(value, bool) and math.isfinite(float(value))
+    except (TypeError, ValueError):
+        ok = False
+    if not ok:
+        raise UnitError(f"{name} must be a finite number, not {value!r}")
+
+
 def reference_to_actual_factor(u: FlowUnit, line_pressure_kpa_abs: float, line_temp_c: float,
                                compressibility: float = 1.0) -> float:
     """Actual volume per reference volume: (p_ref / p) · (T / T_ref) · Z (ideal gas at the reference)."""
     if line_pressure_kpa_abs is None or line_temp_c is None:
         raise UnitError(f"Converting {u.label} to actual volume needs the line's absolute pressure "
                         "and temperature at the calibration.")
+    for name, given in (("line_pressure_kpa_abs", line_pressure_kpa_abs), ("line_temp_c", line_temp_c),
+                        ("compressibility", compressibility)):
+        _finite_or_refuse(name, given)
     if not line_pressure_kpa_abs > 0:
         raise UnitError("The line's absolute pressure must be above zero.")
     t = line_temp_c + ZERO_CELSIUS_K
@@ -148,6 +162,12 @@ def convert(value: float, from_code: str, to_code: str, *, density_kg_m3: float 
     volume). Raises UnitError naming what is missing.
     """
     src, dst = unit(from_code), unit(to_code)
+    _finite_or_refuse("value", value)
+    for name, given in (("density_kg_m3", density_kg_m3), ("reference_density_kg_m3", reference_density_kg_m3),
+                        ("line_pressure_kpa_abs", line_pressure_kpa_abs), ("line_temp_c", line_temp_c),
+                        ("compressibility", compressibility)):
+        if given is not None:
+            _finite_or_refuse(name, given)
     if src.code == dst.code:
         return float(value)
     kinds = (src.kind, dst.kind)

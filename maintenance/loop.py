@@ -24,6 +24,7 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass, field
 
+from plant import checks
 from plant.risk import FACTOR_HIGH, Finding
 
 # Conditions found, in our own words; (code, label) in the order the form lists them.
@@ -59,8 +60,7 @@ def _round(x: float) -> int:
 
 def bounds(start_days: int) -> tuple[int, int]:
     """(lower, upper) frequency bounds for a task whose derived frequency is start_days."""
-    if start_days < 1:
-        raise ValueError("start_days must be at least 1")
+    start_days = checks.whole("start_days", start_days, minimum=1)
     return max(MIN_DAYS, _round(start_days / 4)), min(MAX_DAYS, start_days * 4)
 
 
@@ -78,6 +78,10 @@ def step(current: int, streak: int, condition: str, lower: int, upper: int) -> t
     """One visit of the loop: (frequency, clean run) before -> after."""
     if condition not in LABELS:
         raise ValueError(f"unknown condition {condition!r}")
+    lower = checks.whole("lower", lower, minimum=1)
+    upper = checks.whole("upper", upper, minimum=lower)
+    current = checks.whole("current", current, minimum=1)
+    streak = checks.whole("streak", streak, minimum=0)
     if condition in GOOD:
         streak += 1
         if streak == CLEAN_STREAK:
@@ -92,6 +96,12 @@ def next_frequency(start_days: int, conditions, dates=None) -> LoopResult:
     """The task's frequency after the visits, oldest first (`conditions` codes, optional `dates` for the words)."""
     conditions = list(conditions)
     dates = list(dates) if dates is not None else [None] * len(conditions)
+    if len(dates) != len(conditions):
+        raise ValueError(f"dates: {len(dates)} dates for {len(conditions)} conditions; give one per condition")
+    unknown = [c for c in conditions if c not in LABELS]
+    if unknown:
+        raise ValueError(f"conditions: unknown condition {unknown[0]!r}")
+    start_days = checks.whole("start_days", start_days, minimum=1)
     lower, upper = bounds(start_days)
     current = min(max(start_days, lower), upper)
     streak = 0
@@ -116,6 +126,7 @@ def next_frequency(start_days: int, conditions, dates=None) -> LoopResult:
 
 def next_due(last_done: dt.date | None, frequency_days: int, since: dt.date) -> dt.date:
     """Last visit + frequency; never done: the day the task was set up."""
+    frequency_days = checks.whole("frequency_days", frequency_days, minimum=1)
     if last_done is None:
         return since
     return last_done + dt.timedelta(days=int(frequency_days))
@@ -131,6 +142,9 @@ def due_sentence(last_done: dt.date | None, frequency_days: int, since: dt.date)
 def fouling_finding(recent) -> Finding | None:
     """The meter's fouling finding from its inspections, newest first: [(date, condition)], any task."""
     window = list(recent)[:FOULED_WINDOW]
+    unknown = [c for _, c in window if c not in LABELS]
+    if unknown:
+        raise ValueError(f"recent: unknown condition {unknown[0]!r}")
     fouled = [(day, c) for day, c in window if c in FOULED]
     if len(window) < FOULED_WINDOW or len(fouled) < FOULED_OF:
         return None
@@ -149,6 +163,7 @@ def failures_after_fouling(inspections, calibrations, window_days: int = FAILURE
     inspections: [(date, condition)]; calibrations: [(date, as_found_in_tolerance)]. Oldest pair first; each failure
     is paired with the latest such inspection before it.
     """
+    window_days = checks.whole("window_days", window_days, minimum=0)
     fouled = sorted(day for day, c in inspections if c in FOULED)
     pairs = []
     for day, ok in sorted(calibrations):

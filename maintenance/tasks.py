@@ -6,8 +6,8 @@ frequency in days, a reason in plain words and the basis of the rule.
 
 Frequencies are shortened by severity the same way calibration intervals are (plant/risk.py): the base
 frequency times the smallest interval factor among the findings that call for the task, rounded to whole
-days (misapplied 0.25, high 0.5, medium 0.75, low 0.9). A task called for by the principle alone keeps its
-base frequency (factor 1.0).
+days (misapplied 0.25, high 0.5, medium 0.75, low 0.9; a note, factor 1.0, does not shorten). A task called
+for by the principle alone keeps its base frequency (factor 1.0).
 
 Every base frequency below is "common practice": a rule of thumb of the trade for installed process meters,
 not a figure from a standard; the plant's own findings then move it (maintenance/loop.py). Finding codes this
@@ -17,6 +17,8 @@ tasks still apply.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+
+from plant import checks
 
 COMMON_PRACTICE = "common practice"
 
@@ -84,6 +86,10 @@ CATALOGUE = {k.code: k for k in [
     TaskKind("VORTEX_BLUFF_BODY", "Inspect and clean the vortex bluff body", 365,
              "Deposits or erosion change the bluff body's shape and so the meter factor; inspect and clean it "
              "and check the sensor is free."),
+    # Common practice: a yearly look for chloride pitting and crevice attack of wetted parts in brine service.
+    TaskKind("CHLORIDE_PITTING_INSPECTION", "Inspect the wetted parts for chloride pitting and crevice attack", 365,
+             "Brine pits and crevice-attacks stainless steel, carbon steel and cast iron; remove or borescope the "
+             "primary element, look for pits at the tappings, edges and gasket faces, and record what is found."),
     # Common practice: twice-yearly cleaning of thermal mass sensors in coating or wet service.
     TaskKind("THERMAL_SENSOR_CLEAN", "Clean and inspect the thermal sensor", 180,
              "A coating or corrosion on the heated sensor changes its heat transfer and the reading; remove the "
@@ -133,6 +139,22 @@ FINDING_TASKS = {
     "THERMAL_CHLORIDES": "THERMAL_SENSOR_CLEAN",
     "USONIC_SIGNAL_LOSS": "USONIC_SIGNAL_CHECK",
     "CLAMPON_SIGNAL_LOSS": "CLAMPON_COUPLING",
+    # chlorides (brine) pit and crevice-attack the wetted parts (plant/risk.py _chloride_pitting; common practice)
+    "TURBINE_CHLORIDES": "TURBINE_ROTOR_STRAINER",
+    "PD_CHLORIDES": "PD_CHAMBER_INSPECTION",
+    "ORIFICE_CHLORIDES": "ORIFICE_PLATE_INSPECTION",
+    "VORTEX_CHLORIDES": "VORTEX_BLUFF_BODY",
+    "VENTURI_CHLORIDES": "CHLORIDE_PITTING_INSPECTION",
+    "PITOT_CHLORIDES": "PITOT_PULL_CLEAN",
+    "AVG_PITOT_CHLORIDES": "PITOT_PULL_CLEAN",
+    # hot chlorides crack austenitic stainless (plant/risk.py _chloride_cracking; common practice)
+    "TURBINE_CHLORIDE_CRACKING": "TURBINE_ROTOR_STRAINER",
+    "PD_CHLORIDE_CRACKING": "PD_CHAMBER_INSPECTION",
+    "ORIFICE_CHLORIDE_CRACKING": "ORIFICE_PLATE_INSPECTION",
+    "VORTEX_CHLORIDE_CRACKING": "VORTEX_BLUFF_BODY",
+    "VENTURI_CHLORIDE_CRACKING": "CHLORIDE_PITTING_INSPECTION",
+    "PITOT_CHLORIDE_CRACKING": "PITOT_PULL_CLEAN",
+    "AVG_PITOT_CHLORIDE_CRACKING": "PITOT_PULL_CLEAN",
 }
 
 
@@ -157,10 +179,8 @@ class TaskSpec:
 
 def shortened(base_days: int, factor: float) -> int:
     """base_days × factor rounded half up to whole days, never below one day (as effective calibration intervals)."""
-    if base_days < 1:
-        raise ValueError("base_days must be at least 1")
-    if not 0 < factor <= 1:
-        raise ValueError("factor must be in (0, 1]")
+    base_days = checks.whole("base_days", base_days, minimum=1)
+    factor = checks.fraction("factor", factor, include_one=True)
     return max(1, int(base_days * factor + 0.5))
 
 
@@ -174,7 +194,9 @@ def derive_tasks(principle: str, findings) -> list[TaskSpec]:
     for finding in findings:
         code = FINDING_TASKS.get(finding.code)
         if code is not None:
-            calls.setdefault(code, []).append((finding.code, float(finding.interval_factor)))
+            factor = checks.fraction(f"findings ({finding.code}).interval_factor", finding.interval_factor,
+                                     include_one=True)
+            calls.setdefault(code, []).append((finding.code, factor))
     out = []
     for code, kind in CATALOGUE.items():
         if code not in calls:

@@ -328,7 +328,7 @@ class Meter(ProtectedWhileCited, models.Model):
     class DriftStatus(models.TextChoices):
         INSUFFICIENT = "insufficient", "too little history to judge"
         FLAT = "flat", "no significant drift"
-        SCATTER = "scatter", "scatter exceeds tolerance"
+        SCATTER = "scatter", "scatter too large to predict"
         IMPROVING = "improving", "drifting toward zero error"
         DRIFTING = "drifting", "drifting"
         OUT_OF_TOLERANCE = "out_of_tolerance", "last found out of tolerance"

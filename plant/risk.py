@@ -16,7 +16,8 @@ inspection interval; the smallest factor of all findings wins):
 * ``misapplied`` 0.25 - the principle should not be used on this fluid.
 * ``high``       0.5
 * ``medium``     0.75
-* ``low``        0.9, or 1.0 for purely informational notes.
+* ``low``        0.9 ("low risk": a finding, it shortens), or 1.0 for a note (informational: a note never
+  shortens; ``Finding.severity_words`` says "note" only for those).
 
 Wetted materials
 ----------------
@@ -30,6 +31,11 @@ the chloride finding stands.
 
 Rules that read the whole duty (each marked with its basis where it is applied):
 
+* chlorides (brine) at any temperature pit and crevice-attack the wetted parts of turbines, positive-displacement
+  meters, DP primaries (orifice plates, venturis, pitot and averaging pitot probes) and vortex bluff bodies made
+  of austenitic stainless steel, carbon steel or cast iron, or of a material not recorded (a medium finding);
+  titanium, super duplex, nickel alloys and the other materials marked chloride resistant turn it into a note
+  (common practice);
 * chlorides on austenitic stainless above about 60 °C: stress-corrosion cracking (common practice);
   with chlorides on austenitic stainless and no temperature recorded, a note asks for it;
 * a magnetic meter on a liquid with no conductivity recorded: a finding asks for it (common practice);
@@ -48,7 +54,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from plant import materials
+from plant import checks, materials
 
 PRINCIPLES = (
     "electromagnetic",
@@ -107,6 +113,17 @@ class FluidProps:
     entrained_gas: bool = False
     temperature_c: float | None = None
 
+    def __post_init__(self):
+        """NaN, ±inf and out-of-domain properties are refused, naming the field (not silently "no finding")."""
+        if self.phase not in PHASES:
+            raise ValueError(f"phase must be one of {PHASES}, not {self.phase!r}")
+        for name in ("conductivity_us_cm", "density_kg_m3", "viscosity_mpa_s"):
+            value = getattr(self, name)
+            if value is not None and checks.number(name, value) < 0:
+                raise ValueError(f"{name} cannot be negative, not {value!r}")
+        if self.temperature_c is not None and checks.number("temperature_c", self.temperature_c) < -273.15:
+            raise ValueError(f"temperature_c cannot be below absolute zero, not {self.temperature_c!r}")
+
 
 @dataclass(frozen=True)
 class Finding:
@@ -115,6 +132,11 @@ class Finding:
     reason: str  # plain-language reason shown to a technician
     interval_factor: float  # <1 shortens interval; misapplied uses ~0.25
 
+    def __post_init__(self):
+        if self.severity not in SEVERITIES:
+            raise ValueError(f"severity must be one of {SEVERITIES}, not {self.severity!r}")
+        checks.fraction("interval_factor", self.interval_factor, include_one=True)
+
     @property
     def title(self) -> str:
         """The finding in plain words, for pages (exports keep the code)."""
@@ -122,6 +144,9 @@ class Finding:
 
     @property
     def severity_words(self) -> str:
+        """"note" only for a finding that does not shorten (factor 1); a low finding that shortens is "low risk"."""
+        if self.interval_factor >= 1.0:
+            return "note"
         return SEVERITY_WORDS.get(self.severity, self.severity)
 
 
@@ -159,14 +184,19 @@ def reynolds_number(density_kg_m3, viscosity_mpa_s, flow_m3_h, diameter_mm) -> f
 
 
 def worst_severity(findings) -> str:
-    """The most serious severity among the findings ("" when there are none)."""
+    """The most serious severity among the findings ("" when there are none); an unknown severity is refused."""
     present = {f.severity for f in findings}
+    unknown = present - set(SEVERITIES)
+    if unknown:
+        raise ValueError(f"findings: unknown severity {sorted(unknown)!r}; expected one of {SEVERITIES}")
     return next((s for s in SEVERITIES if s in present), "")
 
 
 def interval_factor(findings) -> float:
-    """Smallest interval factor among findings; 1.0 if there are none."""
-    factors = [f.interval_factor for f in findings]
+    """Smallest interval factor among findings; 1.0 if there are none. A factor that is NaN, ±inf, <= 0 or
+    above 1 is refused (ValueError naming the finding): a factor only ever shortens."""
+    factors = [checks.fraction(f"findings[{i}].interval_factor", f.interval_factor, include_one=True)
+               for i, f in enumerate(findings)]
     return min(factors) if factors else 1.0
 
 
@@ -223,6 +253,21 @@ def _chloride_cracking(prefix: str, mat: str, fl: FluidProps, severity: str = "h
             "pressure boundary. Use a chloride-resistant material.",
             factor)]
     return []
+
+
+def _chloride_pitting(prefix: str, part: str, mat: str, fl: FluidProps) -> list[Finding]:
+    """Chlorides at any temperature pit and crevice-attack the wetted ``part`` (common practice: austenitic
+    stainless, carbon steel and cast iron suffer; titanium, super duplex, nickel alloys and the materials marked
+    chloride resistant in plant.materials resist it). A medium finding, a note for a resistant material."""
+    if not fl.chlorides:
+        return []
+    material = materials.lookup(mat)
+    what = material.label if material else "a material not recorded"
+    return [_chloride_finding(
+        prefix, part, "medium", FACTOR_MEDIUM,
+        f"Brine (chlorides) pits and crevice-attacks the {part} ({what}); pits and attacked edges change the "
+        "geometry the meter's calibration depends on. Inspect the wetted parts, or use a chloride-resistant "
+        "material (titanium, super duplex, nickel alloy).", mat)]
 
 
 def _entrained_gas(prefix: str, fl: FluidProps, severity: str, factor: float, reason: str) -> list[Finding]:
@@ -342,6 +387,7 @@ def _turbine(mat, fl, **_):
             "Sticky fluid coats the rotor and bearings; the drag slows the rotor and the deposits change the "
             "blade profile, so the meter factor shifts and the meter reads low. Plan cleaning.",
             FACTOR_MEDIUM))
+    out += _chloride_pitting("TURBINE", "rotor and body", mat, fl)
     out += _chloride_cracking("TURBINE", mat, fl)
     return out
 
@@ -362,6 +408,7 @@ def _positive_displacement(mat, fl, **_):
             "Solids wear or jam the close clearances of a positive "
             "displacement meter.",
             FACTOR_HIGH))
+    out += _chloride_pitting("PD", "measuring chamber and rotors", mat, fl)
     out += _chloride_cracking("PD", mat, fl)
     return out
 
@@ -398,12 +445,14 @@ def _orifice(mat, fl, **_):
             "Solids wear the sharp edge of the orifice plate; a rounded edge "
             "makes the meter read low. Inspect the plate edge.",
             FACTOR_HIGH))
+    out += _chloride_pitting("ORIFICE", "plate", mat, fl)
     out += _chloride_cracking("ORIFICE", mat, fl)
     return out
 
 
 def _venturi(mat, fl, **_):
-    return _impulse_line_blocking("VENTURI", fl) + _chloride_cracking("VENTURI", mat, fl)
+    return (_impulse_line_blocking("VENTURI", fl) + _chloride_pitting("VENTURI", "throat and tappings", mat, fl)
+            + _chloride_cracking("VENTURI", mat, fl))
 
 
 def _pitot_ports(prefix, fl):
@@ -428,11 +477,13 @@ def _pitot_ports(prefix, fl):
 
 
 def _pitot(mat, fl, **_):
-    return _pitot_ports("PITOT", fl) + _chloride_cracking("PITOT", mat, fl)
+    return (_pitot_ports("PITOT", fl) + _chloride_pitting("PITOT", "probe", mat, fl)
+            + _chloride_cracking("PITOT", mat, fl))
 
 
 def _averaging_pitot(mat, fl, **_):
-    return _pitot_ports("AVG_PITOT", fl) + _chloride_cracking("AVG_PITOT", mat, fl)
+    return (_pitot_ports("AVG_PITOT", fl) + _chloride_pitting("AVG_PITOT", "probe", mat, fl)
+            + _chloride_cracking("AVG_PITOT", mat, fl))
 
 
 def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
@@ -478,6 +529,7 @@ def _vortex(mat, fl, min_flow_m3_h=None, diameter_mm=None, **_):
         "VORTEX", fl, "medium", FACTOR_MEDIUM,
         "Gas bubbles in the liquid damp the vortices and disturb the shedding frequency; the meter reads "
         "wrong or drops out.")
+    out += _chloride_pitting("VORTEX", "bluff body", mat, fl)
     out += _chloride_cracking("VORTEX", mat, fl)
     return out
 
@@ -590,8 +642,14 @@ def assess(principle: str, wetted_material: str, fluid: FluidProps,
     """
     if principle not in _RULES:
         raise ValueError(f"unknown principle {principle!r}; expected one of {PRINCIPLES}")
+    if not isinstance(fluid, FluidProps):
+        raise ValueError(f"fluid must be FluidProps, not {type(fluid).__name__}")
     if fluid.phase not in PHASES:
         raise ValueError(f"unknown phase {fluid.phase!r}; expected one of {PHASES}")
+    for name, value in (("normal_flow_m3_h", normal_flow_m3_h), ("min_flow_m3_h", min_flow_m3_h),
+                        ("diameter_mm", diameter_mm)):
+        if value is not None and checks.number(name, value) < 0:
+            raise ValueError(f"{name} cannot be negative, not {value!r}")
     return _RULES[principle](
         wetted_material or "", fluid,
         normal_flow_m3_h=normal_flow_m3_h,
@@ -659,10 +717,12 @@ SEVERITY_WORDS = {
     "misapplied": "not fit for this duty",
     "high": "high risk",
     "medium": "medium risk",
-    "low": "note",
+    "low": "low risk",  # a low finding that does not shorten (factor 1) is called a note (Finding.severity_words)
 }
 
 
 def recommendation(findings) -> str:
     """NOT_FIT when any finding says the principle should not be used on this fluid, else ""."""
+    findings = list(findings)
+    worst_severity(findings)  # refuses an unknown severity
     return NOT_FIT if any(f.severity == "misapplied" for f in findings) else ""

@@ -23,17 +23,27 @@ from plant import risk
 
 # The baseline -------------------------------------------------------------------------------------
 def _naive_crossings(histories, mpe, guard):
-    """Scalar drift.predict_crossing on each nominal point in turn: earliest crossing, worst rate, statuses."""
-    best, worst_rate, statuses = None, None, []
+    """Scalar drift.predict_crossing on each nominal point in turn: earliest crossing, worst significant
+    (slope, se), statuses and the largest residual SD of a "scatter" point."""
+    best, worst, statuses, widest = None, None, [], None
     for nominal, events in sorted(histories.items()):
         result = drift.predict_crossing(events, mpe=mpe, guard=guard)
         statuses.append(result.status)
         rate = result.drift.slope_per_day if result.drift else None
-        if rate is not None and result.drift.significant and (worst_rate is None or abs(rate) > abs(worst_rate)):
-            worst_rate = rate
+        if rate is not None and result.drift.significant and (worst is None or abs(rate) > abs(worst[0])):
+            worst = (rate, result.drift.se_slope, nominal)
+        if result.status == "scatter":
+            sd = result.drift.fit.residual_sd
+            if widest is None or sd > widest[0]:
+                widest = (sd, (rate, result.drift.se_slope, nominal))
         if result.day is not None and (best is None or result.day < best[1].day):
             best = (nominal, result)
-    return best, worst_rate, statuses
+    if widest is not None:
+        best = None  # scatter too large to predict at one point: no crossing date from the others either
+    # the point shown: the crossing's, else the most scattered, else the worst significant slope
+    shown = ((best[1].drift.slope_per_day, best[1].drift.se_slope, best[0]) if best
+             else widest[1] if widest else worst)
+    return best, shown, statuses, (widest[0] if widest else None)
 
 
 def _naive_observations(events):
@@ -65,25 +75,32 @@ def naive_recompute(meters_qs=None, progress=None):
             last_points = points[points["event_id"] == last_row.id]
             guard = float(last_points["expanded_uncertainty"].fillna(0).mean()) if guarded and not last_points.empty else 0.0
             guard = min(guard, 0.9 * meter.mpe_value)
-            best, worst_rate, statuses = _naive_crossings(fleet.point_histories(events, points), meter.mpe_value, guard)
-            crossing, crossing_reason = None, ""
+            best, rate, statuses, scatter_sd = _naive_crossings(fleet.point_histories(events, points),
+                                                                meter.mpe_value, guard)
+            crossing, crossing_reason, scatter_reason = None, "", ""
             if best is not None:
-                crossing = dt.date.fromordinal(int(math.floor(best[1].day)))
-                crossing_reason = f"drift at {best[0]:g} % of range{' (guard band U)' if guarded else ''}:"
+                crossing = fleet.crossing_date(best[1].day, last)
+                crossing_reason = (f"{drift.bound_name(rate[0])} at {best[0]:g} % of range"
+                                   f"{' (guard band U)' if guarded else ''}, {fleet.drift_rate_words(rate[0], rate[1])}:")
             pairs = _naive_observations(events)
             method = intervals.interval_by_method(cfg["interval_method"], meter.base_interval_days,
                                                   [p[0] for p in pairs], [p[1] for p in pairs],
                                                   **fleet.method_settings(cfg))
             meter.drift_status = fleet.summarise_status(statuses)
+            if meter.drift_status == "scatter" and scatter_sd is not None:
+                scatter_reason = fleet.scatter_words(scatter_sd, meter.mpe_value)
             decision, _ = fleet.decide(meter, last, fleet.found_out(last_row.as_found_in_tolerance), crossing,
-                                       crossing_reason, method, cfg, crossing_kind=meter.drift_status)
+                                       crossing_reason, method, cfg, crossing_kind=meter.drift_status,
+                                       scatter_reason=scatter_reason)
             meter.last_calibrated = last
             meter.next_due_date = decision.due
             meter.drift_status = decision_rules.drift_status_given_verdict(
                 meter.drift_status, fleet.stored_verdict(last_row.as_found_in_tolerance))
             meter.due_rationale = {**decision.rationale(), "drift_point_pct": float(best[0]) if best else None,
-                                   "drift_status": meter.drift_status}
-            meter.drift_rate_per_year = worst_rate * 365.25 if worst_rate is not None else None
+                                   "drift_chart_pct": float(rate[2]) if rate is not None else None,
+                                   "drift_status": meter.drift_status,
+                                   "drift_rate_u_per_year": float(f"{rate[1] * 365.25:.6g}") if rate is not None else None}
+            meter.drift_rate_per_year = rate[0] * 365.25 if rate is not None else None
             meter.predicted_crossing = crossing
             meter.last_in_tolerance = fleet.stored_verdict(last_row.as_found_in_tolerance)
             meter.risk_severity = risk.worst_severity(meter.findings())

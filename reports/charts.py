@@ -43,7 +43,9 @@ def _nice_step(span: float, target: int = 4) -> float:
 
 def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, height: int = 260,
                     unit: str = "", *, trend: Optional[Curve] = None, bound: Optional[Curve] = None,
-                    crossing: Optional[dt.date] = None, limit: Optional[float] = None) -> str:
+                    crossing: Optional[dt.date] = None, limit: Optional[float] = None,
+                    bound_label: str = "one-sided 95 % prediction bound",
+                    point_label: str = "worst point") -> str:
     """SVG of as-found and as-left worst error against date, over a shaded ±MPE band.
 
     `points` are (date, as_found_worst, as_left_worst); a None value is left out of its series.
@@ -51,7 +53,9 @@ def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, 
 
     Optional forecast overlays (all keyword-only; when none is given the output is unchanged):
     `trend` – the fitted drift line, (date, value) pairs, drawn solid dark grey;
-    `bound` – the one-sided 95 % prediction bound of |error|, drawn dotted red;
+    `bound` – the one-sided 95 % prediction bound on the side the trend heads to (signed), drawn dotted red
+    and named by `bound_label` in the legend (e.g. "one-sided 95 % upper prediction bound");
+    `point_label` – which point the series show (e.g. "50 % of range", the point the trend was fitted on);
     `crossing` – predicted date the bound reaches the limit, a dashed vertical line labelled
     "predicted crossing YYYY-MM-DD";
     `limit` – a guard-banded acceptance limit, drawn as thin dashed ±lines labelled "limit"
@@ -165,9 +169,9 @@ def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, 
     # legend
     ly = 14
     out.append(f'<circle cx="{left + 6}" cy="{ly - 3}" r="3.2" fill="{FOUND_COLOUR}"/>')
-    out.append(f'<text x="{left + 14}" y="{ly}">as found (worst point)</text>')
+    out.append(f'<text x="{left + 14}" y="{ly}">{escape(f"as found ({point_label})")}</text>')
     out.append(f'<rect x="{left + 150}" y="{ly - 6}" width="6" height="6" fill="#fff" stroke="{LEFT_COLOUR}" stroke-width="1.4"/>')
-    out.append(f'<text x="{left + 162}" y="{ly}">as left (worst point)</text>')
+    out.append(f'<text x="{left + 162}" y="{ly}">{escape(f"as left ({point_label})")}</text>')
     out.append(f'<rect x="{left + 290}" y="{ly - 7}" width="12" height="8" fill="{BAND_COLOUR}" stroke="#5a8f6a" stroke-width="0.6"/>')
     out.append(f'<text x="{left + 308}" y="{ly}">±MPE</text>')
     if extras:
@@ -177,7 +181,7 @@ def drift_chart_svg(points: Sequence[DriftPoint], mpe: float, width: int = 640, 
             entries.append((f'stroke="{TREND_COLOUR}" stroke-width="1.4"', "drift trend", 80))
         if bound_pts:
             entries.append((f'stroke="{BOUND_COLOUR}" stroke-width="1.4" stroke-dasharray="1.5 2.5"',
-                            "95 % bound of |error|", 140))
+                            bound_label, 6 * len(bound_label) + 26))
         if show_limit:
             entries.append((f'stroke="{LIMIT_COLOUR}" stroke-width="0.7" stroke-dasharray="2 2"', "limit", 60))
         if crossing is not None:

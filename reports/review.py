@@ -100,9 +100,11 @@ def meter_conditions(today, days):
     return {
         "overdue": _per_site(today, lambda d: Q(next_due_date__lt=d)) | Q(next_due_date__isnull=True),
         "due": _per_site(today, lambda d: Q(next_due_date__gte=d, next_due_date__lte=d + dt.timedelta(days=days))),
-        # predicted to leave tolerance before it is next due, or drifting significantly
+        # predicted to leave tolerance before it is next due, drifting significantly, or scatter too large
+        # to predict a crossing
         "drifting": (Q(predicted_crossing__isnull=False, next_due_date__isnull=False,
-                       predicted_crossing__lt=F("next_due_date")) | Q(drift_status=Meter.DriftStatus.DRIFTING)),
+                       predicted_crossing__lt=F("next_due_date"))
+                     | Q(drift_status__in=[Meter.DriftStatus.DRIFTING, Meter.DriftStatus.SCATTER])),
         # the latest signed as-found was out of tolerance
         "failed": Q(last_in_tolerance=False),
         # misapplied meters and high-risk duties (principle×fluid rules)
@@ -175,7 +177,7 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     titles = {
         "overdue": ("Positions whose installed device is overdue", tables.OverdueTable),
         "due": (f"Due in the next {days} days", tables.DueTable),
-        "drifting": ("Drifting", tables.DriftingTable),
+        "drifting": ("Drifting, or scatter too large to predict", tables.DriftingTable),
         "failed": ("Last as-found out of tolerance", tables.FailedTable),
         "risk": ("Misapplied meters and high-risk duties", tables.RiskTable),
     }

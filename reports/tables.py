@@ -56,12 +56,17 @@ class DueTable(MeterColumns):
 
 
 class DriftingTable(MeterColumns):
-    drift_rate_per_year = tables.Column(verbose_name="Worst drift / year")
+    drift_status = tables.Column(verbose_name="Drift status")
+    drift_rate_per_year = tables.Column(verbose_name="Drift / year (the crossing's slope)")
     predicted_crossing = IsoDateColumn(verbose_name="Predicted crossing")
     next_due_date = IsoDateColumn(verbose_name="Due date")
 
+    def render_drift_status(self, value, record):
+        return record.get_drift_status_display()
+
     def render_drift_rate_per_year(self, value, record):
-        return f"{value:+.3f} {record.get_mpe_basis_display()}"
+        u = (record.due_rationale or {}).get("drift_rate_u_per_year")
+        return f"{value:+.3f}{f' ± {u:.3f}' if u is not None else ''} {record.get_mpe_basis_display()}"
 
 
 class FailedTable(MeterColumns):

@@ -19,6 +19,10 @@ from calibration import decision, errors, uncertainty as unc
         (40.0, 38.0, "pct_span", 200.0, -1.0),
         (12.5, 12.75, "absolute", None, 0.25),
         (12.5, 12.0, "absolute", None, -0.5),
+        # reverse flow (issue 26 item 8): % of reading divides by |ref|, as the MPE does (mpe * |ref| / 100),
+        # so the error keeps the sign of ind - ref: -11 against -10 reads -10 %, -9 against -10 reads +10 %
+        (-10.0, -11.0, "pct_reading", None, -10.0),
+        (-10.0, -9.0, "pct_reading", None, 10.0),
     ],
 )
 def test_point_error(ref, ind, basis, span, expected):
@@ -338,3 +342,71 @@ def test_errors_on_the_limit_are_on_it(reference, indicated, basis, span, mpe):
     assert decision.decide(error, mpe, mpe / 4, "guarded") == "conditional pass"
     assert decision.decide(mpe * 0.75 * (1 + 1e-13), mpe, mpe / 4, "guarded") == "pass"
     assert decision.decide(mpe * 1.25 * (1 - 1e-13), mpe, mpe / 4, "guarded") == "fail"
+
+
+def test_reverse_flow_error_and_mpe_share_one_sign_convention():
+    """Issue 26 item 8: in reverse flow the error in % of reading and the MPE in flow units both use |ref|, so an
+    error of -10 % at -10 is 1 flow unit in magnitude, as the MPE of 10 % is: |E| in flow units = |ind - ref|."""
+    e = errors.point_error(-10.0, -11.0, "pct_reading")
+    assert abs(e) * abs(-10.0) / 100 == pytest.approx(abs(-11.0 - -10.0))
+    assert errors.mpe_in_flow_units(10.0, "pct_reading", -10.0) == pytest.approx(1.0)
+    assert errors.indication_for_error(-10.0, e, "pct_reading") == pytest.approx(-11.0)  # the inverse agrees
+
+
+def test_a_point_without_a_reference_standard_is_refused():
+    """Issue 26 item 4: no standard, no uncertainty (not U = 0 and an infinite TUR)."""
+    with pytest.raises(ValueError, match="references"):
+        unc.point_uncertainty(50.0, [], [50.0, 50.1], 0.01)
+
+
+def test_a_blank_resolution_is_refused_not_taken_as_zero():
+    with pytest.raises(ValueError, match="resolution"):
+        unc.point_uncertainty(50.0, [(0.2, "pct_reading")], [50.0, 50.1], None)
+    with pytest.raises(ValueError, match="resolution"):
+        unc.resolution_u(None)
+
+
+def test_a_single_reading_uses_the_known_repeatability_and_says_which():
+    """Issue 26 item 4. One reading, the device's pooled SD of past repeats s_p = 0.2 with 6 degrees of freedom
+    (GUM 4.2.4): u_rep = s_p / sqrt(1) = 0.2, nu = 6; u_ref = 0.2 % x 50 / 2 = 0.05 (nu = inf); no resolution term.
+    u_c = sqrt(0.04 + 0.0025) = 0.206155; nu_eff = 6 (u_c / u_rep)^4 = 6 x 1.0625^2 = 6.7734 (GUM G.2b);
+    k = t_0.975(6.7734), computed here with scipy (independent computation)."""
+    from scipy import stats
+
+    known = unc.KnownRepeatability(sd=0.2, dof=6, source="pooled SD of the device's own past repeats")
+    pu = unc.point_uncertainty(50.0, [(0.2, "pct_reading")], [50.1], 0.0, repeatability=known)
+    assert pu.u_rep == pytest.approx(0.2) and pu.u_c == pytest.approx(0.206155, abs=1e-6)
+    assert pu.nu_eff == pytest.approx(6.7734, abs=1e-4)
+    assert pu.k == pytest.approx(stats.t.ppf(0.975, 6.0 * 1.0625 ** 2), rel=1e-10)
+    assert pu.rep_source == "pooled SD of the device's own past repeats"
+    # none known: no repeatability term, and said so; refused where the caller needs repeatability
+    bare = unc.point_uncertainty(50.0, [(0.2, "pct_reading")], [50.1], 0.0)
+    assert bare.u_rep == 0.0 and bare.rep_source.startswith("none")
+    with pytest.raises(ValueError, match="repeats"):
+        unc.point_uncertainty(50.0, [(0.2, "pct_reading")], [50.1], 0.0, require_repeatability=True)
+    # two or more readings: their own Type A estimate, whatever is known
+    own = unc.point_uncertainty(50.0, [(0.2, "pct_reading")], [50.0, 50.2], 0.0, repeatability=known)
+    assert own.rep_source == "the 2 repeat readings" and own.u_rep == pytest.approx(0.1)
+
+
+def test_pooled_sd_gum_4_2_4():
+    """s_p^2 = sum (n_i - 1) s_i^2 / sum (n_i - 1) (GUM 4.2.4). Groups (1, 2, 3): s^2 = 1, 2 dof; (5, 7): s^2 = 2,
+    1 dof; (4,): left out. s_p^2 = (2 x 1 + 1 x 2) / 3 = 4/3; checked against numpy's var(ddof=1) per group."""
+    import numpy as np
+
+    groups = [[1.0, 2.0, 3.0], [5.0, 7.0], [4.0]]
+    sd, dof = unc.pooled_sd(groups)
+    expected = (2 * np.var(groups[0], ddof=1) + 1 * np.var(groups[1], ddof=1)) / 3
+    assert dof == 3 and sd == pytest.approx(math.sqrt(expected)) and sd ** 2 == pytest.approx(4 / 3)
+    with pytest.raises(ValueError, match="groups"):
+        unc.pooled_sd([[1.0]])
+
+
+def test_coverage_factor_at_fractional_dof_is_the_t_quantile_there():
+    """Issue 26 item 8: the code takes the t quantile at the fractional nu_eff (as its docstring and docs/method.md
+    say), not the integer below it: checked against scipy.stats.t.ppf (independent computation)."""
+    from scipy import stats
+
+    for nu in (2.5, 4.2, 7.77):
+        assert unc.coverage_factor(nu) == pytest.approx(stats.t.ppf(0.975, nu), rel=1e-12)
+        assert unc.coverage_factor(nu) < unc.coverage_factor(math.floor(nu))

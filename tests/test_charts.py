@@ -62,7 +62,7 @@ def test_forecast_overlays():
     assert len(bound_line.get("points").split()) == len(BOUND)
     assert any("predicted crossing 2028-03-01" in t for t in texts(root))
     legend = texts(root)
-    assert "drift trend" in legend and any("95 % bound" in t for t in legend)
+    assert "drift trend" in legend and "one-sided 95 % prediction bound" in legend
     # same number of data markers as without the overlays
     assert len(find(root, "circle")) == len(find(plain, "circle"))
 

@@ -172,19 +172,49 @@ def test_scatter_exceeds_tolerance_without_significant_slope():
     exactly 0 (sum of (x - xbar) e = -2(0.2) - (-0.2) + 0 + (-0.2) + 2(0.2) = 0), the fitted error is the mean 0,
     SSE = 4 × 0.04 = 0.16, s = sqrt(0.16 / 3) = 0.23094; at the last day (x - xbar)^2 / Sxx = 4/10, so the
     one-sided 95 % bound is t(0.95, 3) × s × sqrt(1 + 1/5 + 0.4) = 2.353363 (Student t table) × 0.23094 × 1.264911
-    = 0.6875. MPE 0.5: the bound already exceeds it -> "scatter", crossing at the last calibration.
-    MPE 1.0: inside -> flat, no crossing."""
+    = 0.6875. MPE 0.5: the bound already exceeds it on the day the meter was found in tolerance (0.2) ->
+    "scatter too large to predict", no crossing date (never "already out"). MPE 1.0: inside -> flat."""
     errors = [0.2, -0.2, 0.0, -0.2, 0.2]
     evs = [HistoryEvent(k * 365.0, e) for k, e in enumerate(errors)]
     dr = fit_drift(evs, mpe=0.5)
     assert dr.slope_per_day == pytest.approx(0.0, abs=1e-15) and not dr.significant
     assert dr.fit.prediction_margin(4 * 365.0) == pytest.approx(2.353363 * math.sqrt(0.16 / 3) * math.sqrt(1.6), rel=1e-6)
-    assert dr.status == "scatter" and "Scatter exceeds tolerance" in dr.message and "0.6875" in dr.message
+    assert dr.status == "scatter" and "Scatter too large to predict" in dr.message and "0.6875" in dr.message
+    assert "residual SD 0.231 beside the MPE 0.5" in dr.message  # s = 0.23094 (above)
+    assert "one-sided 95 % prediction bound" in dr.message
     cr = predict_crossing(evs, mpe=0.5)
-    assert cr.status == "scatter" and cr.day == 4 * 365.0
+    assert cr.status == "scatter" and cr.day is None and "already out" not in cr.message
     assert predict_crossing(evs, mpe=1.0).status == "flat"
-    # three calibrations are too few to call it (t at one degree of freedom is 6.31)
-    assert fit_drift(evs[:3], mpe=0.05).status == "flat"
+    # issue 26 item 7: with fewer than 5 calibrations, scatter beyond the limit is still called scatter
+    # (three points +0.2, -0.2, 0: s = sqrt(0.08) = 0.283, t(0.95, 1) = 6.314 -> bound far beyond 0.5)
+    assert fit_drift(evs[:3], mpe=0.5).status == "scatter"
+    assert predict_crossing(evs[:3], mpe=0.5).day is None
+
+
+def test_significant_drift_with_the_bound_already_at_the_limit_is_scatter_not_a_crossing():
+    """Issue 26 item 1: a significant drift whose prediction bound already reaches the limit on the day of a
+    calibration that found the meter in tolerance is "scatter too large to predict", with no crossing on or
+    before that day. The slope and its p are checked against scipy.stats.linregress (independent computation),
+    and the bound at the last day by the textbook formula (NIST/SEMATECH e-Handbook 4.5.2)."""
+    errors = [0.0, 0.12, 0.27, 0.33, 0.46]  # never adjusted; the last as-found 0.46 is inside the MPE 0.5
+    days = [k * YEAR for k in range(5)]
+    evs = [HistoryEvent(d, e) for d, e in zip(days, errors)]
+    ref = stats.linregress(days, errors)
+    assert ref.pvalue < 0.05  # significant drift
+    resid = [e - (ref.intercept + ref.slope * d) for d, e in zip(days, errors)]
+    s = math.sqrt(sum(r * r for r in resid) / 3)
+    xbar = sum(days) / 5
+    sxx = sum((d - xbar) ** 2 for d in days)
+    reach = (ref.intercept + ref.slope * days[-1]) + stats.t.ppf(0.95, 3) * s * math.sqrt(1 + 1 / 5 + (days[-1] - xbar) ** 2 / sxx)
+    assert reach > 0.5
+    dr = fit_drift(evs, mpe=0.5)
+    assert dr.significant and dr.slope_per_day == pytest.approx(ref.slope, rel=1e-10)
+    assert dr.status == "scatter" and f"{reach:.4g}" in dr.message
+    cr = predict_crossing(evs, mpe=0.5)
+    assert cr.status == "scatter" and cr.day is None
+    # with a wider limit the crossing comes strictly after the last calibration
+    wide = predict_crossing(evs, mpe=1.0)
+    assert wide.status == "drifting" and wide.day > days[-1]
 
 
 def test_insufficient():
@@ -212,12 +242,15 @@ def test_flat_noisy_history():
     assert cr.status == "flat" and cr.day is None
 
 
-def test_improving():
+def test_improving_meter_gets_its_crossing_on_the_side_it_heads_to():
+    """Issue 26 item 7. Exact line 0.4, 0.3, 0.2, 0.1 a year apart (worked by hand): the error falls 0.1 per year
+    toward zero and, continuing, reaches -0.5 after (0.1 + 0.5) / 0.1 = 6 years past the last calibration."""
     evs = [HistoryEvent(k * YEAR, v, None, False) for k, v in enumerate([0.4, 0.3, 0.2, 0.1])]
     dr = fit_drift(evs)
     assert dr.status == "improving"
     cr = predict_crossing(evs, mpe=0.5)
-    assert cr.status == "improving" and cr.day is None
+    assert cr.status == "improving" and cr.day == pytest.approx(3 * YEAR + 6 * YEAR, rel=1e-12)
+    assert "-0.5" in cr.message
 
 
 def test_already_out_of_tolerance():
@@ -225,7 +258,7 @@ def test_already_out_of_tolerance():
     evs.append(HistoryEvent(5 * YEAR, 0.6, 0.0, True))
     cr = predict_crossing(evs, mpe=0.5)
     assert cr.status == "out_of_tolerance"
-    assert cr.day == 5 * YEAR
+    assert cr.day is None  # found out: no crossing is predicted, the as-found says it
     # guard band counts: 0.45 > 0.5 - 0.1
     evs[-1] = HistoryEvent(5 * YEAR, 0.45, 0.0, True)
     assert predict_crossing(evs, mpe=0.5, guard=0.1).status == "out_of_tolerance"

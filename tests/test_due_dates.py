@@ -3,6 +3,7 @@ explained; the fleet recompute end to end. Hand-worked expectations are written 
 import datetime as dt
 
 import pytest
+from scipy import stats
 from django.core.management import call_command
 
 import math
@@ -36,33 +37,30 @@ def test_staircase_lengthening_takes_effect():
 def test_long_in_tolerance_history_lengthens_up_to_the_maximum(method_name):
     """13 in-tolerance results from 365 d, staircase (OIML D 10 method 1): 456.25->456, 570, 712.5->713,
     891.25->891, 1113.75->1114 held to the 1095 d maximum, then 1095 onwards.
-    Reliability method (NCSL RP-1 style, from memory): 13 of 13 against a 95 % target is not significant,
-    P(X >= 13) = 0.95^13 = exp(13 × ln 0.95) = exp(-0.66681) = 0.5133, so the model does not move the
-    interval and the staircase does."""
+    Reliability method (NCSL RP-1 style, from memory): 13 of 13 against a 95 % target is not below it,
+    one-sided P(X <= 13) = 1, so the model does not move the interval and the staircase does."""
     n = 13
     method = intervals.interval_by_method(method_name, 365, [365] * n, [True] * n, target=0.95,
                                           min_observations=8, **STAIR)
     assert method.days == 1095
     if method_name == "reliability":
-        assert "13 of 13 intervals in tolerance (n = 13)" in method.reason
-        assert "p = 1" in method.reason  # two-sided: 2 × 0.5133 capped at 1
+        assert "k = 13 of n = 13 intervals in tolerance" in method.reason
+        assert "H1: R < 95%: p = 1" in method.reason  # one-sided: P(X <= 13 | 13, 0.95) = 1
     d = due.decide_due(LAST, method.days, method.reason)
     assert d.due == days(1095) and d.winner == "method" and d.bounded == ""
 
 
 def test_one_failure_then_adjustment_shortens_by_the_method_not_to_the_minimum():
     """Four in (365 -> 456 -> 570 -> 713 -> 891), then one out: 891 × 0.5 = 445.5 -> 446 d (OIML D 10 method 1).
-    The drift fit flags the last calibration (as-found out: crossing day = that day); the method has already
-    counted the failure, so the finding does not halve it again, and the 30 d minimum is not reached."""
+    The as-found was out, so no crossing is predicted (the drift fit says "out of tolerance"); the method has
+    counted the failure, and the 30 d minimum is not reached."""
     method = intervals.interval_by_method("staircase", 365, [365, 456, 570, 713, 891],
                                           [True, True, True, True, False], **STAIR)
     assert method.days == 446
-    d = due.decide_due(LAST, method.days, method.reason, crossing=LAST, crossing_kind="out_of_tolerance",
-                       last_failed=True)
+    d = due.decide_due(LAST, method.days, method.reason, crossing_kind="out_of_tolerance", last_failed=True)
     assert d.due == days(446) and d.bounded == ""
     assert [c.name for c in d.candidates] == ["method"]
-    assert d.findings == [f"Drift model says this meter was already out at {LAST}; the out-of-tolerance as-found "
-                          f"of {LAST} has already shortened the interval by the method."]
+    assert d.findings == []
 
 
 def test_reliability_method_shortens_an_out_of_tolerance_record_by_the_target():
@@ -87,7 +85,7 @@ def test_reliability_needs_enough_observations_and_says_the_sample_size():
     interval: the staircase does, 365 × 1.25 = 456.25 -> 456, then × 0.5 = 228 d."""
     assert intervals.recommended_interval([365, 365], [True, False]) == 30
     verdict = intervals.reliability_method([365, 365], [True, False], min_observations=8)
-    assert verdict.days is None and "1 of 2 intervals in tolerance (n = 2)" in verdict.reason
+    assert verdict.days is None and "k = 1 of n = 2 intervals in tolerance" in verdict.reason
     method = intervals.interval_by_method("reliability", 365, [365, 456], [True, False], min_observations=8,
                                           **STAIR)
     assert method.days == 228 and "n = 2" in method.reason and "too few" in method.reason
@@ -95,29 +93,70 @@ def test_reliability_needs_enough_observations_and_says_the_sample_size():
 
 def test_reliability_not_significant_keeps_the_method_interval():
     """10 intervals, 9 in tolerance, target 95 %: P(X <= 9) = 1 - 0.95^10 = 1 - 0.59874 = 0.40126, not
-    significant (two-sided 5 %): the model does not move the interval (NCSL RP-1 style, from memory)."""
+    significant (one-sided 5 %): the model does not move the interval (NCSL RP-1 style, from memory)."""
     verdict = intervals.reliability_method([365] * 10, [True] * 9 + [False], target=0.95, min_observations=8)
     assert verdict.p_below == pytest.approx(1 - 0.95 ** 10, rel=1e-12)
-    assert verdict.days is None and "consistent with the 95% target" in verdict.reason
+    assert verdict.days is None and "not shown below the target" in verdict.reason
 
 
-def test_crossing_predicted_in_the_past_is_a_finding_and_shortens_by_the_method():
-    """The drift model puts the crossing 10 days before the last calibration, which was found in tolerance:
-    not a candidate (a due date before the calibration means nothing) but a finding, and the method shortens
-    by its out-of-tolerance step: 570 d × 0.5 = 285 d (OIML D 10 method 1)."""
-    d = due.decide_due(LAST, 570, "staircase", crossing=days(-10), shorten_factor=0.5)
+def test_a_crossing_on_or_before_the_last_calibration_is_refused():
+    """Issue 26 item 1: a crossing is only ever after the last calibration; the rule refuses one that is not."""
+    for day in (days(-10), LAST):
+        with pytest.raises(ValueError, match="crossing"):
+            due.decide_due(LAST, 570, "staircase", crossing=day)
+
+
+def test_scatter_is_a_finding_that_shortens_by_the_method_and_never_says_already_out():
+    """The drift model's bound already reaches the limit on the day the meter was found in tolerance: not a
+    crossing but a finding, and the method shortens by its out-of-tolerance step: 570 d × 0.5 = 285 d (OIML D 10
+    method 1). The residual SD is given beside the MPE."""
+    d = due.decide_due(LAST, 570, "staircase", crossing_kind="scatter", shorten_factor=0.5,
+                       scatter_reason="residual SD 0.31 beside the MPE 0.5")
     assert d.due == days(285) and d.winner == "method" and d.bounded == ""
     assert [c.name for c in d.candidates] == ["method"]
-    assert d.findings == [f"Drift model says this meter was already out at {days(-10)}; shorten by the method: "
-                          "570 d × 0.5 = 285 d."]
+    assert d.findings[0].startswith("Scatter too large to predict")
+    assert "residual SD 0.31 beside the MPE 0.5" in d.findings[0]
+    assert "found the meter in tolerance" in d.findings[0] and "570 d × 0.5 = 285 d" in d.findings[0]
     text = due.rationale_text(d.rationale())
-    assert "already out at 2025-12-22" in text and "285 days" in text
+    assert "already out" not in text and "285 days" in text and "scatter finding" in text
+    # found out of tolerance that day: the method has already counted it, no second halving
+    failed = due.decide_due(LAST, 285, "staircase", crossing_kind="scatter", last_failed=True)
+    assert failed.due == days(285) and "already shortened" in failed.findings[0]
 
 
-def test_scatter_finding_is_worded_as_such():
-    d = due.decide_due(LAST, 400, "staircase", crossing=LAST, crossing_kind="scatter")
-    assert d.due == days(200)
-    assert d.findings[0].startswith("Scatter exceeds tolerance")
+@pytest.mark.parametrize("k, n", [(11, 14), (12, 15), (21, 25), (35, 40)])
+def test_reliability_test_is_the_one_sided_exact_binomial_test_below_the_target(k, n):
+    """Issue 26 item 2: H1: R < R*, p as scipy.stats.binomtest(k, n, R*, alternative="less") gives it. scipy is
+    the independent computation here (our p comes from binomial_tails, scipy.stats.binom.cdf). All four records
+    are significantly below 95 % at 5 % one-sided (11/14: p = 0.030; 12/15: 0.036; 21/25: 0.034; 35/40: 0.048),
+    so the exponential model sets the interval, and the rationale prints k, n, the target and p."""
+    expected = stats.binomtest(k, n, 0.95, alternative="less").pvalue
+    ok = [True] * k + [False] * (n - k)
+    verdict = intervals.reliability_method([180] * n, ok, target=0.95, min_observations=8)
+    assert verdict.p_below == pytest.approx(expected, rel=1e-12)
+    assert expected < 0.05 and verdict.days is not None
+    assert f"k = {k} of n = {n}" in verdict.reason and "target 95%" in verdict.reason
+    assert f"p = {expected:.2g}" in verdict.reason and "H1: R < 95%" in verdict.reason
+
+
+@pytest.mark.parametrize("method_name", ["staircase", "reliability"])
+def test_a_failure_never_lengthens_the_interval_just_completed(method_name):
+    """Issue 26 item 2 (common practice; OIML D 10 / ILAC-G24 simple response): the last as-found out of tolerance
+    never gives an interval longer than the one just completed. Staircase from 1095 d: after 12 in tolerance the
+    step is 1095 d, then the failure halves it to 548 d, but the interval just completed was 200 d (calibrated
+    early), so 200 d. Reliability: 11 in tolerance of 14 at 180 d each (significantly below 95 %, p = 0.030 by
+    scipy.stats.binomtest) gives the exponential model 180 × ln 0.95 / ln(11/14) = 38 d, already shorter."""
+    elapsed = [365] * 12 + [200]
+    ok = [True] * 12 + [False]
+    method = intervals.interval_by_method(method_name, 1095, elapsed, ok, target=0.95, min_observations=8, **STAIR)
+    assert method.days <= 200
+    if method_name == "staircase":
+        assert method.days == 200 and "no longer than the 200 d interval just completed" in method.reason
+    last_out = intervals.interval_by_method(method_name, 180, [180] * 14, [True] * 11 + [False] * 3,
+                                            target=0.95, min_observations=8, **STAIR)
+    assert last_out.days <= 180
+    if method_name == "reliability":
+        assert last_out.days == round(180 * math.log(0.95) / math.log(11 / 14))
 
 
 def test_one_calibration_only_uses_the_base_interval():
@@ -260,7 +299,7 @@ def test_another_meters_failures_do_not_pull_a_meter_that_always_passed(drifting
         add_event(bad, standard, dt.date(year, 3, 1), found_error=2.0, left_error=0.0)
     good.refresh_from_db()
     assert good.next_due_date == dt.date(2025, 3, 1) + dt.timedelta(days=570)
-    assert "2 of 2 intervals in tolerance (n = 2)" in good.due_rationale["candidates"][0]["reason"]
+    assert "k = 2 of n = 2 intervals in tolerance" in good.due_rationale["candidates"][0]["reason"]
     bad.refresh_from_db()
     assert bad.last_in_tolerance is False and bad.next_due_date < good.next_due_date
 
@@ -296,3 +335,27 @@ def test_a_first_calibration_found_out_shortens_the_base_interval_by_one_stairca
     # with an observed interval the method has already counted the failure: unchanged
     counted = intervals.interval_by_method("staircase", 365, [365], [False])
     assert intervals.first_calibration_found_out(counted) == counted
+
+
+def test_improving_meter_crossing_rate_and_chart_on_the_side_it_heads_to(drifting_meter, settings):
+    """Issue 26 items 1 and 7, worked by hand: as-founds 0.4, 0.3, 0.2, 0.1 a year (365 d) apart, never adjusted,
+    MPE 1.0 absolute: the error falls exactly 0.1 per 365 d toward zero and, continuing, reaches -1.0 after
+    (0.1 + 1.0) / (0.1 / 365) = 4015 days past the last calibration. The page shows that slope with its standard
+    uncertainty (0 on an exact line), and the chart draws the 50 % points and the lower bound."""
+    from calibration.trend import meter_drift_chart
+
+    settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "staircase", "max_interval_days": 3000}
+    meter, standard = drifting_meter
+    start = dt.date(2020, 1, 1)
+    for k, error in enumerate([0.4, 0.3, 0.2, 0.1]):
+        add_event(meter, standard, start + dt.timedelta(days=365 * k), found_error=error)
+    meter.refresh_from_db()
+    last = start + dt.timedelta(days=3 * 365)
+    assert meter.drift_status == "improving"
+    assert meter.predicted_crossing == last + dt.timedelta(days=4015)
+    assert meter.drift_rate_per_year == pytest.approx(-0.1 * 365.25 / 365, rel=1e-6)
+    assert meter.due_rationale["drift_rate_u_per_year"] == pytest.approx(0.0, abs=1e-9)
+    assert meter.due_rationale["drift_chart_pct"] == 50
+    svg = meter_drift_chart(meter)
+    assert "one-sided 95 % lower prediction bound" in svg and "as found (50 % of range)" in svg
+    assert f"predicted crossing {meter.predicted_crossing.isoformat()}" in svg

@@ -70,14 +70,21 @@ def test_vectorised_crossings_equal_the_scalar_method_series_by_series():
             assert math.isnan(got["day"]), key
         else:
             assert got["day"] == pytest.approx(expected.day, abs=1e-6), key
+            # a crossing is a crossing: strictly after the last calibration (issue 26)
+            assert expected.day > expected.drift.last_day and got["day"] > expected.drift.last_day, key
+            if expected.status == "improving":
+                statuses["improving with a crossing"] += 1
         slope = expected.drift.slope_per_day if expected.drift else None
         if slope is None:
-            assert math.isnan(got["slope"]), key
+            assert math.isnan(got["slope"]) and math.isnan(got["se"]) and math.isnan(got["sd"]), key
         else:
             assert got["slope"] == pytest.approx(slope, rel=1e-9, abs=1e-15), key
+            assert got["se"] == pytest.approx(expected.drift.se_slope, rel=1e-9, abs=1e-15), key
+            assert got["sd"] == pytest.approx(expected.drift.fit.residual_sd, rel=1e-9, abs=1e-15), key
             assert bool(got["significant"]) == bool(expected.drift.significant), key
     # every branch of the method was exercised
-    assert set(statuses) == {"insufficient", "flat", "scatter", "improving", "drifting", "out_of_tolerance"}, statuses
+    assert set(statuses) == {"insufficient", "flat", "scatter", "improving", "drifting", "out_of_tolerance",
+                             "improving with a crossing"}, statuses
 
 
 def test_vectorised_crossing_of_a_known_line():
@@ -199,3 +206,27 @@ def test_vectorised_staircase_equals_the_scalar_sequence():
         base = min(max(bases[m], 30), 1095)
         expected = intervals.staircase_sequence(base, records[m], **kw)
         assert steps[start:start + len(expected)].tolist() == expected, m
+
+
+@pytest.mark.parametrize("mpe, guard", [(float("nan"), 0.0), (float("inf"), 0.0), (0.0, 0.0), (-1.0, 0.0),
+                                        (0.5, 0.5), (0.5, 0.7)])
+def test_scalar_and_fleet_refuse_the_same_limits(mpe, guard):
+    """Issue 26 item 6: a NaN, infinite or non-positive limit (MPE minus guard) is refused by both the scalar and
+    the fleet drift function with a ValueError, not called "drifting" or "out of tolerance" by one of them."""
+    events = [drift.HistoryEvent(day=float(d), as_found=0.001 * d) for d in (0, 100, 200, 300)]
+    with pytest.raises(ValueError):
+        drift.predict_crossing(events, mpe=mpe, guard=guard)
+    rows = pd.DataFrame({"series": [0] * 4, "day": [0.0, 100.0, 200.0, 300.0], "order": [0, 1, 2, 3],
+                         "as_found": [0.0, 0.1, 0.2, 0.3], "as_left": [np.nan] * 4, "adjusted": [False] * 4})
+    with pytest.raises(ValueError, match="limit"):
+        predict_crossings(rows, pd.Series({0: mpe - guard}))
+
+
+def test_scalar_and_fleet_refuse_the_same_nonfinite_errors():
+    """An infinite as-found is refused by both (NaN in the fleet frame means "not recorded", None in the scalar)."""
+    with pytest.raises(ValueError, match="as_found"):
+        drift.HistoryEvent(day=300.0, as_found=float("inf"))
+    rows = pd.DataFrame({"series": [0] * 3, "day": [0.0, 100.0, 200.0], "order": [0, 1, 2],
+                         "as_found": [0.0, 0.1, float("inf")], "as_left": [np.nan] * 3, "adjusted": [False] * 3})
+    with pytest.raises(ValueError, match="as_found"):
+        predict_crossings(rows, pd.Series({0: 1.0}))

@@ -521,3 +521,52 @@ def test_misapplied_meter_gets_the_not_fit_recommendation():
     assert recommendation(assess("electromagnetic", "316L", DEMIN_WATER)) == NOT_FIT
     assert NOT_FIT == "Not fit for this duty: replace or re-engineer"
     assert recommendation(assess("electromagnetic", "316L", TOWN_WATER)) == ""
+
+
+# ---------------------------------------------------------------- issue 26: brine for every wetted principle
+CHLORIDE_PRINCIPLES = {"turbine": "TURBINE", "positive_displacement": "PD", "orifice": "ORIFICE",
+                       "venturi": "VENTURI", "pitot": "PITOT", "averaging_pitot": "AVG_PITOT", "vortex": "VORTEX"}
+
+
+@pytest.mark.parametrize("principle, prefix", sorted(CHLORIDE_PRINCIPLES.items()))
+def test_brine_at_ambient_is_a_finding_by_wetted_material_with_a_task(principle, prefix):
+    """Issue 26 item 5 (common practice: chlorides pit and crevice-attack austenitic stainless, carbon steel and
+    cast iron at any temperature; titanium, super duplex and nickel alloys resist). At 20 °C, below the cracking
+    rule, a turbine, PD meter, DP primary or vortex meter on brine gets a medium finding that shortens (0.75) and
+    calls for a maintenance task; on a resistant material a note that does not shorten (factor 1)."""
+    from maintenance.tasks import derive_tasks
+
+    brine = FluidProps(phase="liquid", conductivity_us_cm=50000, chlorides=True, temperature_c=20,
+                       density_kg_m3=1100, viscosity_mpa_s=1.2)
+    for material in ("316L", "cast iron", "carbon steel", ""):
+        found = [f for f in assess(principle, material, brine, min_flow_m3_h=50, diameter_mm=100)
+                 if f.code == f"{prefix}_CHLORIDES"]
+        assert len(found) == 1 and found[0].severity == "medium" and found[0].interval_factor == 0.75, material
+        assert found[0].severity_words == "medium risk"
+        tasks = derive_tasks(principle, found)
+        assert any(f"{prefix}_CHLORIDES" in t.because for t in tasks), (principle, material)
+    for material in ("titanium", "alloy C-276", "super duplex 2507"):
+        notes = [f for f in assess(principle, material, brine, min_flow_m3_h=50, diameter_mm=100)
+                 if f.code.startswith(f"{prefix}_CHLORIDES")]
+        assert [f.code for f in notes] == [f"{prefix}_CHLORIDES_MITIGATED"], material
+        assert notes[0].interval_factor == FACTOR_NOTE == 1.0 and notes[0].severity_words == "note"
+    clean = FluidProps(phase="liquid", conductivity_us_cm=500, temperature_c=20)
+    assert not [f for f in assess(principle, "316L", clean) if "CHLORIDE" in f.code]
+
+
+def test_a_note_never_shortens_and_a_shortening_low_finding_is_not_called_a_note():
+    """Issue 26 item 5: every finding worded "note" has factor 1; a low finding that shortens (0.9) is "low risk"."""
+    fluids = [FluidProps(phase=phase, conductivity_us_cm=c, chlorides=ch, sticky=st, temperature_c=t)
+              for phase in ("liquid", "gas") for c in (None, 50000) for ch in (False, True) for st in (False, True)
+              for t in (None, 20, 80)]
+    seen = set()
+    for principle in PRINCIPLES:
+        for material in ("316L", "titanium", ""):
+            for fluid in fluids:
+                for f in assess(principle, material, fluid):
+                    seen.add(f.severity_words)
+                    if f.severity_words == "note":
+                        assert f.interval_factor == 1.0, f.code
+                    if f.interval_factor < 1.0:
+                        assert f.severity_words != "note", f.code
+    assert {"note", "low risk"} <= seen

@@ -54,7 +54,9 @@ class Command(BaseCommand):
     help = "Create the demo maintenance history (seeded) and write fixtures/demo_maintenance.json."
 
     def add_arguments(self, parser):
-        parser.add_argument("--seed", type=int, default=12)
+        # seed 13 since issue 26: with the chloride tasks the draws of seed 12 put a clean DP zero check among
+        # FT-601's last four inspections, which broke its story (any seed whose draws keep the stories will do)
+        parser.add_argument("--seed", type=int, default=13)
         parser.add_argument("--output", default=str(FIXTURE))
 
     @transaction.atomic
