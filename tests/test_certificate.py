@@ -150,10 +150,11 @@ def test_certificate_contains_every_required_element(client, signed_event, stand
     assert "Simple acceptance (ILAC-G8, w = 0)" in text
     assert has(text, "As found", "IN TOLERANCE") and has(text, "As left", "IN TOLERANCE")
     # traceability: reference standard, its certificate number and due date
-    assert has(text, "RS-7") and has(text, standard.certificate_number, "2027-06-01")
+    assert has(text, "RS-7") and has(text, standard.certificate_number + ",", "issuer not recorded", "2027-06-01")
     # signatory
-    assert has(text, "Authorised by", "B. Signatory") and has(text, "Role", "Technician")
-    assert has(text, "Signed", "2026-11-23")
+    # ISO/IEC 17025:2017 §7.8.2.1 k: the technician signs off; the authoriser is a reviewer who countersigns
+    assert has(text, "Signed off by", "B. Signatory (Technician), 2026-11-23")
+    assert has(text, "Authorised by", "— (not yet countersigned by a reviewer)")
     assert f"Drift history of device S/N {signed_event.meter.serial}" in text
     assert "supersedes" not in text
     assert f"End of certificate {number}" in text
@@ -277,7 +278,7 @@ def test_certificate_prints_the_standards_as_they_were_at_sign_off(client, signe
     standard.save()
     _, raw = pdf_text(client.get(f"/calibrations/{signed_event.pk}/certificate.pdf").content)
     text = flat(raw)
-    assert has(text, "UKAS-0042-7781", "2027-06-01") and "0.1 % of reading" in text
+    assert has(text, "UKAS-0042-7781,", "issuer not recorded", "2027-06-01") and "0.1 % of reading" in text
     assert "NEW-2028-1" not in text and "2028-06-01" not in text and "Other Lab" not in text
     page = client.get(f"/calibrations/{signed_event.pk}/").content.decode()
     assert "UKAS-0042-7781" in page and "NEW-2028-1" not in page
@@ -310,7 +311,7 @@ def test_performed_by_authorised_by_and_countersignature(client, signed_event, m
     assert signed_event.performed_by == signed_event.created_by and signed_event.contractor == ""
     _, raw = pdf_text(client.get(f"/calibrations/{signed_event.pk}/certificate.pdf").content)
     text = flat(raw)
-    assert has(text, "Performed by", "B. Signatory") and has(text, "Authorised by", "B. Signatory")
+    assert has(text, "Performed by", "B. Signatory") and has(text, "Authorised by", "— (not yet countersigned")
     assert "Countersigned" not in text
     reviewer = Client()
     reviewer.force_login(user_with_role("reviewer", "c-reviewer"))
@@ -333,7 +334,7 @@ def test_outside_contractor_is_marked(client, meter, standard, monkeypatch):
     _, raw = pdf_text(client.get(f"/calibrations/{event.pk}/certificate.pdf").content)
     text = flat(raw)
     assert has(text, "Performed by", "C. Outside, Flowfix Services (outside contractor)")
-    assert has(text, "Authorised by", "B. Signatory")
+    assert has(text, "Signed off by", "B. Signatory") and has(text, "Authorised by", "—")
     page = html_text(client.get(f"/calibrations/{event.pk}/").content.decode())
     assert "C. Outside, Flowfix Services (outside contractor)" in page and "Entered by B. Signatory" in page
 
