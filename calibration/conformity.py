@@ -254,3 +254,36 @@ def acceptance_limits_for_pfa_array(prior_mean, prior_sd, u, lower, upper, targe
         w_hi = np.where(active & ok, mid, w_hi)
         w_lo = np.where(active & ~ok, mid, w_lo)
     return lower + w_hi, upper - w_hi
+
+
+# The prior of like devices (JCGM 106 §9.2) -------------------------------------------------------------
+#: fewest as-found errors for a normal fit of a group of like devices (common practice: about 30 values give a
+#: standard deviation to within about 13 % at one standard uncertainty, 1/sqrt(2(n-1)), GUM Table E.1)
+PRIOR_MIN_COUNT = 30
+#: the prior when no group has enough history, in MPE units: centred, SD = MPE / 2, so about 95 % of like devices
+#: are found within their MPE - the end-of-period reliability target usual in interval analysis (common practice)
+DEFAULT_PRIOR_MEAN = 0.0
+DEFAULT_PRIOR_SD = 0.5
+
+
+def fit_normal(values) -> tuple[float, float, int]:
+    """(mean, standard deviation with n - 1, count) of finite values; the normal fit of the prior (JCGM 106
+    §9.2: the distribution of the property over like items, from their history). Fewer than two values: ValueError."""
+    a = np.asarray(values, dtype=float)
+    a = a[np.isfinite(a)]
+    if a.size < 2:
+        raise ValueError(f"values must hold at least two finite numbers, got {a.size}")
+    return float(a.mean()), float(a.std(ddof=1)), int(a.size)
+
+
+def choose_prior(fits: Mapping, principle: str, fluid_id, min_count: int = PRIOR_MIN_COUNT):
+    """The prior for a device: its principle and fluid's fit when it counts min_count values or more, else its
+    principle's, else the stated default. `fits` maps (principle, fluid_id) and (principle, None) to (mean, sd,
+    count). Returns (mean, sd, count, scope) with scope "principle and fluid", "principle" or "default"."""
+    for key, scope in (((principle, fluid_id), "principle and fluid"), ((principle, None), "principle")):
+        if key[1] is None and scope != "principle":
+            continue
+        fit = fits.get(key)
+        if fit is not None and fit[2] >= min_count and fit[1] > 0:
+            return fit[0], fit[1], fit[2], scope
+    return DEFAULT_PRIOR_MEAN, DEFAULT_PRIOR_SD, 0, "default"

@@ -337,6 +337,10 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
         if progress:
             progress(1)
     write_due_fields(meters, batch_size=batch_size)
+    # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
+    from calibration.conformity_fleet import update_conformity
+
+    update_conformity(meters, events, points, last_events, whole_fleet)
     return len(meters)
 
 

@@ -661,6 +661,27 @@ class CalibrationPoint(models.Model):
         self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
 
 
+class ErrorPrior(models.Model):
+    """The prior of the true error of like devices (JCGM 106 §9.2): a normal fitted to the as-found errors of the
+    signed calibrations in force of the devices of one principle (fluid blank) or of one principle on one fluid,
+    in MPE units (error / MPE). Kept by the whole-fleet recompute (calibration/conformity_fleet.py), so pages and
+    single-device recomputes read it without scanning the history."""
+
+    principle = models.CharField(max_length=30)
+    fluid = models.ForeignKey("plant.Fluid", null=True, blank=True, on_delete=models.CASCADE, related_name="+")
+    mean = models.FloatField("mean (MPE units)")
+    sd = models.FloatField("standard deviation (MPE units)")
+    count = models.PositiveIntegerField("as-found errors fitted")
+    computed_at = models.DateTimeField()
+
+    class Meta:
+        ordering = ["principle", "fluid"]
+        indexes = [models.Index(fields=["principle", "fluid"], name="error_prior_group_idx")]
+
+    def __str__(self):
+        return f"{self.principle} / {self.fluid_id or 'any fluid'}: {self.mean:+.3f} ± {self.sd:.3f} MPE (n={self.count})"
+
+
 @receiver(post_save, sender=CalibrationEvent)
 def note_loaded_raw(sender, instance, raw, **kwargs):
     """A fixture or a backup being loaded saves a signed event as it was, then sets its standards (loaddata):
