@@ -59,24 +59,55 @@ def pfa_target() -> float:
 
 
 # Priors -------------------------------------------------------------------------------------------------
-def fit_priors(errors_in_mpe: pd.DataFrame) -> dict:
-    """{(principle, fluid_id): (mean, sd, count)} and {(principle, None): ...} from a frame with columns
-    principle, fluid_id, ratio (as-found error / MPE). Groups of fewer than two values are left out."""
+def group_fits(codes: np.ndarray, values: np.ndarray, groups: int):
+    """(mean, sd with n - 1, count) arrays for every group code 0..groups-1 at once: the normal fit of
+    conformity.fit_normal by sums per group (two passes, so the SD does not lose digits)."""
+    count = np.bincount(codes, minlength=groups)
+    mean = np.bincount(codes, weights=values, minlength=groups) / np.maximum(count, 1)
+    square = np.bincount(codes, weights=(values - mean[codes]) ** 2, minlength=groups)
+    return mean, np.sqrt(square / np.maximum(count - 1, 1)), count
+
+
+def fit_priors(meters, events: pd.DataFrame, points: pd.DataFrame) -> dict:
+    """{(principle, fluid_id): (mean, sd, count)} and {(principle, None): ...}: every as-found error (error / the
+    device's MPE) of the events held (signed, in force), grouped by the device's principle and fluid now, and by
+    principle. Groups of fewer than two values are left out."""
+    found = points[(points["as_left"] == 0) & points["event_id"].isin(events["id"])]
+    meter_of_event = pd.Series(events["meter_id"].to_numpy(), index=events["id"].to_numpy())
+    point_meter = meter_of_event.reindex(found["event_id"].to_numpy()).to_numpy()
+    # per device: its row, its (principle, fluid) group and its principle group
+    pair_code, principle_code, pairs, principles, mpe, ids = {}, {}, [], [], [], []
+    row_pair, row_principle = [], []
+    for m in meters:
+        pair = (m.principle, m.fluid_id)
+        if pair not in pair_code:
+            pair_code[pair] = len(pairs)
+            pairs.append(pair)
+        if m.principle not in principle_code:
+            principle_code[m.principle] = len(principles)
+            principles.append(m.principle)
+        ids.append(m.pk)
+        mpe.append(m.mpe_value)
+        row_pair.append(pair_code[pair])
+        row_principle.append(principle_code[m.principle])
+    ids = np.asarray(ids, dtype=np.int64)
+    order = np.argsort(ids)
+    at = np.searchsorted(ids[order], point_meter)
+    known = (at < ids.size)
+    known[known] = ids[order][at[known]] == point_meter[known]
+    rows = order[at[known]]
+    ratio = found["error"].to_numpy(dtype=float)[known] / np.asarray(mpe, dtype=float)[rows]
+    finite = np.isfinite(ratio)
+    rows, ratio = rows[finite], ratio[finite]
     fits = {}
-    frame = errors_in_mpe[np.isfinite(errors_in_mpe["ratio"].to_numpy(dtype=float))]
-    for keys, by in ((["principle", "fluid_id"], True), (["principle"], False)):
-        grouped = frame.groupby(keys, sort=False, dropna=False)["ratio"].agg(["mean", "std", "count"])
-        for key, row in grouped.iterrows():
-            if row["count"] < 2 or not np.isfinite(row["std"]):
-                continue
-            if by:
-                principle, fluid_id = key
-                if pd.isna(fluid_id):
-                    continue
-                fits[(principle, int(fluid_id))] = (float(row["mean"]), float(row["std"]), int(row["count"]))
-            else:
-                principle = key[0] if isinstance(key, tuple) else key
-                fits[(principle, None)] = (float(row["mean"]), float(row["std"]), int(row["count"]))
+    for codes, keys in ((np.asarray(row_pair, dtype=np.int64)[rows], pairs),
+                        (np.asarray(row_principle, dtype=np.int64)[rows], [(p, None) for p in principles])):
+        if not keys:
+            continue
+        mean, sd, count = group_fits(codes, ratio, len(keys))
+        for k, key in enumerate(keys):
+            if count[k] >= 2 and (keys is not pairs or key[1] is not None):   # a pair needs a fluid
+                fits[key] = (float(mean[k]), float(sd[k]), int(count[k]))
     return fits
 
 
@@ -109,31 +140,24 @@ def prior_for_meter(meter, fits=None) -> Prior:
 
 
 # The recompute's part -----------------------------------------------------------------------------------
-def _as_found_ratios(meters, events: pd.DataFrame, points: pd.DataFrame) -> pd.DataFrame:
-    """principle, fluid_id, ratio for every as-found error of the events held (signed, in force)."""
-    found = points[(points["as_left"] == 0) & points["event_id"].isin(events["id"])]
-    meter_of_event = pd.Series(events["meter_id"].to_numpy(), index=events["id"].to_numpy())
-    meter_ids = meter_of_event.reindex(found["event_id"].to_numpy()).to_numpy()
-    info = pd.DataFrame([(m.pk, m.principle, m.fluid_id, m.mpe_value) for m in meters],
-                        columns=["meter_id", "principle", "fluid_id", "mpe"]).set_index("meter_id")
-    info = info.reindex(meter_ids)
-    return pd.DataFrame({"principle": info["principle"].to_numpy(), "fluid_id": info["fluid_id"].to_numpy(),
-                         "ratio": found["error"].to_numpy(dtype=float) / info["mpe"].to_numpy(dtype=float)})
-
-
 def _last_points(event_ids) -> pd.DataFrame:
-    """The as-found points of the events: event_id, error, mpe, U, k (chunked reads by event id)."""
+    """The as-found points of the events: event_id, error, mpe, U, k. The ids (integers from our own read) are
+    written into the statement, in chunks: no bound-parameter limit, and no per-id lookup building."""
     from calibration.models import CalibrationPoint
 
     columns = ["event_id", "error", "mpe", "expanded_uncertainty", "coverage_factor"]
     connection = connections[CalibrationPoint.objects.db]
-    chunk = 900 if connection.vendor == "sqlite" else 20000
-    ids = [int(i) for i in event_ids]
+    quote = connection.ops.quote_name
+    meta = CalibrationPoint._meta
+    select = ", ".join(quote(meta.get_field(c).column) for c in columns)
+    ids = sorted({int(i) for i in event_ids})
     rows = []
-    for start in range(0, len(ids), chunk):
-        rows.extend(CalibrationPoint.objects.filter(event_id__in=ids[start:start + chunk],
-                                                    kind=CalibrationPoint.Kind.AS_FOUND)
-                    .order_by().values_list(*columns))
+    with connection.cursor() as cursor:
+        for start in range(0, len(ids), 20000):
+            listed = ",".join(str(i) for i in ids[start:start + 20000])
+            cursor.execute(f"SELECT {select} FROM {quote(meta.db_table)} WHERE {quote('event_id')} IN ({listed}) "
+                           f"AND {quote('kind')} = %s", [CalibrationPoint.Kind.AS_FOUND.value])
+            rows.extend(cursor.fetchall())
     return pd.DataFrame(np.array(rows, dtype=float).reshape(len(rows), len(columns)), columns=columns)
 
 
@@ -172,8 +196,9 @@ def update_conformity(meters, events: pd.DataFrame, points: pd.DataFrame, last_e
     """The recompute's conformity part: refit and store the priors (whole fleet only), then set and store each
     device's conformity_pfa and conformity_min_pc from its last calibration (writing the changed rows only)."""
     if whole_fleet:
-        fits = fit_priors(_as_found_ratios(meters, events, points))
-        store_priors(fits)
+        fits = fit_priors(meters, events, points)
+        if fits != stored_fits():
+            store_priors(fits)
     else:
         fits = stored_fits({m.principle for m in meters})
     by_meter = {m.pk: m for m in meters}
@@ -185,19 +210,22 @@ def update_conformity(meters, events: pd.DataFrame, points: pd.DataFrame, last_e
             event_meter = pd.Series(last.index.to_numpy(), index=last["id"].to_numpy())
             meter_ids = event_meter.reindex(pts["event_id"].to_numpy()).to_numpy()
             rules = pd.Series(last["decision_rule"].to_numpy(), index=last["id"].to_numpy())
+            groups = {}   # one prior per (principle, fluid), looked up once
             prior_of = {}
             for pk in set(meter_ids.tolist()):
                 meter = by_meter[pk]
-                prior_of[pk] = conformity.choose_prior(fits, meter.principle, meter.fluid_id)[:2]
-            priors = np.array([prior_of[pk] for pk in meter_ids], dtype=float).reshape(len(meter_ids), 2)
+                key = (meter.principle, meter.fluid_id)
+                if key not in groups:
+                    groups[key] = conformity.choose_prior(fits, *key)[:2]
+                prior_of[pk] = groups[key]
+            priors = np.array([prior_of[pk] for pk in meter_ids.tolist()], dtype=float).reshape(len(meter_ids), 2)
             pc, pfa = point_risks(pts["error"], pts["mpe"], pts["expanded_uncertainty"], pts["coverage_factor"],
                                   rules.reindex(pts["event_id"].to_numpy()).to_numpy(), priors[:, 0], priors[:, 1])
             inside = np.abs(pts["error"].to_numpy()) <= pts["mpe"].to_numpy()
             frame = pd.DataFrame({"meter_id": meter_ids, "pfa": pfa, "pc": np.where(inside, pc, np.nan)})
             grouped = frame.groupby("meter_id").agg(pfa=("pfa", "max"), pc=("pc", "min"))
-            for pk, row in grouped.iterrows():
-                results[int(pk)] = (None if pd.isna(row["pfa"]) else float(row["pfa"]),
-                                    None if pd.isna(row["pc"]) else float(row["pc"]))
+            for pk, worst, lowest in zip(grouped.index.tolist(), grouped["pfa"].tolist(), grouped["pc"].tolist()):
+                results[int(pk)] = (None if worst != worst else worst, None if lowest != lowest else lowest)
     write_conformity(results)
     return results
 
