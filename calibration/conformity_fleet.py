@@ -260,3 +260,50 @@ def write_conformity(results: dict, batch_size=1000):
         for start in range(0, len(changed), batch_size):
             cursor.executemany(sql, changed[start:start + batch_size])
     return len(changed)
+
+
+# One calibration: what its results page and certificate state ------------------------------------------
+def _tur_text(mpe, U) -> str:
+    if not U:
+        return "TUR not stated"
+    return f"TUR {mpe / U:.1f}:1"
+
+
+def event_conformity(points, rule: str, prior: Prior, target: float | None = None) -> dict:
+    """The conformity risk of one calibration, from its point contents (dicts with kind, nominal_pct, error, mpe,
+    expanded_uncertainty, coverage_factor, decision; signed_content.point_content): per point p_c (JCGM 106 §7)
+    and the global PFA of the rule applied (JCGM 106 §9.5.2, with `prior`); for the calibration the worst PFA,
+    and the points inside the MPE that the rule did not accept ("conformity not decided": a prompt for a better
+    reference, not a finding against the device). Plain JSON-able numbers and words."""
+    target = pfa_target() if target is None else float(target)
+    if not points:
+        return {"prior": prior.as_dict(), "target_pfa": target, "rule": rule, "pfa": None,
+                "pfa_above_target": False, "points": [], "not_decided": [], "statement": ""}
+
+    def num(p, key):
+        value = p.get(key)
+        return np.nan if value is None else float(value)
+
+    error = np.array([num(p, "error") for p in points])
+    mpe = np.array([num(p, "mpe") for p in points])
+    U = np.array([num(p, "expanded_uncertainty") for p in points])
+    k = np.array([num(p, "coverage_factor") for p in points])
+    pc, pfa = point_risks(error, mpe, U, k, rule, prior.mean, prior.sd, target=target)
+    rows, not_decided = [], []
+    for p, c, f in zip(points, pc.tolist(), pfa.tolist()):
+        rows.append({"kind": p["kind"], "nominal_pct": p["nominal_pct"], "p_c": None if c != c else c,
+                     "pfa": None if f != f else f})
+        inside = p.get("error") is not None and p.get("mpe") is not None and abs(p["error"]) <= p["mpe"]
+        if inside and p.get("decision") not in ("pass", ""):
+            label = "as found" if p["kind"] == "as_found" else "as left"
+            not_decided.append(f"{label} at {p['nominal_pct']:g} % ({_tur_text(p['mpe'], p.get('expanded_uncertainty'))})")
+    known = [f for f in pfa.tolist() if f == f]
+    worst = max(known) if known else None
+    statement = ""
+    if worst is not None:
+        statement = (f"Probability of false accept of the decision rule applied: {100 * worst:.2g} % at the worst "
+                     f"point (target {100 * target:.3g} %), the global consumer's risk of JCGM 106:2012 §9.5.2 for a "
+                     f"device drawn from its like devices, prior: {prior.describe()}.")
+    return {"prior": prior.as_dict(), "target_pfa": target, "rule": rule, "pfa": worst,
+            "pfa_above_target": worst is not None and worst > target, "points": rows,
+            "not_decided": not_decided, "statement": statement}

@@ -25,7 +25,11 @@ from django.utils import timezone
 
 from calibration import decision, uncertainty, units
 
-VERSION = 1
+#: 1: the content as first kept; 2: adds "conformity" (issue 31: per point p_c and PFA, the calibration's PFA of the
+#: rule applied, the prior used and the PFA target, as they stood at sign-off). Content rebuilt from the audit trail
+#: for a record signed before sign-off kept it is version 1: the prior of that time was never kept, so it states none.
+VERSION = 2
+VERSION_WITHOUT_CONFORMITY = 1
 
 SIGNED = "signed"
 AS_FOUND, AS_LEFT = "as_found", "as_left"
@@ -235,10 +239,11 @@ def drift_rows(Event, Point, event, own_points) -> list:
 
 # The content ------------------------------------------------------------------------------------------------
 def build(event, *, points, device, position, area, site, fluid, standards, history, lab, product,
-          supersedes=None, how=AT_SIGN_OFF, from_current_register=()) -> dict:
+          supersedes=None, how=AT_SIGN_OFF, from_current_register=(), conformity=None) -> dict:
     """The certificate's content as plain JSON-able data. Every argument is a model instance (the app's or a
     historical version) or None, except `points` (point_content dicts), `standards` (standard_snapshot dicts),
-    `history` (drift_rows), `lab` ({name, address}) and `product`."""
+    `history` (drift_rows), `lab` ({name, address}) and `product`; `conformity` (conformity_fleet.event_conformity,
+    version 2) or None (version 1: no conformity section, nothing said about risks)."""
     device_units = event.meter_units or device.flow_units
     entered_units = event.reference_units or device_units
     converted, density_used = unit_facts(entered_units, device_units, event.density_kg_m3)
@@ -253,8 +258,8 @@ def build(event, *, points, device, position, area, site, fluid, standards, hist
                       "replaces_performed_on": supersedes.performed_on.isoformat(),
                       "replaces_issued_on": _local_date(supersedes.signed_at) if supersedes.signed_at else None,
                       "reason": event.correction_reason}
-    return {
-        "version": VERSION,
+    content = {
+        "version": VERSION if conformity is not None else VERSION_WITHOUT_CONFORMITY,
         "frozen": {"how": how, "from_current_register": sorted(from_current_register)},
         "product": product,
         "certificate": {"number": certificate_number(event), "issued_on": _local_date(event.signed_at),
@@ -309,6 +314,12 @@ def build(event, *, points, device, position, area, site, fluid, standards, hist
                       "signed_at": event.signed_at.isoformat() if event.signed_at else None},
         "correction": correction,
     }
+    if conformity is not None:
+        # each point's p_c and PFA beside its other values, the calibration's figures in their own section
+        for p, risk in zip(points, conformity["points"]):   # the same points, in the same order
+            p["p_c"], p["pfa"] = risk["p_c"], risk["pfa"]
+        content["conformity"] = {key: value for key, value in conformity.items() if key != "points"}
+    return content
 
 
 def _ordered_points(points):
@@ -336,11 +347,16 @@ def at_sign_off(event, points) -> dict:
     if position is not None:
         fluid_id = served_fluid_id(DutyPeriod, event.meter_id, position.pk, event.performed_on)
         fluid = Fluid.objects.get(pk=fluid_id) if fluid_id else position.fluid
+    from calibration.conformity_fleet import event_conformity, prior_for_meter
+
     own = _ordered_points(points)
+    # the prior of like devices as stored by the last fleet recompute, and the PFA target now (issue 31)
+    conformity = event_conformity(own, event.decision_rule, prior_for_meter(device))
     return build(event, points=own, device=device, position=position, area=area, site=site, fluid=fluid,
                  standards=event.standards_snapshot,
                  history=drift_rows(CalibrationEvent, CalibrationPoint, event, own),
-                 lab=laboratory(), product=settings.PRODUCT_NAME, supersedes=event.supersedes)
+                 lab=laboratory(), product=settings.PRODUCT_NAME, supersedes=event.supersedes,
+                 conformity=conformity)
 
 
 def _as_of(History, pk, moment):
