@@ -90,3 +90,45 @@ def test_version_1_record_prints_without_risks(client, meter, standard, monkeypa
     assert "Probability of false accept" not in text and "Conformity not decided" not in text
     page = client.get(f"/calibrations/{event.pk}/").content.decode()
     assert "signed before conformity risks were kept" in page and "its certificate states none" in page
+
+
+# The review's conformity lists (stored fields; values set here as the recompute would store them) -----------
+def test_review_lists_pfa_above_target_and_low_p_c(admin_user, settings):
+    from django.db import connection as db
+    from django.test import Client
+    from django.test.utils import CaptureQueriesContext
+
+    client = Client()
+    client.force_login(admin_user)
+
+    from plant.models import Area, Fluid, Meter, Site
+    from tests.test_review import export, make_meter
+
+    site = Site.objects.create(name="Risk site")
+    area = Area.objects.create(site=site, name="Hall")
+    water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
+    stored = {"PFA-HIGH": dict(last_in_tolerance=True, conformity_pfa=0.031, conformity_min_pc=0.99),
+              "PFA-HIGH-FAILED": dict(last_in_tolerance=False, conformity_pfa=0.05),   # not accepted
+              "PFA-OK": dict(last_in_tolerance=True, conformity_pfa=0.019, conformity_min_pc=0.96),
+              "PC-LOW": dict(last_in_tolerance=False, conformity_pfa=0.001, conformity_min_pc=0.62),
+              "NO-RISK": dict(last_in_tolerance=True)}   # nothing stated: in neither list
+    for tag in stored:
+        make_meter(tag, area, water)
+    with CaptureQueriesContext(db) as empty:
+        assert client.get("/review/").status_code == 200
+    for tag, values in stored.items():
+        Meter.objects.filter(position__tag=tag).update(**values)
+    assert sorted(r[0] for r in export(client, "pfa_above")[1]) == ["PFA-HIGH"]
+    header, rows = export(client, "low_pc")
+    assert [r[0] for r in rows] == ["PC-LOW"]
+    assert rows[0][header.index("Lowest p_c inside MPE")] == "62.0 %"
+    body = client.get("/review/").content.decode()
+    assert "Accepted with PFA above target (2 %)" in body and 'id="count-pfa_above">1<' in body
+    assert 'id="count-low_pc">1<' in body
+    settings.QUENBY_PFA_TARGET = 0.015   # the target is a setting
+    assert sorted(r[0] for r in export(client, "pfa_above")[1]) == ["PFA-HIGH", "PFA-OK"]
+    # counted with the other lists in one query (no query more while both lists are empty); a list with rows adds
+    # its page reads, a fixed number whatever the fleet (test_review.py holds the page to 32 queries)
+    with CaptureQueriesContext(db) as full:
+        assert client.get("/review/").status_code == 200
+    assert len(full.captured_queries) <= len(empty.captured_queries) + 6
