@@ -145,7 +145,7 @@ def _last_points(event_ids) -> pd.DataFrame:
     written into the statement, in chunks: no bound-parameter limit, and no per-id lookup building."""
     from calibration.models import CalibrationPoint
 
-    columns = ["event_id", "error", "mpe", "expanded_uncertainty", "coverage_factor"]
+    columns = ["event_id", "error", "mpe", "expanded_uncertainty", "coverage_factor", "acceptance_limit"]
     connection = connections[CalibrationPoint.objects.db]
     quote = connection.ops.quote_name
     meta = CalibrationPoint._meta
@@ -161,11 +161,12 @@ def _last_points(event_ids) -> pd.DataFrame:
     return pd.DataFrame(np.array(rows, dtype=float).reshape(len(rows), len(columns)), columns=columns)
 
 
-def point_risks(error, mpe, U, k, rule, prior_mean, prior_sd, target=None):
+def point_risks(error, mpe, U, k, rule, prior_mean, prior_sd, target=None, accept_limit=None):
     """Per point (numpy arrays): conformance probability p_c (JCGM 106 §7) and the global PFA of the rule's
     acceptance limits (JCGM 106 §9.5.2) with the prior scaled by the point's MPE; NaN where U = 0 or an input is
     missing. Acceptance limits: simple +/- MPE; guarded +/- (MPE - U), at least 0 (ILAC-G8:09/2019 §4.2.2); risk,
-    those meeting the PFA target (calibration/decision.py)."""
+    those meeting the PFA target (calibration/decision.py). A stored acceptance limit (`accept_limit`, finite where
+    known) is the one the point was decided with, and is used as it is."""
     error, mpe, U, k = (np.asarray(a, dtype=float) for a in (error, mpe, U, k))
     rule = np.broadcast_to(np.asarray(rule, dtype=object), error.shape)
     pc = np.full(error.shape, np.nan)
@@ -181,12 +182,16 @@ def point_risks(error, mpe, U, k, rule, prior_mean, prior_sd, target=None):
     half = m.copy()
     guarded = rule[ok] == "guarded"
     half[guarded] = np.maximum(m[guarded] - U[ok][guarded], 0.0)
-    risk = rule[ok] == "risk"
+    stored = np.full(error.shape, np.nan) if accept_limit is None else np.asarray(accept_limit, dtype=float)
+    stored = stored[ok]
+    known = np.isfinite(stored)
+    risk = (rule[ok] == "risk") & ~known
     if risk.any():
         target = pfa_target() if target is None else target
         _, hi = conformity.acceptance_limits_for_pfa_array(mu[risk], sd[risk], u[risk], -m[risk], m[risk], target)
         half[risk] = hi if np.ndim(hi) else float(hi)
         # a prior off centre gives limits symmetric about the tolerance's middle: (lower + w, upper - w)
+    half[known] = stored[known]
     pfa[ok] = conformity.global_risks_array(mu, sd, u, -m, m, -half, half)["pfa"]
     return pc, pfa
 
@@ -220,7 +225,8 @@ def update_conformity(meters, events: pd.DataFrame, points: pd.DataFrame, last_e
                 prior_of[pk] = groups[key]
             priors = np.array([prior_of[pk] for pk in meter_ids.tolist()], dtype=float).reshape(len(meter_ids), 2)
             pc, pfa = point_risks(pts["error"], pts["mpe"], pts["expanded_uncertainty"], pts["coverage_factor"],
-                                  rules.reindex(pts["event_id"].to_numpy()).to_numpy(), priors[:, 0], priors[:, 1])
+                                  rules.reindex(pts["event_id"].to_numpy()).to_numpy(), priors[:, 0], priors[:, 1],
+                                  accept_limit=pts["acceptance_limit"].to_numpy())
             inside = np.abs(pts["error"].to_numpy()) <= pts["mpe"].to_numpy()
             frame = pd.DataFrame({"meter_id": meter_ids, "pfa": pfa, "pc": np.where(inside, pc, np.nan)})
             grouped = frame.groupby("meter_id").agg(pfa=("pfa", "max"), pc=("pc", "min"))
@@ -288,7 +294,8 @@ def event_conformity(points, rule: str, prior: Prior, target: float | None = Non
     mpe = np.array([num(p, "mpe") for p in points])
     U = np.array([num(p, "expanded_uncertainty") for p in points])
     k = np.array([num(p, "coverage_factor") for p in points])
-    pc, pfa = point_risks(error, mpe, U, k, rule, prior.mean, prior.sd, target=target)
+    pc, pfa = point_risks(error, mpe, U, k, rule, prior.mean, prior.sd, target=target,
+                          accept_limit=np.array([num(p, "acceptance_limit") for p in points]))
     rows, not_decided = [], []
     for p, c, f in zip(points, pc.tolist(), pfa.tolist()):
         rows.append({"kind": p["kind"], "nominal_pct": p["nominal_pct"], "p_c": None if c != c else c,

@@ -258,6 +258,7 @@ class CalibrationEvent(models.Model):
     class Rule(models.TextChoices):
         SIMPLE = "simple", "Simple acceptance (ILAC-G8, w = 0)"
         GUARDED = "guarded", "Guarded acceptance (ILAC-G8, w = U)"
+        RISK = "risk", "Risk-based acceptance (JCGM 106, PFA within the target)"
 
     meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="calibrations")
     # the position the device was installed at when calibrated (blank: calibrated on the bench as a spare)
@@ -589,6 +590,9 @@ class CalibrationPoint(models.Model):
     dof_effective = models.FloatField("effective degrees of freedom", null=True, blank=True,
                                       help_text="Welch–Satterthwaite; blank: infinite (no Type A component)")
     decision = models.CharField(max_length=20, blank=True)
+    # the |error| up to which the rule accepts (simple: MPE; guarded: MPE - U, at least 0; risk-based: the limit
+    # meeting the PFA target with the prior of like devices, JCGM 106 §8); blank on records computed before
+    acceptance_limit = models.FloatField("acceptance limit (±)", null=True, blank=True)
 
     objects = PointQuerySet.as_manager()
 
@@ -658,7 +662,28 @@ class CalibrationPoint(models.Model):
         else:
             self.expanded_uncertainty = 0.0
             self.coverage_factor, self.dof_effective = uncertainty.coverage_factor(float("inf")), None
-        self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
+        self.acceptance_limit = self.limit_for(meter, rule)
+        self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule,
+                                        accept_limit=self.acceptance_limit)
+
+    def limit_for(self, meter, rule):
+        """The acceptance limit of `rule` at this point (after error, MPE, U and k are computed). Risk-based: from
+        the stored prior of like devices and the PFA target (calibration.conformity.acceptance_limits_for_pfa)."""
+        if rule == CalibrationEvent.Rule.SIMPLE:
+            return self.mpe
+        if rule == CalibrationEvent.Rule.GUARDED:
+            return max(self.mpe - self.expanded_uncertainty, 0.0)
+        from calibration import conformity, conformity_fleet
+
+        if not self.expanded_uncertainty or not self.coverage_factor:
+            return self.mpe   # no uncertainty stated: the measurement is taken as exact (as the other rules do)
+        prior = getattr(meter, "_conformity_prior", None)
+        if prior is None:
+            prior = meter._conformity_prior = conformity_fleet.prior_for_meter(meter)
+        u = self.expanded_uncertainty / self.coverage_factor
+        _, upper = conformity.acceptance_limits_for_pfa(prior.mean * self.mpe, prior.sd * self.mpe, u, -self.mpe,
+                                                        self.mpe, conformity_fleet.pfa_target())
+        return min(max(upper, 0.0), self.mpe)
 
 
 class ErrorPrior(models.Model):

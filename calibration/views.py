@@ -98,8 +98,8 @@ def _result_rows(points, risks=None):
 def _conformity(event, points, content):
     """The calibration's conformity risk: as frozen at sign-off (content version 2), else computed now with the
     stored prior of like devices (a draft, or a record signed before risks were kept: the page says so)."""
-    now = conformity_fleet.event_conformity([signed_content.point_content(p) for p in points], event.decision_rule,
-                                            conformity_fleet.prior_for_meter(event.meter))
+    contents = [dict(signed_content.point_content(p), acceptance_limit=p.acceptance_limit) for p in points]
+    now = conformity_fleet.event_conformity(contents, event.decision_rule, conformity_fleet.prior_for_meter(event.meter))
     frozen = (content or {}).get("conformity")
     return now, frozen
 
@@ -120,8 +120,8 @@ def event_detail(request, pk, sign_error=None):
     left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
     return render(request, "calibration/event_detail.html", {
         "event": event,
-        "as_found_verdict": decision.verdict_text(event.as_found_in_tolerance, found),
-        "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance, left),
+        "as_found_verdict": decision.verdict_text_for(event.decision_rule, event.as_found_in_tolerance, found),
+        "as_left_verdict": decision.verdict_text_for(event.decision_rule, event.as_left_in_tolerance, left),
         "as_found": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_FOUND],
         "as_left": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_LEFT],
         "low_tur": any(warning for _, _, warning, _ in rows),
