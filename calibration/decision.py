@@ -134,12 +134,12 @@ def verdict_text_for(rule: str, in_tolerance: bool | None, decisions: Iterable[s
 
 
 def drift_status_given_verdict(status: str, last_as_found_in_tolerance: bool | None) -> str:
-    """The drift status a meter shows, given its last as-found verdict.
+    """The drift status a meter shows, given its last as-found condition.
 
-    A last as-found verdict that is not conforming makes the status "out_of_tolerance", whatever the
-    fitted trend says: under guarded acceptance a guard-band point (conditional pass) is not
-    conforming, and a fit against the mean guard band of the event need not see it. Under simple
-    acceptance the fit already reports any point beyond the MPE, so this changes nothing there.
+    The recompute passes the observed condition (every |E| <= MPE, observed_in_tolerance; issue 31): a last
+    as-found beyond the MPE makes the status "out_of_tolerance", whatever the fitted trend says. A point inside
+    the MPE that guarded or risk-based acceptance could not accept does not: its conformity is not decided,
+    which asks for a better reference, not a shorter interval.
     """
     if last_as_found_in_tolerance is False:
         return "out_of_tolerance"

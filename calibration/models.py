@@ -306,6 +306,11 @@ class CalibrationEvent(models.Model):
     signed_content = models.JSONField("content as signed", default=dict, blank=True, editable=False)
     as_found_in_tolerance = models.BooleanField(null=True)
     as_left_in_tolerance = models.BooleanField(null=True)
+    # the observed as-found condition, every |error| <= MPE whatever the rule (decision.observed_in_tolerance): what
+    # the interval methods and reliability statistics count (issue 31); blank on records loaded without it, which
+    # are counted by their verdict (observed_or_verdict)
+    as_found_observed_in_tolerance = models.BooleanField("as found within the MPE (observed)", null=True,
+                                                         editable=False)
     created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
                                    related_name="calibrations_entered")
     # the id a tablet gave the entry while offline; unique, so a repeated or interrupted send adds nothing twice
@@ -500,6 +505,9 @@ class CalibrationEvent(models.Model):
         as_left = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_LEFT)] or as_found
         self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
         self.as_left_in_tolerance = decision.verdict_in_tolerance(as_left) if as_left else None
+        found_points = self.points_of(CalibrationPoint.Kind.AS_FOUND)
+        self.as_found_observed_in_tolerance = decision.observed_in_tolerance([p.error for p in found_points],
+                                                                             [p.mpe for p in found_points])
 
     #: How long a sign-off keeps retrying while SQLite reports the database locked by another writer.
     SIGN_RETRY_SECONDS = 20.0
@@ -684,6 +692,14 @@ class CalibrationPoint(models.Model):
         _, upper = conformity.acceptance_limits_for_pfa(prior.mean * self.mpe, prior.sd * self.mpe, u, -self.mpe,
                                                         self.mpe, conformity_fleet.pfa_target())
         return min(max(upper, 0.0), self.mpe)
+
+
+def observed_or_verdict():
+    """The observed as-found condition of an event for queries: the stored observation, else (a record loaded
+    without it) the verdict, which is the same under simple acceptance."""
+    from django.db.models.functions import Coalesce
+
+    return Coalesce("as_found_observed_in_tolerance", "as_found_in_tolerance")
 
 
 class ErrorPrior(models.Model):

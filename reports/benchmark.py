@@ -17,7 +17,6 @@ from django.test.utils import CaptureQueriesContext
 
 from calibration import decision as decision_rules
 from calibration import drift, fleet, intervals
-from calibration.models import CalibrationEvent
 from plant import risk
 
 
@@ -42,8 +41,8 @@ def _naive_observations(events):
     pairs = []
     for previous, current in zip(ordered, ordered[1:]):
         elapsed = (current.performed_on - previous.performed_on).days
-        if elapsed > 0 and current.as_found_in_tolerance is not None:
-            pairs.append((elapsed, bool(current.as_found_in_tolerance)))
+        if elapsed > 0 and current.observed_in_tolerance is not None:
+            pairs.append((elapsed, bool(current.observed_in_tolerance)))
     return pairs
 
 
@@ -61,26 +60,23 @@ def naive_recompute(meters_qs=None, progress=None):
             ordered = sorted(events.itertuples(), key=lambda e: (e.performed_on, e.id))
             last_row = ordered[-1]
             last = last_row.performed_on
-            guarded = last_row.decision_rule == CalibrationEvent.Rule.GUARDED
-            last_points = points[points["event_id"] == last_row.id]
-            guard = float(last_points["expanded_uncertainty"].fillna(0).mean()) if guarded and not last_points.empty else 0.0
-            guard = min(guard, 0.9 * meter.mpe_value)
-            best, worst_rate, statuses = _naive_crossings(fleet.point_histories(events, points), meter.mpe_value, guard)
+            # the crossing against the MPE whatever the rule (issue 31: the due date counts |E| <= MPE)
+            best, worst_rate, statuses = _naive_crossings(fleet.point_histories(events, points), meter.mpe_value, 0.0)
             crossing, crossing_reason = None, ""
             if best is not None:
                 crossing = dt.date.fromordinal(int(math.floor(best[1].day)))
-                crossing_reason = f"drift at {best[0]:g} % of range{' (guard band U)' if guarded else ''}:"
+                crossing_reason = f"drift at {best[0]:g} % of range:"
             pairs = _naive_observations(events)
             method = intervals.interval_by_method(cfg["interval_method"], meter.base_interval_days,
                                                   [p[0] for p in pairs], [p[1] for p in pairs],
                                                   **fleet.method_settings(cfg))
             meter.drift_status = fleet.summarise_status(statuses)
-            decision, _ = fleet.decide(meter, last, fleet.found_out(last_row.as_found_in_tolerance), crossing,
+            decision, _ = fleet.decide(meter, last, fleet.found_out(last_row.observed_in_tolerance), crossing,
                                        crossing_reason, method, cfg, crossing_kind=meter.drift_status)
             meter.last_calibrated = last
             meter.next_due_date = decision.due
             meter.drift_status = decision_rules.drift_status_given_verdict(
-                meter.drift_status, fleet.stored_verdict(last_row.as_found_in_tolerance))
+                meter.drift_status, fleet.stored_verdict(last_row.observed_in_tolerance))
             meter.due_rationale = {**decision.rationale(), "drift_point_pct": float(best[0]) if best else None,
                                    "drift_status": meter.drift_status}
             meter.drift_rate_per_year = worst_rate * 365.25 if worst_rate is not None else None
