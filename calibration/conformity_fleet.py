@@ -46,8 +46,10 @@ class Prior:
         if self.scope == "default":
             return (f"stated default (mean {self.mean:+.2f} MPE, SD {self.sd:.2f} MPE): fewer than "
                     f"{conformity.PRIOR_MIN_COUNT} as-found errors of like devices")
-        group = f"{self.principle} on {self.fluid}" if self.scope == "principle and fluid" else f"{self.principle}, any fluid"
-        return f"as-found errors of like devices ({group}): mean {self.mean:+.2f} MPE, SD {self.sd:.2f} MPE, n = {self.count}"
+        group = (f"{self.principle} on {self.fluid}" if self.scope == "principle and fluid"
+                 else f"{self.principle}, any fluid")
+        return (f"as-found errors of like devices ({group}): mean {self.mean:+.2f} MPE, SD {self.sd:.2f} MPE, "
+                f"n = {self.count}")
 
     def as_dict(self) -> dict:
         return {"mean": self.mean, "sd": self.sd, "count": self.count, "scope": self.scope,
@@ -303,7 +305,8 @@ def event_conformity(points, rule: str, prior: Prior, target: float | None = Non
         inside = p.get("error") is not None and p.get("mpe") is not None and abs(p["error"]) <= p["mpe"]
         if inside and p.get("decision") not in ("pass", ""):
             label = "as found" if p["kind"] == "as_found" else "as left"
-            not_decided.append(f"{label} at {p['nominal_pct']:g} % ({_tur_text(p['mpe'], p.get('expanded_uncertainty'))})")
+            tur = _tur_text(p["mpe"], p.get("expanded_uncertainty"))
+            not_decided.append(f"{label} at {p['nominal_pct']:g} % ({tur})")
     known = [f for f in pfa.tolist() if f == f]
     worst = max(known) if known else None
     statement = ""

@@ -99,7 +99,8 @@ def _conformity(event, points, content):
     """The calibration's conformity risk: as frozen at sign-off (content version 2), else computed now with the
     stored prior of like devices (a draft, or a record signed before risks were kept: the page says so)."""
     contents = [dict(signed_content.point_content(p), acceptance_limit=p.acceptance_limit) for p in points]
-    now = conformity_fleet.event_conformity(contents, event.decision_rule, conformity_fleet.prior_for_meter(event.meter))
+    prior = conformity_fleet.prior_for_meter(event.meter)
+    now = conformity_fleet.event_conformity(contents, event.decision_rule, prior)
     frozen = (content or {}).get("conformity")
     return now, frozen
 

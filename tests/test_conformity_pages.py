@@ -28,7 +28,8 @@ def test_signed_content_version_2_keeps_p_c_pfa_and_the_prior(client, meter, sta
     risks = content["conformity"]
     # no fleet recompute has stored a prior of like devices: the stated default, in MPE units
     assert risks["prior"]["scope"] == "default"
-    assert (risks["prior"]["mean"], risks["prior"]["sd"]) == (conformity.DEFAULT_PRIOR_MEAN, conformity.DEFAULT_PRIOR_SD)
+    assert (risks["prior"]["mean"], risks["prior"]["sd"]) == (conformity.DEFAULT_PRIOR_MEAN,
+                                                              conformity.DEFAULT_PRIOR_SD)
     assert risks["target_pfa"] == 0.02
     by_nominal = {p["nominal_pct"]: p for p in content["points"]["as_found"]}
     pfas = []
