@@ -105,6 +105,27 @@ def timed(function, repeat=1):
     return statistics.median(times), result
 
 
+def timed_with_part(function, module, name, repeat=1):
+    """(median seconds of `function`, median seconds spent in `module.name` during those runs): the part is timed
+    from inside the same runs (the attribute is wrapped for the duration), so the two figures are comparable."""
+    original = getattr(module, name)
+    spent = []
+
+    def wrapped(*args, **kwargs):
+        started = time.perf_counter()
+        try:
+            return original(*args, **kwargs)
+        finally:
+            spent.append(time.perf_counter() - started)
+
+    setattr(module, name, wrapped)
+    try:
+        total, _ = timed(function, repeat=repeat)
+    finally:
+        setattr(module, name, original)
+    return total, (statistics.median(spent) if spent else 0.0)
+
+
 def page(client, url, repeat=5):
     """(median server seconds, query count of the last run, status) for one GET through the whole stack."""
     client.get(url)  # warm: templates compiled, connection open

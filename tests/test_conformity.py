@@ -221,3 +221,30 @@ def test_acceptance_limits_refuse_bad_target(target):
         c.acceptance_limits_for_pfa(0.0, 0.5, 0.1, -1.0, 1.0, target)
     with pytest.raises(ValueError, match="target_pfa"):
         c.acceptance_limits_for_pfa_array(0.0, 0.5, 0.1, -1.0, 1.0, target)
+
+
+# The prior of like devices (JCGM 106 §9.2) ------------------------------------------------------------
+def test_fit_normal_against_the_statistics_module():
+    import statistics
+
+    values = [0.12, -0.3, 0.05, 0.41, -0.07, 0.0, 0.22]
+    mean, sd, count = c.fit_normal(values + [float("nan")])   # a NaN is left out
+    assert (mean, count) == (pytest.approx(statistics.fmean(values), abs=1e-15), 7)
+    assert sd == pytest.approx(statistics.stdev(values), rel=1e-12)   # n - 1
+    with pytest.raises(ValueError, match="values"):
+        c.fit_normal([0.1])
+
+
+def test_choose_prior_falls_back_from_fluid_to_principle_to_the_default():
+    enough, few = c.PRIOR_MIN_COUNT, c.PRIOR_MIN_COUNT - 1
+    fits = {("vortex", 3): (0.1, 0.3, enough), ("vortex", None): (0.0, 0.4, 200),
+            ("turbine", 5): (0.2, 0.2, few), ("turbine", None): (0.05, 0.45, few)}
+    assert c.choose_prior(fits, "vortex", 3) == (0.1, 0.3, enough, "principle and fluid")
+    assert c.choose_prior(fits, "vortex", 9) == (0.0, 0.4, 200, "principle")
+    assert c.choose_prior(fits, "vortex", None) == (0.0, 0.4, 200, "principle")
+    assert c.choose_prior(fits, "turbine", 5) == (c.DEFAULT_PRIOR_MEAN, c.DEFAULT_PRIOR_SD, 0, "default")
+    assert c.choose_prior({}, "coriolis", 1)[3] == "default"
+    # the stated default: about 95 % of like devices within the MPE (2 Phi(2) - 1 = 95.45 %)
+    inside = stats.norm.cdf(1, c.DEFAULT_PRIOR_MEAN, c.DEFAULT_PRIOR_SD) - stats.norm.cdf(-1, c.DEFAULT_PRIOR_MEAN,
+                                                                                         c.DEFAULT_PRIOR_SD)
+    assert inside == pytest.approx(0.9545, abs=1e-4)
