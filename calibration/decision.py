@@ -20,6 +20,19 @@ coverage, normal distribution) a measured |E| = MPE - U leaves a risk of about 2
 true error is beyond the MPE (ILAC-G8:09/2019 §4.2.2, figure quoted from memory); inside the
 guard band that risk grows to about 50 % at |E| = MPE.
 
+* ``"risk"``    - risk-based acceptance (JCGM 106:2012 §8-§9; issue 31): the acceptance limit A of each point is the
+  one that keeps the global probability of false accept at or below the PFA target (setting QUENBY_PFA_TARGET,
+  2 % by default, ANSI/NCSL Z540.3 §5.3 b), given the prior of like devices and the point's U / k
+  (calibration.conformity.acceptance_limits_for_pfa; 0 <= A <= MPE):
+  |E| <= A                  -> "pass"
+  A < |E| <= MPE            -> "conditional pass"   (inside the MPE, not accepted: conformity not decided)
+  |E| > MPE                 -> "fail"
+
+Which in/out each consumer uses (issue 31): the statement of conformity (the stored verdicts, the certificate)
+uses the rule; the interval methods and the reliability statistics count the observed as-found condition,
+|E| <= MPE (``observed_in_tolerance``; NCSL RP-1 counts observed reliability), so a point inside the MPE that a
+weak reference could not accept prompts a better reference, not a shorter interval.
+
 error, mpe and U must be on the same basis (use calibration.errors.to_error_units).
 
 Limits are compared with a tolerance (LIMIT_TOLERANCE, see at_limit): an error that lies on a
@@ -35,14 +48,15 @@ PASS = "pass"
 CONDITIONAL_PASS = "conditional pass"
 CONDITIONAL_FAIL = "conditional fail"
 FAIL = "fail"
-RULES = ("simple", "guarded")
+RULES = ("simple", "guarded", "risk")
 # decisions that show conformity; a conditional pass (guard band) does not
 IN_TOLERANCE = frozenset({PASS})
 LIMIT_DECIMALS = 9
 
 
-def decide(error: float, mpe: float, U: float, rule: str) -> str:
-    """Return "pass", "conditional pass", "conditional fail" or "fail" (ILAC-G8:09/2019)."""
+def decide(error: float, mpe: float, U: float, rule: str, accept_limit: float | None = None) -> str:
+    """Return "pass", "conditional pass", "conditional fail" or "fail" (ILAC-G8:09/2019; "risk": JCGM 106, with
+    the point's acceptance limit `accept_limit`, 0 <= accept_limit <= mpe)."""
     if rule not in RULES:
         raise ValueError(f"unknown decision rule {rule!r}; expected one of {RULES}")
     for name, v in (("error", error), ("mpe", mpe), ("U", U)):
@@ -52,6 +66,15 @@ def decide(error: float, mpe: float, U: float, rule: str) -> str:
         raise ValueError("mpe must be > 0")
     if U < 0:
         raise ValueError("U must be >= 0")
+    if rule == "risk":
+        if accept_limit is None or not math.isfinite(float(accept_limit)):
+            raise ValueError(f"accept_limit must be a finite number for the risk-based rule, got {accept_limit!r}")
+        if not 0 <= accept_limit <= mpe * (1 + LIMIT_TOLERANCE):
+            raise ValueError(f"accept_limit must lie between 0 and the MPE, got {accept_limit!r}")
+        e = at_limit(abs(error), (accept_limit, mpe))
+        if e <= accept_limit:
+            return PASS
+        return CONDITIONAL_PASS if e <= mpe else FAIL
     e = at_limit(abs(error), (mpe - U, mpe, mpe + U))
     if rule == "simple":
         return PASS if e <= mpe else FAIL
@@ -64,6 +87,15 @@ def decide(error: float, mpe: float, U: float, rule: str) -> str:
     if e < mpe + U:
         return CONDITIONAL_FAIL
     return FAIL
+
+
+def observed_in_tolerance(errors: Iterable[float], mpes: Iterable[float]) -> bool | None:
+    """The observed condition: every |E| <= MPE (at_limit tolerance), whatever the rule; None without points.
+    What the interval methods and reliability statistics count (NCSL RP-1: observed in-tolerance)."""
+    pairs = [(e, m) for e, m in zip(errors, mpes) if e is not None and m is not None]
+    if not pairs:
+        return None
+    return all(at_limit(abs(e), (m,)) <= m for e, m in pairs)
 
 
 def verdict_in_tolerance(decisions: Iterable[str]) -> bool:
@@ -102,13 +134,22 @@ def verdict_text(in_tolerance: bool | None, decisions: Iterable[str] = ()) -> st
     return "not conforming (guard band)" if guard_band_only(decisions) else "out of tolerance"
 
 
-def drift_status_given_verdict(status: str, last_as_found_in_tolerance: bool | None) -> str:
-    """The drift status a meter shows, given its last as-found verdict.
+def verdict_text_for(rule: str, in_tolerance: bool | None, decisions: Iterable[str] = ()) -> str:
+    """verdict_text, with the risk-based rule's wording: points inside the MPE that it could not accept leave
+    conformity "not decided", not "not conforming"."""
+    decisions = list(decisions)
+    if rule == "risk" and in_tolerance is False and guard_band_only(decisions):
+        return "conformity not decided (measurement too uncertain for the PFA target)"
+    return verdict_text(in_tolerance, decisions)
 
-    A last as-found verdict that is not conforming makes the status "out_of_tolerance", whatever the
-    fitted trend says: under guarded acceptance a guard-band point (conditional pass) is not
-    conforming, and a fit against the mean guard band of the event need not see it. Under simple
-    acceptance the fit already reports any point beyond the MPE, so this changes nothing there.
+
+def drift_status_given_verdict(status: str, last_as_found_in_tolerance: bool | None) -> str:
+    """The drift status a meter shows, given its last as-found condition.
+
+    The recompute passes the observed condition (every |E| <= MPE, observed_in_tolerance; issue 31): a last
+    as-found beyond the MPE makes the status "out_of_tolerance", whatever the fitted trend says. A point inside
+    the MPE that guarded or risk-based acceptance could not accept does not: its conformity is not decided,
+    which asks for a better reference, not a shorter interval.
     """
     if status not in DRIFT_STATUSES:
         raise ValueError(f"status must be one of {DRIFT_STATUSES}, not {status!r}")

@@ -18,12 +18,11 @@ import numpy as np
 import pandas as pd
 from django.conf import settings
 from django.db import connections, transaction
-from django.db.models import Avg, Case, Q, Value, When
-from django.db.models.functions import Coalesce
+from django.db.models import Case, Q, Value, When
 
 from calibration import decision as decision_rules
 from calibration import drift, drift_fleet, due, intervals
-from calibration.models import CalibrationEvent, CalibrationPoint, in_force
+from calibration.models import CalibrationEvent, CalibrationPoint, in_force, observed_or_verdict
 from plant import risk
 from plant.models import Fluid, Meter
 
@@ -46,8 +45,11 @@ def load_history(meters_qs):
     """Signed, not superseded events and their points for the meters, as two DataFrames."""
     events = pd.DataFrame.from_records(
         CalibrationEvent.objects.filter(in_force(), meter__in=meters_qs, state=CalibrationEvent.State.SIGNED)
-        .values("id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"),
-        columns=["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"],
+        .annotate(observed_in_tolerance=observed_or_verdict())
+        .values("id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
+                "observed_in_tolerance"),
+        columns=["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
+                 "observed_in_tolerance"],
     )
     points = pd.DataFrame.from_records(
         CalibrationPoint.objects.filter(in_force("event"), event__meter__in=meters_qs,
@@ -116,15 +118,22 @@ def _flag(values: pd.Series) -> pd.Series:
 
 def signed_events(where: Q | None = None):
     """Signed, not superseded events (optionally narrowed by `where`): id, meter_id, day (ordinal),
-    adjusted, decision_rule, as_found_in_tolerance."""
+    adjusted, decision_rule, as_found_in_tolerance (the rule's verdict) and observed_in_tolerance (|E| <= MPE,
+    what the interval methods count; issue 31)."""
     qs = CalibrationEvent.objects.filter(in_force(), state=CalibrationEvent.State.SIGNED)
     if where is not None:
         qs = qs.filter(where)
-    columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance"]
+    qs = qs.annotate(observed_in_tolerance=observed_or_verdict())
+    columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
+               "observed_in_tolerance"]
     events = _frame(qs.order_by(), columns)
     events["day"] = _ordinal_days(events["performed_on"])
     events["adjusted"] = events["adjusted"].astype(bool)
     events["as_found_in_tolerance"] = _flag(events["as_found_in_tolerance"])
+    # a COALESCE has no declared type: SQLite hands back 0/1 integers, NULL as None
+    observed = pd.to_numeric(events["observed_in_tolerance"], errors="coerce").to_numpy(dtype=float)
+    events["observed_in_tolerance"] = pd.Series([None if v != v else v != 0 for v in observed.tolist()],
+                                                index=events.index, dtype=object)
     return events.drop(columns="performed_on")
 
 
@@ -140,23 +149,14 @@ def recorded_points(where: Q | None = None):
     return points.astype({"id": np.int64, "event_id": np.int64, "as_left": np.int8})
 
 
-def guard_uncertainty(where: Q | None = None) -> pd.Series:
-    """Mean expanded uncertainty of the points of each signed, guarded-acceptance event (event_id -> U)."""
-    qs = CalibrationPoint.objects.filter(event__state=CalibrationEvent.State.SIGNED,
-                                         event__decision_rule=CalibrationEvent.Rule.GUARDED)
-    if where is not None:
-        qs = qs.filter(where)
-    rows = qs.order_by().values_list("event_id").annotate(U=Avg(Coalesce("expanded_uncertainty", Value(0.0))))
-    return pd.Series(dict(rows), dtype=float)
-
-
 def interval_observations(events: pd.DataFrame):
-    """(days since previous calibration, as-found in tolerance) per event after each meter's first."""
+    """(days since previous calibration, as-found condition observed) per event after each meter's first: the
+    interval methods count |E| <= MPE, not the rule's verdict (issue 31; NCSL RP-1 observed reliability)."""
     if events.empty:
         return events.assign(elapsed=pd.Series(dtype=float))
     ordered = events.sort_values(["meter_id", "day", "id"], kind="stable")
     elapsed = ordered.groupby("meter_id")["day"].diff()
-    observed = ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "as_found_in_tolerance"])
+    observed = ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "observed_in_tolerance"])
     # a second calibration on the same day is a repeat, not an interval
     return observed[observed["elapsed"] > 0]
 
@@ -165,7 +165,7 @@ def interval_observations(events: pd.DataFrame):
 def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -> pd.DataFrame:
     """Per meter: earliest crossing (day and nominal point), the drift rate shown and status.
 
-    limits: MPE minus guard band per meter_id. Ties go to the lower nominal point, as on the meter page.
+    limits: the MPE per meter_id (whatever the decision rule, issue 31). Ties go to the lower nominal point, as on the meter page.
     The point shown (shown_nominal; its rate rate_slope, rate_se: slope and standard uncertainty, per day) is
     the crossing's; with no crossing, the "scatter" point with the largest residual SD; else the point of the
     worst significant slope (worst_slope). scatter_sd: the largest residual SD among the meter's "scatter"
@@ -268,7 +268,7 @@ def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     ordered = meter_obs.sort_values(["meter_id", "day", "id"], kind="stable")
     meter_ids = ordered["meter_id"].to_numpy()
     elapsed = ordered["elapsed"].to_numpy(dtype=float)
-    in_tol = ordered["as_found_in_tolerance"].astype(bool).to_numpy()
+    in_tol = ordered["observed_in_tolerance"].astype(bool).to_numpy()
     starts = np.flatnonzero(np.r_[True, meter_ids[1:] != meter_ids[:-1]]) if meter_ids.size else np.empty(0, int)
     bounds = np.r_[starts, meter_ids.size]
     counts = np.diff(bounds)
@@ -339,19 +339,17 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     by_meter = {m.pk: m for m in meters}
     obs = interval_observations(events)
 
-    # guard band of the last calibration when it was judged by guarded acceptance (w = U)
     last_events = events.sort_values(["meter_id", "day", "id"], kind="stable").drop_duplicates("meter_id", keep="last")
     last_events = last_events.set_index("meter_id")
-    mean_u = guard_uncertainty(None if whole_fleet else Q(event__meter__in=chosen_ids))
-    guarded = last_events["decision_rule"] == CalibrationEvent.Rule.GUARDED
-    guard = pd.Series(np.where(guarded, last_events["id"].map(mean_u).fillna(0.0), 0.0), index=last_events.index)
+    # the drift crossing is predicted against the MPE, whatever the rule: the due date counts the observed
+    # condition |E| <= MPE (issue 31), not the guard band of a rule
     mpe = pd.Series({pk: m.mpe_value for pk, m in by_meter.items()})
-    guard = np.minimum(guard, 0.9 * mpe.reindex(guard.index))
-    drift_summary = meter_drift(events, points, mpe.reindex(guard.index) - guard)
+    drift_summary = meter_drift(events, points, mpe.reindex(last_events.index))
 
     methods = method_by_meter(obs, {pk: m.base_interval_days for pk, m in by_meter.items()}, cfg)
 
-    last_by_meter = last_events[["id", "day", "decision_rule", "as_found_in_tolerance"]].to_dict("index")
+    last_by_meter = last_events[["id", "day", "decision_rule", "as_found_in_tolerance",
+                                 "observed_in_tolerance"]].to_dict("index")
     drift_by_meter = drift_summary.to_dict("index")
     for meter in meters:
         if meter.pk not in last_by_meter:
@@ -361,6 +359,10 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
         if progress:
             progress(1)
     write_due_fields(meters, batch_size=batch_size)
+    # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
+    from calibration.conformity_fleet import update_conformity
+
+    update_conformity(meters, events, points, last_events, whole_fleet)
     return len(meters)
 
 
@@ -421,7 +423,6 @@ def scatter_words(sd, mpe) -> str:
 
 def _assess(meter, last_event, summary, method, cfg):
     last = dt.date.fromordinal(int(last_event["day"]))
-    guarded = last_event["decision_rule"] == CalibrationEvent.Rule.GUARDED
     crossing = nominal = None
     crossing_reason = scatter_reason = ""
     rate = rate_se = shown = None
@@ -434,17 +435,18 @@ def _assess(meter, last_event, summary, method, cfg):
         if not pd.isna(summary["crossing_day"]):
             nominal = float(summary["crossing_nominal"])
             crossing = crossing_date(summary["crossing_day"], last)
-            crossing_reason = (f"{drift.bound_name(rate)} at {nominal:g} % of range"
-                               f"{' (guard band U)' if guarded else ''}, {drift_rate_words(rate, rate_se)}:")
+            crossing_reason = f"{drift.bound_name(rate)} at {nominal:g} % of range, {drift_rate_words(rate, rate_se)}:"
         if status == "scatter" and not pd.isna(summary["scatter_sd"]):
             scatter_reason = scatter_words(float(summary["scatter_sd"]), meter.mpe_value)
-    decision, findings = decide(meter, last, found_out(last_event["as_found_in_tolerance"]), crossing,
+    # the due date and the drift status count the observed condition (|E| <= MPE); the stored verdict is the rule's
+    # (issue 31: a point inside the MPE that a weak reference could not accept does not shorten the interval)
+    observed = last_event["observed_in_tolerance"]
+    decision, findings = decide(meter, last, found_out(observed), crossing,
                                 crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason)
     meter.risk_severity = risk.worst_severity(findings)
     meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
-    # a last as-found that is not conforming (under guarded acceptance, a guard-band point too) shows as
-    # "last found out of tolerance", whatever the fitted trend says
-    status = decision_rules.drift_status_given_verdict(status, meter.last_in_tolerance)
+    # a last as-found beyond the MPE shows as "last found out of tolerance", whatever the fitted trend says
+    status = decision_rules.drift_status_given_verdict(status, stored_verdict(observed))
     meter.last_calibrated = last
     meter.next_due_date = decision.due
     meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_chart_pct": shown,

@@ -481,8 +481,11 @@ class CalibrationEntry:
                 self.event_form.add_error(
                     "decision_rule",
                     f"The test uncertainty ratio is below {uncertainty.TUR_WARNING:g}:1 at {where}: the "
-                    "decision-rule policy requires guarded acceptance (ILAC-G8, w = U) then. Choose guarded "
-                    "acceptance, or use a better reference standard.")
+                    + ("decision-rule policy requires risk-based acceptance (JCGM 106, PFA within the target) then. "
+                       "Choose risk-based acceptance, or use a better reference standard."
+                       if self.low_tur_policy == "require_risk" else
+                       "decision-rule policy requires guarded acceptance (ILAC-G8, w = U) then. Choose guarded "
+                       "acceptance, or use a better reference standard."))
         return not (self.non_field_errors or self.event_form.errors or any(f.errors for f in self.as_found.kept_forms())
                     or any(f.errors for f in self.as_left.kept_forms()))
 

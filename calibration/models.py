@@ -299,6 +299,7 @@ class CalibrationEvent(models.Model):
     class Rule(models.TextChoices):
         SIMPLE = "simple", "Simple acceptance (ILAC-G8, w = 0)"
         GUARDED = "guarded", "Guarded acceptance (ILAC-G8, w = U)"
+        RISK = "risk", "Risk-based acceptance (JCGM 106, PFA within the target)"
 
     meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="calibrations")
     # the position the device was installed at when calibrated (blank: calibrated on the bench as a spare)
@@ -350,6 +351,11 @@ class CalibrationEvent(models.Model):
     signed_content = models.JSONField("content as signed", default=dict, blank=True, editable=False)
     as_found_in_tolerance = models.BooleanField(null=True)
     as_left_in_tolerance = models.BooleanField(null=True)
+    # the observed as-found condition, every |error| <= MPE whatever the rule (decision.observed_in_tolerance): what
+    # the interval methods and reliability statistics count (issue 31); blank on records loaded without it, which
+    # are counted by their verdict (observed_or_verdict)
+    as_found_observed_in_tolerance = models.BooleanField("as found within the MPE (observed)", null=True,
+                                                         editable=False)
     created_by = models.ForeignKey(settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.PROTECT,
                                    related_name="calibrations_entered")
     # the id a tablet gave the entry while offline; unique, so a repeated or interrupted send adds nothing twice
@@ -575,6 +581,9 @@ class CalibrationEvent(models.Model):
         as_left = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_LEFT)] or as_found
         self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
         self.as_left_in_tolerance = decision.verdict_in_tolerance(as_left) if as_left else None
+        found_points = self.points_of(CalibrationPoint.Kind.AS_FOUND)
+        self.as_found_observed_in_tolerance = decision.observed_in_tolerance([p.error for p in found_points],
+                                                                             [p.mpe for p in found_points])
 
     #: How long a sign-off keeps retrying while SQLite reports the database locked by another writer.
     SIGN_RETRY_SECONDS = 20.0
@@ -667,6 +676,9 @@ class CalibrationPoint(models.Model):
     dof_effective = models.FloatField("effective degrees of freedom", null=True, blank=True,
                                       help_text="Welch–Satterthwaite; blank: infinite (no Type A component)")
     decision = models.CharField(max_length=20, blank=True)
+    # the |error| up to which the rule accepts (simple: MPE; guarded: MPE - U, at least 0; risk-based: the limit
+    # meeting the PFA target with the prior of like devices, JCGM 106 §8); blank on records computed before
+    acceptance_limit = models.FloatField("acceptance limit (±)", null=True, blank=True)
 
     objects = PointQuerySet.as_manager()
 
@@ -739,7 +751,57 @@ class CalibrationPoint(models.Model):
         self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)
         self.coverage_factor = budget.k
         self.dof_effective = budget.nu_eff if budget.nu_eff != float("inf") else None
-        self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule)
+        self.acceptance_limit = self.limit_for(meter, rule)
+        self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule,
+                                        accept_limit=self.acceptance_limit)
+
+    def limit_for(self, meter, rule):
+        """The acceptance limit of `rule` at this point (after error, MPE, U and k are computed). Risk-based: from
+        the stored prior of like devices and the PFA target (calibration.conformity.acceptance_limits_for_pfa)."""
+        if rule == CalibrationEvent.Rule.SIMPLE:
+            return self.mpe
+        if rule == CalibrationEvent.Rule.GUARDED:
+            return max(self.mpe - self.expanded_uncertainty, 0.0)
+        from calibration import conformity, conformity_fleet
+
+        if not self.expanded_uncertainty or not self.coverage_factor:
+            return self.mpe   # no uncertainty stated: the measurement is taken as exact (as the other rules do)
+        prior = getattr(meter, "_conformity_prior", None)
+        if prior is None:
+            prior = meter._conformity_prior = conformity_fleet.prior_for_meter(meter)
+        u = self.expanded_uncertainty / self.coverage_factor
+        _, upper = conformity.acceptance_limits_for_pfa(prior.mean * self.mpe, prior.sd * self.mpe, u, -self.mpe,
+                                                        self.mpe, conformity_fleet.pfa_target())
+        return min(max(upper, 0.0), self.mpe)
+
+
+def observed_or_verdict():
+    """The observed as-found condition of an event for queries: the stored observation, else (a record loaded
+    without it) the verdict, which is the same under simple acceptance."""
+    from django.db.models.functions import Coalesce
+
+    return Coalesce("as_found_observed_in_tolerance", "as_found_in_tolerance")
+
+
+class ErrorPrior(models.Model):
+    """The prior of the true error of like devices (JCGM 106 §9.2): a normal fitted to the as-found errors of the
+    signed calibrations in force of the devices of one principle (fluid blank) or of one principle on one fluid,
+    in MPE units (error / MPE). Kept by the whole-fleet recompute (calibration/conformity_fleet.py), so pages and
+    single-device recomputes read it without scanning the history."""
+
+    principle = models.CharField(max_length=30)
+    fluid = models.ForeignKey("plant.Fluid", null=True, blank=True, on_delete=models.CASCADE, related_name="+")
+    mean = models.FloatField("mean (MPE units)")
+    sd = models.FloatField("standard deviation (MPE units)")
+    count = models.PositiveIntegerField("as-found errors fitted")
+    computed_at = models.DateTimeField()
+
+    class Meta:
+        ordering = ["principle", "fluid"]
+        indexes = [models.Index(fields=["principle", "fluid"], name="error_prior_group_idx")]
+
+    def __str__(self):
+        return f"{self.principle} / {self.fluid_id or 'any fluid'}: {self.mean:+.3f} ± {self.sd:.3f} MPE (n={self.count})"
 
 
 def past_repeatability(meter, reference_value):

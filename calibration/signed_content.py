@@ -25,7 +25,11 @@ from django.utils import timezone
 
 from calibration import decision, uncertainty, units
 
-VERSION = 1
+#: 1: the content as first kept; 2: adds "conformity" (issue 31: per point p_c and PFA, the calibration's PFA of the
+#: rule applied, the prior used and the PFA target, as they stood at sign-off). Content rebuilt from the audit trail
+#: for a record signed before sign-off kept it is version 1: the prior of that time was never kept, so it states none.
+VERSION = 2
+VERSION_WITHOUT_CONFORMITY = 1
 
 SIGNED = "signed"
 AS_FOUND, AS_LEFT = "as_found", "as_left"
@@ -162,7 +166,13 @@ def statements(rule, mpe_value, unit, points) -> dict:
     guarded = rule == "guarded"
     notes = conformity_notes(points)
     spec = f"± {mpe_value:.6g} {unit}"
-    if guarded:
+    if rule == "risk":
+        rule_text = (f"The error at each point is compared with the specification {spec}, with an acceptance limit "
+                     "set so that the probability of false accept stays within the target given the prior of like "
+                     "devices and the point's uncertainty (risk-based acceptance, JCGM 106:2012 §8-§9; target and "
+                     "prior stated below). The item is in tolerance when every point passes; a point within the MPE "
+                     "but beyond its acceptance limit leaves conformity not decided.")
+    elif guarded:
         rule_text = (f"The error at each point is compared with the specification {spec}, with a guard band equal "
                      "to the expanded uncertainty U of the point: a point passes when its error is within the MPE "
                      "reduced by U. The item is in tolerance when every point passes; a point in the guard band "
@@ -172,7 +182,12 @@ def statements(rule, mpe_value, unit, points) -> dict:
                      "uncertainty is reported but not deducted (guard band w = 0). The item is in tolerance when "
                      "every point passes.")
     out = {"rule": rule_text, "guard_band": "", "u_above_mpe": "", "conditional_fail": "", "low_tur": ""}
-    if notes["guard_band"]:
+    if notes["guard_band"] and rule == "risk":
+        out["guard_band"] = (
+            f"Conformity not decided ({notes['guard_band']}): the measured error is within the MPE but beyond the "
+            "acceptance limit that keeps the probability of false accept within the target; a calibration with a "
+            "smaller uncertainty would decide it.")
+    elif notes["guard_band"]:
         out["guard_band"] = (
             f"Guard band ({notes['guard_band']}): the measured error is within the MPE but less than U from it "
             "(conditional pass). With U at k = 2, a coverage probability of about 95 % for a normal distribution, the "
@@ -191,7 +206,9 @@ def statements(rule, mpe_value, unit, points) -> dict:
             "as out of tolerance (ILAC-G8:09/2019).")
     if any(p["low_tur"] for p in points):
         limit = f"{uncertainty.TUR_WARNING:.6g}"
-        applied = "guarded acceptance (w = U) was applied" if guarded else "simple acceptance was applied"
+        applied = ("guarded acceptance (w = U) was applied" if guarded else
+                   "risk-based acceptance (PFA within the target) was applied" if rule == "risk" else
+                   "simple acceptance was applied")
         out["low_tur"] = (
             f"Test uncertainty ratio below {limit}:1 at the points marked “below {limit}:1”: the uncertainty of the "
             f"calibration is large against the tolerance there, so the risk of a false accept is higher; {applied}.")
@@ -235,10 +252,11 @@ def drift_rows(Event, Point, event, own_points) -> list:
 
 # The content ------------------------------------------------------------------------------------------------
 def build(event, *, points, device, position, area, site, fluid, standards, history, lab, product,
-          supersedes=None, how=AT_SIGN_OFF, from_current_register=()) -> dict:
+          supersedes=None, how=AT_SIGN_OFF, from_current_register=(), conformity=None) -> dict:
     """The certificate's content as plain JSON-able data. Every argument is a model instance (the app's or a
     historical version) or None, except `points` (point_content dicts), `standards` (standard_snapshot dicts),
-    `history` (drift_rows), `lab` ({name, address}) and `product`."""
+    `history` (drift_rows), `lab` ({name, address}) and `product`; `conformity` (conformity_fleet.event_conformity,
+    version 2) or None (version 1: no conformity section, nothing said about risks)."""
     device_units = event.meter_units or device.flow_units
     entered_units = event.reference_units or device_units
     converted, density_used = unit_facts(entered_units, device_units, event.density_kg_m3)
@@ -253,8 +271,8 @@ def build(event, *, points, device, position, area, site, fluid, standards, hist
                       "replaces_performed_on": supersedes.performed_on.isoformat(),
                       "replaces_issued_on": _local_date(supersedes.signed_at) if supersedes.signed_at else None,
                       "reason": event.correction_reason}
-    return {
-        "version": VERSION,
+    content = {
+        "version": VERSION if conformity is not None else VERSION_WITHOUT_CONFORMITY,
         "frozen": {"how": how, "from_current_register": sorted(from_current_register)},
         "product": product,
         "certificate": {"number": certificate_number(event), "issued_on": _local_date(event.signed_at),
@@ -297,9 +315,10 @@ def build(event, *, points, device, position, area, site, fluid, standards, hist
             "rule": event.decision_rule, "rule_display": _label(event, "decision_rule"),
             "as_found_in_tolerance": event.as_found_in_tolerance,
             "as_left_in_tolerance": event.as_left_in_tolerance,
-            "as_found_verdict": decision.verdict_text(event.as_found_in_tolerance, [p["decision"] for p in found]),
-            "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance,
-                                                     [p["decision"] for p in left_or_found]),
+            "as_found_verdict": decision.verdict_text_for(event.decision_rule, event.as_found_in_tolerance,
+                                                          [p["decision"] for p in found]),
+            "as_left_verdict": decision.verdict_text_for(event.decision_rule, event.as_left_in_tolerance,
+                                                         [p["decision"] for p in left_or_found]),
             "low_tur": any(p["low_tur"] for p in points), "tur_limit": uncertainty.TUR_WARNING,
             "coverage_pct": uncertainty.COVERAGE_PROBABILITY * 100,
             "statements": statements(event.decision_rule, device.mpe_value, unit, points),
@@ -309,6 +328,12 @@ def build(event, *, points, device, position, area, site, fluid, standards, hist
                       "signed_at": event.signed_at.isoformat() if event.signed_at else None},
         "correction": correction,
     }
+    if conformity is not None:
+        # each point's p_c and PFA beside its other values, the calibration's figures in their own section
+        for p, risk in zip(points, conformity["points"]):   # the same points, in the same order
+            p["p_c"], p["pfa"] = risk["p_c"], risk["pfa"]
+        content["conformity"] = {key: value for key, value in conformity.items() if key != "points"}
+    return content
 
 
 def _ordered_points(points):
@@ -336,11 +361,20 @@ def at_sign_off(event, points) -> dict:
     if position is not None:
         fluid_id = served_fluid_id(DutyPeriod, event.meter_id, position.pk, event.performed_on)
         fluid = Fluid.objects.get(pk=fluid_id) if fluid_id else position.fluid
-    own = _ordered_points(points)
+    from calibration.conformity_fleet import event_conformity, prior_for_meter
+
+    ordered = sorted(points, key=lambda p: (p.kind, p.nominal_pct, p.pk or 0))
+    own = [point_content(p) for p in ordered]
+    # the prior of like devices as stored by the last fleet recompute, and the PFA target now (issue 31); the
+    # acceptance limit each point was decided with (version 2)
+    for content, point in zip(own, ordered):
+        content["acceptance_limit"] = _num(point.acceptance_limit)
+    conformity = event_conformity(own, event.decision_rule, prior_for_meter(device))
     return build(event, points=own, device=device, position=position, area=area, site=site, fluid=fluid,
                  standards=event.standards_snapshot,
                  history=drift_rows(CalibrationEvent, CalibrationPoint, event, own),
-                 lab=laboratory(), product=settings.PRODUCT_NAME, supersedes=event.supersedes)
+                 lab=laboratory(), product=settings.PRODUCT_NAME, supersedes=event.supersedes,
+                 conformity=conformity)
 
 
 def _as_of(History, pk, moment):

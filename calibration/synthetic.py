@@ -230,3 +230,6 @@ class FleetBuilder:
         left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
         event.as_found_in_tolerance = decision.verdict_in_tolerance(found)
         event.as_left_in_tolerance = decision.verdict_in_tolerance(left)
+        found_points = [p for p in points if p.kind == CalibrationPoint.Kind.AS_FOUND]
+        event.as_found_observed_in_tolerance = decision.observed_in_tolerance([p.error for p in found_points],
+                                                                              [p.mpe for p in found_points])

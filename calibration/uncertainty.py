@@ -36,7 +36,7 @@ COVERAGE_PROBABILITY = 0.95
 #: "warn" - state it on the results page and the certificate only;
 #: "require_guarded" - also refuse simple acceptance for that calibration (ILAC-G8:09/2019 §4.2.2
 #: guarded acceptance, w = U, must be chosen).
-LOW_TUR_POLICIES = ("warn", "require_guarded")
+LOW_TUR_POLICIES = ("warn", "require_guarded", "require_risk")
 
 
 def _nonneg(name: str, v: float) -> float:
@@ -289,14 +289,19 @@ def tur_warning(tur: float) -> str | None:
 
 
 def low_tur_requires_guarded(rule: str, turs: Iterable[float], policy: str) -> bool:
-    """True when the decision-rule policy refuses `rule` for a calibration with these TURs:
-    policy "require_guarded" and simple acceptance with any TUR below TUR_WARNING."""
+    """True when the decision-rule policy refuses `rule` for a calibration with these TURs below TUR_WARNING:
+    "require_guarded" refuses simple acceptance (guarded or risk-based acceptance are allowed); "require_risk"
+    refuses every rule but the risk-based one (JCGM 106, PFA <= target; issue 31)."""
     if policy not in LOW_TUR_POLICIES:
         raise ValueError(f"unknown low-TUR policy {policy!r}; expected one of {LOW_TUR_POLICIES}")
-    if rule not in ("simple", "guarded"):
-        raise ValueError(f"rule must be 'simple' or 'guarded', not {rule!r}")
+    if rule not in ("simple", "guarded", "risk"):
+        raise ValueError(f"rule must be 'simple', 'guarded' or 'risk', not {rule!r}")
     turs = list(turs)
     for t in turs:
         if t is None or isinstance(t, bool) or math.isnan(float(t)) or float(t) < 0:
             raise ValueError(f"turs: a TUR must be a number >= 0 (inf allowed), got {t!r}")
-    return policy == "require_guarded" and rule == "simple" and any(t < TUR_WARNING for t in turs)
+    if not any(t < TUR_WARNING for t in turs):
+        return False
+    if policy == "require_guarded":
+        return rule == "simple"
+    return policy == "require_risk" and rule != "risk"

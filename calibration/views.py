@@ -16,6 +16,7 @@ from calibration.models import (
     ReferenceStandard,
     SignedRecordError,
 )
+from calibration import conformity_fleet, signed_content
 from calibration.signed_content import certificate_number, digest
 from offline.kinds import device_mismatch
 from plant.db_failures import nothing_saved_page
@@ -124,14 +125,26 @@ def correct_event(request, pk):
     return _calibration_entry(request, original.meter, corrects=original)
 
 
-def _result_rows(points):
-    """Each point with its test uncertainty ratio (ANSI/NCSL Z540.3: MPE over the point's own 95 % U) and any
-    warning below 4:1; both from the stored MPE and U, so a signed record shows what was signed."""
+def _result_rows(points, risks=None):
+    """Each point with its test uncertainty ratio (ANSI/NCSL Z540.3: MPE over the point's own 95 % U), any
+    warning below 4:1 and its conformance probability p_c (JCGM 106 §7; None without a stated U); all from the
+    stored error, MPE, U and k, so a signed record shows what was signed."""
     rows = []
-    for p in points:
+    for k, p in enumerate(points):
         tur = p.tur
-        rows.append((p, tur if tur is not None and math.isfinite(tur) else None, p.tur_warning))
+        pc = risks["points"][k]["p_c"] if risks else None
+        rows.append((p, tur if tur is not None and math.isfinite(tur) else None, p.tur_warning, pc))
     return rows
+
+
+def _conformity(event, points, content):
+    """The calibration's conformity risk: as frozen at sign-off (content version 2), else computed now with the
+    stored prior of like devices (a draft, or a record signed before risks were kept: the page says so)."""
+    contents = [dict(signed_content.point_content(p), acceptance_limit=p.acceptance_limit) for p in points]
+    prior = conformity_fleet.prior_for_meter(event.meter)
+    now = conformity_fleet.event_conformity(contents, event.decision_rule, prior)
+    frozen = (content or {}).get("conformity")
+    return now, frozen
 
 
 @permission_required("calibration.view_calibrationevent", raise_exception=True)
@@ -143,7 +156,8 @@ def event_detail(request, pk, sign_error=None):
     correction = getattr(event, "superseded_by", None)
     content = event.content_as_signed() if event.is_signed else None
     points = list(event.points.all())
-    rows = _result_rows(points)
+    risks_now, risks_signed = _conformity(event, points, content)
+    rows = _result_rows(points, risks_now)
     standards = event.standards_as_signed() if event.is_signed else [s.snapshot() for s in event.reference_standards.all()]
     pages = dict(ReferenceStandard.objects.filter(identification__in=[s["identification"] for s in standards])
                  .values_list("identification", "pk"))  # each standard's own page, by its unique identification
@@ -152,11 +166,12 @@ def event_detail(request, pk, sign_error=None):
     left = [p.decision for p in points if p.kind == CalibrationPoint.Kind.AS_LEFT] or found
     return render(request, "calibration/event_detail.html", {
         "event": event,
-        "as_found_verdict": decision.verdict_text(event.as_found_in_tolerance, found),
-        "as_left_verdict": decision.verdict_text(event.as_left_in_tolerance, left),
+        "as_found_verdict": decision.verdict_text_for(event.decision_rule, event.as_found_in_tolerance, found),
+        "as_left_verdict": decision.verdict_text_for(event.decision_rule, event.as_left_in_tolerance, left),
         "as_found": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_FOUND],
         "as_left": [r for r in rows if r[0].kind == CalibrationPoint.Kind.AS_LEFT],
-        "low_tur": any(warning for _, _, warning in rows),
+        "low_tur": any(warning for _, _, warning, _ in rows),
+        "risks": risks_signed or risks_now, "risks_frozen": risks_signed is not None,
         # a signed record states its errors in the unit it was signed with
         "error_unit": content["mpe"]["error_unit"] if content else error_unit(event.meter),
         "standards": standards,

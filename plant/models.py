@@ -371,9 +371,14 @@ class Meter(ProtectedWhileCited, models.Model):
     # worst severity of the principle×fluid findings, kept so the review filters in the database; refreshed by
     # save(), by Fluid.save() for the fluid's meters and by every due-date recompute
     risk_severity = models.CharField(max_length=12, blank=True, editable=False)
+    # conformity risk of the last calibration's as-found points (calibration/conformity_fleet.py, JCGM 106), kept by
+    # the recompute: the global PFA of the decision rule applied (worst point) and the lowest conformance probability
+    # of a point inside its MPE (None: no such point, or no uncertainty stated)
+    conformity_pfa = models.FloatField("PFA of the rule applied", null=True, blank=True, editable=False)
+    conformity_min_pc = models.FloatField("lowest p_c inside the MPE", null=True, blank=True, editable=False)
     history = HistoricalRecords(excluded_fields=["last_calibrated", "next_due_date", "due_rationale", "drift_status",
                                                  "drift_rate_per_year", "predicted_crossing", "last_in_tolerance",
-                                                 "risk_severity"])
+                                                 "risk_severity", "conformity_pfa", "conformity_min_pc"])
 
     # the position the device is installed at now; set only through plant.installations (install/remove/swap)
     position = models.OneToOneField(Position, null=True, blank=True, on_delete=models.PROTECT,
@@ -390,7 +395,8 @@ class Meter(ProtectedWhileCited, models.Model):
         # (PostgreSQL keeps the id in the index too, so that its index-only scans can count and join by it;
         # SQLite's indexes carry the row id already.)
         indexes = [models.Index(fields=["status", "position", "next_due_date", "predicted_crossing", "drift_status",
-                                        "last_in_tolerance", "risk_severity", "principle"], include=["id"],
+                                        "last_in_tolerance", "risk_severity", "principle", "conformity_pfa",
+                                        "conformity_min_pc"], include=["id"],
                                 name="device_review_idx")]
 
     def __str__(self):

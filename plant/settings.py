@@ -152,3 +152,7 @@ CALIBRATION = {
     # or "require_guarded" (the tablet form also refuses simple acceptance then; ILAC-G8 guarded, w = U)
     "low_tur_policy": os.environ.get("CAL_LOW_TUR_POLICY", "require_guarded"),
 }
+
+# Conformity risk (JCGM 106, calibration/conformity.py): the largest global probability of false accept a decision
+# rule may leave; 2 % is ANSI/NCSL Z540.3's bound (its first method, §5.3 b). A fraction, 0 < target < 1.
+QUENBY_PFA_TARGET = float(os.environ.get("QUENBY_PFA_TARGET", "0.02"))

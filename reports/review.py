@@ -12,11 +12,14 @@ from operator import or_
 
 from django.db.models import Count, F, Q
 
+from calibration.conformity_fleet import pfa_target
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant import localtime
 from plant.models import Meter, Position, Site
 
 SEVERE, HIGH = "misapplied", "high"
+#: conformance probability below which a point inside the MPE is listed (95 %, the coverage of U; common practice)
+LOW_PC = 0.95
 
 
 @dataclass
@@ -109,6 +112,10 @@ def meter_conditions(today, days):
         "failed": Q(last_in_tolerance=False),
         # misapplied meters and high-risk duties (principle×fluid rules)
         "risk": Q(risk_severity__in=[SEVERE, HIGH]),
+        # conformity risk of the last calibration (JCGM 106, calibration/conformity_fleet.py): accepted although the
+        # rule applied leaves a PFA above the target; a point inside the MPE with p_c below 95 %
+        "pfa_above": Q(last_in_tolerance=True, conformity_pfa__gt=pfa_target()),
+        "low_pc": Q(conformity_min_pc__lt=LOW_PC),
     }
 
 
@@ -180,6 +187,9 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
         "drifting": ("Drifting, or scatter too large to predict", tables.DriftingTable),
         "failed": ("Last as-found out of tolerance", tables.FailedTable),
         "risk": ("Misapplied meters and high-risk duties", tables.RiskTable),
+        "pfa_above": (f"Accepted with PFA above target ({100 * pfa_target():.3g} %)", tables.ConformityRiskTable),
+        "low_pc": (f"Points inside the MPE with p_c below {100 * LOW_PC:.0f} %: conformity not decided",
+                   tables.ConformityRiskTable),
     }
     from maintenance.fleet import evidence_prefetch
 

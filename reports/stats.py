@@ -13,7 +13,7 @@ from typing import Optional, Tuple
 import pandas as pd
 from django.utils import timezone
 
-from calibration.models import CalibrationEvent, in_force
+from calibration.models import CalibrationEvent, in_force, observed_or_verdict
 from plant.models import Meter
 
 WINDOW_DAYS = 365
@@ -66,8 +66,9 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
     )
     if site is not None:
         events = events.filter(meter__position__area__site=site)
-    event_rows = events.order_by().values_list(
-        "pk", "meter_id", "performed_on", "as_found_in_tolerance",
+    # reliability statistics count the observed as-found condition (|E| <= MPE), not the rule's verdict (issue 31)
+    event_rows = events.order_by().annotate(observed_in_tolerance=observed_or_verdict()).values_list(
+        "pk", "meter_id", "performed_on", "observed_in_tolerance",
         "meter__principle", "meter__position__fluid__name", "meter__position__area__site__name",
     )
     events_df = pd.DataFrame.from_records(list(event_rows), columns=EVENT_COLUMNS)

@@ -1,6 +1,7 @@
 import django_tables2 as tables
 from django.utils.html import format_html
 
+from calibration.templatetags.risk_format import percent
 from plant import risk
 
 
@@ -72,6 +73,27 @@ class DriftingTable(MeterColumns):
 class FailedTable(MeterColumns):
     last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
     next_due_date = IsoDateColumn(verbose_name="Due date")
+
+
+class ConformityRiskTable(MeterColumns):
+    """The last calibration's conformity risk (JCGM 106): the PFA of the rule applied and the lowest p_c of a point
+    inside the MPE. A low p_c asks for a calibration with a better reference, not a shorter interval."""
+
+    conformity_pfa = tables.Column(verbose_name="PFA of the rule", attrs={"td": {"class": "nowrap"}})
+    conformity_min_pc = tables.Column(verbose_name="Lowest p_c inside MPE", attrs={"td": {"class": "nowrap"}})
+    last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
+
+    class Meta(MeterColumns.Meta):
+        sequence = ("tag", "conformity_pfa", "conformity_min_pc", "last_calibrated", "serial", "principle", "fluid",
+                    "area", "site")
+
+    @staticmethod
+    def render_conformity_pfa(value):
+        return percent(value)
+
+    @staticmethod
+    def render_conformity_min_pc(value):
+        return percent(value)
 
 
 class RiskTable(MeterColumns):

@@ -11,8 +11,11 @@ error = 100 × (indicated - 20) / 20 lands on each limit: 20.15 -> 0.75 %, 20.2 
 Due dates, worked by hand from calibration/due.py with the default policy (min 30 d, max 1095 d, drift
 margin 30 d). A single calibration on 2026-11-20 gives the interval method no observed interval, so the
 meter's base interval holds when it conforms: 2026-11-20 + 365 d = 2027-11-20 (no risk finding, no trend
-from one calibration); when it does not conform (a guard-band point under the guarded rule too) the base is
-shortened by one staircase step (OIML D 10 method 1): 365 × 0.5 = 182.5 -> 183 d, due 2027-05-22.
+from one calibration); when it is observed beyond the MPE the base is shortened by one staircase step (OIML D 10
+method 1): 365 × 0.5 = 182.5 -> 183 d, due 2027-05-22. Issue 31: the due date and the drift status count the
+observed condition (|E| <= MPE); a guard-band point inside the MPE is "not conforming (guard band)" in the
+statement of conformity and the stored verdict, but does not shorten the interval (a prompt for a better
+reference, not a finding against the meter).
 """
 import datetime as dt
 import math
@@ -119,12 +122,16 @@ def test_boundary_case_from_decision_to_due_date_and_certificate(meter, sign, er
     conforming = expected_verdict == "in tolerance"
     assert event.as_found_in_tolerance is conforming
     assert event.as_left_in_tolerance is conforming  # no adjustment: as left = as found
-    # the meter: last verdict, drift status and due date (hand-worked in the module docstring)
+    # the meter: last verdict (the rule's), drift status and due date (the observed |E| <= MPE; hand-worked in the
+    # module docstring)
+    observed = abs(error) <= 1.0
+    assert event.as_found_observed_in_tolerance is observed
     meter.refresh_from_db()
     assert meter.last_in_tolerance is conforming
     assert meter.last_calibrated == DAY
-    assert meter.drift_status == ("insufficient" if conforming else "out_of_tolerance")  # one calibration: no trend
-    assert meter.next_due_date == (IN_TOLERANCE_DUE if conforming else NOT_CONFORMING_DUE)
+    # the drift fit too is judged against the MPE whatever the rule (issue 31); one calibration: no trend
+    assert meter.drift_status == ("insufficient" if observed else "out_of_tolerance")
+    assert meter.next_due_date == (IN_TOLERANCE_DUE if observed else NOT_CONFORMING_DUE)
     assert meter.due_rationale["winner"] == "method" and meter.due_rationale["bounded"] == ""
     if conforming:
         assert meter.predicted_crossing is None
@@ -152,14 +159,16 @@ def test_boundary_case_from_decision_to_due_date_and_certificate(meter, sign, er
     assert (u_above in text) == (rule == "guarded" and U > 1.0)
 
 
-def test_a_zero_error_with_u_above_mpe_is_caught_by_the_verdict_not_the_fit(meter):
-    # The drift fit's limit is MPE minus the event's mean U capped at 0.9 MPE: 1.0 - 0.9 = 0.1 %, and the
-    # error 0 % is inside it, so the fit alone says "insufficient"; the stored verdict (conditional pass,
-    # ILAC-G8:09/2019 §4.2.2) makes the status out of tolerance and the meter counts as failed.
+def test_a_zero_error_with_u_above_mpe_is_not_conforming_but_not_out_of_tolerance(meter):
+    # U > MPE: the guarded rule cannot accept even a zero error (conditional pass, ILAC-G8:09/2019 §4.2.2), so the
+    # stored verdict is not conforming and the meter is on the review's failed list; the observed error is within
+    # the MPE, so the drift status (and the due date) do not treat it as found out of tolerance (issue 31).
     event = calibrate(meter, standard(1.5), "guarded", [0.0])
     assert event.points.get().decision == "conditional pass"
+    assert event.as_found_observed_in_tolerance is True
     meter.refresh_from_db()
-    assert meter.drift_status == "out_of_tolerance"
+    assert meter.drift_status == "insufficient"
+    assert meter.next_due_date == IN_TOLERANCE_DUE
     assert meter.last_in_tolerance is False
     assert meter.due_rationale["drift_point_pct"] is None
     assert Meter.objects.filter(pk=meter.pk, last_in_tolerance=False).exists()  # the review's failed list reads this
@@ -185,7 +194,7 @@ def test_conditional_fail_is_out_of_tolerance_with_its_probability_wording(meter
 
 @pytest.mark.parametrize("method", ["staircase", "reliability"])
 @pytest.mark.parametrize("rule", ["simple", "guarded"])
-def test_a_guard_band_result_counts_as_out_of_tolerance_for_the_interval_methods(meter, settings, method, rule):
+def test_a_guard_band_result_counts_as_observed_in_tolerance_for_the_interval_methods(meter, settings, method, rule):
     """Two calibrations a year apart: the first a plain pass (0.5 %), the second at |E| = MPE (1.0 %).
 
     Hand-worked method candidates from the second calibration (2027-11-20), default policy:
@@ -195,8 +204,9 @@ def test_a_guard_band_result_counts_as_out_of_tolerance_for_the_interval_methods
       the maximum 1095 d; all out -> lambda infinite -> the minimum 30 d.
     Under the reliability method one observed interval is below the minimum sample (8), so the reliability
     model does not move the interval and the staircase does (calibration/intervals.interval_by_method).
-    Due date: the method sets it (no risk finding, no trend from two calibrations): simple -> 456 d;
-    guarded -> the guard-band as-found counts as out of tolerance: 183 d.
+    Due date: the method sets it (no risk finding, no trend from two calibrations): 456 d under both rules, as the
+    interval methods count the observed condition |E| <= MPE (issue 31; NCSL RP-1 observed reliability): the
+    guard-band as-found (guarded rule) is not conforming in the statement, not out of tolerance for the interval.
     """
     settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": method}
     first = dt.date(2026, 11, 20) - dt.timedelta(days=365)
@@ -206,18 +216,15 @@ def test_a_guard_band_result_counts_as_out_of_tolerance_for_the_interval_methods
     calibrate(meter, ref, rule, [0.5], day=first)
     last = calibrate(meter, ref, rule, [1.0])
     meter.refresh_from_db()
-    method_days = 456 if rule == "simple" else 183
+    method_days = 456
     candidates = {c["name"]: c for c in meter.due_rationale["candidates"]}
     assert candidates["method"]["due"] == (DAY + dt.timedelta(days=method_days)).isoformat()
     if method == "reliability":
         assert "reliability target 95% not applied" in candidates["method"]["reason"]
     assert meter.next_due_date == DAY + dt.timedelta(days=method_days) and meter.due_rationale["winner"] == "method"
-    if rule == "simple":
-        assert last.as_found_in_tolerance is True
-        assert meter.drift_status == "insufficient"
-    else:
-        assert last.as_found_in_tolerance is False
-        assert meter.drift_status == "out_of_tolerance"
+    assert last.as_found_in_tolerance is (rule == "simple")   # the statement of conformity follows the rule
+    assert last.as_found_observed_in_tolerance is True
+    assert meter.drift_status == "insufficient"
     bulk = stored_due_fields(meter)
     naive_recompute(Meter.objects.filter(pk=meter.pk))
     assert stored_due_fields(meter) == bulk

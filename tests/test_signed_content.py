@@ -256,9 +256,17 @@ def test_a_record_without_content_prints_the_audit_trail_as_of_its_signing(clien
     _forget_content(signed_event)
     event = CalibrationEvent.objects.get(pk=signed_event.pk)
     rebuilt = event.content_as_signed()
-    for part in ("device", "range", "mpe", "points", "standards", "decision", "drift_history", "calibration",
+    for part in ("device", "range", "mpe", "standards", "decision", "drift_history", "calibration",
                  "environment", "signature", "certificate", "service_fluid"):
         assert rebuilt[part] == frozen[part], part
+    # version 2 adds each point's p_c and PFA and a conformity section; a rebuilt record is version 1 without them
+    # (the prior of its signing time was never kept), the rest of each point the same
+    added = ("p_c", "pfa", "acceptance_limit")
+    without_risks = {kind: [{k: v for k, v in p.items() if k not in added} for p in rows]
+                     for kind, rows in frozen["points"].items()}
+    assert rebuilt["points"] == without_risks
+    assert frozen["version"] == 2 and "conformity" in frozen
+    assert rebuilt["version"] == signed_content.VERSION_WITHOUT_CONFORMITY == 1 and "conformity" not in rebuilt
     assert rebuilt["position"]["tag"] == "FT-101"
     # areas, sites and the settings keep no history: taken from the register now, and the content says so
     assert rebuilt["frozen"] == {"how": signed_content.FROM_AUDIT_TRAIL,
@@ -281,10 +289,6 @@ BEFORE = [("calibration", "0009_signed_content_and_correction_reason")]
 AFTER = [("calibration", "0010_freeze_signed_content")]
 
 
-def stored_content(pk):
-    """The column alone: the schema is the migration's, not today's model's (later columns do not exist yet)."""
-    return CalibrationEvent.objects.filter(pk=pk).values_list("signed_content", flat=True).get()
-
 
 @pytest.mark.django_db(transaction=True)
 def test_migration_fills_records_signed_before_from_the_audit_trail(client, meter, standard, monkeypatch, settings):
@@ -304,15 +308,23 @@ def test_migration_fills_records_signed_before_from_the_audit_trail(client, mete
         executor = MigrationExecutor(connection)
         executor.loader.build_graph()
         executor.migrate(AFTER)
+        # only the content column is read: at AFTER the table has none of the fields later migrations add
+        def content_of(pk):
+            return CalibrationEvent.objects.filter(pk=pk).values_list("signed_content", flat=True).get()
+
         for event in (first, second):
-            stored = stored_content(event.pk)
+            stored = content_of(event.pk)
             assert stored["frozen"]["how"] == signed_content.FROM_AUDIT_TRAIL
-            for part in ("device", "mpe", "points", "standards", "decision", "drift_history", "service_fluid"):
+            for part in ("device", "mpe", "standards", "decision", "drift_history", "service_fluid"):
                 assert stored[part] == frozen[event.pk][part], (event.pk, part)
+            # rebuilt: version 1, without the risks of version 2 (no prior of that time was kept)
+            assert stored["version"] == 1 and "conformity" not in stored
+            added = ("p_c", "pfa", "acceptance_limit")
+            assert stored["points"] == {kind: [{k: v for k, v in p.items() if k not in added} for p in rows]
+                                        for kind, rows in frozen[event.pk]["points"].items()}
             assert stored["device"]["serial"] == "SN-778812" and stored["position"]["tag"] == "FT-101"
-        assert [row[0] for row in stored_content(second.pk)["drift_history"]] \
-            == ["2025-11-20", "2026-11-20"]
-        assert stored_content(draft.pk) == {}  # drafts have none until signed
+        assert [row[0] for row in content_of(second.pk)["drift_history"]] == ["2025-11-20", "2026-11-20"]
+        assert content_of(draft.pk) == {}  # drafts have none until signed
     finally:
         call_command("migrate", verbosity=0)
 
