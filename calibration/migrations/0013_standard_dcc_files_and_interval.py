@@ -10,7 +10,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('calibration', '0011_merge_signed_content_and_standard_links'),
+        ('calibration', '0012_discarded_drafts'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 

@@ -6,7 +6,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('calibration', '0012_error_prior_of_like_devices'),
+        ('calibration', '0014_error_prior_of_like_devices'),
     ]
 
     operations = [

@@ -29,7 +29,7 @@ def fill_observed(apps, schema_editor):
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('calibration', '0013_risk_based_rule_and_acceptance_limit'),
+        ('calibration', '0015_risk_based_rule_and_acceptance_limit'),
     ]
 
     operations = [

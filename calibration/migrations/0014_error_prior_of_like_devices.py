@@ -7,8 +7,8 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('calibration', '0011_merge_signed_content_and_standard_links'),
-        ('plant', '0013_meter_conformity_risk_fields'),
+        ('calibration', '0013_standard_dcc_files_and_interval'),
+        ('plant', '0015_meter_conformity_risk_fields'),
     ]
 
     operations = [

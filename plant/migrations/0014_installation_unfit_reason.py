@@ -8,7 +8,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('plant', '0012_review_indexes'),
+        ('plant', '0013_drift_status_scatter_words'),
         migrations.swappable_dependency(settings.AUTH_USER_MODEL),
     ]
 

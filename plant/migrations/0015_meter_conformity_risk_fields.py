@@ -6,7 +6,7 @@ from django.db import migrations, models
 class Migration(migrations.Migration):
 
     dependencies = [
-        ('plant', '0012_review_indexes'),
+        ('plant', '0014_installation_unfit_reason'),
     ]
 
     operations = [
