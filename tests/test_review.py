@@ -15,8 +15,10 @@ pytestmark = pytest.mark.django_db
 
 
 def make_meter(tag, area, fluid, principle="electromagnetic", **due):
+    # MISAPPLIED-1 is not fit for its duty on purpose: it goes in with a reason, as a reviewer would write one
     meter = commission(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
-                                 internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
+                       internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L",
+                       unfit_reason="Test plant: the review must list it as not fit.")
     if due:
         Meter.objects.filter(pk=meter.pk).update(**due)
     return meter

@@ -165,7 +165,7 @@ def test_review_csv_is_neutralised(hostile_register, client):
         assert_no_formula_csv(rows)
         assert any("'=1+1" in row for row in rows[1:]), (key, rows)
     drifting = csv_cells(client.get(reverse("reports:review"), {"export": "drifting"}).content)
-    rate = drifting[0].index("Worst drift / year")
+    rate = drifting[0].index("Drift / year (the crossing's slope)")
     # the rate is text with its unit, not a number: a spreadsheet would read "-0.250 % ..." as a broken formula
     assert drifting[1][rate] == "'-0.250 % of reading"
     drafts = csv_cells(client.get(reverse("reports:review"), {"export": "drafts"}).content)

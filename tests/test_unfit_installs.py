@@ -87,7 +87,7 @@ def test_reviewer_with_reason_installs_and_the_position_page_shows_it(client, oi
     # kept in the audit trail too
     assert installation.history.filter(unfit_reason__startswith="Stop-gap").exists()
     page = client.get("/meters/FT-404/").content.decode()
-    assert "Installed though not fit for this duty</strong> (EM_LOW_CONDUCTIVITY): Stop-gap for two weeks" in page
+    assert "Installed though not fit for this duty</strong>: Stop-gap for two weeks" in page
     assert "accepted by Reviewer Tester" in page
 
 
