@@ -60,15 +60,16 @@ def import_register(request):
         context["file_error"] = str(exc)
         return render(request, "plant/import.html", context, status=400)
 
-    plan = importer.plan_import(kind, rows)
-    if not dry_run and plan.ok:
+    if dry_run:
+        plan = importer.plan_import(kind, rows)
+    else:
         try:
-            plan = importer.apply_import(plan)
+            plan = importer.apply_rows(kind, rows, user=request.user)  # checked once, inside the transaction
         except DATABASE_FAILURES:
             raise  # the database itself failed: our "nothing was saved" page
         except Exception as exc:  # the transaction has rolled back; say so rather than show a bare 500
             logger.exception("Register import of %s failed and was rolled back", filename)
-            context.update(plan=plan, apply_failed=str(exc) or exc.__class__.__name__)
+            context.update(apply_failed=str(exc) or exc.__class__.__name__)
             return render(request, "plant/import.html", context, status=500)
     context["plan"] = plan
     if plan.ok and dry_run and plan.changed_rows:
