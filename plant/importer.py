@@ -30,11 +30,13 @@ import copy
 import csv
 import io
 import math
+import zipfile
 from dataclasses import dataclass, field
 from pathlib import PurePath
 
 import pandas as pd
 from django import forms
+from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.db import connection, models, transaction
 from django.db.models import Q
@@ -76,7 +78,47 @@ NUL_MESSAGE = "Null characters are not allowed."
 
 
 class ImportFileError(ValueError):
-    """The file itself cannot be read (wrong type, corrupt, no header)."""
+    """The file itself cannot be read (wrong type, corrupt, no header, over a limit)."""
+
+
+# Limits (plant/settings.py, from the environment): each refusal is one sentence naming the limit and its setting.
+ZIP_RATIO_FLOOR = 1024 * 1024  # parts smaller than this unpacked are not judged by their ratio
+
+
+def size_refusal(size: int) -> str | None:
+    """Why a file of `size` bytes is refused, or None."""
+    limit = settings.IMPORT_MAX_UPLOAD_MB
+    if size > limit * 1024 * 1024:
+        return (f"The file is {size / 1024 / 1024:.1f} MB, more than the import limit of {limit:g} MB "
+                "(setting QUENBY_IMPORT_MAX_UPLOAD_MB).")
+    return None
+
+
+def _check_workbook(data: bytes, filename: str) -> None:
+    """Refuse a workbook that would unpack to more than the limits, before any of it is unpacked."""
+    try:
+        members = zipfile.ZipFile(io.BytesIO(data)).infolist()
+    except (zipfile.BadZipFile, ValueError) as exc:
+        raise ImportFileError(f"Could not read {filename} as an Excel workbook: {exc}") from exc
+    unpacked = sum(member.file_size for member in members)
+    limit = settings.IMPORT_MAX_XLSX_UNPACKED_MB
+    if unpacked > limit * 1024 * 1024:
+        raise ImportFileError(f"The workbook unpacks to {unpacked / 1024 / 1024:.0f} MB, more than the import limit "
+                              f"of {limit:g} MB (setting QUENBY_IMPORT_MAX_XLSX_UNPACKED_MB).")
+    ratio_limit = settings.IMPORT_MAX_XLSX_RATIO
+    for member in members:
+        ratio = member.file_size / max(member.compress_size, 1)
+        if member.file_size > ZIP_RATIO_FLOOR and ratio > ratio_limit:
+            raise ImportFileError(f"A part of the workbook ({member.filename}) unpacks to {ratio:.0f} times its "
+                                  f"packed size, more than the import limit of {ratio_limit:g} times (setting "
+                                  "QUENBY_IMPORT_MAX_XLSX_RATIO).")
+
+
+def _check_rows(count: int) -> None:
+    limit = settings.IMPORT_MAX_ROWS
+    if count > limit:
+        raise ImportFileError(f"The file has {count:,} data rows, more than the import limit of {limit:,} rows "
+                              "(setting QUENBY_IMPORT_MAX_ROWS).")
 
 
 @dataclass
@@ -153,6 +195,9 @@ def read_table(uploaded, filename: str | None = None) -> list[dict]:
             data = data.encode("utf-8")
     else:
         raise ImportFileError("Nothing to read: expected an uploaded file.")
+    refused = size_refusal(len(data))
+    if refused:
+        raise ImportFileError(refused)
     if not data.strip():
         raise ImportFileError("The file is empty.")
 
@@ -173,6 +218,7 @@ def read_table(uploaded, filename: str | None = None) -> list[dict]:
         except (pd.errors.ParserError, pd.errors.EmptyDataError, csv.Error) as exc:
             raise ImportFileError(f"Could not read {filename} as CSV: {exc}") from exc
     elif suffix in (".xlsx", ".xlsm"):
+        _check_workbook(data, filename)
         try:
             frame = pd.read_excel(io.BytesIO(data), engine="openpyxl", sheet_name=0, **options)
         except Exception as exc:  # openpyxl raises several unrelated types for a corrupt workbook
@@ -183,6 +229,7 @@ def read_table(uploaded, filename: str | None = None) -> list[dict]:
 
     if frame.empty:
         raise ImportFileError("The file has no header row.")
+    _check_rows(len(frame) - 1)
     headers = [_normalise_header(h) for h in frame.iloc[0].tolist()]
     # drop trailing unnamed columns (Excel's "used range" often includes a few empty ones)
     while headers and headers[-1] == "":

@@ -12,6 +12,13 @@ from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
 
+
+@pytest.fixture(autouse=True)
+def media(settings, tmp_path):
+    """Files kept between a dry run and its apply go under a MEDIA_ROOT of the test's own."""
+    settings.MEDIA_ROOT = tmp_path / "media"
+    return settings.MEDIA_ROOT
+
 @pytest.fixture
 def logged_in_client(client, django_user_model):
     user = django_user_model.objects.create_superuser("importer", "importer@example.com", "pw")
@@ -245,14 +252,20 @@ def test_view_dry_run_shows_plan_and_saves_nothing(register, logged_in_client):
     assert "FT-200" in body and "creates area South / Pump house" in body and "Apply 3 changes" in body
     assert counts() == before
 
-    # the "Apply" button posts the checked file back without a new upload
+    # the "Apply" button names the file kept on the server: the file itself is not in the page
     apply_form = response.context["apply_form"]
-    response = logged_in_client.post(reverse("plant:import"), {
-        "kind": "meters", "payload": apply_form.initial["payload"], "filename": "meters.csv",
-    })
+    token = apply_form.initial["token"]
+    assert token in body and "payload" not in body
+    assert good_file().decode().splitlines()[3] not in body
+    response = logged_in_client.post(reverse("plant:import"), {"kind": "meters", "token": token})
     assert response.status_code == 200
     assert response.context["plan"].applied
+    assert "Imported meters.csv" in response.content.decode()
     assert Meter.objects.filter(position__tag__in=["FT-200", "FT-201"]).count() == 2
+    # applied: no longer kept
+    response = logged_in_client.post(reverse("plant:import"), {"kind": "meters", "token": token})
+    assert response.status_code == 400
+    assert "no longer kept on the server" in response.content.decode()
 
 
 def test_view_errors_are_400_and_apply_saves_nothing(register, logged_in_client):
