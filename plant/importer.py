@@ -27,6 +27,7 @@ Rules for cells:
 from __future__ import annotations
 
 import copy
+import datetime as dt
 import csv
 import io
 import math
@@ -38,7 +39,7 @@ import pandas as pd
 from django import forms
 from django.conf import settings
 from django.core.exceptions import ValidationError
-from django.db import connection, models, transaction
+from django.db import connection, connections, models, transaction
 from django.db.models import Q
 from django.forms.models import model_to_dict
 from django.utils import timezone
@@ -618,6 +619,9 @@ def _process(plan: Plan, register: Register) -> None:
         forms_used = {"position": _checked_against(PositionForm, {"area": register.areas_by_pk,
                                                                   "fluid": register.fluids_by_pk}),
                       "device": _checked_against(MeterForm, {})}
+        new = RegisterRow()
+        forms_used["new"] = {**model_to_dict(new.position, fields=list(PositionForm.base_fields)),
+                             **model_to_dict(new.device, fields=list(MeterForm.base_fields))}
     else:
         forms_used = {"fluid": _checked_against(FluidForm, {})}
     first_seen: dict[str, int] = {}
@@ -665,7 +669,9 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
     before = {column: _cell(instance, column) for column in spec["columns"]} if existing else {}
     plan_row = PlanRow(row_number=row_number, key=key, action="update" if existing else "create")
 
-    if model is Meter:
+    if existing is None and "new" in forms_used:
+        data = dict(forms_used["new"])  # a new row starts from the defaults, the same for every new row
+    elif model is Meter:
         data = {**model_to_dict(instance.position, fields=list(PositionForm.base_fields)),
                 **model_to_dict(instance.device, fields=list(MeterForm.base_fields))}
     else:
@@ -714,8 +720,8 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
                 plan.errors.append(RowError(row_number, column, message))
         return plan_row
 
-    after = {column: _cell(form.instance, column) for column in spec["columns"]}
     if existing:
+        after = {column: _cell(form.instance, column) for column in spec["columns"]}
         plan_row.changes = [
             Change(column, before[column], after[column]) for column in spec["columns"]
             if before[column] != after[column]
@@ -807,14 +813,30 @@ def _reserve_ids(model, count: int) -> list[int]:
         return list(range(start, start + count))
 
 
+def _converter(model_field, real_connection):
+    """The field's conversion for the database; dates and times (few different ones in an import) converted once
+    per value."""
+    seen = {}
+
+    def convert(value):
+        if isinstance(value, (dt.date, dt.datetime)):
+            if value not in seen:
+                seen[value] = model_field.get_db_prep_save(value, real_connection)
+            return seen[value]
+        return model_field.get_db_prep_save(value, real_connection)
+
+    return convert
+
+
 def _insert(model, columns: list, rows: list[list]) -> None:
     """INSERT `rows` (values in the order of `columns`, model fields) into `model`'s table, one statement run
     for every row."""
     if not rows:
         return
-    convert = [None if f.get_internal_type() in AS_THEY_ARE else f for f in columns]
-    prepared = [[value if f is None or value is None else f.get_db_prep_save(value, connection)
-                 for f, value in zip(convert, values)] for values in rows]
+    real = connections[connection.alias]  # not the proxy: it looks the connection up on every use
+    converters = [None if f.get_internal_type() in AS_THEY_ARE else _converter(f, real) for f in columns]
+    prepared = [[value if convert is None or value is None else convert(value)
+                 for convert, value in zip(converters, values)] for values in rows]
     quote = connection.ops.quote_name
     sql = (f"INSERT INTO {quote(model._meta.db_table)} ({', '.join(quote(f.column) for f in columns)}) "
            f"VALUES ({', '.join(['%s'] * len(columns))})")
@@ -921,7 +943,8 @@ def _create_rows(rows: list[RegisterRow], user) -> list[int]:
         device = row.device
         device.position = row.position
         device.status = Meter.Status.IN_SERVICE
-        device.risk_severity = risk.worst_severity(device.findings())  # as Meter.save judges it
+        device._duty_findings = device.duty_findings()  # a new device: no maintenance findings yet
+        device.risk_severity = risk.worst_severity(device._duty_findings)  # as Meter.save judges it
         devices.append(device)
     _with_history(Meter, devices, user)
     _with_history(Installation, [Installation(device=row.device, position=row.position, since=row.today,
@@ -931,7 +954,7 @@ def _create_rows(rows: list[RegisterRow], user) -> list[int]:
     tasks_today = timezone.localdate()  # the day sync_tasks sets a derived task up
     tasks = []
     for device in devices:
-        for spec in catalogue.derive_tasks(device.principle, device.duty_findings()):
+        for spec in catalogue.derive_tasks(device.principle, device._duty_findings):
             task = MaintenanceTask(meter=device, code=spec.code, title=spec.title, reason=spec.reason,
                                    basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
                                    since=tasks_today)

@@ -3,6 +3,7 @@ register import of a generated plant register (dry run and apply)."""
 import datetime as dt
 import os
 import platform
+import time
 
 from django.contrib.auth.models import Group, User
 from django.core.management import BaseCommand, CommandError
@@ -190,17 +191,23 @@ class Command(BaseCommand):
                 read_xlsx, _ = benchmark.timed(lambda: importer.read_table(files["xlsx"], "register.xlsx"))
                 rows.append((f"Register file read, {count} rows", f"CSV {read_csv:.2f} s ({len(files['csv']) // 1024} "
                              f"KiB); XLSX {read_xlsx:.2f} s ({len(files['xlsx']) // 1024} KiB)", "", None))
+                cpu = time.process_time()
                 dry, plan = benchmark.timed(
                     lambda: importer.plan_import("meters", importer.read_table(files["csv"], "register.csv")))
+                dry_cpu = time.process_time() - cpu
                 if not plan.ok or plan.counts["create"] != count:
                     raise CommandError(f"The generated register was refused: {plan.errors[:3]}")
-                rows.append((f"Import dry run, {count} new rows (CSV read included)", f"{dry:.2f} s",
+                rows.append((f"Import dry run, {count} new rows (CSV read included)",
+                             f"{dry:.2f} s (this process's CPU {dry_cpu:.2f} s)",
                              f"< {TARGETS['import_dry_run']:.0f} s", dry < TARGETS["import_dry_run"]))
+                cpu = time.process_time()
                 applied, result = benchmark.timed(
                     lambda: importer.apply_rows("meters", importer.read_table(files["csv"], "register.csv")))
+                apply_cpu = time.process_time() - cpu
                 if not result.applied:
                     raise CommandError(f"The generated register was not applied: {result.errors[:3]}")
-                rows.append((f"Import apply, {count} new rows (read, check, write, recompute)", f"{applied:.2f} s",
+                rows.append((f"Import apply, {count} new rows (read, check, write, recompute)",
+                             f"{applied:.2f} s (this process's CPU {apply_cpu:.2f} s)",
                              f"< {TARGETS['import_apply']:.0f} s", applied < TARGETS["import_apply"]))
                 raise _Rollback
         except _Rollback:
