@@ -782,7 +782,7 @@ def _resolve_meter_relations(plan, plan_row, raw, data, field_errors, register: 
 
 # Writing ---------------------------------------------------------------------------------------------------------
 # Tens of thousands of new rows (and as many audit rows) are written with one prepared INSERT each table, run for
-# every row (executemany), with the ids taken first from the table's own sequence: Django's bulk_create builds the
+# every row (executemany; COPY on PostgreSQL), with the ids taken first from the table's own sequence: Django's bulk_create builds the
 # statement value by value, and that building was most of an import's time. Values are converted as Django
 # converts them for the database (get_db_prep_save), except types the drivers take as they are.
 AS_THEY_ARE = {"AutoField", "BigAutoField", "BooleanField", "CharField", "FloatField", "ForeignKey", "IntegerField",
@@ -838,8 +838,13 @@ def _insert(model, columns: list, rows: list[list]) -> None:
     prepared = [[value if convert is None or value is None else convert(value)
                  for convert, value in zip(converters, values)] for values in rows]
     quote = connection.ops.quote_name
-    sql = (f"INSERT INTO {quote(model._meta.db_table)} ({', '.join(quote(f.column) for f in columns)}) "
-           f"VALUES ({', '.join(['%s'] * len(columns))})")
+    table, names = quote(model._meta.db_table), ", ".join(quote(f.column) for f in columns)
+    if connection.vendor == "postgresql":  # COPY: the rows streamed in one command
+        with connection.cursor() as cursor, cursor.cursor.copy(f"COPY {table} ({names}) FROM STDIN") as copy:
+            for values in prepared:
+                copy.write_row(values)
+        return
+    sql = f"INSERT INTO {table} ({names}) VALUES ({', '.join(['%s'] * len(columns))})"
     with connection.cursor() as cursor:
         for start in range(0, len(prepared), WRITE_BATCH * 10):
             cursor.executemany(sql, prepared[start:start + WRITE_BATCH * 10])
