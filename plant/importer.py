@@ -221,7 +221,7 @@ def read_table(uploaded, filename: str | None = None) -> list[dict]:
     elif suffix in (".xlsx", ".xlsm"):
         _check_workbook(data, filename)
         try:
-            frame = pd.read_excel(io.BytesIO(data), engine="openpyxl", sheet_name=0, **options)
+            frame = pd.read_excel(io.BytesIO(data), engine="calamine", sheet_name=0, **options)
         except Exception as exc:  # openpyxl raises several unrelated types for a corrupt workbook
             raise ImportFileError(f"Could not read {filename} as an Excel workbook: {exc}") from exc
     else:
