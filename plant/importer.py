@@ -840,9 +840,16 @@ def _insert(model, columns: list, rows: list[list]) -> None:
     quote = connection.ops.quote_name
     table, names = quote(model._meta.db_table), ", ".join(quote(f.column) for f in columns)
     if connection.vendor == "postgresql":  # COPY: the rows streamed in one command
-        with connection.cursor() as cursor, cursor.cursor.copy(f"COPY {table} ({names}) FROM STDIN") as copy:
-            for values in prepared:
-                copy.write_row(values)
+        with connection.cursor() as cursor:
+            def copy_rows(sql, params, many, context):
+                with cursor.cursor.copy(sql) as copy:
+                    for values in prepared:
+                        copy.write_row(values)
+
+            # through the connection's execute wrappers (what watches the queries sees it) and with the
+            # driver's errors turned into Django's, as for any other statement
+            with connection.wrap_database_errors:
+                cursor._execute_with_wrappers(f"COPY {table} ({names}) FROM STDIN", None, False, copy_rows)
         return
     sql = f"INSERT INTO {table} ({names}) VALUES ({', '.join(['%s'] * len(columns))})"
     with connection.cursor() as cursor:
