@@ -548,12 +548,20 @@ def _parse_bool(value: str):
     raise ValueError(f'Enter yes or no (got "{value}").')
 
 
+_CHOICE_WORDS: dict = {}
+
+
 def _normalise_choice(model_field, value: str) -> str:
-    lowered = value.lower()
-    for stored, label in model_field.flatchoices:
-        if lowered in (str(stored).lower(), str(label).lower()):
-            return stored
-    return value
+    """The stored value of a choice given as its stored value or its label, any case (the first that matches, in
+    the field's order); anything else as it was, for the form to refuse."""
+    words = _CHOICE_WORDS.get(model_field)
+    if words is None:
+        words = {}
+        for stored, label in model_field.flatchoices:
+            words.setdefault(str(stored).lower(), stored)
+            words.setdefault(str(label).lower(), stored)
+        _CHOICE_WORDS[model_field] = words
+    return words.get(value.lower(), value)
 
 
 def plan_import(kind: str, rows: list[dict]) -> Plan:
