@@ -114,6 +114,16 @@ STATICFILES_DIRS = [BASE_DIR / "static"]
 # Uploaded maintenance photos: on disk under MEDIA_ROOT, served only through a logged-in view (no MEDIA_URL).
 MEDIA_ROOT = Path(os.environ.get("QUENBY_MEDIA_ROOT", BASE_DIR / "media"))
 MAINTENANCE_PHOTO_MAX_BYTES = 8 * 1024 * 1024
+# The register import (plant/importer.py; docs/operations.md): each limit is refused in a sentence naming it.
+IMPORT_MAX_UPLOAD_MB = float(os.environ.get("QUENBY_IMPORT_MAX_UPLOAD_MB", "20"))  # the file as uploaded
+IMPORT_MAX_ROWS = int(os.environ.get("QUENBY_IMPORT_MAX_ROWS", "50000"))  # data rows of one file
+# an .xlsx is a zip: what it unpacks to, in all, and how many times its packed size one part may unpack to
+IMPORT_MAX_XLSX_UNPACKED_MB = float(os.environ.get("QUENBY_IMPORT_MAX_XLSX_UNPACKED_MB", "100"))
+IMPORT_MAX_XLSX_RATIO = float(os.environ.get("QUENBY_IMPORT_MAX_XLSX_RATIO", "100"))
+# a checked file is kept on the server for its apply (plant/kept_uploads.py), in the default storage under this
+# folder, this long
+IMPORT_KEPT_DIR = os.environ.get("QUENBY_IMPORT_KEPT_DIR", "kept-imports")
+IMPORT_KEEP_MINUTES = int(os.environ.get("QUENBY_IMPORT_KEEP_MINUTES", "120"))
 # the product's own name on everything it sets in a browser or sends out
 PRODUCT_NAME = "Quenby"
 SESSION_COOKIE_NAME = "quenby_session"

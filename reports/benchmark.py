@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import os
 import statistics
 import time
 
@@ -153,3 +154,73 @@ def page(client, url, repeat=5):
             response = client.get(url)
             times.append(time.perf_counter() - started)
     return statistics.median(times), len(queries.captured_queries), response.status_code
+
+
+# The register import ------------------------------------------------------------------------------
+# Invented service duties for the generated register (created inside the measurement's rolled-back transaction
+# when missing: a plant imports its fluids first).
+IMPORT_FLUIDS = [
+    {"name": "Bench cooling water", "phase": "liquid", "conductivity_us_cm": 450, "density_kg_m3": 998,
+     "viscosity_mpa_s": 1.0, "temperature_c": 25},
+    {"name": "Bench brine", "phase": "liquid", "conductivity_us_cm": 60000, "density_kg_m3": 1150, "chlorides": True,
+     "scaling": True},
+    {"name": "Bench lime slurry", "phase": "slurry", "density_kg_m3": 1250, "solids": True, "sticky": True},
+    {"name": "Bench effluent", "phase": "liquid", "conductivity_us_cm": 1500, "biofouling": True},
+    {"name": "Bench condensate", "phase": "liquid", "conductivity_us_cm": 2, "temperature_c": 90},
+]
+IMPORT_PRINCIPLES = ["electromagnetic", "coriolis", "vortex", "ultrasonic_transit", "turbine", "orifice"]
+
+
+def ensure_import_fluids() -> list[str]:
+    """The generated register's fluids, created if missing; their names."""
+    from plant.models import Fluid
+
+    for values in IMPORT_FLUIDS:
+        if not Fluid.objects.filter(name=values["name"]).exists():
+            Fluid.objects.create(**values)
+    return [values["name"] for values in IMPORT_FLUIDS]
+
+
+def register_rows(count: int, fluids: list[str], seed: int = 20261205) -> list[dict]:
+    """A generated meter register of `count` new positions (tags BENCH-00001...), in the import's columns, as
+    strings: 4 sites of 10 areas, the fluids given, every principle of IMPORT_PRINCIPLES, flows inside the range."""
+    import random
+
+    from plant.importer import METER_COLUMNS
+
+    rng = random.Random(seed)
+    rows = []
+    for n in range(1, count + 1):
+        principle = IMPORT_PRINCIPLES[n % len(IMPORT_PRINCIPLES)]
+        high = rng.choice([10, 25, 40, 60, 100, 250, 400])
+        diameter = rng.choice([26.6, 52.5, 77.9, 102.3, 154.1])
+        row = {
+            "tag": f"BENCH-{n:05d}", "principle": principle, "site": f"Bench site {n % 4 + 1}",
+            "area": f"Bench area {n % 10 + 1}", "fluid": fluids[n % len(fluids)], "line_size": f"DN{int(diameter)}",
+            "internal_diameter_mm": f"{diameter}", "range_min": "0", "range_max": f"{high}", "flow_units": "m3/h",
+            "normal_flow": f"{high * rng.uniform(0.3, 0.8):.2f}", "min_flow": f"{high * rng.uniform(0.05, 0.2):.2f}",
+            "required_accuracy_pct": rng.choice(["", "0.5", "1", "2"]),
+            "wetted_material": rng.choice(["", "316L", "titanium"]), "material_details": "",
+            "serial": f"BS{n:06d}", "maker": "Invented Instruments", "model": "X1", "mpe_value": "0.5",
+            "mpe_basis": "pct_reading", "base_interval_days": rng.choice(["365", "730"]),
+        }
+        rows.append({column: row[column] for column in METER_COLUMNS})
+    return rows
+
+
+def register_files(rows: list[dict]) -> dict[str, bytes]:
+    """The generated register as the two files a user uploads: {"csv": bytes, "xlsx": bytes}."""
+    import pandas as pd
+
+    from plant import spreadsheet
+
+    frame = pd.DataFrame(rows)
+    return {"csv": spreadsheet.frame_csv_text(frame).encode("utf-8"),
+            "xlsx": spreadsheet.frames_xlsx_bytes({"meters": frame})}
+
+
+def load_average() -> str:
+    try:
+        return " ".join(f"{value:.2f}" for value in os.getloadavg())
+    except OSError:
+        return "not available"

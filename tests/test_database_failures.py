@@ -26,7 +26,7 @@ from tests.test_calibration_records import entry_data, meter, standard  # noqa: 
 pytestmark = pytest.mark.django_db
 FAILURES = [OperationalError("server closed the connection unexpectedly"),
             InterfaceError("connection already closed"), DatabaseError("could not write block: No space left")]
-WRITES = ("INSERT", "UPDATE", "DELETE")
+WRITES = ("INSERT", "UPDATE", "DELETE", "COPY")  # COPY: the bulk import on PostgreSQL
 
 
 @contextlib.contextmanager

@@ -7,10 +7,17 @@ from django.core.files.uploadedfile import SimpleUploadedFile
 from django.urls import reverse
 
 from plant import importer
-from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+from plant.models import Area, DutyPeriod, Fluid, Meter, Position, Site
 from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
+
+
+@pytest.fixture(autouse=True)
+def media(settings, tmp_path):
+    """Files kept between a dry run and its apply go under a MEDIA_ROOT of the test's own."""
+    settings.MEDIA_ROOT = tmp_path / "media"
+    return settings.MEDIA_ROOT
 
 @pytest.fixture
 def logged_in_client(client, django_user_model):
@@ -153,16 +160,14 @@ def test_good_file_applies_everything(register):
     assert Meter.objects.count() == 4
 
 
-def test_failure_mid_apply_rolls_back_everything(register, monkeypatch):
+@pytest.mark.parametrize("failing", ["update", "bulk write", "recompute"])
+def test_failure_mid_apply_rolls_back_everything(register, monkeypatch, failing):
+    """A failure anywhere in the apply (the changed row saved one by one, a bulk write of the new rows, the due-date
+    recompute that ends it) leaves the register as it was."""
     before = counts()
-    original_save = Meter.save
-    calls = {"n": 0}
 
-    def flaky_save(self, *args, **kwargs):
-        calls["n"] += 1
-        if calls["n"] == 3:
-            raise RuntimeError("disk on fire")
-        return original_save(self, *args, **kwargs)
+    def fail(*args, **kwargs):
+        raise RuntimeError("disk on fire")
 
     content = csv_bytes(
         meter_line("FT-100", serial="SN1-NEW"),
@@ -172,13 +177,29 @@ def test_failure_mid_apply_rolls_back_everything(register, monkeypatch):
     )
     plan = plan_for(content)
     assert plan.ok and plan.counts["create"] == 3
-    monkeypatch.setattr(Meter, "save", flaky_save)
+    if failing == "update":
+        monkeypatch.setattr(Meter, "save", fail)
+    elif failing == "bulk write":  # the fourth table written in bulk (after positions and devices)
+        original, calls = importer._insert, []
+
+        def fail_fourth(*args, **kwargs):
+            calls.append(args[0])
+            if len(calls) == 4:
+                fail()
+            return original(*args, **kwargs)
+
+        monkeypatch.setattr(importer, "_insert", fail_fourth)
+        if not importer._fast_writes():
+            monkeypatch.setattr(DutyPeriod.objects, "bulk_create", fail)
+    else:
+        monkeypatch.setattr("calibration.fleet.recompute_due_dates", fail)
     with pytest.raises(RuntimeError, match="disk on fire"):
         importer.apply_import(plan)
     monkeypatch.undo()
     assert counts() == before
     assert Meter.objects.get(position__tag="FT-100").serial == "SN1"
     assert not Site.objects.filter(name="West").exists()
+    assert not Position.objects.filter(tag__startswith="FT-40").exists()
 
 
 # Round trips ------------------------------------------------------------------------------------------------------
@@ -231,14 +252,20 @@ def test_view_dry_run_shows_plan_and_saves_nothing(register, logged_in_client):
     assert "FT-200" in body and "creates area South / Pump house" in body and "Apply 3 changes" in body
     assert counts() == before
 
-    # the "Apply" button posts the checked file back without a new upload
+    # the "Apply" button names the file kept on the server: the file itself is not in the page
     apply_form = response.context["apply_form"]
-    response = logged_in_client.post(reverse("plant:import"), {
-        "kind": "meters", "payload": apply_form.initial["payload"], "filename": "meters.csv",
-    })
+    token = apply_form.initial["token"]
+    assert token in body and "payload" not in body
+    assert good_file().decode().splitlines()[3] not in body
+    response = logged_in_client.post(reverse("plant:import"), {"kind": "meters", "token": token})
     assert response.status_code == 200
     assert response.context["plan"].applied
+    assert "Imported meters.csv" in response.content.decode()
     assert Meter.objects.filter(position__tag__in=["FT-200", "FT-201"]).count() == 2
+    # applied: no longer kept
+    response = logged_in_client.post(reverse("plant:import"), {"kind": "meters", "token": token})
+    assert response.status_code == 400
+    assert "no longer kept on the server" in response.content.decode()
 
 
 def test_view_errors_are_400_and_apply_saves_nothing(register, logged_in_client):

@@ -140,3 +140,23 @@ def test_range_fit_warnings_minimum_below_the_principles_usable_minimum():
 def test_range_fit_warnings_refuse_nonsense(args, name):
     with pytest.raises(ValueError, match=name):
         fit.range_fit_warnings(*args)
+
+
+def test_import_refuses_an_unfit_new_row_unless_a_reason_is_given(demo_maintenance):
+    from plant import importer
+
+    oil = Position.objects.get(tag="FT-404")
+    row = {"tag": "FT-498", "principle": "electromagnetic", "site": oil.area.site.name, "area": oil.area.name,
+           "fluid": oil.fluid.name, "line_size": "DN25", "internal_diameter_mm": "25", "range_max": "10",
+           "flow_units": "m3/h", "normal_flow": "4", "min_flow": "1", "mpe_value": "0.5", "serial": "SN-IMP-1"}
+    plan = importer.plan_import("meters", [row])
+    assert [(e.row_number, e.column) for e in plan.errors] == [(2, "principle")]
+    assert "is not fit for the duty at FT-498" in plan.errors[0].message
+    assert "unfit_reason column" in plan.errors[0].message
+    reviewer = user_with_role("reviewer")
+    applied = importer.apply_rows("meters", [{**row, "unfit_reason": "Trial of a coated-electrode design."}],
+                                  user=reviewer)
+    assert applied.applied and not applied.warnings  # the optional column is not an "unknown column"
+    installation = Installation.objects.get(position__tag="FT-498")
+    assert installation.unfit_reason == "Trial of a coated-electrode design."
+    assert installation.unfit_findings == "EM_LOW_CONDUCTIVITY" and installation.unfit_accepted_by == reviewer

@@ -1,7 +1,9 @@
-"""Measure the fleet recompute (bulk and naive), the review page, a certificate and a calibration save."""
+"""Measure the fleet recompute (bulk and naive), the review page, a certificate, a calibration save and the
+register import of a generated plant register (dry run and apply)."""
 import datetime as dt
 import os
 import platform
+import time
 
 from django.contrib.auth.models import Group, User
 from django.core.management import BaseCommand, CommandError
@@ -18,7 +20,7 @@ from plant.roles import REVIEWER, TECHNICIAN, ensure_roles
 from reports import benchmark, certificate
 
 TARGETS = {"recompute": 10.0, "ratio": 20.0, "review": 0.300, "register": 0.300, "certificate": 1.5,
-           "conformity_share": 0.20}
+           "conformity_share": 0.20, "import_dry_run": 10.0, "import_apply": 20.0}
 
 
 class _Rollback(Exception):
@@ -50,8 +52,17 @@ class Command(BaseCommand):
         parser.add_argument("--naive-meters", type=int, default=0,
                             help="time the naive recompute on the first N meters only and scale to the fleet "
                                  "(0 = the whole fleet)")
+        parser.add_argument("--import-rows", type=int, default=20000,
+                            help="rows of the generated register whose import is timed (0: no import measurement)")
+        parser.add_argument("--import-only", action="store_true",
+                            help="measure the register import only (any migrated database, no fleet needed)")
 
-    def handle(self, *args, repeat, naive_meters, **options):
+    def handle(self, *args, repeat, naive_meters, import_rows, import_only, **options):
+        if import_only:
+            self.stdout.write(f"Quenby benchmark, register import only. Machine: {machine()}")
+            self.stdout.write(f"Database: {database()}; {Meter.objects.count()} devices in the register")
+            self._table(self._import(import_rows or 20000))
+            return
         meters = Meter.objects.count()
         if not meters:
             raise CommandError("No meters: build a fleet first, e.g. python manage.py make_fleet --meters 20000")
@@ -104,6 +115,11 @@ class Command(BaseCommand):
         except _Rollback:
             pass
 
+        if import_rows:
+            rows += self._import(import_rows)
+        self._table(rows)
+
+    def _table(self, rows):
         width = max(len(r[0]) for r in rows) + 2
         self.stdout.write("")
         result_width = max(len(r[1]) for r in rows) + 2
@@ -164,6 +180,47 @@ class Command(BaseCommand):
                      None if response.status_code == 302 else False))
         return rows
 
+
+    def _import(self, count):
+        """The register import of a generated `count`-row register of new positions (its fluids there first):
+        reading the file (CSV; XLSX for comparison), the dry run and the apply, as the import page runs them, inside
+        a transaction rolled back after. The load average is printed before and after: other work on the
+        machine changes these figures many times over."""
+        from plant import importer
+
+        rows = []
+        self.stdout.write(f"Register import of {count} rows; load average before: {benchmark.load_average()}")
+        try:
+            with transaction.atomic():
+                fluids = benchmark.ensure_import_fluids()
+                files = benchmark.register_files(benchmark.register_rows(count, fluids))
+                read_csv, table = benchmark.timed(lambda: importer.read_table(files["csv"], "register.csv"))
+                read_xlsx, _ = benchmark.timed(lambda: importer.read_table(files["xlsx"], "register.xlsx"))
+                rows.append((f"Register file read, {count} rows", f"CSV {read_csv:.2f} s ({len(files['csv']) // 1024} "
+                             f"KiB); XLSX {read_xlsx:.2f} s ({len(files['xlsx']) // 1024} KiB)", "", None))
+                cpu = time.process_time()
+                dry, plan = benchmark.timed(
+                    lambda: importer.plan_import("meters", importer.read_table(files["csv"], "register.csv")))
+                dry_cpu = time.process_time() - cpu
+                if not plan.ok or plan.counts["create"] != count:
+                    raise CommandError(f"The generated register was refused: {plan.errors[:3]}")
+                rows.append((f"Import dry run, {count} new rows (CSV read included)",
+                             f"{dry:.2f} s (this process's CPU {dry_cpu:.2f} s)",
+                             f"< {TARGETS['import_dry_run']:.0f} s", dry < TARGETS["import_dry_run"]))
+                cpu = time.process_time()
+                applied, result = benchmark.timed(
+                    lambda: importer.apply_rows("meters", importer.read_table(files["csv"], "register.csv")))
+                apply_cpu = time.process_time() - cpu
+                if not result.applied:
+                    raise CommandError(f"The generated register was not applied: {result.errors[:3]}")
+                rows.append((f"Import apply, {count} new rows (read, check, write, recompute)",
+                             f"{applied:.2f} s (this process's CPU {apply_cpu:.2f} s)",
+                             f"< {TARGETS['import_apply']:.0f} s", applied < TARGETS["import_apply"]))
+                raise _Rollback
+        except _Rollback:
+            pass
+        self.stdout.write(f"Load average after the import: {benchmark.load_average()}")
+        return rows
 
     def _register(self, technician, rare, repeat):
         """The register as a technician sees it (with the Calibrate action), sorted by due date: whole fleet and
