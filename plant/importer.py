@@ -963,10 +963,7 @@ def _unfit_fields(row: RegisterRow, user) -> dict:
     plant.installations.install keeps it); nothing for a fit device."""
     reason = getattr(row, "unfit_reason", "")
     findings = installations.unfit_findings(row.device, row.position) if reason else []
-    if not findings:
-        return {}
-    return {"unfit_reason": reason, "unfit_findings": ", ".join(f.code for f in findings)[:300],
-            "unfit_accepted_by": user}
+    return installations.unfit_fields(findings, reason, user) if findings else {}
 
 
 def _create_rows(rows: list[RegisterRow], user) -> list[int]:

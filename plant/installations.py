@@ -113,6 +113,11 @@ def _accept_unfit(device: Meter, position: Position, user, unfit_reason: str) ->
     if not reason:
         raise InstallationError({"unfit_reason": [
             f"{sentence} To install it all the same, write why (the reason is kept with the installation)."]})
+    return unfit_fields(findings, reason, user)
+
+
+def unfit_fields(findings, reason: str, user) -> dict:
+    """The fields an Installation keeps of a device installed though not fit for the duty."""
     return {"unfit_reason": reason, "unfit_findings": ", ".join(f.code for f in findings)[:300],
             "unfit_accepted_by": user}
 
