@@ -17,6 +17,7 @@ from collections import defaultdict
 import numpy as np
 import pandas as pd
 from django.conf import settings
+from django.core.serializers.json import DjangoJSONEncoder
 from django.db import connections, transaction
 from django.db.models import Case, Q, Value, When
 
@@ -323,9 +324,12 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     whole_fleet = meters_qs is None
     meters_qs = Meter.objects.all() if whole_fleet else meters_qs
     cfg = policy()
-    meters = list(meters_qs.only(*METER_INPUTS).order_by("pk"))
+    # the stored results are read too: a row whose recomputed fields equal them is not written again (on
+    # PostgreSQL every rewrite leaves a dead row and index entries behind; issue 32)
+    meters = list(meters_qs.only(*METER_INPUTS, *UPDATED_FIELDS).order_by("pk"))
     if not meters:
         return 0
+    stored = {m.pk: stored_due_fields(m) for m in meters}
     attach_duties(meters, None if whole_fleet else meters_qs)
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
     # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
@@ -358,7 +362,7 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
             _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg)
         if progress:
             progress(1)
-    write_due_fields(meters, batch_size=batch_size)
+    write_due_fields([m for m in meters if stored_due_fields(m) != stored[m.pk]], batch_size=batch_size)
     # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
     from calibration.conformity_fleet import update_conformity
 
@@ -455,6 +459,13 @@ def _assess(meter, last_event, summary, method, cfg):
     meter.drift_status = status
     meter.drift_rate_per_year = rate * 365.25 if rate is not None else None
     meter.predicted_crossing = crossing
+
+
+def stored_due_fields(meter) -> tuple:
+    """The recompute's fields of a meter as the database would hold them (the rationale as canonical JSON), to
+    tell a changed row from an unchanged one."""
+    return tuple(json.dumps(getattr(meter, name), sort_keys=True, cls=DjangoJSONEncoder) if name == "due_rationale"
+                 else getattr(meter, name) for name in UPDATED_FIELDS)
 
 
 def write_due_fields(meters, batch_size=1000):
