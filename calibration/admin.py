@@ -45,9 +45,9 @@ class ReferenceStandardAdmin(RefuseCitedDeletes, admin.ModelAdmin):
     """A standard that signed calibrations cite is withdrawn from use, not deleted: the records keep pointing at
     it and the tablet form no longer offers it."""
 
-    list_display = ("identification", "description", "phase", "range_min", "range_max", "units", "due_date",
+    list_display = ("identification", "description", "phase", "principle", "range_min", "range_max", "units", "due_date",
                     "certificate_number", "issuer", "withdrawn")
-    list_filter = ("withdrawn", "phase")
+    list_filter = ("withdrawn", "phase", "principle")
     actions = ["withdraw_from_use"]
 
     @admin.action(description="Withdraw the selected standards from use", permissions=["change"])

@@ -25,7 +25,7 @@ class EventForm(forms.ModelForm):
         queryset=ReferenceStandard.objects.all(), widget=forms.CheckboxSelectMultiple,
         error_messages={"required": "Choose the reference standard used.",
                         "invalid_choice": "Reference standard %(value)s is withdrawn or does not suit this meter "
-                                          "(phase or range); choose one of those listed."},
+                                          "(phase, measuring principle or range); choose one of those listed."},
     )
     adjusted = YesNoField(label="Adjustment made", required=False)
     values_checked = YesNoField(

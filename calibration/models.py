@@ -23,7 +23,7 @@ from simple_history.models import HistoricalRecords
 from calibration import decision, errors, signed_content, uncertainty, units
 from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
 from ledger import chain
-from plant import citations
+from plant import citations, risk
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, number_or_none
 
@@ -61,6 +61,12 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
         PERCENT_READING = "pct_reading", "% of reading"
         ABSOLUTE = "absolute", "absolute (flow units)"
 
+    # the measuring principle of a standard: a device principle (a master meter, judged by the same principle×fluid
+    # rules as a meter, plant/risk.py) or a primary method, which the risk rules do not restrict
+    PRINCIPLE_CHOICES = [*Meter.Principle.choices,
+                         ("gravimetric", "Gravimetric (weighed collection)"),
+                         ("volumetric_prover", "Volumetric prover (pipe or tank)")]
+
     identification = models.CharField(max_length=60, unique=True)
     description = models.CharField(max_length=200)
     range_min = models.FloatField(default=0.0)
@@ -78,6 +84,9 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
                               help_text="the laboratory that calibrated this standard and issued its certificate")
     phase = models.CharField("for fluids of phase", max_length=10, choices=Fluid.Phase.choices, blank=True,
                              help_text="blank: not tied to one phase")
+    principle = models.CharField("measuring principle", max_length=30, choices=PRINCIPLE_CHOICES, blank=True,
+                                 help_text="blank: not stated (offered as for any principle); a stated device "
+                                           "principle is not offered on a fluid it is not fit for")
     withdrawn = models.BooleanField("withdrawn from use", default=False)
     calibrated_on = models.DateField("calibrated on", null=True, blank=True,
                                      help_text="the date of the calibration its certificate reports")
@@ -119,15 +128,30 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
         * any other unit (a conversion the form cannot make): only with ``convertible_only=False`` (the form
           accepts such a standard so that it can refuse it with the reason).
 
+        A standard whose stated principle the principle×fluid rules call not fit for the meter's fluid
+        (plant/risk.py, a ``misapplied`` finding: e.g. an electromagnetic reference on a vegetable oil) is left
+        out; one with no principle stated, or a primary method (gravimetric, volumetric prover), is not.
+
         A new spare that has served nowhere yet has no fluid: on the bench any phase may be used."""
         qs = cls.objects.filter(withdrawn=False)
         fluid = meter.fluid
         if fluid is not None:
             qs = qs.filter(models.Q(phase="") | models.Q(phase=fluid.phase))
+            unfit = cls.principles_unfit_for(fluid)
+            if unfit:
+                qs = qs.exclude(principle__in=unfit)
         qs = qs.filter(cls._units_and_range_q(meter, convertible_only))
         if on_date is not None:
             qs = qs.filter(due_date__gte=on_date)
         return qs
+
+    @staticmethod
+    def principles_unfit_for(fluid):
+        """The device principles the principle×fluid rules (plant/risk.py assess) call not fit for this fluid
+        (a ``misapplied`` finding), judged on the fluid alone: the standard's wetted material is not recorded."""
+        props = fluid.props()
+        return [p for p in risk.PRINCIPLES
+                if any(f.severity == "misapplied" for f in risk.assess(p, "", props))]
 
     @staticmethod
     def _units_and_range_q(meter, convertible_only):

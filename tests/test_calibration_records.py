@@ -270,6 +270,37 @@ def test_only_suitable_standards_are_offered(client, meter, standard):
     assert counts() == (0, 0)
 
 
+def test_standard_of_a_principle_unfit_for_the_fluid_is_not_offered(client, meter):
+    """Issue 27 item 4: a standard whose stated principle the principle×fluid rules call not fit for the meter's
+    fluid (plant/risk.py: a magnetic meter needs a conductive liquid, common practice about 5 µS/cm) is not offered
+    and refused if sent; no principle stated, or a primary method, is offered as before."""
+    oil = Fluid.objects.create(name="Vegetable oil", phase="liquid", conductivity_us_cm=0.0001)
+    turbine = commission(tag="FT-OIL", principle="turbine", area=meter.area, fluid=oil, line_size="DN50",
+                         internal_diameter_mm=52.5, range_min=2, range_max=40, mpe_value=0.5,
+                         mpe_basis="pct_reading", wetted_material="316L")
+
+    def make(ident, principle):
+        return ReferenceStandard.objects.create(
+            identification=ident, description="ref", range_min=0, range_max=50, certificate_number="C",
+            due_date=dt.date(2099, 1, 1), expanded_uncertainty=0.1, principle=principle)
+
+    magnetic, thermal = make("RS-EM", "electromagnetic"), make("RS-TH", "thermal_mass")
+    unstated, weighed, master = make("RS-NONE", ""), make("RS-GRAV", "gravimetric"), make("RS-TURB", "turbine")
+    offered = set(ReferenceStandard.offered_for(turbine).values_list("identification", flat=True))
+    assert offered == {unstated.identification, weighed.identification, master.identification}
+    # on water of 500 µS/cm the same magnetic reference is fit and offered (a thermal one, for gas only, is not)
+    on_water = set(ReferenceStandard.offered_for(meter).values_list("identification", flat=True))
+    assert magnetic.identification in on_water and thermal.identification not in on_water
+    body = client.get(f"/meters/{turbine.tag}/calibrate/").content.decode()
+    assert f'name="ev-reference_standards" value="{magnetic.pk}"' not in body
+    assert f'name="ev-reference_standards" value="{weighed.pk}"' in body
+    before = counts()
+    response = client.post(f"/meters/{turbine.tag}/calibrate/", entry_data(magnetic))
+    assert response.status_code == 400
+    assert "is withdrawn or does not suit this meter" in html.unescape(response.content.decode())
+    assert counts() == before
+
+
 def test_repeats_rule_the_indication_is_their_mean(client, meter, standard):
     """Issue 17 item 6: with repeat readings the indication used is their mean; an indication typed beside them
     must be that mean to the digits typed, else it is refused at the field and nothing is saved."""
