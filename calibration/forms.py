@@ -460,12 +460,21 @@ class CalibrationEntry:
             for form in self.as_left.kept_forms():
                 form.add_error("reference_value", "As-left point required after an adjustment.")
         date = self.event_form.cleaned_data.get("performed_on")
-        values = [r["reference_entered"] for r in found_rows + self.as_left.filled_rows()]  # the standard's units
         problems = []
         for standard in self.event_form.cleaned_data.get("reference_standards", []):
-            problems.extend(standard.problems(date, values))
+            problems.extend(standard.problems(date))
         for p in problems:
             self.event_form.add_error("reference_standards", p)
+        # a reading outside a standard's usable range: refused at the reference field of its row
+        for grid in (self.as_found, self.as_left):
+            for form in grid.kept_forms():
+                if form.errors or form.is_blank() or form.cleaned_data.get("reference_entered") is None:
+                    continue
+                for standard in self.event_form.cleaned_data.get("reference_standards", []):
+                    message = standard.range_problem([form.cleaned_data["reference_entered"]])
+                    if message:
+                        form.add_error("reference_value", message)
+                        problems.append(message)
         standards = self.event_form.cleaned_data.get("reference_standards")
         if not problems and standards:
             rule = self.event_form.cleaned_data.get("decision_rule")

@@ -184,13 +184,28 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
             found.append(f"Reference standard {self.identification} is withdrawn from use.")
         if on_date > self.due_date:
             found.append(f"Reference standard {self.identification} was past its due date ({self.due_date}) on {on_date}.")
-        outside = [v for v in values if v < self.range_min or v > self.range_max]
-        if outside:
-            found.append(
-                f"Reference standard {self.identification} covers {self.range_min:g}–{self.range_max:g} "
-                f"{self.units_label}; {', '.join(f'{v:g}' for v in outside)} is outside its range."
-            )
+        message = self.range_problem(values)
+        if message:
+            found.append(message)
         return found
+
+    def range_problem(self, values):
+        """The reason these reference values (in the standard's units) are outside the range where its stated
+        uncertainty holds (calibration/uncertainty.py standard_usable_range), or "" when none is."""
+        low, high, rule_of_thumb = uncertainty.standard_usable_range(self.range_min, self.range_max)
+        slack = 1e-9 * max(abs(low), abs(high), 1.0)  # a converted value is not exact in binary
+        outside = [v for v in values if v < low - slack or v > high + slack]
+        if not outside:
+            return ""
+        label = self.units_label
+        where = ", ".join(f"{v:g}" for v in outside)
+        text = (f"Reference standard {self.identification} is calibrated over {self.range_min:g}–{self.range_max:g} "
+                f"{label}")
+        if rule_of_thumb:
+            text += (f" and usable from {low:g} {label} (common practice: 10 % of its range maximum when its range "
+                     "starts at 0)")
+        return (text + f"; its uncertainty is not stated at {where} {label}. Use a standard whose range covers "
+                "this point.")
 
 
 class StandardDcc(models.Model):

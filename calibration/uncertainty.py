@@ -58,6 +58,23 @@ def standard_from_expanded(U: float, k: float = 2) -> float:
     return U / k
 
 
+# Common practice (no standard document; a usual rule for flow references): a reference whose range is stated
+# from zero is not used below 10 % of its range maximum, where a % of reading uncertainty is not credible.
+STANDARD_USABLE_MIN_FRACTION = 0.10
+
+
+def standard_usable_range(range_min: float, range_max: float) -> tuple[float, float, bool]:
+    """The range over which a reference standard's stated uncertainty holds: its calibrated range
+    (JCGM 200:2012 (VIM) 4.7 measuring interval: a stated uncertainty applies only there). When the range is
+    stated from 0, the usable minimum is STANDARD_USABLE_MIN_FRACTION of the range maximum (common practice).
+
+    Returns (low, high, low_is_rule_of_thumb)."""
+    low, high = float(range_min), float(range_max)
+    if low <= 0:
+        return STANDARD_USABLE_MIN_FRACTION * high, high, True
+    return low, high, False
+
+
 def reference_standard_u(reference_value: float, U_ref: float, basis: str, k: float = 2) -> float:
     """Standard uncertainty of the reference (Type B, GUM 4.3.3) in flow units.
 

@@ -27,7 +27,7 @@ def meter():
 
 @pytest.fixture
 def standard():
-    return ReferenceStandard.objects.create(identification="RS-1", description="Master meter", range_min=0, range_max=50,
+    return ReferenceStandard.objects.create(identification="RS-1", description="Master meter", range_min=0, range_max=40,
                                             certificate_number="C-100", due_date=dt.date(2027, 6, 1),
                                             expanded_uncertainty=0.1, uncertainty_basis="pct_reading")
 
@@ -125,7 +125,7 @@ def test_expired_or_out_of_range_standard_refused(client, meter, standard):
     assert f'name="ev-reference_standards" value="{standard.pk}"' not in client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
     response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 400
-    assert "is withdrawn or does not suit this meter (phase or range)" in html.unescape(response.content.decode())
+    assert "is withdrawn or does not suit this meter (phase, measuring principle or range)" in html.unescape(response.content.decode())
     assert counts() == (0, 0)
 
 
@@ -299,6 +299,37 @@ def test_standard_of_a_principle_unfit_for_the_fluid_is_not_offered(client, mete
     assert response.status_code == 400
     assert "is withdrawn or does not suit this meter" in html.unescape(response.content.decode())
     assert counts() == before
+
+
+def test_a_point_outside_the_standards_usable_range_is_refused_at_its_reference_field(client, meter):
+    """Issue 27 item 4: a standard's stated uncertainty holds only within its calibrated range (JCGM 200:2012
+    (VIM) 4.7); from a range starting at 0 it is used from 10 % of its range maximum (common practice). A
+    0–500 m³/h reference at 1 m³/h on a 0–10 m³/h meter is refused at the row's reference field, nothing saved."""
+    small = commission(tag="FT-SMALL", principle="electromagnetic", area=meter.area, fluid=meter.fluid,
+                       line_size="DN15", internal_diameter_mm=16, range_min=0, range_max=10, mpe_value=0.5,
+                       mpe_basis="pct_reading", wetted_material="316L")
+    wide = ReferenceStandard.objects.create(identification="RS-500", description="portable master", range_min=0,
+                                            range_max=500, certificate_number="C-500", due_date=dt.date(2099, 1, 1),
+                                            expanded_uncertainty=0.1)
+    response = client.post(f"/meters/{small.tag}/calibrate/", entry_data(wide, found=[(1, 1.01)]))
+    assert response.status_code == 400
+    row = response.context["entry"].as_found.forms[0]
+    usable_from = 0.10 * 500  # the common-practice minimum, 10 % of the range maximum
+    assert row.errors["reference_value"] == [
+        f"Reference standard RS-500 is calibrated over 0–500 m³/h and usable from {usable_from:g} m³/h (common "
+        "practice: 10 % of its range maximum when its range starts at 0); its uncertainty is not stated at 1 m³/h. "
+        "Use a standard whose range covers this point."]
+    assert counts() == (0, 0)
+    # a stated range minimum is the limit itself (no rule of thumb): 2 is inside 2–50, 1.5 below it
+    stated = ReferenceStandard.objects.create(identification="RS-2", description="bench", range_min=2, range_max=50,
+                                              certificate_number="C-2", due_date=dt.date(2099, 1, 1),
+                                              expanded_uncertainty=0.1)
+    assert stated.range_problem([2, 50]) == ""
+    assert stated.range_problem([1.5]) == (
+        "Reference standard RS-2 is calibrated over 2–50 m³/h; its uncertainty is not stated at 1.5 m³/h. Use a "
+        "standard whose range covers this point.")
+    # the same wide reference within its usable range (50 m³/h and up) raises nothing
+    assert wide.range_problem([50, 500]) == ""
 
 
 def test_repeats_rule_the_indication_is_their_mean(client, meter, standard):

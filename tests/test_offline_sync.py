@@ -39,10 +39,10 @@ def field(db):
 
     meters = {"soon": meter("FT-OFF-1", 10), "overdue": meter("FT-OFF-2", -20), "later": meter("FT-OFF-3", 200),
               "never": meter("FT-OFF-4", None), "removed": meter("FT-OFF-5", 5, status="removed")}
-    standard = ReferenceStandard.objects.create(identification="RS-OFF", description="master meter", range_max=50,
+    standard = ReferenceStandard.objects.create(identification="RS-OFF", description="master meter", range_max=40,
                                                 certificate_number="C-OFF", due_date=TODAY + dt.timedelta(days=300),
                                                 expanded_uncertainty=0.1)
-    lapsed = ReferenceStandard.objects.create(identification="RS-LAPSED", description="old master", range_max=50,
+    lapsed = ReferenceStandard.objects.create(identification="RS-LAPSED", description="old master", range_max=40,
                                               certificate_number="C-OLD", due_date=TODAY - dt.timedelta(days=3),
                                               expanded_uncertainty=0.1)
     users = {"tech": user_with_role("technician", "offtech"), "tech2": user_with_role("technician", "offtech2"),

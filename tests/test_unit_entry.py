@@ -179,8 +179,10 @@ def test_the_meter_range_is_checked_after_conversion_and_the_standard_range_in_i
         "49910 kg/h (50 m³/h) is outside the meter's calibrated range 0–40 m³/h."]
     entry = CalibrationEntry(meter, post([small], [(19964, 20.05)], density=WATER_20C))
     assert not entry.is_valid()
-    assert entry.event_form.errors["reference_standards"] == [
-        "Reference standard RS-SMALL covers 0–10000 kg/h; 19964 is outside its range."]
+    assert entry.as_found.forms[0].errors["reference_value"] == [
+        "Reference standard RS-SMALL is calibrated over 0–10000 kg/h and usable from 1000 kg/h (common practice: "
+        "10 % of its range maximum when its range starts at 0); its uncertainty is not stated at 19964 kg/h. Use a "
+        "standard whose range covers this point."]
 
 
 def test_offered_standards_compare_ranges_after_a_fixed_factor_and_keep_the_page_queries_bounded(tech, plant):
