@@ -101,7 +101,14 @@ STANDARDS = {
     "RS-1": (0.1, "pct_reading", dt.date(2030, 1, 1)),
     "RS-2": (0.05, "absolute", dt.date(2030, 1, 1)),
 }
-STANDARD_RANGE = (0.0, 5000.0)
+# each unit's standards cover the meters read in that unit (a realistic range for the duty, issue 27 item 4)
+STANDARD_RANGE = {"m3/h": (0.0, 40.0), "t/h": (5.0, 100.0), "kg/h": (0.0, 2000.0)}
+
+
+def usable_range(low, high):
+    """Where a standard's stated uncertainty holds: its calibrated range, from 10 % of its maximum when it is
+    stated from 0 (common practice; restated here independently of calibration/uncertainty.py)."""
+    return (high / 10 if low == 0 else low), high
 SIGNED_ON = dt.date(2025, 6, 1)
 
 
@@ -132,7 +139,7 @@ def base(db):
         units: {
             ident: ReferenceStandard.objects.create(
                 identification=ident if units == "m3/h" else f"{ident} {units}", description="Master meter",
-                range_min=STANDARD_RANGE[0], range_max=STANDARD_RANGE[1], units=units,
+                range_min=STANDARD_RANGE[units][0], range_max=STANDARD_RANGE[units][1], units=units,
                 certificate_number=f"C-{ident}", due_date=due_date, expanded_uncertainty=U, uncertainty_basis=basis,
             )
             for ident, (U, basis, due_date) in STANDARDS.items()
@@ -1109,11 +1116,17 @@ def judge_calibration(case, base):
     bad |= {("af", i, "reference_value") for i, (status, _, _) in enumerate(rows["af"]) if status == "blank"}
     if event["adjusted"] and not left:
         bad.add(("entry", "no as-left"))
+    outside = set()
     for standard in standards:
-        outside = [r for r in found + left if not STANDARD_RANGE[0] <= r["reference_value"] <= STANDARD_RANGE[1]]
-        if performed_on > standard.due_date or outside:
+        if performed_on > standard.due_date:
             bad.add(("ev", "reference_standards"))
-    if ("ev", "reference_standards") in bad:
+        # a reading outside the standard's usable range: refused at that row's reference field
+        low, high = usable_range(standard.range_min, standard.range_max)
+        for prefix in ("af", "al"):
+            outside |= {(prefix, i, "reference_value") for i, (status, _, values) in enumerate(rows[prefix])
+                        if status == "filled" and not low <= values["reference_value"] <= high}
+    bad |= outside
+    if ("ev", "reference_standards") in bad or outside:
         return bad, event, []
     points = []
     for prefix, kind in (("af", "as_found"), ("al", "as_left")):

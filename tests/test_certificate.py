@@ -36,7 +36,7 @@ def meter():
 @pytest.fixture
 def standard():
     return ReferenceStandard.objects.create(identification="RS-7", description="Portable master meter", range_min=0,
-                                            range_max=50, certificate_number="UKAS-0042-7781",
+                                            range_max=40, certificate_number="UKAS-0042-7781",
                                             due_date=dt.date(2027, 6, 1), expanded_uncertainty=0.1,
                                             uncertainty_basis="pct_reading")
 
