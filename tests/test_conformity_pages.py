@@ -61,7 +61,7 @@ def test_weak_reference_gives_conformity_not_decided(client, meter, monkeypatch)
     """The issue's field finding: errors inside the MPE that guarded acceptance cannot accept with a weak reference
     are 'conformity not decided (TUR x:1)', on the page and on the certificate."""
     weak = ReferenceStandard.objects.create(identification="RS-9", description="Older master meter", range_min=0,
-                                            range_max=50, certificate_number="C-9", due_date=dt.date(2027, 6, 1),
+                                            range_max=40, certificate_number="C-9", due_date=dt.date(2027, 6, 1),
                                             expanded_uncertainty=0.3, uncertainty_basis="pct_reading")
     event = enter(client, meter, weak, **{"ev-decision_rule": "guarded"})
     in_band = [p for p in event.points.filter(kind="as_found") if p.decision == "conditional pass"]

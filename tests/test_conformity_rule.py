@@ -52,7 +52,7 @@ def test_low_tur_policy_may_require_the_risk_rule():
 def weak(db):
     """A reference with U = 0.3 % of reading against the meter's MPE of 0.5 %: TUR about 1.7:1."""
     return ReferenceStandard.objects.create(identification="RS-9", description="Older master meter", range_min=0,
-                                            range_max=50, certificate_number="C-9", due_date=dt.date(2027, 6, 1),
+                                            range_max=40, certificate_number="C-9", due_date=dt.date(2027, 6, 1),
                                             expanded_uncertainty=0.3, uncertainty_basis="pct_reading")
 
 
@@ -109,7 +109,7 @@ def test_the_field_finding(rule):
                        internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.2, mpe_basis="pct_reading",
                        wetted_material="316L", base_interval_days=365)
     ref = ReferenceStandard.objects.create(identification="RS-F", description="Master meter", range_min=0,
-                                           range_max=50, certificate_number="C-F", due_date=dt.date(2027, 6, 1),
+                                           range_max=40, certificate_number="C-F", due_date=dt.date(2027, 6, 1),
                                            expanded_uncertainty=0.1 * 2 / coverage_factor(math.inf),
                                            uncertainty_basis="pct_reading")
     day = dt.date(2026, 11, 20)

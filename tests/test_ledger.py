@@ -63,7 +63,7 @@ def build_world():
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
     meter = commission(tag="FT-L1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                        internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
-    standard = ReferenceStandard.objects.create(identification="RS-L", description="ref", range_max=50,
+    standard = ReferenceStandard.objects.create(identification="RS-L", description="ref", range_max=40,
                                                 certificate_number="C-L", due_date=dt.date(2099, 1, 1),
                                                 expanded_uncertainty=0.1)
     tech, reviewer = user_with_role("technician", "tech-l"), user_with_role("reviewer", "reviewer-l")

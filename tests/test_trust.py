@@ -28,7 +28,7 @@ def world(db):
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
     meter = commission(tag="FT-T1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                  internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
-    standard = ReferenceStandard.objects.create(identification="RS-T", description="ref", range_max=50,
+    standard = ReferenceStandard.objects.create(identification="RS-T", description="ref", range_max=40,
                                                 certificate_number="C-T", due_date=dt.date(2099, 1, 1),
                                                 expanded_uncertainty=0.1)
     users = {role: user_with_role(role) for role in ("technician", "reviewer", "administrator")}
