@@ -106,7 +106,7 @@ def rows(end: dt.date, site=None, area=None, start: dt.date | None = None) -> li
                       .select_related("position__fluid", "position__area__site", "position__area__walk_order"))
     drafts = dict(CalibrationEvent.objects.filter(meter__in=[m.pk for m in due_meters],
                                                   state=CalibrationEvent.State.DRAFT)
-                  .order_by("meter_id", "-pk").values_list("meter_id", "pk"))
+                  .order_by("meter_id", "pk").values_list("meter_id", "pk"))  # the newest draft wins
     # the standards depend only on the fluid's phase, the units and the range: one query per distinct kind
     offered: dict[tuple, tuple[str, ...]] = {}
     for m in due_meters:
