@@ -1,4 +1,5 @@
 import django_tables2 as tables
+from django.db.models import F
 from django.utils.html import format_html
 
 from calibration.templatetags.risk_format import percent
@@ -37,7 +38,7 @@ class MeterColumns(tables.Table):
 
 class OverdueTable(MeterColumns):
     next_due_date = IsoDateColumn(verbose_name="Due date", default="never calibrated")
-    days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue", order_by=("next_due_date",))
+    days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue")
 
     def value_next_due_date(self, record, value):
         return value if value is not None else "never calibrated"
@@ -49,6 +50,13 @@ class OverdueTable(MeterColumns):
 
     def value_days_overdue(self, record):
         return self.render_days_overdue(record)
+
+    def order_days_overdue(self, queryset, is_descending):
+        """More days overdue is an earlier due date; never calibrated counts as the most overdue (on SQLite and
+        PostgreSQL alike, whose NULLs sort at opposite ends)."""
+        due = F("next_due_date")
+        key = due.asc(nulls_first=True) if is_descending else due.desc(nulls_last=True)
+        return queryset.order_by(key, "position__tag"), True
 
 
 class DueTable(MeterColumns):

@@ -205,7 +205,7 @@ def test_csv_export_read_with_pandas_equals_the_table_on_the_page(client, fleet)
     page = _Tables()
     page.feed(client.get("/review/").content.decode())
     # maintenance: the tasks derived when the meters were registered are due today, none overdue (no table)
-    keys = ["overdue", "due", "drifting", "failed", "risk", "standards", "drafts", "maint_due"]
+    keys = ["risk", "overdue", "failed", "due", "drifting", "standards", "drafts", "maint_due"]  # in review.ORDER
     assert len(page.tables) == len(keys)
     for key, shown in zip(keys, page.tables):
         exported = pd.read_csv(io.BytesIO(client.get("/review/", {"export": key}).content), dtype=str,
@@ -230,7 +230,7 @@ def test_misapplied_row_says_not_fit_beside_the_shortened_interval(client, fleet
     # for the duty, factor 0.25; by hand 365 d × 0.25 = 91.25 d -> 91 d.
     page = _Tables()
     page.feed(client.get("/review/").content.decode())
-    risk_table = page.tables[4]
+    risk_table = page.tables[0]  # the first list: not fit for duty
     header, row = risk_table[0], risk_table[1]
     shown = dict(zip(header, row))
     assert shown["Tag"] == "MISAPPLIED-1"
@@ -266,3 +266,41 @@ def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
     Meter.objects.filter(position__tag="DUE-1").update(next_due_date=dt.date(2026, 12, 4))
     assert tags(client, "overdue") == ["LATER-1"]
     assert "DUE-1" in tags(client, "due")
+
+
+def _section_order(body):
+    import re
+
+    return re.findall(r'<section id="([a-z_]+)">', body), re.findall(r'id="count-([a-z_]+)"', body)
+
+
+def test_lists_and_tiles_in_order_of_consequence(client, fleet):
+    """Issue 27 item 5: not fit for duty, overdue, last failed, due soon, drifting, then the rest; the tiles in the
+    same order as the lists, each with its severity in words (not colour alone)."""
+    body = client.get("/review/").content.decode()
+    sections, tiles = _section_order(body)
+    assert sections == tiles
+    assert sections[:5] == ["risk", "overdue", "failed", "due", "drifting"]
+    assert set(sections) == {"risk", "overdue", "failed", "due", "drifting", "pfa_above", "low_pc", "standards",
+                             "spares", "vacant", "drafts", "maint_overdue", "maint_due"}
+    assert body.count('<span class="urgency">Act now</span>') == 2  # the two tiles of the first lists
+    assert '<span class="urgency">Act now:</span> Not fit for duty' in body
+
+
+def test_overdue_lists_the_most_overdue_first(client, fleet):
+    """Days overdue descending by default (never calibrated first: it has no calibration at all); the CSV too."""
+    water, area = Fluid.objects.get(name="Water"), Area.objects.get()
+    today = timezone.localdate()
+    for tag, days in (("A-3", 3), ("Z-400", 400), ("M-40", 40)):
+        make_meter(tag, area, water, next_due_date=today - dt.timedelta(days=days))
+    header, rows = export(client, "overdue")
+    assert [r[0] for r in rows] == ["NEVER-1", "Z-400", "M-40", "OVERDUE-1", "A-3"]
+    shown = [int(r[header.index("Days overdue")]) for r in rows[1:]]
+    assert shown == sorted(shown, reverse=True) == [400, 40, 10, 3]
+    body = client.get("/review/").content.decode()
+    section = body[body.index('<section id="overdue">'):]
+    assert section.index("Z-400") < section.index("M-40") < section.index("OVERDUE-1") < section.index("A-3")
+    # sorting by the column: fewest days overdue first, never calibrated last
+    body = client.get("/review/", {"overdue-sort": "days_overdue"}).content.decode()
+    section = body[body.index('<section id="overdue">'):body.index("</section>", body.index('<section id="overdue">'))]
+    assert section.index("A-3") < section.index("OVERDUE-1") < section.index("Z-400") < section.index("NEVER-1")
