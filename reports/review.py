@@ -87,6 +87,14 @@ def local_todays(filters: dict) -> dict:
     return by_date
 
 
+def single_site(filters: dict) -> bool:
+    """Whether the page's scope holds one site at most (a site or an area chosen, or a plant of one site): the
+    review's tables then leave out the site column, the same in every row (the CSV keeps it). One query at most."""
+    if any(filters.get(name) not in (None, "") for name in ("site", "area")):
+        return True
+    return Site.objects.count() <= 1
+
+
 def _per_site(todays, condition):
     """condition(today) for each group of sites sharing today's date, OR-ed (one group: no site condition)."""
     if isinstance(todays, dt.date):
