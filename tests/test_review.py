@@ -337,3 +337,26 @@ def test_site_column_only_where_sites_differ(client, fleet):
     assert "Site" not in overdue_header(site=other.pk)
     header, rows = export(client, "overdue", site=other.pk)
     assert "Site" in header and [r[header.index("Site")] for r in rows] == ["Second site"]
+
+
+def test_chloride_findings_do_not_call_every_chloride_fluid_brine(client):
+    """Issue 27 item 5: a cooling-tower water finding read "Brine (chlorides) pits stainless electrodes". The
+    chloride findings name the chlorides, which is what cooling-tower water and brine have in common
+    (plant/risk.py, common practice); the review's risk list shows the words."""
+    from maintenance import tasks
+
+    tower = risk.FluidProps(phase="liquid", conductivity_us_cm=2000, chlorides=True)
+    for principle in risk.PRINCIPLES:
+        for finding in risk.assess(principle, "316L", tower):
+            assert "brine" not in finding.reason.lower() and "brine" not in finding.title.lower(), finding
+    electrode = next(f for f in risk.assess("electromagnetic", "316L", tower) if f.code == "EM_CHLORIDES")
+    assert electrode.reason.startswith("Chlorides in the fluid pit stainless electrodes")
+    assert tasks.CATALOGUE["CHLORIDE_PITTING_INSPECTION"].reason.startswith("Chlorides (brine, cooling-tower water)")
+    site = Site.objects.create(name="Utilities site")
+    area = Area.objects.create(site=site, name="Cooling")
+    water = Fluid.objects.create(name="Cooling tower water", phase="liquid", conductivity_us_cm=2000, chlorides=True)
+    make_meter("FT-CT1", area, water)
+    body = client.get("/review/").content.decode()
+    section = body[body.index('<section id="risk">'):body.index("</section>", body.index('<section id="risk">'))]
+    assert "FT-CT1" in section and "Chlorides in the fluid pit stainless electrodes" in section
+    assert "Brine" not in section
