@@ -86,10 +86,11 @@ CATALOGUE = {k.code: k for k in [
     TaskKind("VORTEX_BLUFF_BODY", "Inspect and clean the vortex bluff body", 365,
              "Deposits or erosion change the bluff body's shape and so the meter factor; inspect and clean it "
              "and check the sensor is free."),
-    # Common practice: a yearly look for chloride pitting and crevice attack of wetted parts in brine service.
+    # Common practice: a yearly look for chloride pitting and crevice attack of wetted parts in chloride service.
     TaskKind("CHLORIDE_PITTING_INSPECTION", "Inspect the wetted parts for chloride pitting and crevice attack", 365,
-             "Brine pits and crevice-attacks stainless steel, carbon steel and cast iron; remove or borescope the "
-             "primary element, look for pits at the tappings, edges and gasket faces, and record what is found."),
+             "Chlorides (brine, cooling-tower water) pit and crevice-attack stainless steel, carbon steel and "
+             "cast iron; remove or borescope the primary element, look for pits at the tappings, edges and "
+             "gasket faces, and record what is found."),
     # Common practice: twice-yearly cleaning of thermal mass sensors in coating or wet service.
     TaskKind("THERMAL_SENSOR_CLEAN", "Clean and inspect the thermal sensor", 180,
              "A coating or corrosion on the heated sensor changes its heat transfer and the reading; remove the "

@@ -1,8 +1,12 @@
-"""The week's work list: calibrations and maintenance due by the end of a week, grouped by site and area in
-walking order. `rows` reads (two queries); `group` and `week_of` are pure.
+"""The work list: calibrations and maintenance due within seven days from a chosen date (`span`), grouped by site
+and area in walking order. `rows` reads (three queries, plus one per distinct kind of meter for the reference
+standards); `group`, `span` and `week_of` are pure.
 
-What is listed: every in-service meter whose calibration is due by the end of the week (overdue and never
-calibrated included: they are still to do), and every active maintenance task due by then. Within a site the
+What is listed: every in-service meter whose calibration is due by the last day of the span (overdue and never
+calibrated included: they are still to do), and every active maintenance task due by then. Each row carries the
+device's serial; a calibration row names the reference standards the tablet form would offer for the meter
+(`ReferenceStandard.offered_for`, in date on the first day). A meter with an unsigned calibration draft is not new
+work: its row says "draft waiting for sign-off" and links to the draft. Within a site the
 areas follow their walking order (WalkOrder; areas without one come after, by name); within an area, by tag,
 then calibration before maintenance (a meter pulled for calibration is cleaned at the same visit).
 """
@@ -31,6 +35,13 @@ class WorkItem:
     work: str
     due: dt.date | None  # None: never calibrated
     reason: str
+    serial: str = ""
+    standards: tuple[str, ...] = ()  # identifications of the suitable reference standards (calibration rows)
+    draft_id: int | None = None      # an unsigned calibration draft of the device: sign-off, not new work
+
+    @property
+    def draft_waiting(self) -> bool:
+        return self.draft_id is not None
 
     def overdue_days(self, today: dt.date) -> int:
         if self.due is None:
@@ -44,6 +55,15 @@ class WorkItem:
         if late:
             return f"overdue {late} d (due {self.due.isoformat()})"
         return f"due {self.due:%a} {self.due.isoformat()}"
+
+
+SPAN_DAYS = 7  # a list printed on any day covers at least a week from that day (not the rest of an ISO week)
+DRAFT_WORK = "Draft waiting for sign-off"
+
+
+def span(day: dt.date, days: int = SPAN_DAYS) -> tuple[dt.date, dt.date]:
+    """(first, last) day of the work list starting on `day`: `days` calendar days, `day` included."""
+    return day, day + dt.timedelta(days=days - 1)
 
 
 def week_of(day: dt.date) -> tuple[dt.date, dt.date]:
@@ -66,8 +86,12 @@ def group(items):
     return out
 
 
-def rows(end: dt.date, site=None, area=None) -> list[WorkItem]:
-    """Everything due by `end` on in-service meters, optionally of one site or area (two queries)."""
+def rows(end: dt.date, site=None, area=None, start: dt.date | None = None) -> list[WorkItem]:
+    """Everything due by `end` on in-service meters, optionally of one site or area. Reference standards are
+    those in date on `start` (default: no date check)."""
+    from django.db.models import Q
+
+    from calibration.models import CalibrationEvent, ReferenceStandard
     from maintenance.models import MaintenanceTask
     from plant.models import Meter
 
@@ -77,29 +101,46 @@ def rows(end: dt.date, site=None, area=None) -> list[WorkItem]:
     if area is not None:
         meters = meters.filter(position__area=area)
     principles = dict(Meter.Principle.choices)
-    common = ["position__tag", "principle", "position__fluid__name", "position__area_id", "position__area__name",
-              "position__area__site__name", "position__area__walk_order__position"]
     items = []
-    from django.db.models import Q
-
-    for (tag, principle, fluid, area_id, area_name, site_name, walk, due, rationale) in (
-            meters.filter(Q(next_due_date__lte=end) | Q(next_due_date__isnull=True))
-            .values_list(*common, "next_due_date", "due_rationale")):
-        winner = (rationale or {}).get("winner", "")
+    due_meters = list(meters.filter(Q(next_due_date__lte=end) | Q(next_due_date__isnull=True))
+                      .select_related("position__fluid", "position__area__site", "position__area__walk_order"))
+    drafts = dict(CalibrationEvent.objects.filter(meter__in=[m.pk for m in due_meters],
+                                                  state=CalibrationEvent.State.DRAFT)
+                  .order_by("meter_id", "pk").values_list("meter_id", "pk"))  # the newest draft wins
+    # the standards depend only on the fluid's phase, the units and the range: one query per distinct kind
+    offered: dict[tuple, tuple[str, ...]] = {}
+    for m in due_meters:
+        position = m.position
+        walk = getattr(getattr(position.area, "walk_order", None), "position", None)
+        key = (position.fluid.phase if position.fluid else None, m.flow_units, m.range_min, m.range_max)
+        if key not in offered:
+            offered[key] = tuple(ReferenceStandard.offered_for(m, on_date=start)
+                                 .order_by("identification").values_list("identification", flat=True))
+        due = m.next_due_date
+        winner = (m.due_rationale or {}).get("winner", "")
         if due is None:
             reason = "never calibrated"
         elif winner in WINNER_WORDS:
             reason = f"calibration due: {WINNER_WORDS[winner]}"
         else:
             reason = "calibration due"
-        items.append(WorkItem(site_name, area_name, area_id, walk if walk is not None else NO_WALK_POSITION, tag,
-                              principles.get(principle, principle), fluid, CALIBRATION, "Calibrate (as-found, as-left)",
-                              due, reason))
+        draft = drafts.get(m.pk)
+        work = "Calibrate (as-found, as-left)"
+        if draft is not None:
+            work, reason = DRAFT_WORK, f"calibration entered, not signed yet ({reason})"
+        items.append(WorkItem(position.area.site.name, position.area.name, position.area_id,
+                              walk if walk is not None else NO_WALK_POSITION, position.tag,
+                              principles.get(m.principle, m.principle), position.fluid.name if position.fluid else "",
+                              CALIBRATION, work, due, reason, serial=m.serial, standards=offered[key],
+                              draft_id=draft))
+    common = ["position__tag", "principle", "position__fluid__name", "position__area_id", "position__area__name",
+              "position__area__site__name", "position__area__walk_order__position", "serial"]
     tasks = MaintenanceTask.objects.filter(active=True, next_due_date__lte=end, meter__in=meters.values("pk"))
-    for (tag, principle, fluid, area_id, area_name, site_name, walk, due, title, freq, last) in tasks.values_list(
-            *[f"meter__{c}" for c in common], "next_due_date", "title", "frequency_days", "last_condition"):
+    for (tag, principle, fluid, area_id, area_name, site_name, walk, serial, due, title, freq, last) in \
+            tasks.values_list(*[f"meter__{c}" for c in common], "next_due_date", "title", "frequency_days",
+                              "last_condition"):
         items.append(WorkItem(site_name, area_name, area_id, walk if walk is not None else NO_WALK_POSITION, tag,
                               principles.get(principle, principle), fluid, MAINTENANCE, title, due,
                               f"every {freq} d" + (f"; last found {last.replace('_', ' ')}" if last else
-                                                   "; never done")))
+                                                   "; never done"), serial=serial))
     return sorted(items, key=order_key)

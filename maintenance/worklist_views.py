@@ -1,4 +1,4 @@
-"""The week's work list (page, PDF, CSV) and the iCalendar feeds of due work per area behind a per-user token."""
+"""The work list (seven days from a chosen date) (page, PDF, CSV) and the iCalendar feeds of due work per area behind a per-user token."""
 import datetime as dt
 
 from django import forms
@@ -19,7 +19,7 @@ FEED_WEEKS = 8  # the feed holds what is overdue and what falls due in the next 
 
 
 class WorkListForm(forms.Form):
-    start = forms.DateField(label="Week containing", required=False,
+    start = forms.DateField(label="From", required=False,
                             widget=forms.DateInput(attrs={"type": "date"}, format="%Y-%m-%d"),
                             error_messages={"invalid": "Enter a date, e.g. 2026-12-07."})
     site = forms.ModelChoiceField(queryset=Site.objects.order_by("name"), required=False, empty_label="all sites")
@@ -33,9 +33,9 @@ def _work(request):
     if form.is_bound and not form.is_valid():
         return form, None
     data = form.cleaned_data if form.is_bound else {}
-    monday, sunday = worklist.week_of(data.get("start") or today)
-    items = worklist.rows(sunday, site=data.get("site"), area=data.get("area"))
-    return form, {"monday": monday, "sunday": sunday, "today": today, "items": items,
+    first, last = worklist.span(data.get("start") or today)
+    items = worklist.rows(last, site=data.get("site"), area=data.get("area"), start=first)
+    return form, {"first": first, "last": last, "today": today, "items": items,
                   "groups": worklist.group(items), "query": request.GET.urlencode()}
 
 
@@ -56,12 +56,12 @@ def work_list_pdf(request):
     html = render_to_string("maintenance/worklist_pdf.html", {**work, "product": "Quenby",
                                                               "printed": timezone.localtime()})
     response = HttpResponse(HTML(string=html).write_pdf(), content_type="application/pdf")
-    response["Content-Disposition"] = f'attachment; filename="work-list-{work["monday"].isoformat()}.pdf"'
+    response["Content-Disposition"] = f'attachment; filename="work-list-{work["first"].isoformat()}.pdf"'
     return response
 
 
-CSV_COLUMNS = ["site", "area", "walk order", "tag", "kind", "work", "due date", "days overdue", "principle", "fluid",
-               "why"]
+CSV_COLUMNS = ["site", "area", "walk order", "tag", "serial", "kind", "work", "due date", "days overdue", "principle",
+               "fluid", "reference standards", "why", "draft"]
 
 
 @permission_required("maintenance.view_maintenancetask", raise_exception=True)
@@ -70,12 +70,14 @@ def work_list_csv(request):
     if work is None:
         return _bad(form)
     rows = [CSV_COLUMNS] + [
-        [item.site, item.area, "" if item.walk == worklist.NO_WALK_POSITION else item.walk, item.tag,
+        [item.site, item.area, "" if item.walk == worklist.NO_WALK_POSITION else item.walk, item.tag, item.serial,
          item.kind, item.work, item.due.isoformat() if item.due else "never calibrated",
-         item.overdue_days(work["today"]), item.principle, item.fluid, item.reason]
+         item.overdue_days(work["today"]), item.principle, item.fluid, "; ".join(item.standards), item.reason,
+         request.build_absolute_uri(reverse("calibration:event-detail", args=[item.draft_id]))
+         if item.draft_waiting else ""]
         for item in work["items"]]
     response = HttpResponse(spreadsheet.csv_text(rows), content_type="text/csv; charset=utf-8")
-    response["Content-Disposition"] = f'attachment; filename="work-list-{work["monday"].isoformat()}.csv"'
+    response["Content-Disposition"] = f'attachment; filename="work-list-{work["first"].isoformat()}.csv"'
     return response
 
 

@@ -31,7 +31,7 @@ the chloride finding stands.
 
 Rules that read the whole duty (each marked with its basis where it is applied):
 
-* chlorides (brine) at any temperature pit and crevice-attack the wetted parts of turbines, positive-displacement
+* chlorides (brine, cooling-tower water, sea water) at any temperature pit and crevice-attack the wetted parts of turbines, positive-displacement
   meters, DP primaries (orifice plates, venturis, pitot and averaging pitot probes) and vortex bluff bodies made
   of austenitic stainless steel, carbon steel or cast iron, or of a material not recorded (a medium finding);
   titanium, super duplex, nickel alloys and the other materials marked chloride resistant turn it into a note
@@ -265,7 +265,7 @@ def _chloride_pitting(prefix: str, part: str, mat: str, fl: FluidProps) -> list[
     what = material.label if material else "a material not recorded"
     return [_chloride_finding(
         prefix, part, "medium", FACTOR_MEDIUM,
-        f"Brine (chlorides) pits and crevice-attacks the {part} ({what}); pits and attacked edges change the "
+        f"Chlorides in the fluid pit and crevice-attack the {part} ({what}); pits and attacked edges change the "
         "geometry the meter's calibration depends on. Inspect the wetted parts, or use a chloride-resistant "
         "material (titanium, super duplex, nickel alloy).", mat)]
 
@@ -313,7 +313,7 @@ def _electromagnetic(mat, fl, **_):
     if fl.chlorides:
         out.append(_chloride_finding(
             "EM", "electrode", "high", FACTOR_HIGH,
-            "Brine (chlorides) pits stainless electrodes; the zero and span "
+            "Chlorides in the fluid pit stainless electrodes; the zero and span "
             "drift as the electrode surface changes.", mat))
     out += _chloride_cracking("EM", mat, fl)
     # Common practice: a magmeter measures the velocity of whatever fills the pipe; bubbles count as liquid

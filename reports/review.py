@@ -29,6 +29,7 @@ class Bucket:
     rows: object  # queryset
     table_class: type
     count: int = 0
+    urgency: str = "For information"
 
 
 DEVICE_LOOKUPS = {"site": "position__area__site", "area": "position__area", "principle": "principle",
@@ -84,6 +85,14 @@ def local_todays(filters: dict) -> dict:
     if len(by_date) <= 1:
         return {next(iter(by_date), None) or localtime.today(): None}
     return by_date
+
+
+def single_site(filters: dict) -> bool:
+    """Whether the page's scope holds one site at most (a site or an area chosen, or a plant of one site): the
+    review's tables then leave out the site column, the same in every row (the CSV keeps it). One query at most."""
+    if any(filters.get(name) not in (None, "") for name in ("site", "area")):
+        return True
+    return Site.objects.count() <= 1
 
 
 def _per_site(todays, condition):
@@ -181,12 +190,14 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     counts = registered(filters).aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
     standards = standards_expiring(today or localtime.today(), days)  # the plant's date: standards serve all sites
     drafts = unsigned_drafts(filters)
+    # in order of consequence: a device not fit for its duty measures wrongly today, an overdue one may, a failed one
+    # did at its last calibration, one due soon or drifting will; the rest follow (see URGENCY)
     titles = {
+        "risk": ("Not fit for duty: misapplied meters and high-risk duties", tables.RiskTable),
         "overdue": ("Positions whose installed device is overdue", tables.OverdueTable),
+        "failed": ("Last as-found out of tolerance", tables.FailedTable),
         "due": (f"Due in the next {days} days", tables.DueTable),
         "drifting": ("Drifting, or scatter too large to predict", tables.DriftingTable),
-        "failed": ("Last as-found out of tolerance", tables.FailedTable),
-        "risk": ("Misapplied meters and high-risk duties", tables.RiskTable),
         "pfa_above": (f"Accepted with PFA above target ({100 * pfa_target():.3g} %)", tables.ConformityRiskTable),
         "low_pc": (f"Points inside the MPE with p_c below {100 * LOW_PC:.0f} %: conformity not decided",
                    tables.ConformityRiskTable),
@@ -194,7 +205,11 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     from maintenance.fleet import evidence_prefetch
 
     # the risk list names each meter's findings, the fouling finding from its maintenance records among them
-    rows = {"risk": meters.prefetch_related(evidence_prefetch())}
+    # most urgent rows first: misapplied before high risk; the longest overdue (never calibrated first); the
+    # earliest due. A column the reviewer sorts on replaces this order.
+    rows = {"risk": meters.prefetch_related(evidence_prefetch()).order_by("-risk_severity", "position__tag"),
+            "overdue": meters.order_by(F("next_due_date").asc(nulls_first=True), "position__tag"),
+            "due": meters.order_by("next_due_date", "position__tag")}
     buckets = [Bucket(key, title, rows.get(key, meters).filter(conditions[key]), table, counts[key])
                for key, (title, table) in titles.items()]
     buckets.append(Bucket("standards", f"Reference standards expired or due within {days} days", standards,
@@ -209,4 +224,20 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     from maintenance.review import buckets as maintenance_buckets
 
     buckets += maintenance_buckets(filters, days, today or localtime.today())  # the plant's date
+    for bucket in buckets:
+        bucket.urgency = URGENCY.get(bucket.key, "For information")
+    buckets.sort(key=lambda b: ORDER.index(b.key) if b.key in ORDER else len(ORDER))
     return buckets
+
+
+#: the lists in order of consequence, the tiles in the same order (a list not named here goes last)
+ORDER = ["risk", "overdue", "failed", "due", "drifting", "maint_overdue", "spares", "standards", "drafts",
+         "pfa_above", "low_pc", "maint_due", "vacant"]
+
+
+#: the severity of each list in words (shown on its tile and heading, so colour is never the only sign); the lists are
+#: built in this order of consequence (common practice: act first where a reading is wrong now)
+URGENCY = {
+    "risk": "Act now", "overdue": "Act now", "failed": "Urgent", "due": "Plan", "drifting": "Watch",
+    "maint_overdue": "Urgent", "spares": "Before use", "standards": "Plan", "maint_due": "Plan",
+}

@@ -49,20 +49,23 @@ def _buckets(request):
         filters, days = form.filters(), form.cleaned_data.get("days") or 14
     else:
         filters, days = {}, 14
-    return form, review.build(filters, days=days), days
+    return form, review.build(filters, days=days), days, filters
 
 
 @permission_required("calibration.view_review", raise_exception=True)
 def weekly_review(request):
-    form, buckets, days = _buckets(request)
+    form, buckets, days, filters = _buckets(request)
     export = request.GET.get("export")
     if export:
         return _csv(buckets, export)
     shown = []
     # the spares' "Calibrate (bench)" only for those who may calibrate (a reviewer followed it to a 403)
     hidden = () if request.user.has_perm("calibration.add_calibrationevent") else ("calibrate",)
+    if review.single_site(filters):
+        hidden += ("site",)  # the same in every row: the columns left fit a tablet's 820 px
     for bucket in buckets:
-        table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-", exclude=hidden)
+        table = bucket.table_class(bucket.rows, prefix=f"{bucket.key}-",
+                                   exclude=hidden + getattr(bucket.table_class, "page_exclude", ()))
         configure_table(request, table, per_page=10, paginator_class=CountedPaginator, known_count=bucket.count)
         shown.append((bucket, table))
     status = 400 if form.is_bound and not form.is_valid() else 200

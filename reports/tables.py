@@ -1,4 +1,5 @@
 import django_tables2 as tables
+from django.db.models import F
 from django.utils.html import format_html
 
 from calibration.templatetags.risk_format import percent
@@ -10,7 +11,8 @@ class IsoDateColumn(tables.DateColumn):
 
     def __init__(self, *args, **kwargs):
         kwargs.setdefault("format", "Y-m-d")
-        kwargs.setdefault("attrs", {"td": {"class": "nowrap"}, "th": {"class": "nowrap"}})
+        # the date stays on one line; its heading may wrap ("Last calibrated"), or the column is cut at 820 px
+        kwargs.setdefault("attrs", {"td": {"class": "nowrap"}})
         super().__init__(*args, **kwargs)
 
 
@@ -37,7 +39,7 @@ class MeterColumns(tables.Table):
 
 class OverdueTable(MeterColumns):
     next_due_date = IsoDateColumn(verbose_name="Due date", default="never calibrated")
-    days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue", order_by=("next_due_date",))
+    days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue")
 
     def value_next_due_date(self, record, value):
         return value if value is not None else "never calibrated"
@@ -50,6 +52,13 @@ class OverdueTable(MeterColumns):
     def value_days_overdue(self, record):
         return self.render_days_overdue(record)
 
+    def order_days_overdue(self, queryset, is_descending):
+        """More days overdue is an earlier due date; never calibrated counts as the most overdue (on SQLite and
+        PostgreSQL alike, whose NULLs sort at opposite ends)."""
+        due = F("next_due_date")
+        key = due.asc(nulls_first=True) if is_descending else due.desc(nulls_last=True)
+        return queryset.order_by(key, "position__tag"), True
+
 
 class DueTable(MeterColumns):
     next_due_date = IsoDateColumn(verbose_name="Due date")
@@ -57,6 +66,9 @@ class DueTable(MeterColumns):
 
 
 class DriftingTable(MeterColumns):
+    #: left out on the page (kept in the CSV): the drift's four columns and the meter's need more than 820 px
+    page_exclude = ("principle",)
+
     drift_status = tables.Column(verbose_name="Drift status")
     drift_rate_per_year = tables.Column(verbose_name="Drift / year (the crossing's slope)")
     predicted_crossing = IsoDateColumn(verbose_name="Predicted crossing")
@@ -102,9 +114,12 @@ class RiskTable(MeterColumns):
     severity = tables.Column(accessor="risk_severity", verbose_name="Severity")
     codes = tables.Column(empty_values=(), verbose_name="Findings", orderable=False)
     reasons = tables.Column(empty_values=(), verbose_name="Why", orderable=False, attrs={"td": {"class": "prose"}})
-    interval = tables.Column(empty_values=(), verbose_name="Risk interval", orderable=False,
-                             attrs={"td": {"class": "nowrap"}})
+    interval = tables.Column(empty_values=(), verbose_name="Risk interval", orderable=False)
     recommendation = tables.Column(empty_values=(), verbose_name="Recommendation", orderable=False)
+
+    #: left out on the page (kept in the CSV), so the list fits a tablet's 820 px: the device page names the serial
+    #: and principle; the prose "Why" folds under each finding (render_codes)
+    page_exclude = ("serial", "principle", "area", "reasons")
 
     class Meta(MeterColumns.Meta):
         # what to do and the interval meanwhile come first, within an 820 px tablet's view; the long prose last
@@ -129,7 +144,12 @@ class RiskTable(MeterColumns):
         return value
 
     def render_codes(self, record):
-        return "; ".join(dict.fromkeys(f.title for f in self._serious(record)))
+        titles = "; ".join(dict.fromkeys(f.title for f in self._serious(record)))
+        if "reasons" not in (self.exclude or ()):
+            return titles
+        # the reasons column left out on the page: each row's reasons fold under its findings
+        return format_html('{}<details class="why"><summary>Why</summary>{}</details>', titles,
+                           self.render_reasons(record))
 
     def render_reasons(self, record):
         return " ".join(f.reason for f in self._serious(record))

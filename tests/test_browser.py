@@ -309,6 +309,17 @@ def test_weekly_review_fits_a_tablet(demo_history, live_server, browser):
             status="in_service", next_due_date__lt=timezone.localdate()).count()
         assert page.locator("section table.grid").count() >= 5
         assert_no_sideways_scroll(page, "weekly review")
+        # issue 27 item 5: no list cuts off its last columns at 820 px, and every CSV link is a 44 px touch target
+        for section in page.locator("section").all():
+            name = section.get_attribute("id")
+            container = section.locator(".table-container")
+            if container.count():
+                scroll, client = container.evaluate("e => [e.scrollWidth, e.clientWidth]")
+                assert scroll <= client, f"{name}: {scroll} px of table in {client} px"
+            box = section.locator("a.csv").bounding_box()
+            assert box["width"] >= 44 and box["height"] >= 44, (name, box)
+        # the first list is the most consequential, its severity in words
+        expect(page.locator("section").first.locator("h2 .urgency")).to_have_text("Act now:")
         folder = ARTIFACTS / "review"
         folder.mkdir(parents=True, exist_ok=True)
         page.screenshot(path=str(folder / "weekly-review.png"), full_page=True)

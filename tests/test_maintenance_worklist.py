@@ -69,6 +69,61 @@ def test_rows_in_walking_order_with_overdue_and_nothing_of_next_week(week):
     assert [(i.area, i.tag, i.kind) for i in items] == expected_order()
     assert items[1].overdue_days(week["today"]) == (week["today"] - (week["monday"] - D(days=3))).days
     assert worklist.week_of(dt.date(2026, 12, 10)) == (dt.date(2026, 12, 7), dt.date(2026, 12, 13))  # Thu -> Mon/Sun
+    # a list started on a Saturday covers seven days, Saturday to Friday (not the Saturday and Sunday left of the week)
+    assert worklist.span(dt.date(2026, 12, 5)) == (dt.date(2026, 12, 5), dt.date(2026, 12, 11))
+
+
+def test_seven_days_from_a_saturday_serial_standards_and_draft(client, week):
+    """Item 9 of issue 27: seven days from the chosen date; serial and the standards the tablet form offers on each
+    calibration row; a meter with an unsigned draft marked "draft waiting for sign-off", not listed as new work."""
+    from calibration.models import CalibrationEvent, ReferenceStandard
+
+    saturday = week["monday"] + D(days=5)
+    a, c, d = (Meter.objects.get(position__tag=t) for t in ("FT-A1", "FT-C1", "FT-D1"))
+    Meter.objects.filter(pk=a.pk).update(serial="SN-A1-0042")
+    Meter.objects.filter(pk=d.pk).update(next_due_date=saturday + D(days=6))  # the following Friday: last day
+    Meter.objects.filter(pk=c.pk).update(next_due_date=saturday + D(days=7))  # one day past the span
+    fits = ReferenceStandard.objects.create(identification="RS-FITS", description="covers 0–40", range_max=100,
+                                            certificate_number="C-1", due_date=saturday + D(days=300),
+                                            expanded_uncertainty=0.1)
+    ReferenceStandard.objects.create(identification="RS-SMALL", description="too small a range", range_max=10,
+                                     certificate_number="C-2", due_date=saturday + D(days=300),
+                                     expanded_uncertainty=0.1)
+    ReferenceStandard.objects.create(identification="RS-GAS", description="gas only", range_max=100, phase="gas",
+                                     certificate_number="C-3", due_date=saturday + D(days=300),
+                                     expanded_uncertainty=0.1)
+    ReferenceStandard.objects.create(identification="RS-OLD", description="out of date", range_max=100,
+                                     certificate_number="C-4", due_date=saturday - D(days=1),
+                                     expanded_uncertainty=0.1)
+    expected = sorted(ReferenceStandard.offered_for(a, on_date=saturday).values_list("identification", flat=True))
+    assert expected == [fits.identification]  # the tablet form's own choice, so the list says nothing else
+    draft = CalibrationEvent.objects.create(meter=d, performed_on=saturday, technician="A. Fieldtech", procedure="p")
+
+    items = worklist.rows(saturday + D(days=6), start=saturday)
+    by_tag = {(i.tag, i.kind): i for i in items}
+    assert ("FT-C1", "Calibration") not in by_tag and ("FT-D1", "Calibration") in by_tag
+    assert by_tag[("FT-A1", "Calibration")].serial == "SN-A1-0042"
+    assert list(by_tag[("FT-A1", "Calibration")].standards) == expected
+    waiting = by_tag[("FT-D1", "Calibration")]
+    assert waiting.draft_id == draft.pk and waiting.work == worklist.DRAFT_WORK
+    assert not by_tag[("FT-A1", "Calibration")].draft_waiting
+
+    query = {"start": saturday.isoformat()}
+    body = client.get("/maintenance/worklist/", query).content.decode()
+    assert f"{saturday.isoformat()}</span> to <span class=\"nowrap\">{saturday + D(days=6):%a} " in body
+    assert "SN-A1-0042" in body and "RS-FITS" in body and "RS-SMALL" not in body and "RS-OLD" not in body
+    assert "draft waiting for sign-off" in body and f'href="/calibrations/{draft.pk}/"' in body
+    rows = list(csv.reader(io.StringIO(client.get("/maintenance/worklist.csv", query).content.decode())))
+    head = rows[0]
+    csv_by_tag = {(r[head.index("tag")], r[head.index("kind")]): dict(zip(head, r)) for r in rows[1:]}
+    assert csv_by_tag[("FT-A1", "Calibration")]["serial"] == "SN-A1-0042"
+    assert csv_by_tag[("FT-A1", "Calibration")]["reference standards"] == "RS-FITS"
+    assert csv_by_tag[("FT-D1", "Calibration")]["work"] == "Draft waiting for sign-off"
+    assert csv_by_tag[("FT-D1", "Calibration")]["draft"].endswith(f"/calibrations/{draft.pk}/")
+    assert ("FT-C1", "Calibration") not in csv_by_tag
+    response = client.get("/maintenance/worklist.pdf", query)
+    text = " ".join(" ".join(p.extract_text().split()) for p in PdfReader(io.BytesIO(response.content)).pages)
+    assert "SN-A1-0042" in text and "RS-FITS" in text and "DRAFT WAITING FOR SIGN-OFF" in text
 
 
 def test_page_csv_and_pdf(client, week):
@@ -78,8 +133,8 @@ def test_page_csv_and_pdf(client, week):
     assert page.status_code == 200 and body.index("<h3>Pump house") < body.index("<h3>A tank farm")
     assert "permit to work" in body
     rows = list(csv.reader(io.StringIO(client.get("/maintenance/worklist.csv", query).content.decode())))
-    assert rows[0][:7] == ["site", "area", "walk order", "tag", "kind", "work", "due date"]
-    assert [(r[1], r[3], r[4]) for r in rows[1:]] == expected_order()
+    assert rows[0][:8] == ["site", "area", "walk order", "tag", "serial", "kind", "work", "due date"]
+    assert [(r[1], r[3], r[5]) for r in rows[1:]] == expected_order()
     assert rows[1][2] == "1" and rows[3][2] == "2"
     response = client.get("/maintenance/worklist.pdf", query)
     assert response.status_code == 200 and response["Content-Type"] == "application/pdf"
