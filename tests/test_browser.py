@@ -78,7 +78,7 @@ def small_plant():
                                  line_size="DN50", internal_diameter_mm=52.5, range_min=0, range_max=40,
                                  mpe_value=0.5, mpe_basis="pct_reading", wetted_material="316L")
     standard = ReferenceStandard.objects.create(
-        identification="RS-BRW", description="Portable master meter", range_min=0, range_max=50,
+        identification="RS-BRW", description="Portable master meter", range_min=0, range_max=40,
         certificate_number="C-BRW-1", due_date=today + dt.timedelta(days=365), expanded_uncertainty=0.1,
         uncertainty_basis="pct_reading", phase="liquid", issuer="Invented Flow Laboratory")
     for ident, changes in (("RS-BRW-OLD", {"withdrawn": True}), ("RS-BRW-GAS", {"phase": "gas"}),

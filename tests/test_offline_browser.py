@@ -83,14 +83,20 @@ def pump_station():
         return m
 
     meters = [meter("FT-DW-1", 7, 40), meter("FT-DW-2", -3, 80), meter("FT-DW-3", 250, 40)]
+    # each standard covers the meters it serves, so their lowest point is within its usable range (from 10 % of
+    # its range maximum, common practice)
     standard = ReferenceStandard.objects.create(
-        identification="RS-DW", description="Portable master meter", range_min=0, range_max=100,
+        identification="RS-DW", description="Portable master meter", range_min=0, range_max=40,
         certificate_number="C-DW-1", due_date=today + dt.timedelta(days=365), expanded_uncertainty=0.1,
+        uncertainty_basis="pct_reading")
+    standard_80 = ReferenceStandard.objects.create(
+        identification="RS-W80", description="Portable master meter, larger", range_min=0, range_max=80,
+        certificate_number="C-DW-2", due_date=today + dt.timedelta(days=365), expanded_uncertainty=0.1,
         uncertainty_basis="pct_reading")
     technician = user_with_role("technician", "welltech")
     technician.set_password("dry-well-pass-1")
     technician.save()
-    return {"meters": meters, "standard": standard, "technician": technician, "today": today}
+    return {"meters": meters, "standard": standard, "standard_80": standard_80, "technician": technician, "today": today}
 
 
 def open_tablet(playwright, profile, offline=False):
@@ -114,8 +120,8 @@ def shot(page, name):
     page.screenshot(path=str(SHOTS / f"{name}.png"), full_page=True)
 
 
-def fill_header(page, plant, procedure, ambient):
-    page.get_by_label(str(plant["standard"])).check()
+def fill_header(page, plant, procedure, ambient, standard=None):
+    page.get_by_label(str(standard or plant["standard"])).check()
     page.get_by_label("Method / procedure").fill(procedure)
     page.get_by_label("Ambient temperature (°C)").fill(ambient)
     page.get_by_label("Condition of the item as received").fill("installed, in service, no visible damage")
@@ -186,7 +192,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         page.locator("#kit-meters tr", has_text=second.tag).get_by_role("link", name="Enter calibration").click()
         page.wait_for_url(re.compile(rf"/meters/{second.tag}/calibrate/$"))
         ready(page)
-        fill_header(page, plant, "Offline entry two", "17")
+        fill_header(page, plant, "Offline entry two", "17", standard=plant["standard_80"])
         page.get_by_label("Outside contractor (only if a contractor did the work)").fill("W. Welltech")
         fill_points(page, "af", [(8, 8.0), (20, 20.1), (40, 40.0), (60, 59.9), (80, 80.2)])
         page.get_by_role("button", name="Keep on this tablet").click()
@@ -247,7 +253,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
     # Meanwhile, on the server: a colleague signs a calibration of the second meter for today.
     online = CalibrationEntry(second, entry_post_data(
         {"performed_on": plant["today"].isoformat(), "technician": "A. Colleague",
-         "reference_standards": [plant["standard"].pk], "procedure": "online", "reason": "scheduled",
+         "reference_standards": [plant["standard_80"].pk], "procedure": "online", "reason": "scheduled",
          "condition_received": "installed, in service",
          "decision_rule": "simple"}, [(8, 8.0), (20, 20.0), (40, 40.0), (60, 60.0), (80, 80.0)]),
         user=user_with_role("technician", "colleague"))
