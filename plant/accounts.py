@@ -1,7 +1,7 @@
 """Login throttling (django-axes) as the project uses it: the client's address, the lockouts now in force,
 and the administrator's unlock page (/accounts/lockouts/).
 
-The rules are in plant/settings.py (AXES_*): a number of failed logins for one account, or from one
+The rules are in quenby/settings.py (AXES_*): a number of failed logins for one account, or from one
 address, blocks logging in there for the cool-off time; a successful login clears the account's count.
 """
 from __future__ import annotations

@@ -1137,7 +1137,7 @@ def judge_calibration(case, base):
             if results is None:
                 bad.add((prefix, i, "results"))
             points.append({**values, "kind": kind, "results": results})
-    # the decision-rule policy (plant.settings, "require_guarded"): simple acceptance is refused when a point's TUR,
+    # the decision-rule policy (quenby.settings, "require_guarded"): simple acceptance is refused when a point's TUR,
     # MPE / its own U (ANSI/NCSL Z540.3), is below 4:1
     if event["decision_rule"] == "simple" and any(
             p["results"] is not None and p["results"][1] > 0 and meter.mpe_value / p["results"][1] < 4 for p in points):

@@ -220,7 +220,7 @@ def test_backup_restored_into_empty_database_is_identical(world, tmp_path):
 
 
 def test_production_settings_pass_deploy_check():
-    env = {**os.environ, "DJANGO_SETTINGS_MODULE": "plant.settings_production",
+    env = {**os.environ, "DJANGO_SETTINGS_MODULE": "quenby.settings_production",
            "DJANGO_SECRET_KEY": "k" * 20 + "-production-test-secret-with-enough-length-0123456789",
            "DJANGO_ALLOWED_HOSTS": "cal.example.internal"}
     result = subprocess.run([sys.executable, "manage.py", "check", "--deploy", "--fail-level", "WARNING"],

@@ -49,7 +49,7 @@ MIDDLEWARE = [
     "axes.middleware.AxesMiddleware",
 ]
 
-ROOT_URLCONF = "plant.urls"
+ROOT_URLCONF = "quenby.urls"
 
 TEMPLATES = [
     {
@@ -66,7 +66,7 @@ TEMPLATES = [
     },
 ]
 
-WSGI_APPLICATION = "plant.wsgi.application"
+WSGI_APPLICATION = "quenby.wsgi.application"
 
 # Connections are kept for a minute between requests; each is checked before a request first uses it, so the
 # first request after the database server restarted reconnects instead of failing on the dead connection.

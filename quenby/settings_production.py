@@ -1,6 +1,6 @@
 """Production settings: everything secret or site-specific comes from the environment.
 
-    DJANGO_SETTINGS_MODULE=plant.settings_production
+    DJANGO_SETTINGS_MODULE=quenby.settings_production
     DJANGO_SECRET_KEY=...            (required, at least 50 random characters)
     DJANGO_ALLOWED_HOSTS=cal.example.internal
     DATABASE_URL=postgres://user@dbhost:5432/quenby
@@ -10,8 +10,8 @@ import os
 
 from django.core.exceptions import ImproperlyConfigured
 
-from plant.settings import *  # noqa: F401,F403
-from plant.settings import DATABASES  # noqa: F401
+from quenby.settings import *  # noqa: F401,F403
+from quenby.settings import DATABASES  # noqa: F401
 
 DEBUG = os.environ.get("DJANGO_DEBUG", "0") == "1"
 SECRET_KEY = os.environ.get("DJANGO_SECRET_KEY", "")

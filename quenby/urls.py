@@ -1,0 +1,37 @@
+"""The site's addresses: each app's pages, put together here, the one place that may import every app."""
+from django.contrib import admin
+from django.urls import include, path
+from django.views.generic import RedirectView
+
+from calibration import views as calibration_views
+from maintenance import views as maintenance_views
+from offline import views as offline_views
+from plant import accounts
+from plant import urls as plant_urls
+
+# the meter pages other apps serve, in the plant namespace so that their names stay where they were
+plant_patterns = (
+    plant_urls.meter_patterns
+    + [
+        path("<str:tag>/calibrate/", calibration_views.new_calibration, name="meter-calibrate"),
+        path("<str:tag>/maintain/", maintenance_views.new_record, name="meter-maintain"),
+        path("<str:tag>/tasks/add/", maintenance_views.task_add, name="meter-task-add"),
+    ],
+    "plant",
+)
+
+urlpatterns = [
+    path("", RedirectView.as_view(url="/meters/", permanent=False)),
+    path("meters/", include(plant_patterns)),
+    *plant_urls.urlpatterns,
+    path("devices/<id:pk>/calibrate/", calibration_views.new_bench_calibration, name="device-calibrate"),
+    path("calibrations/", include("calibration.urls")),
+    path("maintenance/", include("maintenance.urls")),
+    path("", include("reports.urls")),
+    path("accounts/lockouts/", accounts.lockout_list, name="lockouts"),
+    path("accounts/", include("django.contrib.auth.urls")),
+    path("admin/", admin.site.urls),
+    path("field/", include("offline.urls")),
+    path("sw.js", offline_views.service_worker, name="service-worker"),
+    path("manifest.webmanifest", offline_views.manifest, name="web-manifest"),
+]
