@@ -34,7 +34,7 @@ class MaintenanceKind(RecordKind):
         }
 
     def pages(self, user, meters):
-        return [reverse("plant:meter-maintain", args=[m.tag]) for m in meters if m.position_id]
+        return [reverse("plant:position-maintain", args=[m.tag]) for m in meters if m.position_id]
 
     def receive(self, user, client_id, target, data):
         known = self.known(user, client_id)

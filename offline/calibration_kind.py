@@ -38,7 +38,7 @@ class CalibrationKind(RecordKind):
         return entry_rules(meter)
 
     def pages(self, user, meters):
-        return [reverse("plant:meter-calibrate", args=[m.tag]) for m in meters if m.position_id]
+        return [reverse("plant:position-calibrate", args=[m.tag]) for m in meters if m.position_id]
 
     def receive(self, user, client_id, target, data):
         known = self.known(user, client_id)

@@ -682,7 +682,7 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
             if existing is not None and existing.device.position_id is None:
                 plan.errors.append(RowError(row_number, "tag", (
                     f"Position {key} has no device installed; install one on its swap page "
-                    f"(/meters/{key}/swap/), then import its row.")))
+                    f"(/positions/{key}/swap/), then import its row.")))
                 return PlanRow(row_number=row_number, key=key, action="error")
         else:
             found = register.fluids.find(key)

@@ -134,7 +134,7 @@ class Fluid(ProtectedWhileCited, models.Model):
         return self.name
 
     def get_absolute_url(self):
-        return reverse("plant:meter-list") + f"?fluid={self.pk}"
+        return reverse("plant:position-list") + f"?fluid={self.pk}"
 
     def clean(self):
         errors = unstorable_value_errors(self)
@@ -209,7 +209,7 @@ class Position(ProtectedWhileCited, models.Model):
         return self.tag
 
     def get_absolute_url(self):
-        return reverse("plant:meter-detail", args=[self.tag])
+        return reverse("plant:position-detail", args=[self.tag])
 
     def installed_device(self):
         """The device installed here now, or None (one read; None without a query when there is none)."""
@@ -409,13 +409,13 @@ class Meter(ProtectedWhileCited, models.Model):
 
     def get_absolute_url(self):
         if self.position_id:
-            return reverse("plant:meter-detail", args=[self.position.tag])
+            return reverse("plant:position-detail", args=[self.position.tag])
         return reverse("device-detail", args=[self.pk])
 
     def calibrate_url(self):
         """Where this device is calibrated: at its position (by tag), or on the bench when it is a spare."""
         if self.position_id:
-            return reverse("plant:meter-calibrate", args=[self.position.tag])
+            return reverse("plant:position-calibrate", args=[self.position.tag])
         return reverse("device-calibrate", args=[self.pk])
 
     # What the device reads of the position it serves (read-only: change them on the position) ------

@@ -2,11 +2,13 @@ from django.contrib import messages
 from django.contrib.auth.decorators import permission_required
 from django.db import transaction
 from django.db.models import F
+from django.http import HttpResponsePermanentRedirect
 from django.shortcuts import get_object_or_404, redirect, render
 
-from calibration.trend import meter_drift_chart
-from maintenance.views import meter_section
-from plant import installations, risk
+from django.utils.encoding import escape_uri_path
+from django.urls import reverse
+
+from plant import installations, risk, sections
 from plant.params import configure_table
 from plant.forms import FluidForm, MeterForm, PositionForm, SwapForm
 from plant.models import Fluid, Installation, Meter, Position
@@ -15,13 +17,14 @@ from plant.tables import MeterTable
 
 
 @permission_required("plant.view_meter", raise_exception=True)
-def meter_list(request):
+def position_list(request):
+    """The register: the positions with the device installed at each (its due date, drift, risk)."""
     queryset = Meter.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
     meter_filter = MeterFilter(request.GET, queryset=queryset)
     can_calibrate = request.user.has_perm("calibration.add_calibrationevent")
     table = MeterTable(meter_filter.qs, exclude=() if can_calibrate else ("calibrate",))
     configure_table(request, table, per_page=50)
-    return render(request, "plant/meter_list.html", {"filter": meter_filter, "table": table})
+    return render(request, "plant/position_list.html", {"filter": meter_filter, "table": table})
 
 
 POSITION_RELATED = ("position__area__site", "position__fluid")
@@ -39,16 +42,15 @@ def _device_context(meter):
         "recommendation": risk.recommendation(findings),
         "duties": meter.duties.select_related("area__site", "fluid", "position"),
         "due": meter.due_rationale or {},
-        "drift_chart": meter_drift_chart(meter),
         "calibrations": meter.calibrations.select_related("position")[:20],
         "audit": _audit_rows(meter),
-        "maintenance": meter_section(meter),
+        "sections": sections.render_context(meter),  # what calibration, maintenance and reports add
         "device_moves": meter.installations.select_related("position", "installed_by", "removed_by", "unfit_accepted_by"),
     }
 
 
 @permission_required("plant.view_meter", raise_exception=True)
-def meter_detail(request, tag):
+def position_detail(request, tag):
     """A position's page (URLs by tag): the position, the device installed there now, and its history."""
     position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
     meter = position.installed_device()
@@ -64,7 +66,7 @@ def meter_detail(request, tag):
         "position_moves": moves,
         "fit_warnings": installations.fit_warnings(meter, position) if meter is not None else [],
     })
-    return render(request, "plant/meter_detail.html", context)
+    return render(request, "plant/position_detail.html", context)
 
 
 def _findings_by_principle(position, last_device):
@@ -85,9 +87,8 @@ def device_detail(request, pk):
     meter = get_object_or_404(Meter.objects.select_related(*POSITION_RELATED), pk=pk)
     context = _device_context(meter)
     position = meter.position if meter.position_id else None
-    context.update({"position": position, "device_page": True,
-                    "duty_fluid": position.fluid if position is not None else meter.fluid})
-    return render(request, "plant/meter_detail.html", context)
+    context.update({"position": position, "duty_fluid": position.fluid if position is not None else meter.fluid})
+    return render(request, "plant/device_detail.html", context)
 
 
 @permission_required("plant.view_meter", raise_exception=True)
@@ -173,7 +174,7 @@ def _edit(request, instance, form_class, template, title):
 
 
 @permission_required("plant.change_position", raise_exception=True)
-def meter_edit(request, tag):
+def position_edit(request, tag):
     position = get_object_or_404(Position, tag=tag)
     return _edit(request, position, PositionForm, "plant/record_form.html", f"Position {position.tag}")
 
@@ -188,3 +189,16 @@ def device_edit(request, pk):
 def fluid_edit(request, pk):
     fluid = get_object_or_404(Fluid, pk=pk)
     return _edit(request, fluid, FluidForm, "plant/record_form.html", f"Fluid {fluid.name}")
+
+
+def meters_moved(request, rest=""):
+    """The position pages were under /meters/ before they had their own address: every old address, query and
+    all, answers with its new one for good. A form posted to an old address (from a page a tablet kept before
+    the move) keeps its method and body (308); a 301 would turn it into a GET and drop what was entered."""
+    location = reverse("plant:position-list") + escape_uri_path(rest)
+    if request.META.get("QUERY_STRING"):
+        location += "?" + request.META["QUERY_STRING"]
+    response = HttpResponsePermanentRedirect(location)
+    if request.method not in ("GET", "HEAD"):
+        response.status_code = 308
+    return response

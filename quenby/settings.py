@@ -131,7 +131,7 @@ CSRF_COOKIE_NAME = "quenby_csrftoken"
 EMAIL_SUBJECT_PREFIX = "[Quenby] "
 
 LOGIN_URL = "/accounts/login/"
-LOGIN_REDIRECT_URL = "/meters/"
+LOGIN_REDIRECT_URL = "/positions/"
 LOGOUT_REDIRECT_URL = "/accounts/login/"
 
 DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"

@@ -9,20 +9,20 @@ from offline import views as offline_views
 from plant import accounts
 from plant import urls as plant_urls
 
-# the meter pages other apps serve, in the plant namespace so that their names stay where they were
+# a position's pages that other apps serve sit under the position's address, in the plant namespace
 plant_patterns = (
-    plant_urls.meter_patterns
+    plant_urls.position_patterns
     + [
-        path("<str:tag>/calibrate/", calibration_views.new_calibration, name="meter-calibrate"),
-        path("<str:tag>/maintain/", maintenance_views.new_record, name="meter-maintain"),
-        path("<str:tag>/tasks/add/", maintenance_views.task_add, name="meter-task-add"),
+        path("<str:tag>/calibrate/", calibration_views.new_calibration, name="position-calibrate"),
+        path("<str:tag>/maintain/", maintenance_views.new_record, name="position-maintain"),
+        path("<str:tag>/tasks/add/", maintenance_views.task_add, name="position-task-add"),
     ],
     "plant",
 )
 
 urlpatterns = [
-    path("", RedirectView.as_view(url="/meters/", permanent=False)),
-    path("meters/", include(plant_patterns)),
+    path("", RedirectView.as_view(pattern_name="plant:position-list", permanent=False)),
+    path("positions/", include(plant_patterns)),
     *plant_urls.urlpatterns,
     path("devices/<id:pk>/calibrate/", calibration_views.new_bench_calibration, name="device-calibrate"),
     path("calibrations/", include("calibration.urls")),

@@ -1,6 +1,6 @@
 """Bad-input campaign: generated good and bad values through every way a value gets into the register.
 
-Parts: the tablet calibration form (half the cases POSTed to /meters/<tag>/calibrate/, half through
+Parts: the tablet calibration form (half the cases POSTed to /positions/<tag>/calibrate/, half through
 calibration.forms.CalibrationEntry itself), the fluid and meter forms, the fluid and meter models saved directly
 (they validate in save()), and the register importer (plan_import / apply_import on rows, CSV and XLSX files).
 
@@ -1214,7 +1214,7 @@ def test_calibration_form(base, client, admin_user):
             bad, expected_event, points = judge_calibration(case, base)
             data = post_data(case, base)
             if case["via"] == "page":
-                response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+                response = client.post(f"/positions/{meter.tag}/calibrate/", data)
                 assert response.status_code in (302, 400), (response.status_code, case)
                 accepted = response.status_code == 302
                 entry = None if accepted else response.context["entry"]

@@ -133,7 +133,7 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
 
     try:
         # Log in through the real form; the register redirects there first.
-        page.goto(f"{live_server.url}/meters/")
+        page.goto(f"{live_server.url}/positions/")
         assert "/accounts/login/" in page.url
         assert page.locator("link[rel=stylesheet]").count() == 1
         # the stylesheet is served and applied (tablet sizes come from it)
@@ -148,7 +148,7 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         page.get_by_label("Password").fill(small_plant["password"])
         assert_touch_size(page.get_by_role("button", name="Log in"), "Log in button")
         page.get_by_role("button", name="Log in").click()
-        page.wait_for_url(re.compile(r"/meters/$"))
+        page.wait_for_url(re.compile(r"/positions/$"))
         assert page.get_by_text("Technician Tester").is_visible()
         assert page.get_by_text("1 meter", exact=True).is_visible()
         # a technician is not offered pages they may not open
@@ -159,13 +159,13 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         # Register -> meter page -> new calibration form.
         meter_link = page.get_by_role("link", name=meter.tag, exact=True)
         meter_link.click()
-        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/$"))
+        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/$"))
         assert page.title().startswith(meter.tag) and "<" not in page.title()
         shot("meter")
         new_cal = page.get_by_role("link", name="New calibration")
         assert_touch_size(new_cal, "New calibration link")
         new_cal.click()
-        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/calibrate/$"))
+        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/calibrate/$"))
         assert_no_sideways_scroll(page, "calibration form")
         shot("entry-empty")
 
@@ -272,7 +272,7 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
 
         # Back on the meter page the calibration is listed.
         page.get_by_role("link", name=meter.tag, exact=True).first.click()
-        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/$"))
+        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/$"))
         assert page.locator(f'table.grid a[href="/calibrations/{event.pk}/"]').is_visible()
         shot("meter-after")
     except BaseException:

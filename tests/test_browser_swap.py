@@ -40,7 +40,7 @@ def test_swap_on_the_tablet(demo, live_server, browser, shots):
         page.get_by_label("Username").fill("swaptech")
         page.get_by_label("Password").fill(PASSWORD)
         page.get_by_role("button", name="Log in").click()
-        page.goto(f"{live_server.url}/meters/FT-204/")
+        page.goto(f"{live_server.url}/positions/FT-204/")
         swap = page.get_by_role("link", name="Swap device")
         assert_touch_size(swap, "Swap device button")
         swap.click()

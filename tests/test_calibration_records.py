@@ -54,7 +54,7 @@ def counts():
 
 
 def test_entry_computes_errors_and_verdicts(client, meter, standard):
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 302
     event = CalibrationEvent.objects.get()
     points = sorted(event.points.filter(kind="as_found"), key=lambda p: p.nominal_pct)
@@ -74,7 +74,7 @@ def test_entry_computes_errors_and_verdicts(client, meter, standard):
 def test_out_of_tolerance_and_guarded_rule(client, meter, standard):
     # 10.05 vs 10 -> 0.5 % : at the MPE. Simple: pass. Guarded (w=U=0.1 %): conditional pass.
     found = [(10, 10.05), (20, 20.2)]
-    client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, found=found, **{"ev-decision_rule": "guarded"}))
+    client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, found=found, **{"ev-decision_rule": "guarded"}))
     event = CalibrationEvent.objects.get()
     decisions = {p.reference_value: p.decision for p in event.points.all()}
     assert decisions[10] == "conditional pass"
@@ -90,7 +90,7 @@ def test_out_of_tolerance_and_guarded_rule(client, meter, standard):
 ])
 def test_bad_points_rejected_nothing_saved(client, meter, standard, found, field_message):
     before = counts()
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, found=found))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, found=found))
     assert response.status_code == 400
     assert field_message in html.unescape(response.content.decode())
     assert counts() == before
@@ -102,14 +102,14 @@ def test_bad_points_rejected_nothing_saved(client, meter, standard, found, field
     ({"ev-ambient_temp_c": "-300"}, "Temperature is below absolute zero."),
 ])
 def test_bad_header_rejected_nothing_saved(client, meter, standard, event, field_message):
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, **event))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, **event))
     assert response.status_code == 400
     assert field_message in html.unescape(response.content.decode())
     assert counts() == (0, 0)
 
 
 def test_adjustment_without_as_left_rejected(client, meter, standard):
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, adjusted=True))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, adjusted=True))
     assert response.status_code == 400
     assert "An adjustment was made: enter the as-left points." in response.content.decode()
     assert counts() == (0, 0)
@@ -117,13 +117,13 @@ def test_adjustment_without_as_left_rejected(client, meter, standard):
 
 def test_expired_or_out_of_range_standard_refused(client, meter, standard):
     ReferenceStandard.objects.filter(pk=standard.pk).update(due_date=dt.date(2026, 1, 1))
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 400
     assert "was past its due date (2026-01-01)" in response.content.decode()
     # a standard whose range (0–30) does not cover the meter's (0–40) is neither offered nor accepted
     ReferenceStandard.objects.filter(pk=standard.pk).update(due_date=dt.date(2027, 6, 1), range_max=30)
-    assert f'name="ev-reference_standards" value="{standard.pk}"' not in client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    assert f'name="ev-reference_standards" value="{standard.pk}"' not in client.get(f"/positions/{meter.tag}/calibrate/").content.decode()
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     assert response.status_code == 400
     assert "is withdrawn or does not suit this meter (phase, measuring principle or range)" in html.unescape(response.content.decode())
     assert counts() == (0, 0)
@@ -142,13 +142,13 @@ def test_half_save_impossible_when_a_point_fails_at_db(client, meter, standard, 
 
     monkeypatch.setattr(CalibrationPoint, "save", failing_save)
     with pytest.raises(RuntimeError):
-        client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+        client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     assert counts() == (0, 0)
 
 
 @pytest.fixture
 def signed_event(client, meter, standard):
-    client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     event = CalibrationEvent.objects.get()
     response = client.post(f"/calibrations/{event.pk}/sign/", {"signed_by": "A. Fieldtech", "signed_role": "Technician"})
     assert response.status_code == 302
@@ -233,7 +233,7 @@ def test_sign_refused_when_problems(meter, standard):
 
 
 def test_entry_page_is_tablet_ready(client, meter, standard):
-    body = client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    body = client.get(f"/positions/{meter.tag}/calibrate/").content.decode()
     assert 'inputmode="decimal"' in body
     assert "permit to work" in body
     assert 'name="viewport"' in body
@@ -253,17 +253,17 @@ def test_only_suitable_standards_are_offered(client, meter, standard):
     liquid = make("RS-LIQ", phase="liquid")
     short = make("RS-SHORT", range_max=30)
     offset = make("RS-OFF", range_min=5)
-    body = client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    body = client.get(f"/positions/{meter.tag}/calibrate/").content.decode()
     offered = {s.identification for s in ReferenceStandard.objects.all() if f'name="ev-reference_standards" value="{s.pk}"' in body}
     assert offered == {standard.identification, liquid.identification}
     for refused in (withdrawn, gas, short, offset):
         before = counts()
-        response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(refused))
+        response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(refused))
         assert response.status_code == 400
         assert "is withdrawn or does not suit this meter" in html.unescape(response.content.decode())
         assert counts() == before
     # expired on the date of calibration: refused at the field with its due date, nothing saved
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(expired))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(expired))
     assert response.status_code == 400
     assert "Reference standard RS-EXP was past its due date (2020-01-01) on 2026-11-20." in response.content.decode()
     assert response.context["entry"].event_form.errors["reference_standards"]
@@ -291,11 +291,11 @@ def test_standard_of_a_principle_unfit_for_the_fluid_is_not_offered(client, mete
     # on water of 500 µS/cm the same magnetic reference is fit and offered (a thermal one, for gas only, is not)
     on_water = set(ReferenceStandard.offered_for(meter).values_list("identification", flat=True))
     assert magnetic.identification in on_water and thermal.identification not in on_water
-    body = client.get(f"/meters/{turbine.tag}/calibrate/").content.decode()
+    body = client.get(f"/positions/{turbine.tag}/calibrate/").content.decode()
     assert f'name="ev-reference_standards" value="{magnetic.pk}"' not in body
     assert f'name="ev-reference_standards" value="{weighed.pk}"' in body
     before = counts()
-    response = client.post(f"/meters/{turbine.tag}/calibrate/", entry_data(magnetic))
+    response = client.post(f"/positions/{turbine.tag}/calibrate/", entry_data(magnetic))
     assert response.status_code == 400
     assert "is withdrawn or does not suit this meter" in html.unescape(response.content.decode())
     assert counts() == before
@@ -311,7 +311,7 @@ def test_a_point_outside_the_standards_usable_range_is_refused_at_its_reference_
     wide = ReferenceStandard.objects.create(identification="RS-500", description="portable master", range_min=0,
                                             range_max=500, certificate_number="C-500", due_date=dt.date(2099, 1, 1),
                                             expanded_uncertainty=0.1)
-    response = client.post(f"/meters/{small.tag}/calibrate/", entry_data(wide, found=[(1, 1.01)]))
+    response = client.post(f"/positions/{small.tag}/calibrate/", entry_data(wide, found=[(1, 1.01)]))
     assert response.status_code == 400
     row = response.context["entry"].as_found.forms[0]
     usable_from = 0.10 * 500  # the common-practice minimum, 10 % of the range maximum
@@ -337,7 +337,7 @@ def test_repeats_rule_the_indication_is_their_mean(client, meter, standard):
     must be that mean to the digits typed, else it is refused at the field and nothing is saved."""
     # indicated 20.4, repeats 20, 20, 20: mean 20 is not 20.4 (+-0.05) -> refused
     data = entry_data(standard, found=[(20, 20.4)], **{"af-0-repeats": "20 20 20"})
-    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    response = client.post(f"/positions/{meter.tag}/calibrate/", data)
     assert response.status_code == 400
     assert ("The indication 20.4 is not the mean of the repeat readings (20); with repeat readings the mean is "
             "used") in html.unescape(response.content.decode())
@@ -346,7 +346,7 @@ def test_repeats_rule_the_indication_is_their_mean(client, meter, standard):
     # and stored: error = 100 x 0.0333.. / 20 = 0.16667 % of reading
     # (guarded acceptance: its TUR is below 4:1, 3 repeats give k = 4.3)
     data = entry_data(standard, found=[(20, 20.03)], **{"af-0-repeats": "20.0; 20.0; 20.1", "ev-decision_rule": "guarded"})
-    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    response = client.post(f"/positions/{meter.tag}/calibrate/", data)
     assert response.status_code == 302
     point = CalibrationPoint.objects.get()
     assert point.repeats == [20.0, 20.0, 20.1] and point.indicated_value == pytest.approx(20.033333, abs=1e-6)
@@ -359,7 +359,7 @@ def test_results_page_shows_k_tur_and_units(client, meter, standard):
     """Issue 17 item 1 / issue 15 item 5 on the results page (hand-worked in test_certificate's k test): repeats
     20.00, 20.04, 20.08 at 20 with the 0.1 % standard: nu_eff 2.8, k 3.30, U 0.415 % of reading, TUR 1.2:1 < 4:1."""
     data = entry_data(standard, found=[(20, "")], **{"af-0-repeats": "20.00 20.04 20.08", "ev-decision_rule": "guarded"})
-    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    assert client.post(f"/positions/{meter.tag}/calibrate/", data).status_code == 302
     event = CalibrationEvent.objects.get()
     body = html.unescape(client.get(event.get_absolute_url()).content.decode())
     assert "Error<br>(% of reading)" in body and "MPE<br>(± % of reading)" in body
@@ -373,14 +373,14 @@ def test_low_tur_policy_refuses_simple_acceptance(client, meter, standard, setti
     acceptance is refused at the decision-rule field, nothing saved; with "warn" it is accepted and marked."""
     data = entry_data(standard, found=[(20, "")], **{"af-0-repeats": "20.00 20.04 20.08"})
     settings.CALIBRATION = {**settings.CALIBRATION, "low_tur_policy": "require_guarded"}
-    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    response = client.post(f"/positions/{meter.tag}/calibrate/", data)
     assert response.status_code == 400
     message = response.context["entry"].event_form.errors["decision_rule"][0]
     assert message.startswith("The test uncertainty ratio is below 4:1 at 20 m³/h (1.2:1): the decision-rule policy "
                               "requires guarded acceptance")
     assert counts() == (0, 0)
     settings.CALIBRATION = {**settings.CALIBRATION, "low_tur_policy": "warn"}
-    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    assert client.post(f"/positions/{meter.tag}/calibrate/", data).status_code == 302
     body = client.get(CalibrationEvent.objects.get().get_absolute_url()).content.decode()
     assert "Simple acceptance was used." in body
 
@@ -394,7 +394,7 @@ def test_every_standard_used_enters_u(client, meter, standard):
                                               expanded_uncertainty=0.02, uncertainty_basis="absolute", issuer="Lab B")
     data = entry_data(standard, found=[(20, 20.05)], **{"ev-reference_standards": [standard.pk, second.pk],
                                                                 "ev-decision_rule": "guarded"})
-    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    assert client.post(f"/positions/{meter.tag}/calibrate/", data).status_code == 302
     point = CalibrationPoint.objects.get()
     assert point.expanded_uncertainty == pytest.approx(0.13859, abs=1e-5)
     event = point.event
@@ -406,15 +406,15 @@ def test_every_standard_used_enters_u(client, meter, standard):
 def test_performer_is_the_logged_in_user_and_item_condition_required(client, meter, standard, admin_user):
     """Issue 15 item 7: no free-text performer for staff; the condition as received is required (ISO/IEC 17025
     §7.8.2.1), deviations from the method are kept."""
-    body = client.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    body = client.get(f"/positions/{meter.tag}/calibrate/").content.decode()
     assert 'name="ev-technician"' not in body and 'name="ev-contractor"' in body
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, **{"ev-condition_received": " "}))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, **{"ev-condition_received": " "}))
     assert response.status_code == 400
     assert "Describe the meter's condition as received" in html.unescape(response.content.decode())
     assert counts() == (0, 0)
     data = entry_data(standard, **{"ev-technician": "Somebody Else", "ev-deviations": "Four points only: 100 % "
                                    "not reachable in service"})
-    assert client.post(f"/meters/{meter.tag}/calibrate/", data).status_code == 302
+    assert client.post(f"/positions/{meter.tag}/calibrate/", data).status_code == 302
     event = CalibrationEvent.objects.get()
     assert event.performed_by == admin_user and event.technician == "Administrator Tester" and not event.contractor
     assert event.deviations.startswith("Four points only")

@@ -48,7 +48,7 @@ def entry_data(standard, performed_on=TODAY, **kwargs):
 
 def enter(client, meter, standard, **kwargs):
     before = set(CalibrationEvent.objects.values_list("pk", flat=True))
-    response = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard, **kwargs))
+    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, **kwargs))
     assert response.status_code == 302, response.content.decode()[:2000]
     return CalibrationEvent.objects.exclude(pk__in=before).get()
 
@@ -358,7 +358,7 @@ def test_k_from_repeats_and_low_tur_on_certificate(client, meter, standard, monk
     <= MPE -> conditional pass (ILAC-G8 §4.2.2)."""
     found = [(20, "")]
     data = entry_data(standard, found=found, **{"ev-decision_rule": "guarded", "af-0-repeats": "20.00 20.04 20.08"})
-    response = client.post(f"/meters/{meter.tag}/calibrate/", data)
+    response = client.post(f"/positions/{meter.tag}/calibrate/", data)
     assert response.status_code == 302, response.content.decode()[:3000]
     event = CalibrationEvent.objects.get()
     point = event.points.get()

@@ -59,7 +59,7 @@ def weak(db):
 @pytest.mark.django_db
 def test_risk_rule_end_to_end(client, meter, weak, monkeypatch, settings):
     settings.CALIBRATION = {**settings.CALIBRATION, "low_tur_policy": "require_risk"}
-    refused = client.post(f"/meters/{meter.tag}/calibrate/", entry_data(weak, **{"ev-decision_rule": "guarded"}))
+    refused = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(weak, **{"ev-decision_rule": "guarded"}))
     assert refused.status_code == 400 and "requires risk-based acceptance" in refused.content.decode()
     assert not CalibrationEvent.objects.exists()   # nothing half-saved
     event = enter(client, meter, weak, **{"ev-decision_rule": "risk"})

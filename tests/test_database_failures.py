@@ -69,7 +69,7 @@ def tech_client(tech):
 
 @pytest.fixture
 def draft(tech_client, meter, standard):  # noqa: F811
-    assert tech_client.post(f"/meters/{meter.tag}/calibrate/", entry_data(standard)).status_code == 302
+    assert tech_client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard)).status_code == 302
     return CalibrationEvent.objects.get()
 
 
@@ -106,7 +106,7 @@ def test_the_first_request_after_the_database_restarted_succeeds(checked):
     client = Client()
     client.force_login(user)
     cookie = f"{settings.SESSION_COOKIE_NAME}={client.cookies[settings.SESSION_COOKIE_NAME].value}"
-    assert _wsgi_get("/meters/", cookie)[0] == 200
+    assert _wsgi_get("/positions/", cookie)[0] == 200
     assert connection.connection is not None  # kept for the next request (CONN_MAX_AGE)
     connection.health_check_enabled = checked
     with connection.cursor() as cursor:
@@ -120,12 +120,12 @@ def test_the_first_request_after_the_database_restarted_succeeds(checked):
         while other.execute("SELECT count(*) FROM pg_stat_activity WHERE pid = %s", [pid]).fetchone()[0]:
             assert time.monotonic() < deadline
             time.sleep(0.05)
-    status, body = _wsgi_get("/meters/", cookie)
+    status, body = _wsgi_get("/positions/", cookie)
     if checked:
         assert status == 200
     else:  # what the check prevents: the dead connection fails the request
         assert status == 500 and b"Something went wrong" in body
-    assert _wsgi_get("/meters/", cookie)[0] == 200  # and the one after succeeds either way
+    assert _wsgi_get("/positions/", cookie)[0] == 200  # and the one after succeeds either way
 
 
 # A save that fails: our page, nothing saved -------------------------------------------------------------------
@@ -175,16 +175,16 @@ def test_an_import_the_database_fails_under_saves_nothing(db):
                      for name in ("Water A", "Water B", "Water C"))
     upload = SimpleUploadedFile("fluids.csv", f"{header}\n{rows}\n".encode(), content_type="text/csv")
     with database_fails_after_first_write(OperationalError("server closed the connection unexpectedly")) as writes:
-        response = client.post("/meters/import/", {"kind": "fluids", "file": upload})
+        response = client.post("/positions/import/", {"kind": "fluids", "file": upload})
     assert len(writes) >= 2
-    assert_nothing_saved_page(response, "/meters/import/")
+    assert_nothing_saved_page(response, "/positions/import/")
     assert "import" in response.content.decode()
     assert not Fluid.objects.exists()
 
 
 # Our own 500 and 404 ------------------------------------------------------------------------------------------
 def test_the_500_page_is_ours_and_reads_neither_the_database_nor_the_user(django_assert_num_queries):
-    request = RequestFactory().get("/meters/")  # no user, no session: as Django renders it after a failure
+    request = RequestFactory().get("/positions/")  # no user, no session: as Django renders it after a failure
     with django_assert_num_queries(0):
         response = defaults.server_error(request)
     page = response.content.decode()
@@ -203,8 +203,8 @@ def test_an_unexpected_failure_shows_our_500_page(tech_client, monkeypatch):
 
 
 def test_the_404_page_is_ours(tech_client):
-    response = tech_client.get("/meters/NO-SUCH-TAG/")
+    response = tech_client.get("/positions/NO-SUCH-TAG/")
     page = response.content.decode()
     assert response.status_code == 404
-    assert "Nothing at this address" in page and "/meters/NO-SUCH-TAG/" in page and 'class="brand"' in page
+    assert "Nothing at this address" in page and "/positions/NO-SUCH-TAG/" in page and 'class="brand"' in page
     assert re.search(r"<nav>.*Spares", page, re.S)  # the signed-in user's navigation

@@ -62,7 +62,7 @@ def test_signed_event_refuses_a_model_form_edit(demo_history):
 def test_demo_meter_page_and_event_page_render(client, demo_history):
     event = CalibrationEvent.objects.filter(adjusted=True).first()
     assert client.get(f"/calibrations/{event.pk}/").status_code == 200
-    assert client.get(f"/meters/{event.meter.tag}/").status_code == 200
+    assert client.get(f"/positions/{event.meter.tag}/").status_code == 200
 
 
 def test_demo_plant_looks_looked_after(demo_history):

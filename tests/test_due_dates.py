@@ -262,7 +262,7 @@ def test_recompute_command_on_demo_fleet(demo_history, client):
     assert all(m.next_due_date is not None for m in meters)
     winners = {m.due_rationale["winner"] for m in meters}
     assert winners == {"risk", "drift", "method"}
-    page = client.get(f"/meters/{meters[0].tag}/").content.decode()
+    page = client.get(f"/positions/{meters[0].tag}/").content.decode()
     assert "(chosen)" in page and "<svg" in page
 
 
@@ -342,7 +342,7 @@ def test_improving_meter_crossing_rate_and_chart_on_the_side_it_heads_to(driftin
     MPE 1.0 absolute: the error falls exactly 0.1 per 365 d toward zero and, continuing, reaches -1.0 after
     (0.1 + 1.0) / (0.1 / 365) = 4015 days past the last calibration. The page shows that slope with its standard
     uncertainty (0 on an exact line), and the chart draws the 50 % points and the lower bound."""
-    from calibration.trend import meter_drift_chart
+    from reports.trend import meter_drift_chart
 
     settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "staircase", "max_interval_days": 3000}
     meter, standard = drifting_meter

@@ -14,7 +14,7 @@ from plant.models import Position
 from tests.test_import_bulk import plant, row  # noqa: F401  (the fixture is used by name)
 
 pytestmark = pytest.mark.django_db
-URL = "/meters/import/"
+URL = "/positions/import/"
 
 
 @pytest.fixture(autouse=True)

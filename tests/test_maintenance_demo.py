@@ -24,7 +24,7 @@ def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, cli
     assert MaintenanceRecord.objects.filter(task=task, condition__in=["blocked", "heavy_deposit"]).count() >= 3
     meter = Meter.objects.get(position__tag="FT-601")
     assert "MAINT_FOULED" in [f.code for f in meter.findings()]
-    body = client.get("/meters/FT-601/").content.decode()
+    body = client.get("/positions/FT-601/").content.decode()
     # pages show the finding in plain words (the code stays in exports)
     assert "Found fouled at inspection after inspection" in body and "3 of the last 4 inspections" in body
     assert "× 0.5 →" in body
@@ -36,7 +36,7 @@ def test_syrup_magmeter_found_clean_for_years_lengthened(demo, client):
     assert len(conditions) >= 5 and set(conditions) == {"clean"}
     # 135 d (180 × 0.75, sticky fluid) × 1.5 after each three cleans: 135 -> 203 -> 305 (202.5 and 304.5 half up)
     assert task.start_days == 135 and task.frequency_days == 305
-    assert "3 times in a row: 203 d × 1.5 → 305 d." in client.get("/meters/FT-303/").content.decode()
+    assert "3 times in a row: 203 d × 1.5 → 305 d." in client.get("/positions/FT-303/").content.decode()
 
 
 def test_demo_records_are_signed_invented_and_walk_order_set(demo):

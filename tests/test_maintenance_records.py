@@ -189,11 +189,11 @@ def tech_client(plant):
 
 def test_form_saves_a_draft_with_photo_and_the_logged_in_technician(plant, tech_client):
     task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
-    page = tech_client.get("/meters/FT-P1/maintain/")
+    page = tech_client.get("/positions/FT-P1/maintain/")
     body = page.content.decode()
     assert page.status_code == 200 and "permit to work" in body and "depressurise and drain" in body
     photo = SimpleUploadedFile("ports.jpg", png_bytes(kind="JPEG"), content_type="image/jpeg")
-    response = tech_client.post("/meters/FT-P1/maintain/", {**post_data(task), "photos": [photo]})
+    response = tech_client.post("/positions/FT-P1/maintain/", {**post_data(task), "photos": [photo]})
     assert response.status_code == 302
     record = MaintenanceRecord.objects.get()
     assert record.technician == "Technician Tester" and record.created_by == plant["tech"]
@@ -217,7 +217,7 @@ def test_form_saves_a_draft_with_photo_and_the_logged_in_technician(plant, tech_
 ])
 def test_photo_refusals_by_content(plant, tech_client, upload, message):
     task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
-    response = tech_client.post("/meters/FT-P1/maintain/", {**post_data(task), "photos": [upload]})
+    response = tech_client.post("/positions/FT-P1/maintain/", {**post_data(task), "photos": [upload]})
     assert response.status_code == 400 and message in response.content.decode()
     assert MaintenanceRecord.objects.count() == 0 and MaintenancePhoto.objects.count() == 0
 
@@ -225,12 +225,12 @@ def test_photo_refusals_by_content(plant, tech_client, upload, message):
 def test_photo_of_a_wrong_image_type_and_too_large_are_refused(plant, tech_client, settings):
     task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
     gif = SimpleUploadedFile("anim.gif", png_bytes(kind="GIF"), content_type="image/gif")
-    response = tech_client.post("/meters/FT-P1/maintain/", {**post_data(task), "photos": [gif]})
+    response = tech_client.post("/positions/FT-P1/maintain/", {**post_data(task), "photos": [gif]})
     assert response.status_code == 400 and "anim.gif is a GIF image; attach a JPEG, PNG or WebP photo." in \
         response.content.decode()
     settings.MAINTENANCE_PHOTO_MAX_BYTES = 1024 * 1024
     big = SimpleUploadedFile("big.png", b"\x89PNG" + b"0" * (1024 * 1024 + 10), content_type="image/png")
-    response = tech_client.post("/meters/FT-P1/maintain/", {**post_data(task), "photos": [big]})
+    response = tech_client.post("/positions/FT-P1/maintain/", {**post_data(task), "photos": [big]})
     assert response.status_code == 400 and "big.png is 1.0 MB; a photo may be at most 1 MB." in \
         response.content.decode()
     assert MaintenanceRecord.objects.count() == 0 and MaintenancePhoto.objects.count() == 0
@@ -247,7 +247,7 @@ def test_photo_of_a_wrong_image_type_and_too_large_are_refused(plant, tech_clien
 ])
 def test_bad_field_refused_at_the_field_nothing_saved(plant, tech_client, field, value, message):
     task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
-    response = tech_client.post("/meters/FT-P1/maintain/", post_data(task, **{field: value}))
+    response = tech_client.post("/positions/FT-P1/maintain/", post_data(task, **{field: value}))
     assert response.status_code == 400
     form = response.context["form"]
     assert message in " ".join(form.errors.get(field, [])), form.errors
@@ -258,13 +258,13 @@ def test_task_of_another_meter_or_retired_is_refused(plant, tech_client):
     other = commission(tag="FT-P2", principle="pitot", area=plant["area"], fluid=plant["fluid"],
                                  line_size="DN100", internal_diameter_mm=102, range_max=100, mpe_value=2)
     foreign = task_of(other, "PITOT_PULL_CLEAN")
-    response = tech_client.post("/meters/FT-P1/maintain/", post_data(foreign))
+    response = tech_client.post("/positions/FT-P1/maintain/", post_data(foreign))
     assert response.status_code == 400 and response.context["form"].errors["task"] == [
         "Choose one of this meter's tasks."]
     retired = task_of(plant["meter"], "DP_ZERO_CHECK")
     retired.active = False
     retired.save()
-    response = tech_client.post("/meters/FT-P1/maintain/", post_data(retired))
+    response = tech_client.post("/positions/FT-P1/maintain/", post_data(retired))
     assert response.status_code == 400 and response.context["form"].errors["task"] == [
         "Choose one of this meter's tasks."]
     assert MaintenanceRecord.objects.count() == 0
@@ -279,7 +279,7 @@ def test_only_the_author_signs_and_a_reviewer_cannot_enter(plant):
     assert other.post(f"/maintenance/{record.pk}/sign/").status_code == 403
     reviewer = Client()
     reviewer.force_login(user_with_role("reviewer", "rev1"))
-    assert reviewer.get("/meters/FT-P1/maintain/").status_code == 403
+    assert reviewer.get("/positions/FT-P1/maintain/").status_code == 403
     assert not MaintenanceRecord.objects.get().is_signed
 
 
@@ -288,10 +288,10 @@ def test_reviewer_adds_changes_and_retires_with_reason_kept(plant):
     reviewer = Client()
     reviewer.force_login(user_with_role("reviewer", "rev1"))
     meter = plant["meter"]
-    refused = reviewer.post("/meters/FT-P1/tasks/add/", {"title": "Check the purge supply", "reason": "r",
+    refused = reviewer.post("/positions/FT-P1/tasks/add/", {"title": "Check the purge supply", "reason": "r",
                                                          "base_days": "30", "change_reason": ""})
     assert refused.status_code == 400 and "Say why" in refused.content.decode()
-    assert reviewer.post("/meters/FT-P1/tasks/add/", {"title": "Check the purge supply", "reason": "Purge air",
+    assert reviewer.post("/positions/FT-P1/tasks/add/", {"title": "Check the purge supply", "reason": "Purge air",
                                                       "base_days": "30", "change_reason": "Purge fitted 2026"}
                          ).status_code == 302
     added = MaintenanceTask.objects.get(meter=meter, code="CUSTOM")
@@ -320,7 +320,7 @@ def test_meter_page_shows_each_task_due_date_and_why(plant, client):
     signed_record(meter, "PITOT_PULL_CLEAN", "blocked", day, plant["tech"])
     from django.utils.html import strip_tags
 
-    body = strip_tags(client.get("/meters/FT-P1/").content.decode())
+    body = strip_tags(client.get("/positions/FT-P1/").content.decode())
     due = (day + dt.timedelta(days=23)).isoformat()
     assert f"found blocked: 45 d × 0.5 → 23 d." in body
     assert f"Last done {day.isoformat()} + 23 d = due {due}." in body
@@ -348,6 +348,6 @@ def test_meter_page_shows_an_as_found_failure_beside_the_blockage_found_before_i
                                     indicated_value=220)
     event.sign(by="T", role="Technician")
     assert CalibrationEvent.objects.get(pk=event.pk).as_found_in_tolerance is False
-    body = client.get("/meters/FT-P1/").content.decode()
+    body = client.get("/positions/FT-P1/").content.decode()
     assert (f"Calibration {failed_on.isoformat()} found out of tolerance 17 d after heavy deposit or blockage was "
             f"found on {blocked_on.isoformat()}.") in body

@@ -29,9 +29,9 @@ def test_package_cookies_and_mail_carry_the_name():
 
 @pytest.mark.django_db
 def test_every_page_shows_the_name_in_its_brand_and_title(client, demo_plant):
-    for url in ("/meters/", "/review/", "/stats/", "/meters/import/"):
+    for url in ("/positions/", "/review/", "/stats/", "/positions/import/"):
         html = client.get(url).content.decode()
-        assert '<a class="brand" href="/meters/">Quenby</a>' in html, url
+        assert '<a class="brand" href="/positions/">Quenby</a>' in html, url
         assert "· Quenby</title>" in html, url
         assert FORMER not in html.lower(), url
 

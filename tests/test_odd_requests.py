@@ -29,14 +29,14 @@ ODD_IDS = ["99999999999999999999", "9223372036854775808", "0"]
 def test_a_vacant_position_shows_its_duty_findings_history_and_install(demo_plant, role):
     client = Client()
     client.force_login(user_with_role(role))
-    response = client.get("/meters/FT-115/")
+    response = client.get("/positions/FT-115/")
     assert response.status_code == 200
     page = response.content.decode()
     assert "no device installed" in page and "Pickling brine" in page  # the position and its duty
     # installation history: the device that served here and why it came out
     history = page.split('id="position-moves"')[1].split("</table>")[0]
     assert "SN853027" in history and "moved to the syrup kitchen" in history
-    assert 'href="/meters/FT-115/swap/">Install a device<' in page
+    assert 'href="/positions/FT-115/swap/">Install a device<' in page
     # the findings depend on the device's principle: each principle is shown with what it would meet here
     table = page.split('id="findings-by-principle"')[1].split("</table>")[0]
     assert table.count("<tr") == 1 + len(risk.PRINCIPLES)
@@ -60,8 +60,8 @@ def test_a_reader_who_may_not_install_gets_no_install_action(demo_plant):
     reader.user_permissions.add(*Permission.objects.filter(codename__in=["view_meter", "view_position"]))
     client = Client()
     client.force_login(reader)
-    page = client.get("/meters/FT-115/").content.decode()
-    assert "Pickling brine" in page and "/meters/FT-115/swap/" not in page
+    page = client.get("/positions/FT-115/").content.decode()
+    assert "Pickling brine" in page and "/positions/FT-115/swap/" not in page
 
 
 # Odd ids and query values --------------------------------------------------------------------------------------
@@ -128,7 +128,7 @@ def test_odd_query_values_give_400_or_are_ignored(demo_plant):
     found = parameters_by_view(client, urls)
     # the pages link to their filters: these at least must have been found (the ones that crashed are among them)
     assert {"site", "area"} <= found["offline:home"][1], found.get("offline:home")
-    assert "task" in found["plant:meter-maintain"][1] and "by" in found["reports:stats-csv"][1]
+    assert "task" in found["plant:position-maintain"][1] and "by" in found["reports:stats-csv"][1]
     assert "export" in found["reports:review"][1] and "overdue-page" in found["reports:review"][1]
     found["offline:kit"] = ("/field/kit.json", found["offline:home"][1])  # the tablet script asks with the same
     failures, tried = [], 0
@@ -147,7 +147,7 @@ def test_odd_query_values_give_400_or_are_ignored(demo_plant):
 
 def test_the_page_size_is_ours_and_an_odd_page_number_shows_a_page(demo_plant, client):
     for query in ({"per_page": "-1"}, {"per_page": "0"}, {"per_page": "100000"}, {"page": "²"}, {"page": "99999"}):
-        response = client.get("/meters/", query)
+        response = client.get("/positions/", query)
         assert response.status_code == 200, query
         table = response.context["table"]
         assert table.paginator.per_page == 50 and len(table.page.object_list) == 44, query  # 44 installed

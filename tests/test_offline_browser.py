@@ -140,7 +140,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         page.get_by_label("Username").fill("welltech")
         page.get_by_label("Password").fill("dry-well-pass-1")
         page.get_by_role("button", name="Log in").click()
-        page.wait_for_url(re.compile(r"/meters/$"))
+        page.wait_for_url(re.compile(r"/positions/$"))
 
         # Online: keep the pages of the meters due soon. The service worker controls the pages once installed.
         page.get_by_role("navigation").get_by_role("link", name="Offline work").click()
@@ -155,17 +155,17 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         # each due meter's calibration and maintenance entry pages
         expect(page.locator("#kit-status")).to_contain_text("Kept on this tablet: 4 entry pages")
         kept = page.evaluate(KIT_PATHS)
-        assert {f"/meters/{first.tag}/calibrate/", f"/meters/{second.tag}/calibrate/", "/field/",
-                f"/meters/{first.tag}/maintain/", f"/meters/{second.tag}/maintain/",
+        assert {f"/positions/{first.tag}/calibrate/", f"/positions/{second.tag}/calibrate/", "/field/",
+                f"/positions/{first.tag}/maintain/", f"/positions/{second.tag}/maintain/",
                 "/field/queue/", "/static/offline/field.js", "/static/site.css"} <= set(kept)
-        assert f"/meters/{not_due.tag}/calibrate/" not in kept and len(kept) == 8
+        assert f"/positions/{not_due.tag}/calibrate/" not in kept and len(kept) == 8
         shot(page, "01-kit-kept")
 
         # No network from here. A page that was not kept says so; the kept entry page opens.
         context.set_offline(True)
-        page.goto(f"{base}/meters/")
+        page.goto(f"{base}/positions/")
         expect(page.get_by_role("heading", level=1)).to_have_text("No network")
-        page.goto(f"{base}/meters/{first.tag}/calibrate/")
+        page.goto(f"{base}/positions/{first.tag}/calibrate/")
         ready(page)
         expect(page.locator("#offline-note")).to_be_visible()
         expect(page.locator(".caution")).to_be_visible()  # the safety caution is on the kept page too
@@ -190,7 +190,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         # The second one, reached from the kept Offline work page.
         page.goto(f"{base}/field/")
         page.locator("#kit-meters tr", has_text=second.tag).get_by_role("link", name="Enter calibration").click()
-        page.wait_for_url(re.compile(rf"/meters/{second.tag}/calibrate/$"))
+        page.wait_for_url(re.compile(rf"/positions/{second.tag}/calibrate/$"))
         ready(page)
         fill_header(page, plant, "Offline entry two", "17", standard=plant["standard_80"])
         page.get_by_label("Outside contractor (only if a contractor did the work)").fill("W. Welltech")
@@ -203,7 +203,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (2)")
         expect(page.locator("#waiting-badge")).to_have_text("Waiting to send (2)")
         # a maintenance record beside them, on the first meter's kept maintenance page (photos stay behind)
-        page.goto(f"{base}/meters/{first.tag}/maintain/")
+        page.goto(f"{base}/positions/{first.tag}/maintain/")
         ready(page)
         expect(page.locator("#offline-note")).to_be_visible()
         expect(page.locator("#offline-photos")).to_contain_text("sent without photos")
@@ -226,7 +226,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (3)")
         expect(page.locator("#queue-list li.queue-item").nth(2)).to_contain_text(f"Maintenance · {first.tag}")
         # a fourth one, entered by mistake, is discarded from the list (two taps) and never sent
-        page.goto(f"{base}/meters/{first.tag}/calibrate/")
+        page.goto(f"{base}/positions/{first.tag}/calibrate/")
         ready(page)
         fill_header(page, plant, "Entered by mistake", "15")
         fill_points(page, "af", [(4, 4.0), (10, 10.0), (20, 20.0), (30, 30.0), (40, 40.0)])
@@ -309,7 +309,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (1)")
         shot(page, "04-refused-by-server")
         refused.get_by_role("link", name="Review or change").click()
-        page.wait_for_url(re.compile(rf"/meters/{second.tag}/calibrate/#edit="))
+        page.wait_for_url(re.compile(rf"/positions/{second.tag}/calibrate/#edit="))
         ready(page)
         beside = page.locator('.field:has([name="ev-performed_on"]) .errorlist')
         expect(beside).to_have_text(expected)
@@ -388,8 +388,8 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
         page.get_by_label("Username").fill("welltech")
         page.get_by_label("Password").fill("dry-well-pass-1")
         page.get_by_role("button", name="Log in").click()
-        page.wait_for_url(re.compile(r"/meters/$"))
-        page.goto(f"{live_server.url}/meters/{meter.tag}/calibrate/")
+        page.wait_for_url(re.compile(r"/positions/$"))
+        page.goto(f"{live_server.url}/positions/{meter.tag}/calibrate/")
         page.evaluate("navigator.serviceWorker.ready.then(() => true)")
         page.reload()  # a page loaded once the worker is active is served through it
         ready(page)
@@ -401,7 +401,7 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
                       lambda route: route.abort("internetdisconnected") if route.request.method == "POST"
                       else route.continue_())
         page.get_by_role("button", name="Save calibration").click()
-        page.wait_for_url(re.compile(rf"/meters/{meter.tag}/calibrate/#interrupted$"))
+        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/calibrate/#interrupted$"))
         ready(page)
         expect(page.locator("#offline-interrupted")).to_be_visible()
         assert page.get_by_label("Method / procedure").input_value() == "Saved as the signal dropped"
@@ -420,5 +420,83 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
         assert event.meter == meter and event.procedure == "Saved as the signal dropped" and event.client_id
         assert sorted((p.reference_value, p.indicated_value) for p in event.points.all()) == [
             (4, 4.01), (10, 10.02), (20, 20.05), (30, 30.03), (40, 40.04)]
+    finally:
+        context.close()
+
+
+MOVE_KIT_TO_OLD_ADDRESSES = """async () => {
+  // what a tablet holds when it kept its pages before the position pages moved: the same pages, under /meters/
+  const cache = await caches.open("quenby-kit");
+  for (const request of await cache.keys()) {
+    const url = new URL(request.url);
+    if (url.pathname.startsWith("/positions/")) {
+      const response = await cache.match(request);
+      url.pathname = "/meters/" + url.pathname.slice("/positions/".length);
+      await cache.put(url.href, response);
+      await cache.delete(request);
+    }
+  }
+  return (await cache.keys()).map((r) => new URL(r.url).pathname);
+}"""
+
+
+def test_pages_kept_under_the_old_address_open_offline(pump_station, live_server, playwright, tmp_path):
+    """The position pages moved from /meters/ to /positions/. Without a network, a tablet opens an entry page
+    under either address, whether it kept its pages before the move (under /meters/) or after (/positions/),
+    and an entry kept from a page opened at the old address is sent once the network returns."""
+    plant = pump_station
+    first = plant["meters"][0]
+    base = live_server.url
+    context = open_tablet(playwright, tmp_path / "tablet-profile")
+    try:
+        page = page_of(context)
+        page.goto(f"{base}/accounts/login/")
+        page.get_by_label("Username").fill("welltech")
+        page.get_by_label("Password").fill("dry-well-pass-1")
+        page.get_by_role("button", name="Log in").click()
+        page.wait_for_url(re.compile(r"/positions/$"))
+        # online, an old address answers with the new one
+        page.goto(f"{base}/meters/{first.tag}/?from=bookmark")
+        assert page.url == f"{base}/positions/{first.tag}/?from=bookmark"
+        page.goto(f"{base}/field/")
+        page.evaluate("navigator.serviceWorker.ready.then(() => true)")
+        page.reload()
+        ready(page)
+        page.get_by_role("button", name="Keep these pages on this tablet").click()
+        expect(page.locator("#kit-status")).to_contain_text("Kept on this tablet: 4 entry pages")
+        assert f"/positions/{first.tag}/calibrate/" in page.evaluate(KIT_PATHS)
+
+        # kept after the move (under /positions/), opened offline at the old address
+        context.set_offline(True)
+        page.goto(f"{base}/meters/{first.tag}/calibrate/")
+        ready(page)
+        expect(page.locator("#offline-note")).to_be_visible()
+        expect(page.get_by_role("heading", level=1)).to_contain_text(first.tag)
+
+        # kept before the move (under /meters/), opened offline at either address
+        kept = page.evaluate(MOVE_KIT_TO_OLD_ADDRESSES)
+        assert f"/meters/{first.tag}/calibrate/" in kept and f"/positions/{first.tag}/calibrate/" not in kept
+        for address in (f"/meters/{first.tag}/maintain/", f"/positions/{first.tag}/maintain/",
+                        f"/positions/{first.tag}/calibrate/", f"/meters/{first.tag}/calibrate/"):
+            page.goto(f"{base}{address}")
+            ready(page)
+            expect(page.locator("#offline-note")).to_be_visible()
+            assert page.url == f"{base}{address}"
+        page.goto(f"{base}/meters/{first.tag}/")  # a page never kept still says so
+        expect(page.get_by_role("heading", level=1)).to_have_text("No network")
+
+        # an entry on the page opened at the old address is kept, then sent when the network returns
+        page.goto(f"{base}/meters/{first.tag}/calibrate/")
+        ready(page)
+        fill_header(page, plant, "Kept under the old address", "18")
+        fill_points(page, "af", [(4, 4.01), (10, 10.02), (20, 20.05), (30, 30.03), (40, 40.04)])
+        page.get_by_role("button", name="Keep on this tablet").click()
+        page.wait_for_url(re.compile(r"/field/queue/#kept="))
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (1)")
+        context.set_offline(False)
+        page.get_by_role("button", name="Send now").click()
+        expect(page.locator("#queue-title")).to_have_text("Waiting to send (0)")
+        event = CalibrationEvent.objects.get()
+        assert event.meter == first and event.procedure == "Kept under the old address"
     finally:
         context.close()

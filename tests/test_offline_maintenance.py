@@ -158,8 +158,8 @@ def test_the_kit_and_the_entry_page_carry_maintenance(plant, tech):  # noqa: F81
     from plant.models import Meter
 
     Meter.objects.filter(pk=plant["meter"].pk).update(next_due_date=timezone.localdate() + dt.timedelta(days=7))
-    assert "/meters/FT-P1/maintain/" in tech.get("/field/kit.json").json()["pages"]
-    page = tech.get("/meters/FT-P1/maintain/")
+    assert "/positions/FT-P1/maintain/" in tech.get("/field/kit.json").json()["pages"]
+    page = tech.get("/positions/FT-P1/maintain/")
     html = page.content.decode()
     assert '<input type="hidden" name="offline-kind" value="maintenance">' in html
     assert "sent without photos" in html

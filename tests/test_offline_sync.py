@@ -215,9 +215,9 @@ def test_the_kit_holds_the_due_entry_pages_the_account_may_open(field):
     assert kit["owner"] == str(field["users"]["tech"].pk)
     # never calibrated, overdue, due within the coming weeks; not the one due in 200 days, not the removed one
     due = ["FT-OFF-4", "FT-OFF-2", "FT-OFF-1"]
-    assert sorted(kit["pages"]) == sorted(["/field/", "/field/queue/"] + [f"/meters/{tag}/calibrate/" for tag in due]
-                                          + [f"/meters/{tag}/maintain/" for tag in due])  # each kind's pages
-    assert [p for p in kit["pages"] if p.endswith("/calibrate/")] == [f"/meters/{tag}/calibrate/" for tag in due]
+    assert sorted(kit["pages"]) == sorted(["/field/", "/field/queue/"] + [f"/positions/{tag}/calibrate/" for tag in due]
+                                          + [f"/positions/{tag}/maintain/" for tag in due])  # each kind's pages
+    assert [p for p in kit["pages"] if p.endswith("/calibrate/")] == [f"/positions/{tag}/calibrate/" for tag in due]
     assert kit["assets"] == ["/static/site.css", "/static/offline/field.js"]
     for url in kit["pages"]:
         assert field["clients"]["tech"].get(url).status_code == 200, url
@@ -240,7 +240,7 @@ def test_service_worker_and_manifest_are_served_from_the_root(field):
     assert manifest.status_code == 200 and manifest["Content-Type"] == "application/manifest+json"
     assert manifest.json()["start_url"] == "/field/" and manifest.json()["display"] == "standalone"
     assert anonymous.get(manifest.json()["icons"][0]["src"]).status_code in (200, 404)  # static served by runserver
-    page = field["clients"]["tech"].get("/meters/").content.decode()
+    page = field["clients"]["tech"].get("/positions/").content.decode()
     assert '<link rel="manifest" href="/manifest.webmanifest">' in page and "/static/offline/field.js" in page
 
 
@@ -262,7 +262,7 @@ def test_the_tablet_checks_say_what_the_server_says(field):
     assert rules["messages"]["negative"] == "The reference flow cannot be negative."
     assert rules["messages"]["zero_of_reading"] == "A % of reading error needs a reference flow above zero."
     # the entry page carries them for the tablet
-    page = field["clients"]["tech"].get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    page = field["clients"]["tech"].get(f"/positions/{meter.tag}/calibrate/").content.decode()
     assert 'id="offline-entry"' in page and '"target": "FT-OFF-1"' in page and '"kind": "calibration"' in page
 
 

@@ -32,7 +32,7 @@ def spare(serial):
 
 
 def swap_page(client, tag, **data):
-    return client.post(f"/meters/{tag}/swap/", data)
+    return client.post(f"/positions/{tag}/swap/", data)
 
 
 def test_swap_keeps_each_devices_history_apart(client, technician):
@@ -73,7 +73,7 @@ def test_swap_keeps_each_devices_history_apart(client, technician):
     assert Installation.history.filter(device=old, history_type="~").exists()
     assert Installation.history.filter(device=new, history_type="+").exists()
     # the position page names the new device; URLs by tag keep working
-    page = client.get("/meters/FT-204/").content.decode()
+    page = client.get("/positions/FT-204/").content.decode()
     assert "S/N SN730118" in page and "electrode coated" in page
 
 

@@ -111,27 +111,27 @@ def test_demo_plant_size_and_mix(demo_plant):
 
 
 def test_meter_list_and_filters(client, demo_plant):
-    response = client.get("/meters/")
+    response = client.get("/positions/")
     assert response.status_code == 200
     assert b"FT-110" in response.content
-    response = client.get("/meters/", {"principle": "coriolis", "sort": "tag"})
+    response = client.get("/positions/", {"principle": "coriolis", "sort": "tag"})
     body = response.content.decode()
     assert "FT-112" in body and "FT-110" not in body
-    response = client.get("/meters/", {"q": "FT-70"})
+    response = client.get("/positions/", {"q": "FT-70"})
     body = response.content.decode()
     assert "FT-701" in body and "FT-110" not in body
 
 
 def test_every_meter_page_renders(client, demo_plant):
     for meter in Meter.objects.filter(position__isnull=False).select_related("position"):
-        response = client.get(f"/meters/{meter.tag}/")
+        response = client.get(f"/positions/{meter.tag}/")
         assert response.status_code == 200, meter.tag
         assert f"Base interval set for this meter: <strong>{meter.base_interval_days} days</strong>".encode() \
             in response.content  # never calibrated: due now, from the set base interval
 
 
 def test_misapplied_meter_page_says_why(client, demo_plant):
-    body = client.get("/meters/FT-401/").content.decode()  # EM meter on vegetable oil (0.0001 µS/cm)
+    body = client.get("/positions/FT-401/").content.decode()  # EM meter on vegetable oil (0.0001 µS/cm)
     # Common practice (plant/risk.py): below ~5 µS/cm a magmeter cannot work: not fit, factor 0.25, and the
     # recommendation stands beside the shortened interval.
     assert "Not fit for this duty: replace or re-engineer." in body
@@ -139,12 +139,12 @@ def test_misapplied_meter_page_says_why(client, demo_plant):
     assert "Liquid too poorly conductive for a magnetic meter" in body  # plain words ...
     assert "EM_LOW_CONDUCTIVITY" not in body  # ... not the code
     assert "Why:" in body
-    fit = client.get("/meters/FT-204/").content.decode()  # EM meter on town water
+    fit = client.get("/positions/FT-204/").content.decode()  # EM meter on town water
     assert "Not fit for this duty" not in fit
 
 
 def test_unknown_meter_is_404(client, demo_plant):
-    assert client.get("/meters/NOPE-1/").status_code == 404
+    assert client.get("/positions/NOPE-1/").status_code == 404
 
 
 @pytest.mark.parametrize("text", ["not titanium: 316L", "Hastelloy C-276", "316 L", "Stainless steel 316L"])
@@ -200,7 +200,7 @@ def small_register(site_area_fluid):
 
 
 def test_register_shows_due_last_verdict_drift_and_calibrate(client, small_register):
-    body = client.get("/meters/").content.decode()
+    body = client.get("/positions/").content.decode()
     for heading in ("Due date", "Last calibrated", "Last verdict", "Drift"):
         assert f">{heading}<" in body
     rows = _rows(body)
@@ -209,15 +209,15 @@ def test_register_shows_due_last_verdict_drift_and_calibrate(client, small_regis
                                   "last found out of tolerance"]
     assert rows["FT-NEVER"][:5] == ["FT-NEVER", "now (never calibrated)", "—", "—", "—"]
     assert rows["FT-GOOD"][5] == "Calibrate"
-    assert 'href="/meters/FT-BAD/calibrate/"' in body
+    assert 'href="/positions/FT-BAD/calibrate/"' in body
 
 
 def test_calibrate_action_only_for_those_allowed_to_calibrate(small_register):
     technician, reviewer = Client(), Client()
     technician.force_login(user_with_role("technician"))
     reviewer.force_login(user_with_role("reviewer"))  # reviewers countersign; they do not enter calibrations
-    assert 'href="/meters/FT-BAD/calibrate/"' in technician.get("/meters/").content.decode()
-    assert "/calibrate/" not in reviewer.get("/meters/").content.decode()
+    assert 'href="/positions/FT-BAD/calibrate/"' in technician.get("/positions/").content.decode()
+    assert "/calibrate/" not in reviewer.get("/positions/").content.decode()
 
 
 @pytest.mark.parametrize("sort, expected", [
@@ -229,18 +229,18 @@ def test_calibrate_action_only_for_those_allowed_to_calibrate(small_register):
     ("drift_status", ["FT-BAD", "FT-GOOD", "FT-NEVER"]),  # out of tolerance, flat, blank
 ])
 def test_register_sorts_by_the_new_columns(client, small_register, sort, expected):
-    assert list(_rows(client.get("/meters/", {"sort": sort}).content.decode())) == expected
+    assert list(_rows(client.get("/positions/", {"sort": sort}).content.decode())) == expected
 
 
 def test_register_query_count_does_not_grow_with_fleet(client, small_register):
     area, fluid = small_register
     with CaptureQueriesContext(connection) as small:
-        assert client.get("/meters/", {"sort": "next_due_date"}).status_code == 200
+        assert client.get("/positions/", {"sort": "next_due_date"}).status_code == 200
     for i in range(60):
         commission(tag=f"FT-X{i:03d}", principle="vortex", area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=52.5, range_max=40, mpe_value=1)
     with CaptureQueriesContext(connection) as large:
-        body = client.get("/meters/", {"sort": "next_due_date"}).content.decode()
+        body = client.get("/positions/", {"sort": "next_due_date"}).content.decode()
     assert "63 meters" in body
     assert len(large.captured_queries) == len(small.captured_queries)
 
@@ -251,6 +251,6 @@ def test_overdue_due_dates_stand_out(client, small_register):
     today = Site.objects.get().today()
     Meter.objects.filter(position__tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
     Meter.objects.filter(position__tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
-    body = client.get("/meters/").content.decode()
+    body = client.get("/positions/").content.decode()
     marked = re.findall(r'<td class="nowrap overdue"[^>]*>\s*([^<]*?)\s*</td>', body)
     assert sorted(marked) == [(today - dt.timedelta(days=1)).isoformat(), "now (never calibrated)"]

@@ -43,7 +43,7 @@ def form_data(instance, **changes):
 def test_reviewer_changes_the_interval_and_the_change_is_audited(reviewer, meter):
     # the interval is the device's: edited on the device, the page then shown is its position's
     response = reviewer.post(f"/devices/{meter.pk}/edit/", form_data(meter, base_interval_days=180))
-    assert response.status_code == 302 and response["Location"] == f"/meters/{meter.tag}/"
+    assert response.status_code == 302 and response["Location"] == f"/positions/{meter.tag}/"
     meter.refresh_from_db()
     assert meter.base_interval_days == 180
     latest = meter.history.first()
@@ -64,7 +64,7 @@ def test_bad_values_are_refused_at_the_field_and_nothing_is_saved(reviewer, mete
         (meter.position, {"min_flow": "-1"}, "A process flow cannot be negative."),
     ]
     for instance, change, message in cases:
-        url = f"/meters/{meter.tag}/edit/" if isinstance(instance, Position) else f"/devices/{meter.pk}/edit/"
+        url = f"/positions/{meter.tag}/edit/" if isinstance(instance, Position) else f"/devices/{meter.pk}/edit/"
         response = reviewer.post(url, form_data(instance, **change))
         assert response.status_code == 400, change
         assert message in response.content.decode(), (change, message)
@@ -77,7 +77,7 @@ def test_fluid_change_rejudges_its_meters(reviewer, meter):
     response = reviewer.post(f"/fluids/{fluid.pk}/edit/", form_data(fluid, conductivity_us_cm="0.5"))
     assert response.status_code == 302
     assert Meter.objects.get(pk=meter.pk).risk_severity == "misapplied"
-    page = reviewer.get(f"/meters/{meter.tag}/").content.decode()
+    page = reviewer.get(f"/positions/{meter.tag}/").content.decode()
     assert "Liquid too poorly conductive for a magnetic meter" in page  # EM_LOW_CONDUCTIVITY, in plain words
     assert "Not fit for this duty: replace or re-engineer." in page
     response = reviewer.post(f"/fluids/{fluid.pk}/edit/", form_data(fluid, conductivity_us_cm="-3"))

@@ -40,9 +40,9 @@ def world(db):
     for name, user in users.items():
         clients[name] = Client()
         clients[name].force_login(user)
-    clients["technician"].post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    clients["technician"].post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     draft = CalibrationEvent.objects.get()
-    clients["technician"].post(f"/meters/{meter.tag}/calibrate/", entry_data(standard))
+    clients["technician"].post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
     signed = CalibrationEvent.objects.exclude(pk=draft.pk).get()
     assert clients["technician"].post(f"/calibrations/{signed.pk}/sign/").status_code == 302
     return {"meter": meter, "standard": standard, "users": users, "clients": clients, "draft": draft, "signed": signed}
@@ -51,20 +51,20 @@ def world(db):
 ROLES = ["anonymous", "norole", "technician", "reviewer", "administrator"]
 # (name, method, url template, expected status per role in ROLES order); 302 for anonymous = sent to log in
 MATRIX = [
-    ("meter list", "get", "/meters/", [302, 403, 200, 200, 200]),
-    ("meter page", "get", "/meters/FT-T1/", [302, 403, 200, 200, 200]),
-    ("calibration entry", "get", "/meters/FT-T1/calibrate/", [302, 403, 200, 403, 200]),
+    ("meter list", "get", "/positions/", [302, 403, 200, 200, 200]),
+    ("meter page", "get", "/positions/FT-T1/", [302, 403, 200, 200, 200]),
+    ("calibration entry", "get", "/positions/FT-T1/calibrate/", [302, 403, 200, 403, 200]),
     ("calibration page", "get", "/calibrations/{signed}/", [302, 403, 200, 200, 200]),
     ("certificate", "get", "/calibrations/{signed}/certificate.pdf", [302, 403, 200, 200, 200]),
     ("certificate zip", "get", "/certificates.zip?start=2020-01-01&end=2099-01-01", [302, 403, 200, 200, 200]),
     ("weekly review", "get", "/review/", [302, 403, 403, 200, 200]),
     ("statistics", "get", "/stats/", [302, 403, 403, 200, 200]),
     ("statistics csv", "get", "/stats.csv", [302, 403, 403, 200, 200]),
-    ("import page", "get", "/meters/import/", [302, 403, 403, 200, 200]),
-    ("meter edit", "get", "/meters/FT-T1/edit/", [302, 403, 403, 200, 200]),
+    ("import page", "get", "/positions/import/", [302, 403, 403, 200, 200]),
+    ("meter edit", "get", "/positions/FT-T1/edit/", [302, 403, 403, 200, 200]),
     ("fluid edit", "get", "/fluids/{fluid}/edit/", [302, 403, 403, 200, 200]),
-    ("meter edit save", "post", "/meters/FT-T1/edit/", [302, 403, 403, 400, 400]),
-    ("register export", "get", "/meters/export.csv?kind=meters", [302, 403, 200, 200, 200]),
+    ("meter edit save", "post", "/positions/FT-T1/edit/", [302, 403, 403, 400, 400]),
+    ("register export", "get", "/positions/export.csv?kind=meters", [302, 403, 200, 200, 200]),
     ("admin site", "get", "/admin/", [302, 302, 302, 302, 200]),
     ("login lockouts", "get", "/accounts/lockouts/", [302, 403, 403, 403, 200]),
     ("countersign", "post", "/calibrations/{signed}/countersign/", [302, 403, 403, 302, None]),
@@ -104,19 +104,19 @@ def test_csrf_enforced_on_every_form(world):
     strict = Client(enforce_csrf_checks=True)
     strict.force_login(world["users"]["administrator"])
     posts = [
-        f"/meters/{world['meter'].tag}/calibrate/",
+        f"/positions/{world['meter'].tag}/calibrate/",
         f"/calibrations/{world['draft'].pk}/sign/",
         f"/calibrations/{world['signed'].pk}/countersign/",
-        "/meters/import/",
+        "/positions/import/",
         "/accounts/logout/",
         f"/admin/plant/meter/{world['meter'].pk}/change/",
-        f"/meters/{world['meter'].tag}/edit/",
+        f"/positions/{world['meter'].tag}/edit/",
         f"/fluids/{world['meter'].fluid_id}/edit/",
     ]
     for url in posts:
         assert strict.post(url, {}).status_code == 403, url
     assert Client(enforce_csrf_checks=True).post("/accounts/login/", {"username": "x", "password": "y"}).status_code == 403
-    page = world["clients"]["technician"].get(f"/meters/{world['meter'].tag}/calibrate/").content.decode()
+    page = world["clients"]["technician"].get(f"/positions/{world['meter'].tag}/calibrate/").content.decode()
     assert 'name="csrfmiddlewaretoken"' in page
 
 
@@ -183,7 +183,7 @@ def test_audit_trail_records_who_and_what(world):
     assert latest.history_user == world["users"]["administrator"]
     change = latest.diff_against(latest.prev_record).changes
     assert [(c.field, c.old, c.new) for c in change] == [("mpe_value", 0.5, 0.75)]
-    page = client.get(f"/meters/{meter.tag}/").content.decode()
+    page = client.get(f"/positions/{meter.tag}/").content.decode()
     assert "mpe_value: 0.5 → 0.75" in page and "Administrator Tester" in page
     signed = world["signed"]
     assert signed.history.filter(state="signed").exists()

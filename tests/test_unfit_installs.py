@@ -25,7 +25,7 @@ def em_spare():
 
 
 def swap(client, device, **extra):
-    return client.post("/meters/FT-404/swap/", {"device": device.pk, "on_date": "2026-12-04",
+    return client.post("/positions/FT-404/swap/", {"device": device.pk, "on_date": "2026-12-04",
                                                  "reason": "bearing noise", "removed_to": Removal.SHELF, **extra})
 
 
@@ -39,7 +39,7 @@ def nothing_moved(position, old, spare, installations_before):
 
 def test_swap_page_says_per_spare_why_it_is_not_fit(client, oil):
     client.force_login(user_with_role("technician"))
-    page = client.get("/meters/FT-404/swap/").content.decode()
+    page = client.get("/positions/FT-404/swap/").content.decode()
     row = page[page.index(f'id="spare-{em_spare().pk}"'):]
     row = row[:row.index("</tr>")]
     assert "No: not fit for this duty." in row
@@ -64,7 +64,7 @@ def test_technician_swap_is_refused_and_changes_nothing(client, oil):
 def test_reviewer_needs_a_written_reason(client, oil):
     client.force_login(user_with_role("reviewer"))
     old, spare, before = oil.installed_device(), em_spare(), Installation.objects.count()
-    page = client.get("/meters/FT-404/swap/").content.decode()
+    page = client.get("/positions/FT-404/swap/").content.decode()
     assert 'name="unfit_reason"' in page and "A reviewer may install it with a written reason." in page
     response = swap(client, spare, unfit_reason="   ")
     assert response.status_code == 400
@@ -86,7 +86,7 @@ def test_reviewer_with_reason_installs_and_the_position_page_shows_it(client, oi
     assert installation.unfit_reason.startswith("Stop-gap for two weeks")
     # kept in the audit trail too
     assert installation.history.filter(unfit_reason__startswith="Stop-gap").exists()
-    page = client.get("/meters/FT-404/").content.decode()
+    page = client.get("/positions/FT-404/").content.decode()
     assert "Installed though not fit for this duty</strong>: Stop-gap for two weeks" in page
     assert "accepted by Reviewer Tester" in page
 

@@ -88,7 +88,7 @@ def tech():
 def test_a_kg_h_reading_on_an_m3_h_meter_is_converted_with_the_density(tech, plant, weigh_tank):
     # 19964 kg/h / 998.2 kg/m³ = 20 m³/h exactly (hand-worked); indication 20.05 -> error 100 × 0.05/20 = 0.25 %
     meter = plant["volume"]
-    response = tech.post(f"/meters/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)], density=WATER_20C))
+    response = tech.post(f"/positions/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)], density=WATER_20C))
     assert response.status_code == 302, html.unescape(response.content.decode())[-3000:]
     event = CalibrationEvent.objects.get()
     assert (event.reference_units, event.meter_units, event.density_kg_m3) == ("kg/h", "m3/h", WATER_20C)
@@ -107,7 +107,7 @@ def test_an_absolute_standard_uncertainty_is_converted_too(tech, plant):
     # U = 1.95996 × 0.0250451 = 0.049087 % (hand-worked)
     rig = standard("RS-ABS", "kg/h", 50000, basis="absolute", U=10)
     meter = plant["volume"]
-    assert tech.post(f"/meters/{meter.tag}/calibrate/",
+    assert tech.post(f"/positions/{meter.tag}/calibrate/",
                      post([rig], [(19964, 20.05)], density=WATER_20C)).status_code == 302
     assert CalibrationPoint.objects.get().expanded_uncertainty == pytest.approx(0.049087, abs=2e-6)
 
@@ -116,7 +116,7 @@ def test_a_fixed_factor_needs_no_density(tech, plant):
     # 5.5 L/s × 3.6 = 19.8 m³/h (1 L = 1e-3 m³); indication 19.8 -> error 0
     prover = standard("RS-LS", "L/s", 12)
     meter = plant["volume"]
-    assert tech.post(f"/meters/{meter.tag}/calibrate/", post([prover], [(5.5, 19.8)])).status_code == 302
+    assert tech.post(f"/positions/{meter.tag}/calibrate/", post([prover], [(5.5, 19.8)])).status_code == 302
     event = CalibrationEvent.objects.get()
     point = event.points.get()
     assert point.reference_value == pytest.approx(19.8, rel=1e-12) and point.error == pytest.approx(0, abs=1e-9)
@@ -125,7 +125,7 @@ def test_a_fixed_factor_needs_no_density(tech, plant):
 
 def test_missing_density_is_refused_at_the_density_field_and_nothing_is_saved(tech, plant, weigh_tank):
     meter = plant["volume"]
-    response = tech.post(f"/meters/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)]))
+    response = tech.post(f"/positions/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)]))
     assert response.status_code == 400 and counts() == (0, 0)
     entry = CalibrationEntry(meter, post([weigh_tank], [(19964, 20.05)]))
     assert not entry.is_valid()
@@ -150,7 +150,7 @@ def test_a_pair_the_form_cannot_convert_is_refused_at_the_standards_field(tech, 
     normal = standard("RS-N", "Nm3/h", 1000)
     for meter, needs in ((plant["mass"], "the gas density at reference conditions"),
                          (plant["gas_volume"], "the line's absolute pressure and temperature")):
-        response = tech.post(f"/meters/{meter.tag}/calibrate/", post([normal], [(100, 100)], density=0.8))
+        response = tech.post(f"/positions/{meter.tag}/calibrate/", post([normal], [(100, 100)], density=0.8))
         assert response.status_code == 400 and counts() == (0, 0)
         entry = CalibrationEntry(meter, post([normal], [(100, 100)], density=0.8))
         assert not entry.is_valid()
@@ -159,7 +159,7 @@ def test_a_pair_the_form_cannot_convert_is_refused_at_the_standards_field(tech, 
                                   f"{'kg/h' if meter.flow_units == 'kg/h' else 'm³/h'}: converting between them "
                                   f"needs {needs}")
         # not offered on the page either
-        page = tech.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+        page = tech.get(f"/positions/{meter.tag}/calibrate/").content.decode()
         assert f'name="ev-reference_standards" value="{normal.pk}"' not in page
 
 
@@ -197,23 +197,23 @@ def test_offered_standards_compare_ranges_after_a_fixed_factor_and_keep_the_page
     accepted = set(ReferenceStandard.offered_for(meter, convertible_only=False).values_list("identification",
                                                                                             flat=True))
     assert accepted == {"RS-WIDE", "RS-EXACT", "RS-RIG", "RS-N"}
-    page = tech.get(f"/meters/{meter.tag}/calibrate/").content.decode()
+    page = tech.get(f"/positions/{meter.tag}/calibrate/").content.decode()
     for s in (wide, exact, rig):
         assert f'name="ev-reference_standards" value="{s.pk}"' in page
     for s in (narrow, gas):
         assert f'name="ev-reference_standards" value="{s.pk}"' not in page
     with CaptureQueriesContext(connection) as few:
-        tech.get(f"/meters/{meter.tag}/calibrate/")
+        tech.get(f"/positions/{meter.tag}/calibrate/")
     for i, units in enumerate(["m3/h", "L/min", "USgpm", "kg/s", "t/h", "lb/h", "Sm3/h"] * 3):
         standard(f"RS-X{i}", units, 1e6)
     with CaptureQueriesContext(connection) as many:
-        tech.get(f"/meters/{meter.tag}/calibrate/")
+        tech.get(f"/positions/{meter.tag}/calibrate/")
     assert len(many) == len(few)
 
 
 def _signed(tech, plant, weigh_tank):
     meter = plant["volume"]
-    tech.post(f"/meters/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05), (29946, 30.0)],
+    tech.post(f"/positions/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05), (29946, 30.0)],
                                                      density=WATER_20C))
     event = CalibrationEvent.objects.get()
     assert tech.post(f"/calibrations/{event.pk}/sign/").status_code == 302

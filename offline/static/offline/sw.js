@@ -66,11 +66,32 @@ async function keepInterrupted(request) {
   return Response.redirect(`${path}#interrupted`, 303);
 }
 
+/* The position pages moved from /meters/<tag>/... to /positions/<tag>/... (the server redirects the old
+ * addresses for good). A tablet may hold pages kept under either address, and a page kept before the move
+ * links to the old one, so a page is looked for under its own address, then under the other. */
+const MOVED = [["/meters/", "/positions/"]];
+
+function otherAddress(url) {
+  const address = new URL(url);
+  for (const [before, after] of MOVED) {
+    for (const [from, to] of [[before, after], [after, before]]) {
+      if (address.pathname.startsWith(from)) {
+        address.pathname = to + address.pathname.slice(from.length);
+        return address.href;
+      }
+    }
+  }
+  return null;
+}
+
 async function fromKit(request) {
   const cache = await caches.open(KIT);
-  const kept = (await cache.match(request)) || (await cache.match(request, { ignoreSearch: true }));
-  if (kept) {
-    return kept;
+  const other = otherAddress(request.url);
+  for (const key of other ? [request, other] : [request]) {
+    const kept = (await cache.match(key)) || (await cache.match(key, { ignoreSearch: true }));
+    if (kept) {
+      return kept;
+    }
   }
   if (request.mode === "navigate") {
     return new Response(NOT_KEPT, { status: 503, headers: { "Content-Type": "text/html; charset=utf-8" } });

@@ -170,7 +170,7 @@ class Command(BaseCommand):
             identification="RS-BENCH", description="benchmark reference", range_min=0, range_max=10 ** 7,
             certificate_number="BENCH", due_date=dt.date.today() + dt.timedelta(days=30), expanded_uncertainty=0.01)
         data = _entry(meter, standard)
-        seconds, response = benchmark.timed(lambda: client.post(f"/meters/{meter.tag}/calibrate/", data))
+        seconds, response = benchmark.timed(lambda: client.post(f"/positions/{meter.tag}/calibrate/", data))
         if response.status_code != 302:
             raise CommandError(f"The calibration form refused the benchmark entry ({response.status_code}).")
         rows.append(("Calibration form save (5 as-found points)", f"{seconds * 1000:.0f} ms", "", None))
@@ -227,12 +227,12 @@ class Command(BaseCommand):
         one principle, the same number of queries."""
         client = Client()
         client.force_login(technician)
-        seconds, queries, status = benchmark.page(client, "/meters/?sort=next_due_date", repeat)
+        seconds, queries, status = benchmark.page(client, "/positions/?sort=next_due_date", repeat)
         rows = [("Register page, whole fleet by due date",
                  f"{seconds * 1000:.0f} ms, {queries} queries (HTTP {status})",
                  f"< {TARGETS['register'] * 1000:.0f} ms", seconds < TARGETS["register"] and status == 200)]
         seconds, few, status = benchmark.page(
-            client, f"/meters/?principle={rare['principle']}&sort=next_due_date", repeat)
+            client, f"/positions/?principle={rare['principle']}&sort=next_due_date", repeat)
         rows.append((f"Register page, {rare['principle']} only", f"{seconds * 1000:.0f} ms, {few} queries "
                      f"(HTTP {status})", f"≤ {queries} queries", few <= queries and status == 200))
         return rows
