@@ -48,7 +48,7 @@ SCHEMA_LOCATION = "https://ptb.de/dcc https://ptb.de/dcc/v3.2.0/dcc.xsd"
 PREFIX = "quenby_"
 LANG = "en"
 
-# Flow unit codes (calibration/units.py) -> D-SI unit strings (D-SI 2.1.0; a leading "|" marks a non-SI unit).
+# Flow unit codes (plant/units.py) -> D-SI unit strings (D-SI 2.1.0; a leading "|" marks a non-SI unit).
 D_SI = {
     "m3/h": r"\metre\tothe{3}\hour\tothe{-1}",
     "L/s": r"\litre\second\tothe{-1}",

@@ -113,7 +113,7 @@ def to_error_units(value_in_flow_units: float, basis: str, reference: float, spa
 def error_unit(meter) -> str:
     """The unit errors, MPE and U of `meter` are stated in: its MPE basis, or its flow units for an absolute MPE."""
     if meter.mpe_basis == "absolute":
-        from calibration.units import label_for
+        from plant.units import label_for
 
         return label_for(meter.flow_units)
     return meter.get_mpe_basis_display()

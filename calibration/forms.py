@@ -5,7 +5,8 @@ from decimal import Decimal, InvalidOperation
 from django import forms
 from django.db import transaction
 
-from calibration import plausibility, uncertainty, units
+from calibration import plausibility, uncertainty
+from plant import units
 from calibration.errors import mpe_in_flow_units, point_error
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, entry_can_convert
 from plant.forms import YesNoField

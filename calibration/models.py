@@ -20,7 +20,8 @@ from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
-from calibration import decision, errors, signed_content, uncertainty, units
+from calibration import decision, errors, signed_content, uncertainty
+from plant import units
 from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
 from ledger import chain
 from plant import citations, risk

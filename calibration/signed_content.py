@@ -23,7 +23,8 @@ from django.conf import settings
 from django.db.models import Q
 from django.utils import timezone
 
-from calibration import decision, uncertainty, units
+from calibration import decision, uncertainty
+from plant import units
 
 #: 1: the content as first kept; 2: adds "conformity" (issue 31: per point p_c and PFA, the calibration's PFA of the
 #: rule applied, the prior used and the PFA target, as they stood at sign-off). Content rebuilt from the audit trail

@@ -13,7 +13,8 @@ import random
 
 from django.db import transaction
 
-from calibration import errors, units
+from calibration import errors
+from plant import units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.management.commands.build_demo_plant import FLUIDS, MAKERS, METERS
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site

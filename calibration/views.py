@@ -18,8 +18,8 @@ from calibration.models import (
 )
 from calibration import conformity_fleet, signed_content
 from calibration.signed_content import certificate_number, digest
-from offline.kinds import device_mismatch
 from plant.db_failures import nothing_saved_page
+from plant.entry_device import device_mismatch
 from plant.models import Meter
 from plant.roles import role_of
 

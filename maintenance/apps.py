@@ -11,13 +11,10 @@ class MaintenanceConfig(AppConfig):
         from ledger import registry
         from maintenance import signals  # noqa: F401  (registers the receivers)
         from maintenance.ledger_kinds import MAINTENANCE
-        from maintenance.offline_kind import MaintenanceKind
-        from offline import kinds
         from maintenance.views import meter_section
         from plant import sections
         from plant.roles import ensure_roles
 
         post_migrate.connect(ensure_roles, sender=self)
-        kinds.register(MaintenanceKind())  # maintenance records can be kept on a tablet offline
         registry.register(MAINTENANCE)  # signed maintenance records are sealed in the ledger
         sections.register("maintenance", 20, meter_section, "maintenance/_device_section.html")

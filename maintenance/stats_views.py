@@ -7,11 +7,12 @@ from django.utils import timezone
 
 from maintenance import stats
 from plant import spreadsheet
-from reports.stats_views import XLSX_TYPE, StatsFilterForm
+from plant.forms import SiteFilterForm
+from plant.spreadsheet import XLSX_TYPE
 
 
 def _table(request):
-    form = StatsFilterForm(request.GET or None)
+    form = SiteFilterForm(request.GET or None)
     if form.is_bound and not form.is_valid():
         return form, None
     site = form.cleaned_data.get("site") if form.is_bound else None

@@ -1,7 +1,7 @@
 import django_tables2 as tables
 from django.utils import timezone
 
-from reports.tables import IsoDateColumn
+from plant.columns import IsoDateColumn
 
 
 class MaintenanceTaskColumns(tables.Table):

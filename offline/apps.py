@@ -6,6 +6,8 @@ class OfflineConfig(AppConfig):
     verbose_name = "Offline field entry"
 
     def ready(self):
-        from offline import calibration_kind, kinds
+        # offline sits above the apps whose records a tablet may keep, so it registers their kinds itself
+        from offline import calibration_kind, kinds, maintenance_kind
 
         kinds.register(calibration_kind.CalibrationKind())
+        kinds.register(maintenance_kind.MaintenanceKind())  # maintenance records can be kept on a tablet too

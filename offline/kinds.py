@@ -14,9 +14,12 @@ A handler is an object with:
 
 In the entry form's template, inside the <form>: ``{% load offline %}{% offline_entry "<name>" meter %}``.
 
-Register a handler once, from its app's ``AppConfig.ready()``: ``kinds.register(MyKind())``.
+Register a handler once, from ``OfflineConfig.ready()`` (offline sits above the apps whose records it keeps):
+``kinds.register(MyKind())``.
 """
 from dataclasses import dataclass
+
+from plant.entry_device import device_mismatch
 
 _KINDS = {}
 
@@ -104,20 +107,3 @@ def get(name):
 
 def all_kinds():
     return list(_KINDS.values())
-
-
-def device_mismatch(meter, data) -> str:
-    """A message when the entry was written for another device than `meter` (swapped since), else ""."""
-    written_for = (data or {}).get("device", "")
-    if isinstance(written_for, list):
-        written_for = written_for[0] if written_for else ""
-    written_for = str(written_for).strip()
-    if not written_for or written_for == str(meter.pk):
-        return ""
-    from plant.models import Meter
-
-    other = Meter.objects.filter(pk=written_for).first() if written_for.isdigit() else None
-    named = other.device_label if other else f"device #{written_for}"
-    return (f"This entry was written for {named}, but {meter.tag} now holds {meter.device_label} (the devices were "
-            f"swapped). Nothing was saved: enter the readings against the device they were taken on.")
-

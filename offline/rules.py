@@ -5,7 +5,8 @@ answers for a few probing inputs), so the tablet says what the server would say,
 or of the range rule there reaches the tablet without a second copy here. The server checks everything again
 when the entry is sent.
 """
-from calibration import plausibility, units
+from calibration import plausibility
+from plant import units
 from calibration.forms import EventForm, PointRowForm, density_required_message
 from calibration.models import ReferenceStandard
 

@@ -4,9 +4,9 @@ from django.db import models
 
 import datetime as dt
 
-from calibration.units import UNKNOWN_UNIT, label_for
+from plant.units import UNKNOWN_UNIT, label_for
 from plant.installations import Removal
-from plant.models import UNKNOWN_MATERIAL, Fluid, Meter, Position
+from plant.models import UNKNOWN_MATERIAL, Fluid, Meter, Position, Site
 
 YES_WORDS = frozenset({"on", "yes", "y", "true", "t", "1"})
 NO_WORDS = frozenset({"off", "no", "n", "false", "f", "0", ""})
@@ -122,3 +122,8 @@ class SwapForm(forms.Form):
         if day > self.position.area.site.today() + dt.timedelta(days=1):
             raise ValidationError("The date of the swap is in the future.")
         return day
+
+
+class SiteFilterForm(forms.Form):
+    """One site, or all: the filter of the statistics pages (calibration and maintenance)."""
+    site = forms.ModelChoiceField(queryset=Site.objects.order_by("name"), required=False, empty_label="all sites")

@@ -16,7 +16,6 @@ from plant.db_failures import DATABASE_FAILURES, nothing_saved_page
 logger = logging.getLogger(__name__)
 
 KIND_CHOICES = [("meters", "Meters"), ("fluids", "Fluids (service duties)")]
-XLSX_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
 
 
 class ImportForm(forms.Form):
@@ -117,6 +116,6 @@ def export_register_xlsx(request):
     kind = _kind(request)
     if kind is None:
         return HttpResponseBadRequest("kind must be meters or fluids")
-    response = HttpResponse(importer.export_xlsx_bytes(kind), content_type=XLSX_TYPE)
+    response = HttpResponse(importer.export_xlsx_bytes(kind), content_type=spreadsheet.XLSX_TYPE)
     response["Content-Disposition"] = f'attachment; filename="{kind}-register.xlsx"'
     return response

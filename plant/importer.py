@@ -16,8 +16,8 @@ Rules for cells:
 * A column that is left out entirely keeps the current value (the default for a new row), except the required
   columns, which must be present.
 * Booleans accept yes/no, true/false, y/n, 1/0 and blank (= no).
-* Flow units are one of the unit codes of calibration/units.py (m3/h, L/s, kg/h, ...) or a usual spelling of one
-  (m³/h, l/s, gpm, lb/hr; calibration.units.code_for); any other text is refused at its cell, never guessed.
+* Flow units are one of the unit codes of plant/units.py (m3/h, L/s, kg/h, ...) or a usual spelling of one
+  (m³/h, l/s, gpm, lb/hr; plant.units.code_for); any other text is refused at its cell, never guessed.
 * Choice columns accept the stored value or the label, case-insensitively. The wetted material is one of the fixed
   list (plant/materials.py) or blank; anything else is refused at its cell (liner, grade and other words go in
   material_details).
@@ -44,7 +44,7 @@ from django.db.models import Q
 from django.forms.models import model_to_dict
 from django.utils import timezone
 
-from calibration import units
+from plant import units
 from plant import installations, risk, spreadsheet
 from plant.forms import FluidForm, MeterForm, PositionForm
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, flows_above_range

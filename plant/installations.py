@@ -11,7 +11,7 @@ from dataclasses import dataclass
 
 from django.db import transaction
 
-from calibration import units
+from plant import units
 from plant import fit
 from plant.models import Installation, Meter, Position, flows_above_range
 

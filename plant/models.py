@@ -8,7 +8,7 @@ from django.db import models, transaction
 from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
-from calibration import units
+from plant import units
 from plant import citations, localtime, materials, risk
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 

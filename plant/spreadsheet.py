@@ -24,6 +24,7 @@ import pandas as pd
 
 FORMULA_LEADS = ("=", "+", "-", "@", "\t", "\r")
 PREFIX = "'"
+XLSX_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"  # the media type of an .xlsx answer
 _PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?")
 
 

@@ -221,7 +221,7 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     vacant = vacant_positions(filters)
     buckets.append(Bucket("vacant", "Positions with no device installed", vacant, tables.VacantTable, vacant.count()))
     buckets.append(Bucket("drafts", "Draft calibrations not signed", drafts, tables.DraftTable, drafts.count()))
-    from maintenance.review import buckets as maintenance_buckets
+    from reports.maintenance_review import buckets as maintenance_buckets
 
     buckets += maintenance_buckets(filters, days, today or localtime.today())  # the plant's date
     for bucket in buckets:

@@ -1,26 +1,21 @@
 """Fleet statistics page (/stats/) and its CSV / XLSX exports."""
 import pandas as pd
-from django import forms
 from django.contrib.auth.decorators import permission_required
 from django.http import HttpResponse
 from django.shortcuts import render
 from django.utils import timezone
 
 from plant import spreadsheet
-from plant.models import Site
+from plant.forms import SiteFilterForm
+from plant.spreadsheet import XLSX_TYPE
 from reports import stats
 
-XLSX_TYPE = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
 SHEETS = {"principle": "by principle", "fluid": "by fluid"}
-
-
-class StatsFilterForm(forms.Form):
-    site = forms.ModelChoiceField(queryset=Site.objects.order_by("name"), required=False, empty_label="all sites")
 
 
 def _statistics(request):
     """(form, by_principle, by_fluid, today); the form is invalid (and the tables empty) for a bad site."""
-    form = StatsFilterForm(request.GET or None)
+    form = SiteFilterForm(request.GET or None)
     site = form.cleaned_data.get("site") if form.is_bound and form.is_valid() else None
     today = timezone.localdate()
     if form.is_bound and not form.is_valid():

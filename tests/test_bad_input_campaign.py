@@ -43,7 +43,7 @@ from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
 from scipy import stats as scipy_stats
 
 from calibration import due
-from calibration import units as flow_units
+from plant import units as flow_units
 from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard
 from plant import importer, spreadsheet
@@ -303,7 +303,7 @@ class Material(Choice):
 
 
 class FlowUnits(Choice):
-    """A unit code of calibration/units.py; the importer also takes a usual spelling (code_for) or the label."""
+    """A unit code of plant/units.py; the importer also takes a usual spelling (code_for) or the label."""
 
     def __init__(self):
         self.pairs = [(str(value), str(label)) for value, label in Meter._meta.get_field("flow_units").choices]

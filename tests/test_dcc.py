@@ -14,7 +14,8 @@ import zipfile
 
 import pytest
 
-from calibration import dcc, dcc_schema, units
+from calibration import dcc, dcc_schema
+from plant import units
 from calibration.models import CalibrationEvent
 from reports import certificate
 from tests.test_certificate import at, client, enter, meter, pdf_text, sign, standard  # noqa: F401 (fixtures)
@@ -162,7 +163,7 @@ def test_every_flow_unit_has_a_d_si_string_that_dsiunits_accepts():
 @pytest.mark.parametrize("a,b", [("L/min", "m3/h"), ("L/s", "m3/h"), ("kg/h", "kg/s"), ("t/h", "kg/h")])
 def test_d_si_strings_mean_the_same_units_as_ours(a, b):
     """dsiunits' own scale factor between the two D-SI strings (an independent computation) equals pint's factor
-    in calibration/units.py, so each code maps to the unit it names."""
+    in plant/units.py, so each code maps to the unit it names."""
     from dsi_unit import DsiUnit
 
     with warnings.catch_warnings():

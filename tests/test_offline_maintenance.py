@@ -8,7 +8,7 @@ import pytest
 from django.test import Client
 
 from maintenance.models import MaintenancePhoto, MaintenanceRecord
-from maintenance.offline_kind import MaintenanceKind
+from offline.maintenance_kind import MaintenanceKind
 from offline import kinds
 from tests.conftest import send_twice_at_once, user_with_role
 from tests.test_maintenance_records import plant, post_data, task_of  # noqa: F401  (the fixture)

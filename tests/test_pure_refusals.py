@@ -19,7 +19,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from calibration import decision, drift, drift_fleet, due, errors, intervals, units
+from calibration import decision, drift, drift_fleet, due, errors, intervals
+from plant import units
 from calibration import uncertainty as unc
 from maintenance import loop, tasks
 from plant import risk
@@ -155,7 +156,7 @@ CASES = [
     ("tur_warning", unc.tur_warning, dict(tur=5.0), {"tur": [NAN, -1.0, None]}),
     ("low_tur_requires_guarded", unc.low_tur_requires_guarded, dict(rule="simple", turs=[5.0], policy="warn"),
      {"turs": [[NAN], [-1.0]], "rule": ["bogus"], "policy": ["bogus"]}),
-    # calibration/units.py
+    # plant/units.py
     ("convert", units.convert, dict(value=1.0, from_code="m3/h", to_code="kg/h", density_kg_m3=1000.0),
      {"value": NONFINITE, "density_kg_m3": (NONFINITE + [0.0, -1.0], ("density_kg_m3", "density"))}),
     ("convert line", units.convert,

@@ -146,7 +146,7 @@ def test_a_density_that_is_not_above_zero_is_refused_at_its_field(tech, plant, w
 
 def test_a_pair_the_form_cannot_convert_is_refused_at_the_standards_field(tech, plant):
     # Nm³/h against kg/h needs the gas density at the normal conditions; Nm³/h against actual m³/h needs the line's
-    # absolute pressure and temperature (calibration.units.conversion_needs): the form takes neither
+    # absolute pressure and temperature (plant.units.conversion_needs): the form takes neither
     normal = standard("RS-N", "Nm3/h", 1000)
     for meter, needs in ((plant["mass"], "the gas density at reference conditions"),
                          (plant["gas_volume"], "the line's absolute pressure and temperature")):

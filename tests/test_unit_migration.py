@@ -6,7 +6,7 @@ import pytest
 from django.db import connection
 from django.db.migrations.executor import MigrationExecutor
 
-from calibration import units
+from plant import units
 
 plant_mapping = importlib.import_module("plant.migrations.0008_flow_units_codes")
 calibration_mapping = importlib.import_module("calibration.migrations.0006_units_density_entered")

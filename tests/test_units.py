@@ -1,10 +1,10 @@
-"""Flow-unit conversions (calibration/units.py) against published factors and hand-worked gas corrections."""
+"""Flow-unit conversions (plant/units.py) against published factors and hand-worked gas corrections."""
 import math
 
 import pytest
 
-from calibration import units
-from calibration.units import UnitError, convert
+from plant import units
+from plant.units import UnitError, convert
 
 
 # NIST SP 811 (2008), appendix B.8, factors quoted from memory to the 7 significant digits printed there.

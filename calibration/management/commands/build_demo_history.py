@@ -17,7 +17,8 @@ from django.conf import settings
 from django.core.management import BaseCommand, call_command
 from django.db import transaction
 
-from calibration import errors, units
+from calibration import errors
+from plant import units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from calibration.synthetic import NOMINALS, invented_found_errors
 from plant.models import Meter

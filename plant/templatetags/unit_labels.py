@@ -1,7 +1,7 @@
 """`{{ code|unit_label }}`: a flow unit's label (m3/h -> m³/h; a legacy spelling by its code's label)."""
 from django import template
 
-from calibration.units import label_for
+from plant.units import label_for
 
 register = template.Library()
 
