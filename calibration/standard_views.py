@@ -14,6 +14,7 @@ from django.utils import timezone
 
 from calibration import dcc_read, dcc_schema, dcc_sign
 from calibration.models import ReferenceStandard, StandardDcc
+from plant import localtime
 
 CHANGE = "calibration.change_referencestandard"
 VIEW = "calibration.view_referencestandard"
@@ -49,7 +50,8 @@ class ConfirmForm(forms.Form):
 
 
 def _today():
-    return timezone.localdate()
+    # reference standards belong to the laboratory, not to a site: the plant's date (TIME_ZONE)
+    return localtime.today()
 
 
 @permission_required(VIEW, raise_exception=True)

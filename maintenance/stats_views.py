@@ -3,7 +3,6 @@ import pandas as pd
 from django.contrib.auth.decorators import permission_required
 from django.http import HttpResponse
 from django.shortcuts import render
-from django.utils import timezone
 
 from maintenance import stats
 from plant import spreadsheet
@@ -41,7 +40,7 @@ def maintenance_stats_csv(request):
     if table is None:
         return _bad(form)
     response = HttpResponse(spreadsheet.frame_csv_text(table, lineterminator="\n"), content_type="text/csv; charset=utf-8")
-    response["Content-Disposition"] = f'attachment; filename="maintenance_findings_{timezone.localdate()}.csv"'
+    response["Content-Disposition"] = f'attachment; filename="maintenance_findings_{form.today()}.csv"'
     return response
 
 
@@ -52,5 +51,5 @@ def maintenance_stats_xlsx(request):
         return _bad(form)
     workbook = spreadsheet.frames_xlsx_bytes({"findings": table.rename(columns=stats.LABELS)})
     response = HttpResponse(workbook, content_type=XLSX_TYPE)
-    response["Content-Disposition"] = f'attachment; filename="maintenance_findings_{timezone.localdate()}.xlsx"'
+    response["Content-Disposition"] = f'attachment; filename="maintenance_findings_{form.today()}.xlsx"'
     return response

@@ -4,7 +4,6 @@ Tasks a reviewer added or changed (origin "reviewer") are never touched here; de
 updated (frequency, reason) or retired as the duty calls for them, each change with its reason in the audit trail.
 """
 from django.db import transaction
-from django.utils import timezone
 
 from maintenance import tasks as catalogue
 from maintenance.models import MaintenanceTask
@@ -21,7 +20,7 @@ def _saved(task, reason):
 @transaction.atomic
 def sync_tasks(meter, today=None):
     """Create, update or retire the meter's derived tasks; returns the specs the duty calls for."""
-    today = today or timezone.localdate()
+    today = today or meter.today()  # the date at the meter's site
     specs = catalogue.derive_tasks(meter.principle, meter.duty_findings())
     existing = {t.code: t for t in meter.maintenance_tasks.filter(origin=MaintenanceTask.Origin.DERIVED)}
     reviewer_codes = set(meter.maintenance_tasks.filter(origin=MaintenanceTask.Origin.REVIEWER)

@@ -1,5 +1,4 @@
 import django_tables2 as tables
-from django.utils import timezone
 
 from plant.columns import IsoDateColumn
 
@@ -22,7 +21,7 @@ class MaintenanceOverdueTable(MaintenanceTaskColumns):
     last_condition = tables.Column(verbose_name="Last found", default="never done")
 
     def render_days_overdue(self, record):
-        return (timezone.localdate() - record.next_due_date).days
+        return (record.meter.today() - record.next_due_date).days  # days at the position's site
 
     def value_days_overdue(self, record):
         return self.render_days_overdue(record)

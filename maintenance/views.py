@@ -25,9 +25,7 @@ def new_record(request, tag):
         if form.is_valid():
             return redirect(form.save())
     else:
-        from django.utils import timezone
-
-        initial = {"performed_on": timezone.localdate()}
+        initial = {"performed_on": meter.today()}  # the date at the position's site
         task = query_id(request, "task")
         if task is not None:
             initial["task"] = task

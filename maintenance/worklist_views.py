@@ -12,7 +12,7 @@ from django.views.decorators.http import require_POST
 
 from maintenance import worklist
 from maintenance.models import CalendarToken
-from plant import spreadsheet
+from plant import localtime, spreadsheet
 from plant.models import Area, Site
 
 FEED_WEEKS = 8  # the feed holds what is overdue and what falls due in the next eight weeks
@@ -29,10 +29,12 @@ class WorkListForm(forms.Form):
 
 def _work(request):
     form = WorkListForm(request.GET or None)
-    today = timezone.localdate()
     if form.is_bound and not form.is_valid():
         return form, None
     data = form.cleaned_data if form.is_bound else {}
+    # the date at the site in scope (an area's site); the whole plant: the plant's date
+    site = data.get("site") or (data["area"].site if data.get("area") else None)
+    today = site.today() if site is not None else localtime.today()
     first, last = worklist.span(data.get("start") or today)
     items = worklist.rows(last, site=data.get("site"), area=data.get("area"), start=first)
     return form, {"first": first, "last": last, "today": today, "items": items,
@@ -117,7 +119,7 @@ def calendar_feed(request, token, area_id):
         area = Area.objects.select_related("site").get(pk=area_id)
     except Area.DoesNotExist:
         raise Http404("No such area.")
-    today = timezone.localdate()
+    today = area.site.today()
     items = worklist.rows(today + dt.timedelta(weeks=FEED_WEEKS), area=area)
     response = HttpResponse(feed_ics(area, items, today, request.get_host()), content_type="text/calendar; charset=utf-8")
     response["Content-Disposition"] = f'inline; filename="area-{area.pk}.ics"'

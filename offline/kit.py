@@ -1,15 +1,17 @@
 """What a technician's tablet keeps for offline work: the entry pages of the meters due soon, and nothing else
 of the register (each page is one the technician may open online)."""
 import datetime as dt
+from functools import reduce
+from operator import or_
 
 from django.conf import settings
 from django.db.models import F, Q
 from django.templatetags.static import static
 from django.urls import reverse
-from django.utils import timezone
 
 from offline import kinds
-from plant.models import Meter
+from plant import localtime
+from plant.models import Meter, Site
 
 DEFAULTS = {"weeks_ahead": 6, "max_meters": 200}
 
@@ -28,16 +30,28 @@ def due_meters(user, site=None, area=None, today=None):
     """In-service meters due (or overdue, or never calibrated) within the coming weeks, most urgent first."""
     if not allowed_kinds(user):
         return Meter.objects.none()
-    today = today or timezone.localdate()
-    horizon = today + dt.timedelta(weeks=setting("weeks_ahead"))
+    weeks = dt.timedelta(weeks=setting("weeks_ahead"))
     meters = (Meter.objects.select_related("position__area__site")
               .filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
-              .filter(Q(next_due_date__lte=horizon) | Q(next_due_date__isnull=True)))
+              .filter(_due_by(today, weeks) | Q(next_due_date__isnull=True)))
     if site:
         meters = meters.filter(position__area__site_id=site)
     if area:
         meters = meters.filter(position__area_id=area)
     return meters.order_by(F("next_due_date").asc(nulls_first=True), "position__tag")  # never calibrated first
+
+
+def _due_by(today, weeks):
+    """Due within ``weeks`` of today, today taken at each position's site (sites that share a date grouped)."""
+    if today is not None:
+        return Q(next_due_date__lte=today + weeks)
+    sites_by_date = {}
+    for site in Site.objects.only("pk", "time_zone"):
+        sites_by_date.setdefault(site.today(), []).append(site.pk)
+    if len(sites_by_date) <= 1:  # one date everywhere: no condition on the site
+        return Q(next_due_date__lte=next(iter(sites_by_date), localtime.today()) + weeks)
+    return reduce(or_, (Q(position__area__site__in=pks, next_due_date__lte=day + weeks)
+                        for day, pks in sites_by_date.items()))
 
 
 def kit(user, meters):

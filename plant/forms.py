@@ -4,6 +4,7 @@ from django.db import models
 
 import datetime as dt
 
+from plant import localtime
 from plant.units import UNKNOWN_UNIT, label_for
 from plant.installations import Removal
 from plant.models import UNKNOWN_MATERIAL, Fluid, Meter, Position, Site
@@ -127,3 +128,8 @@ class SwapForm(forms.Form):
 class SiteFilterForm(forms.Form):
     """One site, or all: the filter of the statistics pages (calibration and maintenance)."""
     site = forms.ModelChoiceField(queryset=Site.objects.order_by("name"), required=False, empty_label="all sites")
+
+    def today(self):
+        """Today at the chosen site; for all sites (or a refused filter), the plant's date."""
+        site = self.cleaned_data.get("site") if self.is_bound and self.is_valid() else None
+        return site.today() if site is not None else localtime.today()

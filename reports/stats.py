@@ -11,9 +11,9 @@ from html import escape
 from typing import Optional, Tuple
 
 import pandas as pd
-from django.utils import timezone
 
 from calibration.models import CalibrationEvent, in_force, observed_or_verdict
+from plant import localtime
 from plant.models import Meter
 
 WINDOW_DAYS = 365
@@ -52,7 +52,7 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
     principle (display name), fluid name and site name. meters_df: every meter of the register (any
     status) with the same attributes and its drift_rate_per_year. Two queries.
     """
-    today = today or timezone.localdate()
+    today = today or localtime.today()  # the plant's date
     meters = Meter.objects.all()
     if site is not None:
         meters = meters.filter(position__area__site=site)

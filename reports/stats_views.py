@@ -3,7 +3,6 @@ import pandas as pd
 from django.contrib.auth.decorators import permission_required
 from django.http import HttpResponse
 from django.shortcuts import render
-from django.utils import timezone
 
 from plant import spreadsheet
 from plant.forms import SiteFilterForm
@@ -17,7 +16,7 @@ def _statistics(request):
     """(form, by_principle, by_fluid, today); the form is invalid (and the tables empty) for a bad site."""
     form = SiteFilterForm(request.GET or None)
     site = form.cleaned_data.get("site") if form.is_bound and form.is_valid() else None
-    today = timezone.localdate()
+    today = form.today()
     if form.is_bound and not form.is_valid():
         empty = pd.DataFrame(columns=stats.COLUMNS)
         return form, empty, empty.copy(), today

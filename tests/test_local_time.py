@@ -70,3 +70,27 @@ def test_unknown_time_zone_refused_at_the_field(db, name):
     with pytest.raises(ValidationError):
         Site.objects.create(name="Bad zone", time_zone=name)  # save() checks too
     assert Site.objects.count() == 0
+
+
+def test_maintenance_entry_and_task_dates_are_the_sites(auckland_meter, client):
+    # the entry page's date, the start of the tasks the duty calls for and the date an offline entry page
+    # was rendered are the 5th at an Auckland position while the server's date (UTC) is still the 4th
+    page = client.get(f"/positions/{auckland_meter.tag}/maintain/")
+    assert page.status_code == 200
+    assert page.context["form"].initial["performed_on"] == dt.date(2026, 12, 5)
+    assert '"rendered_on": "2026-12-05"' in page.content.decode()
+    from maintenance.sync import sync_tasks
+
+    auckland_meter.maintenance_tasks.all().delete()  # set up again, now that the device is installed there
+    sync_tasks(auckland_meter)
+    tasks = list(auckland_meter.maintenance_tasks.all())
+    assert tasks and {t.since for t in tasks} == {dt.date(2026, 12, 5)}
+
+
+def test_the_offline_kit_counts_the_weeks_from_the_sites_date(auckland_meter, admin_user):
+    from offline.kit import DEFAULTS, due_meters
+
+    # due on the last day of the kit's weeks counted from the 5th, one day beyond them from the 4th
+    last = dt.date(2026, 12, 5) + dt.timedelta(weeks=DEFAULTS["weeks_ahead"])
+    type(auckland_meter).objects.filter(pk=auckland_meter.pk).update(next_due_date=last)
+    assert list(due_meters(admin_user)) == [auckland_meter]

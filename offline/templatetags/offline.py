@@ -1,5 +1,4 @@
 from django import template
-from django.utils import timezone
 
 from offline import kinds
 
@@ -15,4 +14,4 @@ def offline_entry(kind, meter):
     rules = getattr(handler, "client_rules", None)
     return {"device": meter.pk,
             "config": {"kind": kind, "title": handler.title, "target": meter.tag, "label": meter.tag,
-                       "rendered_on": timezone.localdate().isoformat(), "rules": rules(meter) if rules else {}}}
+                       "rendered_on": meter.today().isoformat(), "rules": rules(meter) if rules else {}}}
