@@ -4,9 +4,8 @@ from django.db import transaction
 from django.db.models import F
 from django.http import HttpResponsePermanentRedirect
 from django.shortcuts import get_object_or_404, redirect, render
-
-from django.utils.encoding import escape_uri_path
 from django.urls import reverse
+from django.utils.encoding import escape_uri_path
 
 from plant import installations, risk, sections
 from plant.params import configure_table
