@@ -1,5 +1,5 @@
 """Conformity risk over the fleet (issue 31): the priors of like devices and each device's stored risk fields,
-computed inside the bulk recompute (calibration/fleet.py) from what it has read already, plus one read of the
+computed inside the bulk recompute (scheduling/fleet.py) from what it has read already, plus one read of the
 last calibrations' points. The math is calibration/conformity.py (JCGM 106:2012); this module only gathers and
 stores.
 

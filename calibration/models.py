@@ -677,7 +677,7 @@ class CalibrationEvent(models.Model):
             # what the certificate prints, from the register as it stands now, locked with the signature
             fresh.signed_content = signed_content.at_sign_off(fresh, points)
             super(CalibrationEvent, fresh).save()
-            from calibration.fleet import recompute_due_dates
+            from scheduling.fleet import recompute_due_dates
 
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
             # sealed in the record chain as stored now, in the same transaction: keep this the last write of the

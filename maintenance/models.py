@@ -49,7 +49,7 @@ class MaintenanceTask(ProtectedWhileCited, models.Model):
     since = models.DateField("set up on", default=timezone.localdate)
     active = models.BooleanField(default=True)
     change_reason = models.CharField("reason for the last change", max_length=300, blank=True)
-    # kept by maintenance.fleet (batched write) and on every signed record; not in the audit trail
+    # kept by scheduling.maintenance_due (batched write) and on every signed record; not in the audit trail
     frequency_days = models.PositiveIntegerField(null=True, blank=True, editable=False)
     last_done = models.DateField(null=True, blank=True, editable=False)
     last_condition = models.CharField(max_length=20, blank=True, editable=False)
@@ -190,9 +190,9 @@ class MaintenanceRecord(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(MaintenanceRecord, fresh).save()
-            from calibration.fleet import recompute_due_dates
+            from scheduling.fleet import recompute_due_dates
 
-            # the calibration recompute refreshes this meter's maintenance due dates first (maintenance.fleet)
+            # the calibration recompute refreshes this meter's maintenance due dates first (scheduling.maintenance_due)
             recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
             # sealed in the record chain with its photos, in the same transaction: keep this the last write
             chain.append(MAINTENANCE.name, fresh.pk)

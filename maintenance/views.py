@@ -8,7 +8,7 @@ from django.views.decorators.http import require_POST
 
 from calibration.models import SignedRecordError
 from maintenance import loop
-from maintenance.fleet import recompute_maintenance
+from scheduling.maintenance_due import recompute_maintenance
 from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 from plant.db_failures import nothing_saved_page

@@ -923,7 +923,7 @@ def _plain(model, objects):
 
 def _write(plan: Plan, user) -> None:
     """Save a checked plan (inside the caller's transaction)."""
-    from calibration.fleet import recompute_due_dates
+    from scheduling.fleet import recompute_due_dates
 
     register = plan.register
     changed = [row for row in plan.rows if row.action in ("create", "update")]

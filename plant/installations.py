@@ -55,7 +55,7 @@ def starting_point(device: Meter) -> dict:
 
 def refresh_due(device: Meter):
     """The device's stored due date recomputed from its signed records, so the check below trusts no stale value."""
-    from calibration.fleet import recompute_due_dates
+    from scheduling.fleet import recompute_due_dates
 
     recompute_due_dates(Meter.objects.filter(pk=device.pk))
     device.refresh_from_db(fields=["last_calibrated", "next_due_date", "due_rationale", "risk_severity"])
@@ -153,7 +153,7 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
 def _after_move(device: Meter, on_date: dt.date, recompute=True):
     """The duty history follows the move and the due date is recomputed with the new duty's risk (the stored
     risk and the derived maintenance tasks followed at device.save())."""
-    from calibration.fleet import recompute_due_dates
+    from scheduling.fleet import recompute_due_dates
 
     device.record_duty_change(on_date)
     if recompute:

@@ -360,7 +360,7 @@ class Meter(ProtectedWhileCited, models.Model):
         validators=[MinValueValidator(1, "The interval must be at least one day.")],
     )
     status = models.CharField(max_length=12, choices=Status.choices, default=Status.IN_SERVICE)
-    # kept by calibration.fleet.recompute_due_dates (bulk_update, so save() and duty history are not involved)
+    # kept by scheduling.fleet.recompute_due_dates (bulk_update, so save() and duty history are not involved)
     last_calibrated = models.DateField(null=True, blank=True, editable=False)
     next_due_date = models.DateField(null=True, blank=True, editable=False)
     due_rationale = models.JSONField(default=dict, blank=True, editable=False)
@@ -530,9 +530,9 @@ class Meter(ProtectedWhileCited, models.Model):
             return list(attached)
         if self.pk is None:
             return []
-        from maintenance.fleet import PREFETCHED, evidence_from_prefetched, meter_evidence
+        from scheduling.maintenance_due import PREFETCHED, evidence_from_prefetched, meter_evidence
 
-        if hasattr(self, PREFETCHED):  # a page of meters read with maintenance.fleet.evidence_prefetch()
+        if hasattr(self, PREFETCHED):  # a page of meters read with scheduling.maintenance_due.evidence_prefetch()
             return evidence_from_prefetched(getattr(self, PREFETCHED))
         return meter_evidence(self.pk)
 

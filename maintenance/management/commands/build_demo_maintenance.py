@@ -20,7 +20,7 @@ from django.db import transaction
 
 from calibration.models import CalibrationEvent
 from maintenance import synthetic
-from maintenance.fleet import recompute_maintenance
+from scheduling.maintenance_due import recompute_maintenance
 from maintenance.models import MaintenanceRecord, MaintenanceTask, WalkOrder
 from plant.models import Area, Meter
 

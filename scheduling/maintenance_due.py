@@ -1,6 +1,6 @@
 """Maintenance due dates for many tasks at once: two reads, the loop vectorised over tasks, one batched write.
 
-Called by the calibration recompute (calibration/fleet.py) before it judges each meter, so the fouling finding
+Called by the calibration recompute (scheduling/fleet.py) before it judges each meter, so the fouling finding
 of maintenance/loop.py reaches the calibration interval from the same read. The per-task reference is the pure
 loop (maintenance/loop.py: next_frequency, next_due); tests hold both to the same stored fields.
 """

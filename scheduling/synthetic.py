@@ -1,7 +1,7 @@
 """A large invented fleet with ten years of signed calibration history, for benchmarks and scale tests.
 
 Seeded and deterministic: the same seed and size give the same plant, tags, dates and errors. Meters are
-variations on the demo plant's installations (plant/management/commands/build_demo_plant.py); drift is
+variations on the demo plant's installations (plant/demo_data.py); drift is
 invented as in the demo history (stable, steady drift, jumps after fouling), scaled by each duty's risk.
 Rows are written with bulk inserts in chunks of meters, so memory stays flat; the per-row save() checks
 are bypassed on purpose, the values being computed with the same functions those checks use.
@@ -14,12 +14,12 @@ import random
 from django.db import transaction
 
 from calibration import errors, units
+from calibration.invented import NOMINALS, invented_found_errors
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from plant.management.commands.build_demo_plant import FLUIDS, MAKERS, METERS
+from plant.demo_data import FLUIDS, MAKERS, METERS
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 
 TAG_PREFIX = "SYN-"
-NOMINALS = (10, 25, 50, 75, 100)
 YEARS = 10
 SITES = [
     ("Brackenholm Dairy Works", "Mill Road, Brackenholm (invented)"),
@@ -31,12 +31,6 @@ SITES = [
 AREAS = ["Intake", "Process A", "Process B", "CIP", "Boiler house", "Utilities", "Dosing", "Effluent"]
 TECHNICIANS = ["T. Arkwright-Nye", "L. Mbeki-Storr", "P. Halloran", "J. Vesterby", "K. Oduya"]
 PROCEDURE = "In-situ comparison against a portable reference meter in series, five points up the range (WP-SY-01)."
-
-
-def invented_found_errors(rng, offset, mpe):
-    """As-found errors at the nominal points: a common offset tilted up or down the range, plus scatter."""
-    shape = rng.uniform(-0.3, 0.3)
-    return [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
 
 
 def fluids():

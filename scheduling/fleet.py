@@ -1,9 +1,9 @@
 """Recompute next due dates for many meters from bulk queries and vectorised math.
 
 Three reads (meters, signed events, their points) whatever the fleet size; drift fits and crossing
-predictions for every (meter, nominal point) series at once (calibration/drift_fleet.py); the interval
+predictions for every (meter, nominal point) series at once (scheduling/drift_fleet.py); the interval
 method over each meter's own record, its staircase steps and binomial tests for all meters at once
-(calibration/intervals.py); the pure due-date rule per meter (calibration/due.py); one batched write. The
+(calibration/intervals.py); the pure due-date rule per meter (scheduling/due.py); one batched write. The
 same rules as the per-meter path of the meter page, which the benchmark keeps as its baseline and the tests
 compare with this one.
 """
@@ -22,10 +22,11 @@ from django.db import connections, transaction
 from django.db.models import Case, Q, Value, When
 
 from calibration import decision as decision_rules
-from calibration import drift, drift_fleet, due, intervals
+from calibration import drift, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, in_force, observed_or_verdict
 from plant import risk
 from plant.models import Fluid, Meter
+from scheduling import drift_fleet, due
 
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
                   "predicted_crossing", "last_in_tolerance", "risk_severity"]
@@ -333,7 +334,7 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     attach_duties(meters, None if whole_fleet else meters_qs)
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
     # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
-    from maintenance.fleet import recompute_maintenance
+    from scheduling.maintenance_due import recompute_maintenance
 
     evidence = recompute_maintenance(chosen_ids)
     for meter in meters:
@@ -401,7 +402,7 @@ def found_out(value) -> bool:
 
 def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting",
            scatter_reason=""):
-    """The pure due-date rule for one meter (calibration/due.py), with the policy's settings."""
+    """The pure due-date rule for one meter (scheduling/due.py), with the policy's settings."""
     findings = meter.findings()
     if last_failed:
         method = intervals.first_calibration_found_out(method, shorten=cfg["staircase_shorten"],
