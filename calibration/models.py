@@ -23,6 +23,7 @@ from simple_history.models import HistoricalRecords
 from calibration import decision, errors, signed_content, uncertainty, units
 from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
 from ledger import chain
+from ledger.signals import record_signed
 from plant import citations, risk
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, number_or_none
@@ -677,9 +678,8 @@ class CalibrationEvent(models.Model):
             # what the certificate prints, from the register as it stands now, locked with the signature
             fresh.signed_content = signed_content.at_sign_off(fresh, points)
             super(CalibrationEvent, fresh).save()
-            from scheduling.fleet import recompute_due_dates
-
-            recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+            # the due date follows in the same transaction (scheduling listens)
+            record_signed.send(sender=CalibrationEvent, record=fresh)
             # sealed in the record chain as stored now, in the same transaction: keep this the last write of the
             # sign-off, after anything written to the event or its points
             chain.append(CALIBRATION.name, fresh.pk)
@@ -924,6 +924,7 @@ class Countersignature(models.Model):
             raise SignedRecordError("A countersignature cannot be changed.")
         with transaction.atomic():
             super().save(*args, **kwargs)
+            record_signed.send(sender=Countersignature, record=self)
             chain.append(COUNTERSIGNATURE.name, self.pk)
 
     def delete(self, *args, **kwargs):

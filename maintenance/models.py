@@ -19,6 +19,7 @@ from simple_history.models import HistoricalRecords
 from calibration import models as calibration_models
 from calibration.models import SignedRecordError, signature_errors
 from ledger import chain
+from ledger.signals import record_signed
 from maintenance import loop
 from maintenance.ledger_kinds import MAINTENANCE
 from plant import citations
@@ -190,10 +191,8 @@ class MaintenanceRecord(models.Model):
             fresh.signed_role = role
             fresh.signed_at = at or timezone.now()
             super(MaintenanceRecord, fresh).save()
-            from scheduling.fleet import recompute_due_dates
-
-            # the calibration recompute refreshes this meter's maintenance due dates first (scheduling.maintenance_due)
-            recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
+            # the task's and the device's due dates follow in the same transaction (scheduling listens)
+            record_signed.send(sender=MaintenanceRecord, record=fresh)
             # sealed in the record chain with its photos, in the same transaction: keep this the last write
             chain.append(MAINTENANCE.name, fresh.pk)
         self.refresh_from_db()

@@ -27,6 +27,7 @@ from calibration.models import CalibrationEvent, CalibrationPoint, in_force, obs
 from plant import risk
 from plant.models import Fluid, Meter
 from scheduling import drift_fleet, due
+from scheduling.maintenance_due import recompute_maintenance
 
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
                   "predicted_crossing", "last_in_tolerance", "risk_severity"]
@@ -294,10 +295,10 @@ def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     return chosen
 
 
-def attach_duties(meters, meters_qs=None):
-    """Give each device the position it serves and that position's fluid (spares: the fluid of their last
-    duty) from three reads, so the risk rules run without a query per device. A few fluid objects are
-    shared rather than one copy per device."""
+def attach_duties(meters, meters_qs=None) -> dict:
+    """Give each device the position it serves and that position's fluid from three reads, so the risk rules
+    run without a query per device; returns {spare's id: the fluid of its last duty (or None)}, for
+    Meter.findings(last_fluid=...). A few fluid objects are shared rather than one copy per device."""
     from plant.models import DutyPeriod, Position
 
     fluids = Fluid.objects.in_bulk()
@@ -309,13 +310,15 @@ def attach_duties(meters, meters_qs=None):
     if spare_ids:
         duties = DutyPeriod.objects.filter(meter_id__in=spare_ids).order_by("meter_id", "since", "id")
         last_fluid = dict(duties.values_list("meter_id", "fluid_id"))  # the latest of each device wins
+    spare_fluids = {}
     for meter in meters:
         if meter.position_id is not None:
             position = positions[meter.position_id]
             position.fluid = fluids[position.fluid_id]
             meter.position = position
         else:
-            meter._last_duty_fluid = fluids.get(last_fluid.get(meter.pk))
+            spare_fluids[meter.pk] = fluids.get(last_fluid.get(meter.pk))
+    return spare_fluids
 
 
 # The recompute ------------------------------------------------------------------------------------
@@ -331,14 +334,10 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     if not meters:
         return 0
     stored = {m.pk: stored_due_fields(m) for m in meters}
-    attach_duties(meters, None if whole_fleet else meters_qs)
+    spare_fluids = attach_duties(meters, None if whole_fleet else meters_qs)
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
     # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
-    from scheduling.maintenance_due import recompute_maintenance
-
     evidence = recompute_maintenance(chosen_ids)
-    for meter in meters:
-        meter._evidence_findings = evidence.get(meter.pk, [])
     events = signed_events(None if whole_fleet else Q(meter__in=chosen_ids))
     points = recorded_points(None if whole_fleet else Q(event__meter__in=chosen_ids))
     by_meter = {m.pk: m for m in meters}
@@ -357,22 +356,26 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
                                  "observed_in_tolerance"]].to_dict("index")
     drift_by_meter = drift_summary.to_dict("index")
     for meter in meters:
+        findings = meter.findings(evidence.get(meter.pk, []), spare_fluids.get(meter.pk))
         if meter.pk not in last_by_meter:
-            _no_history(meter)
+            _no_history(meter, findings)
         else:
-            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg)
+            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg, findings)
         if progress:
             progress(1)
     write_due_fields([m for m in meters if stored_due_fields(m) != stored[m.pk]], batch_size=batch_size)
     # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
     from calibration.conformity_fleet import update_conformity
 
-    update_conformity(meters, events, points, last_events, whole_fleet)
+    fluid_ids = {m.pk: m.position.fluid_id if m.position_id else getattr(spare_fluids.get(m.pk), "pk", None)
+                 for m in meters}
+    update_conformity(meters, events, points, last_events, whole_fleet, fluid_ids)
     return len(meters)
 
 
-def _no_history(meter):
-    meter.risk_severity = risk.worst_severity(meter.findings())
+def _no_history(meter, findings=None):
+    """findings: the meter's, when the caller read them in bulk (else read here)."""
+    meter.risk_severity = risk.worst_severity(meter.findings() if findings is None else findings)
     meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = meter.last_in_tolerance = None
     meter.drift_status, meter.drift_rate_per_year = "insufficient", None
     meter.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
@@ -401,9 +404,10 @@ def found_out(value) -> bool:
 
 
 def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting",
-           scatter_reason=""):
-    """The pure due-date rule for one meter (scheduling/due.py), with the policy's settings."""
-    findings = meter.findings()
+           scatter_reason="", findings=None):
+    """The pure due-date rule for one meter (scheduling/due.py), with the policy's settings (findings: the
+    meter's, when the caller read them in bulk; else read here)."""
+    findings = meter.findings() if findings is None else findings
     if last_failed:
         method = intervals.first_calibration_found_out(method, shorten=cfg["staircase_shorten"],
                                                        min_days=cfg["min_interval_days"],
@@ -426,7 +430,7 @@ def scatter_words(sd, mpe) -> str:
     return f"residual SD {sd:.3g} beside the MPE {mpe:g}"
 
 
-def _assess(meter, last_event, summary, method, cfg):
+def _assess(meter, last_event, summary, method, cfg, findings=None):
     last = dt.date.fromordinal(int(last_event["day"]))
     crossing = nominal = None
     crossing_reason = scatter_reason = ""
@@ -447,7 +451,8 @@ def _assess(meter, last_event, summary, method, cfg):
     # (issue 31: a point inside the MPE that a weak reference could not accept does not shorten the interval)
     observed = last_event["observed_in_tolerance"]
     decision, findings = decide(meter, last, found_out(observed), crossing,
-                                crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason)
+                                crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason,
+                                findings=findings)
     meter.risk_severity = risk.worst_severity(findings)
     meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
     # a last as-found beyond the MPE shows as "last found out of tolerance", whatever the fitted trend says

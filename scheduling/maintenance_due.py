@@ -1,6 +1,6 @@
 """Maintenance due dates for many tasks at once: two reads, the loop vectorised over tasks, one batched write.
 
-Called by the calibration recompute (scheduling/fleet.py) before it judges each meter, so the fouling finding
+Run by the calibration recompute (scheduling/fleet.py) before it judges each meter, so the fouling finding
 of maintenance/loop.py reaches the calibration interval from the same read. The per-task reference is the pure
 loop (maintenance/loop.py: next_frequency, next_due); tests hold both to the same stored fields.
 """
@@ -51,6 +51,14 @@ def evidence_prefetch():
 def evidence_from_prefetched(records) -> list:
     finding = loop.fouling_finding([(r.performed_on, r.condition) for r in records[:loop.FOULED_WINDOW]])
     return [finding] if finding else []
+
+
+def findings_of(meter) -> list:
+    """The evidence source plant asks (plant/evidence.py): from the records prefetched with evidence_prefetch()
+    when the page read them, else one query."""
+    if hasattr(meter, PREFETCHED):
+        return evidence_from_prefetched(getattr(meter, PREFETCHED))
+    return meter_evidence(meter.pk)
 
 
 def _rows(queryset, columns):

@@ -106,7 +106,6 @@ class FleetBuilder:
         )
         # spares and retired devices are on the shelf: they served at a place (their duty) but hold no position
         meter._duty = (position.area, position.fluid)
-        meter._last_duty_fluid = position.fluid
         return (position if status == "in_service" else None), meter
 
     def _chunk(self, start, size):
@@ -131,8 +130,6 @@ class FleetBuilder:
         DutyPeriod.objects.bulk_create([DutyPeriod(meter=m, position=m.position, area=m._duty[0], fluid=m._duty[1],
                                                    since=since, until=None if m.position else self.today)
                                         for m in meters])
-        for meter in meters:  # no maintenance findings while the calibration history is invented
-            meter._evidence_findings = []
         plans = [(meter, self._history(meter)) for meter in meters]
         events = [event for _, history in plans for event, _ in history]
         CalibrationEvent.objects.bulk_create(events, batch_size=2000)
@@ -159,13 +156,15 @@ class FleetBuilder:
     def _history(self, meter):
         """[(event, (standard, points))] over ten years; the event verdicts are computed here."""
         rng = self.rng
-        factor = meter.risk_factor()
+        fluid = meter._duty[1]  # a spare's too: the fluid of the duty it served
+        # no maintenance findings while the calibration history is invented
+        factor = meter.risk_factor(evidence=[], last_fluid=fluid)
         mpe = meter.mpe_value
         behaviour = rng.choices(["stable", "steady", "fouling"], weights=[6, 3, 1] if factor >= 1 else [3, 4, 3])[0]
         rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.5) * rng.choice([-1, 1])
-        interval = max(365, meter.effective_interval_days())
+        interval = max(365, meter.effective_interval_days(evidence=[], last_fluid=fluid))
         day = self.today - dt.timedelta(days=int(365.25 * YEARS) - rng.randint(0, 120))
-        standard = self.standards[("gas" if meter.fluid.phase in ("gas", "steam") else "liquid", meter.flow_units)]
+        standard = self.standards[("gas" if fluid.phase in ("gas", "steam") else "liquid", meter.flow_units)]
         rule = "guarded" if rng.random() < 0.1 else "simple"
         baseline = rng.uniform(-0.1, 0.1) * mpe
         history = []
@@ -180,7 +179,7 @@ class FleetBuilder:
             left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS] if adjust else []
             event = CalibrationEvent(
                 meter=meter, position=meter.position, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
-                ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=meter.fluid.temperature_c,
+                ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=fluid.temperature_c,
                 pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
                 decision_rule=rule, notes="Zero and span adjusted." if adjust else "",
                 state=CalibrationEvent.State.SIGNED, signed_by="", signed_role="Instrument technician",
