@@ -7,7 +7,7 @@ from django.db import transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
-from calibration.models import SignedRecordError
+from ledger.signed import SignedRecordError
 from maintenance import loop
 from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
