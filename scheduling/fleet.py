@@ -22,11 +22,11 @@ from django.db import connections, transaction
 from django.db.models import Case, Q, Value, When
 
 from calibration import decision as decision_rules
-from calibration import drift, intervals
+from calibration import conformity_fleet, drift, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, in_force, observed_or_verdict
 from plant import risk
-from plant.models import Fluid, Meter
-from scheduling import drift_fleet, due
+from plant.models import DutyPeriod, Fluid, Meter, Position
+from scheduling import drift_fleet, due, reads
 from scheduling.maintenance_due import recompute_maintenance
 
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
@@ -36,7 +36,6 @@ METER_INPUTS = ["id", "principle", "wetted_material", "flow_units", "mpe_value",
 # what the risk rules read of the position a device serves
 POSITION_INPUTS = ["id", "tag", "fluid", "internal_diameter_mm", "flow_units", "normal_flow", "min_flow"]
 STATUS_PRECEDENCE = ("out_of_tolerance", "scatter", "drifting", "improving", "flat", "insufficient")
-_UNIX_EPOCH_ORDINAL = dt.date(1970, 1, 1).toordinal()
 
 
 def policy():
@@ -90,29 +89,6 @@ def summarise_status(statuses):
 
 
 # Bulk reads ---------------------------------------------------------------------------------------
-def _frame(queryset, columns, numeric=False):
-    """Rows of a values_list queryset straight from the cursor (no per-row model or converter work).
-
-    numeric: every column is a number or NULL, so the rows go through one float array (NULL -> NaN),
-    much faster than column-by-column type inference for a million rows.
-    """
-    sql, params = queryset.values_list(*columns).query.sql_with_params()
-    with connections[queryset.db].cursor() as cursor:
-        cursor.execute(sql, params)
-        rows = cursor.fetchall()
-    if numeric:
-        return pd.DataFrame(np.array(rows, dtype=float).reshape(len(rows), len(columns)), columns=columns)
-    return pd.DataFrame.from_records(rows, columns=columns)
-
-
-def _ordinal_days(values: pd.Series) -> np.ndarray:
-    """Dates (date objects or ISO strings, as the database driver returns them) as proleptic ordinals."""
-    if values.empty:
-        return np.empty(0, dtype=float)
-    days = pd.to_datetime(values).to_numpy(dtype="datetime64[D]").astype(np.int64)
-    return (days + _UNIX_EPOCH_ORDINAL).astype(float)
-
-
 def _flag(values: pd.Series) -> pd.Series:
     """Nullable booleans (SQLite gives 0/1) as True/False/None."""
     flags = values.map({True: True, False: False, 1: True, 0: False}).astype(object)
@@ -129,8 +105,8 @@ def signed_events(where: Q | None = None):
     qs = qs.annotate(observed_in_tolerance=observed_or_verdict())
     columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
                "observed_in_tolerance"]
-    events = _frame(qs.order_by(), columns)
-    events["day"] = _ordinal_days(events["performed_on"])
+    events = reads.frame(qs.order_by(), columns)
+    events["day"] = reads.ordinal_days(events["performed_on"])
     events["adjusted"] = events["adjusted"].astype(bool)
     events["as_found_in_tolerance"] = _flag(events["as_found_in_tolerance"])
     # a COALESCE has no declared type: SQLite hands back 0/1 integers, NULL as None
@@ -148,7 +124,7 @@ def recorded_points(where: Q | None = None):
     """
     qs = CalibrationPoint.objects.all() if where is None else CalibrationPoint.objects.filter(where)
     qs = qs.order_by().annotate(as_left=Case(When(kind=CalibrationPoint.Kind.AS_LEFT, then=Value(1)), default=Value(0)))
-    points = _frame(qs, ["id", "event_id", "as_left", "nominal_pct", "error"], numeric=True)
+    points = reads.frame(qs, ["id", "event_id", "as_left", "nominal_pct", "error"], numeric=True)
     return points.astype({"id": np.int64, "event_id": np.int64, "as_left": np.int8})
 
 
@@ -299,8 +275,6 @@ def attach_duties(meters, meters_qs=None) -> dict:
     """Give each device the position it serves and that position's fluid from three reads, so the risk rules
     run without a query per device; returns {spare's id: the fluid of its last duty (or None)}, for
     Meter.findings(last_fluid=...). A few fluid objects are shared rather than one copy per device."""
-    from plant.models import DutyPeriod, Position
-
     fluids = Fluid.objects.in_bulk()
     positions = Position.objects.only(*POSITION_INPUTS)
     positions = positions.filter(device__isnull=False) if meters_qs is None else positions.filter(device__in=meters_qs)
@@ -365,11 +339,9 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
             progress(1)
     write_due_fields([m for m in meters if stored_due_fields(m) != stored[m.pk]], batch_size=batch_size)
     # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
-    from calibration.conformity_fleet import update_conformity
-
     fluid_ids = {m.pk: m.position.fluid_id if m.position_id else getattr(spare_fluids.get(m.pk), "pk", None)
                  for m in meters}
-    update_conformity(meters, events, points, last_events, whole_fleet, fluid_ids)
+    conformity_fleet.update_conformity(meters, events, points, last_events, whole_fleet, fluid_ids)
     return len(meters)
 
 
