@@ -1,5 +1,5 @@
 """Conformity risk over the fleet (issue 31): the priors of like devices and each device's stored risk fields,
-computed inside the bulk recompute (calibration/fleet.py) from what it has read already, plus one read of the
+computed inside the bulk recompute (scheduling/fleet.py) from what it has read already, plus one read of the
 last calibrations' points. The math is calibration/conformity.py (JCGM 106:2012); this module only gathers and
 stores.
 
@@ -70,10 +70,15 @@ def group_fits(codes: np.ndarray, values: np.ndarray, groups: int):
     return mean, np.sqrt(square / np.maximum(count - 1, 1)), count
 
 
-def fit_priors(meters, events: pd.DataFrame, points: pd.DataFrame) -> dict:
+def _fluid_id(meter, fluid_ids):
+    return meter.fluid_id if fluid_ids is None else fluid_ids.get(meter.pk)
+
+
+def fit_priors(meters, events: pd.DataFrame, points: pd.DataFrame, fluid_ids=None) -> dict:
     """{(principle, fluid_id): (mean, sd, count)} and {(principle, None): ...}: every as-found error (error / the
     device's MPE) of the events held (signed, in force), grouped by the device's principle and fluid now, and by
-    principle. Groups of fewer than two values are left out."""
+    principle. Groups of fewer than two values are left out. fluid_ids: {device id: fluid id} when the caller
+    read them (a spare's is its last duty's); else each device's `fluid_id`."""
     found = points[(points["as_left"] == 0) & points["event_id"].isin(events["id"])]
     meter_of_event = pd.Series(events["meter_id"].to_numpy(), index=events["id"].to_numpy())
     point_meter = meter_of_event.reindex(found["event_id"].to_numpy()).to_numpy()
@@ -81,7 +86,7 @@ def fit_priors(meters, events: pd.DataFrame, points: pd.DataFrame) -> dict:
     pair_code, principle_code, pairs, principles, mpe, ids = {}, {}, [], [], [], []
     row_pair, row_principle = [], []
     for m in meters:
-        pair = (m.principle, m.fluid_id)
+        pair = (m.principle, _fluid_id(m, fluid_ids))
         if pair not in pair_code:
             pair_code[pair] = len(pairs)
             pairs.append(pair)
@@ -199,11 +204,11 @@ def point_risks(error, mpe, U, k, rule, prior_mean, prior_sd, target=None, accep
 
 
 def update_conformity(meters, events: pd.DataFrame, points: pd.DataFrame, last_events: pd.DataFrame,
-                      whole_fleet: bool):
+                      whole_fleet: bool, fluid_ids=None):
     """The recompute's conformity part: refit and store the priors (whole fleet only), then set and store each
     device's conformity_pfa and conformity_min_pc from its last calibration (writing the changed rows only)."""
     if whole_fleet:
-        fits = fit_priors(meters, events, points)
+        fits = fit_priors(meters, events, points, fluid_ids)
         if fits != stored_fits():
             store_priors(fits)
     else:
@@ -221,7 +226,7 @@ def update_conformity(meters, events: pd.DataFrame, points: pd.DataFrame, last_e
             prior_of = {}
             for pk in set(meter_ids.tolist()):
                 meter = by_meter[pk]
-                key = (meter.principle, meter.fluid_id)
+                key = (meter.principle, _fluid_id(meter, fluid_ids))
                 if key not in groups:
                     groups[key] = conformity.choose_prior(fits, *key)[:2]
                 prior_of[pk] = groups[key]

@@ -38,6 +38,7 @@ import numpy as np
 from scipy import optimize, stats
 
 from plant import checks
+from plant.risk import whole_days  # noqa: F401  (the rule lives with the risk factor; intervals round by it)
 
 
 MIN_OBSERVATIONS = 8  # our policy default: observed intervals before the reliability model may move one
@@ -46,14 +47,6 @@ MIN_OBSERVATIONS = 8  # our policy default: observed intervals before the reliab
 def _check_fraction(name: str, value) -> float:
     """``value`` as a float strictly between 0 and 1, else ValueError naming ``name``."""
     return checks.fraction(name, value)
-
-
-def whole_days(x: float) -> int:
-    """The one rounding rule for intervals: nearest whole day, halves upward (not banker's rounding).
-
-    Used by the staircase, the reliability interval, the risk factor and the drift shortening alike.
-    """
-    return int(math.floor(checks.number("x", x) + 0.5))
 
 
 def _stair_settings(extend, shorten, min_days, max_days):

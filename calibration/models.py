@@ -6,14 +6,11 @@ a signed event cites is protected in turn (plant/citations.py; the declarations 
 """
 import datetime as dt
 import math
-import random
-import time
 
-from django.apps import apps
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MinValueValidator
-from django.db import OperationalError, models, transaction
+from django.db import models, transaction
 from django.db.models.signals import m2m_changed, post_save
 from django.dispatch import receiver
 from django.urls import reverse
@@ -23,7 +20,7 @@ from simple_history.models import HistoricalRecords
 from calibration import decision, errors, signed_content, uncertainty
 from plant import units
 from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
-from ledger import chain
+from ledger.signed import AlwaysSignedQuerySet, LockedQuerySet, SignedRecord, SignedRecordError, signature_errors
 from plant import citations, risk
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, number_or_none
@@ -43,18 +40,6 @@ def entry_can_convert(from_code, to_code):
 
 
 FULL_VACUUM_BAR_G = -1.01325  # standard atmosphere below gauge zero
-
-
-class SignedRecordError(Exception):
-    """Raised on any attempt to change or delete a signed calibration record."""
-
-
-def signature_errors(record):
-    """A record in the signed state names who signed it and when (sign() sets both; a restore checks them)."""
-    if record.state != "signed":
-        return {}
-    missing = [name for name in ("signed_by", "signed_at") if not getattr(record, name)]
-    return {name: "A signed record must say who signed it and when." for name in missing}
 
 
 class ReferenceStandard(ProtectedWhileCited, models.Model):
@@ -239,41 +224,20 @@ class StandardDcc(models.Model):
         return self.confirmed_at is not None
 
 
-class LockedQuerySet(models.QuerySet):
-    """Refuses bulk update/delete that would touch a signed record, and an update that would move rows into
-    one (`parent`: the foreign key to the signed record, for the rows that belong to one)."""
+class CalibrationQuerySet(LockedQuerySet):
+    """Signed calibrations and the rows that belong to them are locked (ledger/signed.py)."""
 
-    signed_lookup = "state"
-    parent = None
-    record_model = "calibration.CalibrationEvent"  # the signed record (its state "signed" locks it)
+    record_model = "calibration.CalibrationEvent"
     changed_message = "Signed calibration records cannot be changed."
     deleted_message = "Signed calibration records cannot be deleted."
 
-    def _touches_signed(self):
-        return self.filter(**{self.signed_lookup: "signed"}).exists()
 
-    def _moves_into_signed(self, kwargs):
-        target = kwargs.get(self.parent, kwargs.get(f"{self.parent}_id")) if self.parent else None
-        return target is not None and apps.get_model(self.record_model)._base_manager.filter(
-            pk=getattr(target, "pk", target), state="signed").exists()
-
-    def update(self, **kwargs):
-        if self._touches_signed() or self._moves_into_signed(kwargs):
-            raise SignedRecordError(self.changed_message)
-        return super().update(**kwargs)
-
-    def delete(self):
-        if self._touches_signed():
-            raise SignedRecordError(self.deleted_message)
-        return super().delete()
-
-
-class PointQuerySet(LockedQuerySet):
+class PointQuerySet(CalibrationQuerySet):
     signed_lookup = "event__state"
     parent = "event"
 
 
-class StandardLinkQuerySet(LockedQuerySet):
+class StandardLinkQuerySet(CalibrationQuerySet):
     signed_lookup = "calibrationevent__state"
     parent = "calibrationevent"
     changed_message = deleted_message = "The reference standards of a signed calibration cannot be changed."
@@ -323,7 +287,7 @@ def in_force(outer="pk"):
                                                           state=CalibrationEvent.State.SIGNED))
 
 
-class CalibrationEvent(models.Model):
+class CalibrationEvent(SignedRecord):
     class State(models.TextChoices):
         DRAFT = "draft", "Draft"
         SIGNED = "signed", "Signed"
@@ -404,7 +368,8 @@ class CalibrationEvent(models.Model):
     history = HistoricalRecords(m2m_fields=[reference_standards], custom_model_name=history_model_name,
                                 excluded_fields=["signed_content"])
 
-    objects = LockedQuerySet.as_manager()
+    objects = CalibrationQuerySet.as_manager()
+    ledger_kind = CALIBRATION.name
 
     class Meta:
         ordering = ["-performed_on", "-id"]
@@ -625,71 +590,29 @@ class CalibrationEvent(models.Model):
         self.as_found_observed_in_tolerance = decision.observed_in_tolerance([p.error for p in found_points],
                                                                              [p.mpe for p in found_points])
 
-    #: How long a sign-off keeps retrying while SQLite reports the database locked by another writer.
-    SIGN_RETRY_SECONDS = 20.0
+    # Sign-off (the one sign path is ledger/signed.py) ----------------------------------------------------
+    def not_signable(self, state, signed_by):
+        if state == self.State.DISCARDED:
+            return SignedRecordError(f"Calibration {self.pk} was discarded and cannot be signed.")
+        return SignedRecordError(f"Calibration {self.pk} is already signed by {signed_by}.")
 
-    def sign(self, by, role="Technician", at=None):
-        """Lock the event after checking it; one signer wins when two sign at once.
+    def before_signature(self):
+        """Refuse a calibration that cannot be signed; compute and store its points' results and its verdicts."""
+        problems = self.problems()
+        if problems:
+            raise ValidationError(problems)
+        standards = list(self.reference_standards.all())
+        factor = self.unit_factor()
+        self._points_signed = list(self.points.all())
+        for point in self._points_signed:
+            point.compute(self.meter, standards, self.decision_rule, factor=factor)
+            point.save()
+        self.evaluate()
+        self.standards_snapshot = [s.snapshot() for s in standards]
 
-        PostgreSQL: the conditional UPDATE takes the row lock; a second signer waits for it, then finds no draft
-        left and is told who signed. SQLite: a second writer may be refused at once ("database is locked", or
-        "table is locked" with a shared-cache database) instead of waiting; the whole sign-off is then retried
-        from the start, with a short random pause, until it runs alone, so it too ends with "already signed".
-        Not retried inside a caller's transaction (its state is the caller's to roll back)."""
-        deadline = time.monotonic() + self.SIGN_RETRY_SECONDS
-        pause = 0.01
-        while True:
-            try:
-                return self._sign_once(by, role, at)
-            except OperationalError as exc:
-                if ("locked" not in str(exc) or transaction.get_connection().in_atomic_block
-                        or time.monotonic() > deadline):
-                    raise
-            time.sleep(pause * (0.5 + random.random()))
-            pause = min(pause * 2, 0.2)
-
-    def _sign_once(self, by, role, at):
-        with transaction.atomic():
-            # Claim the draft with a conditional write first: it takes the row lock (PostgreSQL) or the
-            # database write lock (SQLite) before anything else is written, so a second signer waits (or, on
-            # SQLite, is refused and retries), then finds nothing left to claim.
-            claimed = CalibrationEvent.objects.filter(pk=self.pk, state=self.State.DRAFT).update(signed_by=by)
-            if not claimed:
-                state, current = CalibrationEvent.objects.filter(pk=self.pk).values_list("state", "signed_by").first()
-                if state == self.State.DISCARDED:
-                    raise SignedRecordError(f"Calibration {self.pk} was discarded and cannot be signed.")
-                raise SignedRecordError(f"Calibration {self.pk} is already signed by {current}.")
-            fresh = CalibrationEvent.objects.select_for_update().get(pk=self.pk)
-            problems = fresh.problems()
-            if problems:
-                raise ValidationError(problems)
-            standards = list(fresh.reference_standards.all())
-            factor = fresh.unit_factor()
-            points = list(fresh.points.all())
-            for point in points:
-                point.compute(fresh.meter, standards, fresh.decision_rule, factor=factor)
-                point.save()
-            fresh.evaluate()
-            fresh.standards_snapshot = [s.snapshot() for s in standards]
-            fresh.state = self.State.SIGNED
-            fresh.signed_by = by
-            fresh.signed_role = role
-            fresh.signed_at = at or timezone.now()
-            # what the certificate prints, from the register as it stands now, locked with the signature
-            fresh.signed_content = signed_content.at_sign_off(fresh, points)
-            super(CalibrationEvent, fresh).save()
-            from calibration.fleet import recompute_due_dates
-
-            recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
-            # sealed in the record chain as stored now, in the same transaction: keep this the last write of the
-            # sign-off, after anything written to the event or its points
-            chain.append(CALIBRATION.name, fresh.pk)
-        # take the signed values from `fresh` rather than reading them back: a read here could itself meet a lock,
-        # and a retry after a committed sign-off would wrongly report "already signed"
-        for field in self._meta.concrete_fields:
-            setattr(self, field.attname, getattr(fresh, field.attname))
-        self._prefetched_objects_cache = {}
-        return self
+    def at_signature(self):
+        # what the certificate prints, from the register as it stands now, locked with the signature
+        self.signed_content = signed_content.at_sign_off(self, self._points_signed)
 
 
 class CalibrationPoint(models.Model):
@@ -899,17 +822,14 @@ def refuse_relinking_signed(sender, instance, action, reverse, pk_set, **kwargs)
             raise SignedRecordError(f"Calibration {instance.pk} is signed; its reference standards cannot be changed.")
 
 
-class CountersignatureQuerySet(models.QuerySet):
+class CountersignatureQuerySet(AlwaysSignedQuerySet):
     """Every countersignature is signed: no bulk update (it would re-point the signer or the event) or delete."""
 
-    def update(self, **kwargs):
-        raise SignedRecordError("A countersignature cannot be changed.")
-
-    def delete(self):
-        raise SignedRecordError("A countersignature cannot be deleted.")
+    changed_message = "A countersignature cannot be changed."
+    deleted_message = "A countersignature cannot be deleted."
 
 
-class Countersignature(models.Model):
+class Countersignature(SignedRecord):
     """A reviewer's countersignature: a separate, append-only record, so the signed event stays untouched."""
 
     event = models.OneToOneField(CalibrationEvent, on_delete=models.PROTECT, related_name="countersignature")
@@ -919,13 +839,14 @@ class Countersignature(models.Model):
     at = models.DateTimeField(default=timezone.now)
 
     objects = CountersignatureQuerySet.as_manager()
+    ledger_kind = COUNTERSIGNATURE.name
 
     def save(self, *args, **kwargs):
         if self.pk:
             raise SignedRecordError("A countersignature cannot be changed.")
-        with transaction.atomic():
+        with transaction.atomic():  # signed as it is written
             super().save(*args, **kwargs)
-            chain.append(COUNTERSIGNATURE.name, self.pk)
+            self.seal()
 
     def delete(self, *args, **kwargs):
         raise SignedRecordError("A countersignature cannot be deleted.")

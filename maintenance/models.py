@@ -11,14 +11,12 @@ import secrets
 from django.conf import settings
 from django.core.exceptions import ValidationError
 from django.core.validators import MaxValueValidator, MinValueValidator
-from django.db import models, transaction
+from django.db import models
 from django.urls import reverse
 from django.utils import timezone
 from simple_history.models import HistoricalRecords
 
-from calibration import models as calibration_models
-from calibration.models import SignedRecordError, signature_errors
-from ledger import chain
+from ledger.signed import LockedQuerySet, SignedRecord, SignedRecordError, signature_errors
 from maintenance import loop
 from maintenance.ledger_kinds import MAINTENANCE
 from plant import citations
@@ -49,7 +47,7 @@ class MaintenanceTask(ProtectedWhileCited, models.Model):
     since = models.DateField("set up on", default=timezone.localdate)
     active = models.BooleanField(default=True)
     change_reason = models.CharField("reason for the last change", max_length=300, blank=True)
-    # kept by maintenance.fleet (batched write) and on every signed record; not in the audit trail
+    # kept by scheduling.maintenance_due (batched write) and on every signed record; not in the audit trail
     frequency_days = models.PositiveIntegerField(null=True, blank=True, editable=False)
     last_done = models.DateField(null=True, blank=True, editable=False)
     last_condition = models.CharField(max_length=20, blank=True, editable=False)
@@ -87,20 +85,20 @@ class MaintenanceTask(ProtectedWhileCited, models.Model):
         super().save(*args, **kwargs)
 
 
-class LockedQuerySet(calibration_models.LockedQuerySet):
-    """Refuses bulk update/delete that would touch a signed record, as for calibrations."""
+class MaintenanceQuerySet(LockedQuerySet):
+    """Refuses bulk update/delete that would touch a signed record, as for calibrations (ledger/signed.py)."""
 
     record_model = "maintenance.MaintenanceRecord"
     changed_message = "Signed maintenance records cannot be changed."
     deleted_message = "Signed maintenance records cannot be deleted."
 
 
-class PhotoQuerySet(LockedQuerySet):
+class PhotoQuerySet(MaintenanceQuerySet):
     signed_lookup = "record__state"
     parent = "record"
 
 
-class MaintenanceRecord(models.Model):
+class MaintenanceRecord(SignedRecord):
     class State(models.TextChoices):
         DRAFT = "draft", "Draft"
         SIGNED = "signed", "Signed"
@@ -129,7 +127,10 @@ class MaintenanceRecord(models.Model):
     client_id = models.UUIDField(null=True, blank=True, unique=True, editable=False)
     history = HistoricalRecords()
 
-    objects = LockedQuerySet.as_manager()
+    objects = MaintenanceQuerySet.as_manager()
+    # sign() is the signed record's (ledger/signed.py): sealed in the chain with its photos; the task's and the
+    # device's due dates follow in the same transaction (scheduling listens)
+    ledger_kind = MAINTENANCE.name
 
     class Meta:
         ordering = ["-performed_on", "-id"]
@@ -175,29 +176,6 @@ class MaintenanceRecord(models.Model):
         if self._stored_state() == self.State.SIGNED:
             raise SignedRecordError(f"Maintenance record {self.pk} is signed and cannot be deleted.")
         return super().delete(*args, **kwargs)
-
-    def sign(self, by, role="Technician", at=None):
-        """Lock the record; one signer wins when two sign at once. The task's due date and the meter's
-        calibration due date (the fouling finding) are recomputed in the same transaction."""
-        with transaction.atomic():
-            claimed = MaintenanceRecord.objects.filter(pk=self.pk, state=self.State.DRAFT).update(signed_by=by)
-            if not claimed:
-                current = MaintenanceRecord.objects.filter(pk=self.pk).values_list("signed_by", flat=True).first()
-                raise SignedRecordError(f"Maintenance record {self.pk} is already signed by {current}.")
-            fresh = MaintenanceRecord.objects.select_for_update().get(pk=self.pk)
-            fresh.state = self.State.SIGNED
-            fresh.signed_by = by
-            fresh.signed_role = role
-            fresh.signed_at = at or timezone.now()
-            super(MaintenanceRecord, fresh).save()
-            from calibration.fleet import recompute_due_dates
-
-            # the calibration recompute refreshes this meter's maintenance due dates first (maintenance.fleet)
-            recompute_due_dates(Meter.objects.filter(pk=fresh.meter_id))
-            # sealed in the record chain with its photos, in the same transaction: keep this the last write
-            chain.append(MAINTENANCE.name, fresh.pk)
-        self.refresh_from_db()
-        return self
 
 
 def photo_path(instance, filename):

@@ -1,8 +1,13 @@
 """The duty of a meter changes -> its derived maintenance tasks follow (maintenance/sync.py)."""
 from django.db.models.signals import post_save
-from django.dispatch import receiver
+from django.dispatch import Signal, receiver
 
 from plant.models import Fluid, Meter, Position
+from plant.signals import devices_registered
+
+# Tasks were added or changed by hand (a reviewer's form, the demo builder): their stored due dates are stale.
+# Keyword arguments: devices (device ids, or anything `meter_id__in` accepts; None: every device).
+tasks_changed = Signal()
 
 
 @receiver(post_save, sender=Meter, dispatch_uid="maintenance-meter-tasks")
@@ -36,3 +41,11 @@ def position_saved(sender, instance, raw=False, created=False, **kwargs):
 
         device.position = instance
         sync_tasks(device)
+
+
+@receiver(devices_registered, dispatch_uid="maintenance-registered-tasks")
+def devices_registered_in_bulk(sender, devices, duty_findings, user=None, **kwargs):
+    """New devices written in bulk (the register import): their derived tasks, written in bulk too."""
+    from maintenance.sync import add_tasks_in_bulk
+
+    add_tasks_in_bulk(devices, duty_findings, user)

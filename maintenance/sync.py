@@ -54,3 +54,27 @@ def sync_tasks(meter, today=None):
             task.active = False
             _saved(task, RETIRED_BY_DUTY)
     return specs
+
+
+def add_tasks_in_bulk(devices, duty_findings, user):
+    """The derived tasks of new devices written in bulk (the register import), as sync_tasks writes them one by
+    one: same fields, reasons and audit rows. duty_findings: each device's principle×fluid findings, aligned."""
+    from maintenance import loop
+    from plant.importer import insert_with_history
+
+    today = timezone.localdate()  # the day sync_tasks sets a derived task up
+    tasks = []
+    for device, findings in zip(devices, duty_findings):
+        for spec in catalogue.derive_tasks(device.principle, findings):
+            task = MaintenanceTask(meter=device, code=spec.code, title=spec.title, reason=spec.reason,
+                                   basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
+                                   since=today)
+            reason = "Called for by the duty: " + spec.explanation()  # as sync_tasks writes it
+            task.change_reason = reason[:300]
+            task._change_reason = task.change_reason[:100]
+            # what MaintenanceTask.save sets
+            task.start_days = catalogue.shortened(int(task.base_days), float(task.severity_factor))
+            task.frequency_days = task.start_days
+            task.next_due_date = loop.next_due(None, task.frequency_days, task.since)
+            tasks.append(task)
+    insert_with_history(MaintenanceTask, tasks, user)

@@ -3,14 +3,15 @@ from django.contrib import messages
 from django.contrib.auth.decorators import permission_required
 from django.core.exceptions import PermissionDenied
 from django.http import FileResponse, Http404
+from django.db import transaction
 from django.shortcuts import get_object_or_404, redirect, render
 from django.views.decorators.http import require_POST
 
-from calibration.models import SignedRecordError
+from ledger.signed import SignedRecordError
 from maintenance import loop
-from maintenance.fleet import recompute_maintenance
 from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
+from maintenance.signals import tasks_changed
 from plant.db_failures import nothing_saved_page
 from plant.models import Meter
 from plant.params import query_id
@@ -77,8 +78,9 @@ def photo(request, pk):
 def _task_form(request, meter, task):
     form = TaskForm(request.POST or None, instance=task)
     if request.method == "POST" and form.is_valid():
-        saved = form.save()
-        recompute_maintenance([meter.pk])
+        with transaction.atomic():
+            saved = form.save()
+            tasks_changed.send(sender=MaintenanceTask, devices=[meter.pk])  # the due dates follow (scheduling)
         messages.success(request, f"Task “{saved.title}” saved.")
         return redirect(meter.get_absolute_url() + "#maintenance")
     return render(request, "maintenance/task_form.html", {"form": form, "meter": meter, "task": task},

@@ -47,7 +47,9 @@ from django.utils import timezone
 from plant import units
 from plant import installations, risk, spreadsheet
 from plant.forms import FluidForm, MeterForm, PositionForm
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, flows_above_range
+from plant.models import (Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, flows_above_range,
+                          flows_checked_together)
+from plant.signals import devices_changed, devices_registered
 
 FLUID_COLUMNS = [
     "name", "phase", "conductivity_us_cm", "density_kg_m3", "viscosity_mpa_s", "solids", "chlorides", "scaling",
@@ -324,10 +326,9 @@ class RegisterRowForm:
 
     def is_valid(self) -> bool:
         # the flows-against-range check needs both rows' new values: it is made once, below, not by the position
-        self.instance.position._device_checked_elsewhere = True
-        self.instance.device._position_checked_elsewhere = True
-        self.position_form.is_valid()
-        self.device_form.is_valid()
+        with flows_checked_together(self.instance.position, self.instance.device):
+            self.position_form.is_valid()
+            self.device_form.is_valid()
         self.errors = {**{k: list(v) for k, v in self.position_form.errors.items()},
                        **{k: list(v) for k, v in self.device_form.errors.items()}}
         # judged whenever both values are numbers (a refused range rule does not hide a flow above it)
@@ -344,7 +345,7 @@ class RegisterRowForm:
         return not self.errors
 
     def save(self):
-        with transaction.atomic():
+        with transaction.atomic(), flows_checked_together(self.instance.position, self.instance.device):
             position = self.position_form.save()
             if self.new:
                 device = self.device_form.save(commit=False)
@@ -880,7 +881,7 @@ def _insert(model, columns: list, rows: list[list]) -> None:
             cursor.executemany(sql, prepared[start:start + WRITE_BATCH * 10])
 
 
-def _with_history(model, objects, user):
+def insert_with_history(model, objects, user):
     """Insert new `objects` with their audit rows ("created", with the user and each object's change reason), as
     saving them one by one would have made. Sets their ids."""
     if not objects:
@@ -922,19 +923,18 @@ def _plain(model, objects):
 
 
 def _write(plan: Plan, user) -> None:
-    """Save a checked plan (inside the caller's transaction)."""
-    from calibration.fleet import recompute_due_dates
-
+    """Save a checked plan (inside the caller's transaction); the listeners of devices_changed recompute the due
+    dates of the devices it touched."""
     register = plan.register
     changed = [row for row in plan.rows if row.action in ("create", "update")]
     if plan.kind == "fluids":
         for row in changed:
             if row.action == "update":
                 row.form.save()  # the fluid's meters are re-judged and their tasks follow (Fluid.save, signals)
-        _with_history(Fluid, [row.form.instance for row in changed if row.action == "create"], user)
+        insert_with_history(Fluid, [row.form.instance for row in changed if row.action == "create"], user)
         updated = [row.form.instance.pk for row in changed if row.action == "update"]
         if updated:
-            recompute_due_dates(Meter.objects.filter(position__fluid__in=updated))
+            devices_changed.send(sender=Meter, devices=Meter.objects.filter(position__fluid__in=updated))
         return
 
     Site.objects.bulk_create(register.new_sites, batch_size=WRITE_BATCH)
@@ -953,9 +953,10 @@ def _write(plan: Plan, user) -> None:
         # the new devices' ids; a device another session added meanwhile is recomputed too, which is harmless
         touched |= Q(pk__range=(min(new_ids), max(new_ids)))
     if len(updated_ids) > 10 * LOOKUP_BATCH:
-        recompute_due_dates()  # the whole fleet in one pass costs less than a query naming every id
+        # the whole fleet in one pass costs less than a query naming every id
+        devices_changed.send(sender=Meter, devices=None)
     elif updated_ids or new_ids:
-        recompute_due_dates(Meter.objects.filter(touched))
+        devices_changed.send(sender=Meter, devices=Meter.objects.filter(touched))
 
 
 def _unfit_fields(row: RegisterRow, user) -> dict:
@@ -969,46 +970,29 @@ def _unfit_fields(row: RegisterRow, user) -> dict:
 def _create_rows(rows: list[RegisterRow], user) -> list[int]:
     """New positions, each with a new device installed there, written in bulk as plant.installations.install
     writes them one by one: the position, the device (in service there, its risk judged), its installation from
-    today at the site, its first duty period, and the maintenance tasks its duty calls for."""
-    from maintenance import loop
-    from maintenance import tasks as catalogue
-    from maintenance.models import MaintenanceTask
-
+    today at the site and its first duty period; the listeners of devices_registered add what else a new device
+    brings (the maintenance tasks its duty calls for)."""
     if not rows:
         return []
     today_at: dict[int, object] = {}
     for row in rows:
         site = row.position.area.site
         row.today = today_at.setdefault(id(site), site.today())
-    _with_history(Position, [row.position for row in rows], user)
-    devices = []
+    insert_with_history(Position, [row.position for row in rows], user)
+    devices, duty_findings = [], []
     for row in rows:
         device = row.device
         device.position = row.position
         device.status = Meter.Status.IN_SERVICE
-        device._duty_findings = device.duty_findings()  # a new device: no maintenance findings yet
-        device.risk_severity = risk.worst_severity(device._duty_findings)  # as Meter.save judges it
+        findings = device.duty_findings()  # a new device: no maintenance findings yet
+        device.risk_severity = risk.worst_severity(findings)  # as Meter.save judges it
         devices.append(device)
-    _with_history(Meter, devices, user)
-    _with_history(Installation, [Installation(device=row.device, position=row.position, since=row.today,
-                                              installed_by=user, starting_point={}, **_unfit_fields(row, user))
-                                 for row in rows], user)
+        duty_findings.append(findings)
+    insert_with_history(Meter, devices, user)
+    insert_with_history(Installation, [Installation(device=row.device, position=row.position, since=row.today,
+                                                    installed_by=user, starting_point={}, **_unfit_fields(row, user))
+                                       for row in rows], user)
     _plain(DutyPeriod, [DutyPeriod(meter=row.device, position=row.position, area_id=row.position.area_id,
                                    fluid_id=row.position.fluid_id, since=row.today) for row in rows])
-    tasks_today = timezone.localdate()  # the day sync_tasks sets a derived task up
-    tasks = []
-    for device in devices:
-        for spec in catalogue.derive_tasks(device.principle, device._duty_findings):
-            task = MaintenanceTask(meter=device, code=spec.code, title=spec.title, reason=spec.reason,
-                                   basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
-                                   since=tasks_today)
-            reason = "Called for by the duty: " + spec.explanation()  # as maintenance.sync.sync_tasks writes it
-            task.change_reason = reason[:300]
-            task._change_reason = task.change_reason[:100]
-            # what MaintenanceTask.save sets
-            task.start_days = catalogue.shortened(int(task.base_days), float(task.severity_factor))
-            task.frequency_days = task.start_days
-            task.next_due_date = loop.next_due(None, task.frequency_days, task.since)
-            tasks.append(task)
-    _with_history(MaintenanceTask, tasks, user)
+    devices_registered.send(sender=Meter, devices=devices, duty_findings=duty_findings, user=user)
     return [device.pk for device in devices]

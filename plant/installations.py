@@ -14,6 +14,7 @@ from django.db import transaction
 from plant import units
 from plant import fit
 from plant.models import Installation, Meter, Position, flows_above_range
+from plant.signals import device_moved, devices_changed
 
 UNFIT_PERMISSION = "plant.accept_unfit_device"
 
@@ -36,28 +37,31 @@ POSITION_FIELDS = ("tag", "area", "fluid", "line_size", "internal_diameter_mm", 
                    "min_flow", "required_accuracy_pct")
 
 
-def starting_point(device: Meter) -> dict:
-    """The as-left of the device's last signed, not superseded calibration: its state when it was put away,
-    which is where its drift starts again at the new position. Empty when it was never calibrated."""
-    from calibration.models import CalibrationEvent, CalibrationPoint, in_force
+# What an installation keeps as the device's starting point is read from its calibration records, which plant
+# does not know: the calibration app registers the reader (CalibrationConfig.ready()).
+_starting_point_readers = []
 
-    event = (CalibrationEvent.objects.filter(in_force(), meter=device, state=CalibrationEvent.State.SIGNED)
-             .order_by("-performed_on", "-id").prefetch_related("points").first())
-    if event is None:
-        return {}
-    as_left = event.points_of(CalibrationPoint.Kind.AS_LEFT) or event.points_of(CalibrationPoint.Kind.AS_FOUND)
-    return {
-        "event_id": event.pk, "performed_on": event.performed_on.isoformat(),
-        "in_tolerance": event.as_left_in_tolerance,
-        "points": [{"nominal_pct": p.nominal_pct, "error": p.error, "mpe": p.mpe} for p in as_left],
-    }
+
+def read_starting_point_with(reader):
+    """Register `reader(device) -> dict` (the as-left of the device's last calibration; {} when none)."""
+    if reader not in _starting_point_readers:
+        _starting_point_readers.append(reader)
+
+
+def starting_point(device: Meter) -> dict:
+    """The device's state when it was put away, which is where its drift starts again at the new position (the
+    registered reader's; empty when it was never calibrated or no reader is registered)."""
+    for reader in _starting_point_readers:
+        found = reader(device)
+        if found:
+            return found
+    return {}
 
 
 def refresh_due(device: Meter):
-    """The device's stored due date recomputed from its signed records, so the check below trusts no stale value."""
-    from calibration.fleet import recompute_due_dates
-
-    recompute_due_dates(Meter.objects.filter(pk=device.pk))
+    """The device's stored due date recomputed from its signed records (by whoever listens to devices_changed),
+    so the check below trusts no stale value."""
+    devices_changed.send(sender=Meter, devices=Meter.objects.filter(pk=device.pk))
     device.refresh_from_db(fields=["last_calibrated", "next_due_date", "due_rationale", "risk_severity"])
 
 
@@ -151,13 +155,10 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
 
 
 def _after_move(device: Meter, on_date: dt.date, recompute=True):
-    """The duty history follows the move and the due date is recomputed with the new duty's risk (the stored
-    risk and the derived maintenance tasks followed at device.save())."""
-    from calibration.fleet import recompute_due_dates
-
+    """The duty history follows the move; the listeners recompute the due date with the new duty's risk (the
+    stored risk and the derived maintenance tasks followed at device.save())."""
     device.record_duty_change(on_date)
-    if recompute:
-        recompute_due_dates(Meter.objects.filter(pk=device.pk))
+    device_moved.send(sender=Meter, device=device, on_date=on_date, settle_due=recompute)
 
 
 def _install(device, position, on_date, user, *, new_device=False, recompute=True,

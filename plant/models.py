@@ -1,5 +1,7 @@
 """The installed-meter register: sites, areas, fluids (service duty), meters and their duty history."""
+import contextvars
 import math
+from contextlib import contextmanager
 
 from django.conf import settings
 from django.core.exceptions import ValidationError
@@ -9,13 +11,16 @@ from django.urls import reverse
 from simple_history.models import HistoricalRecords
 
 from plant import units
-from plant import citations, localtime, materials, risk
+from plant import citations, evidence, localtime, materials, risk
 from plant.citations import CitedQuerySet, ProtectedWhileCited
 
 UNKNOWN_MATERIAL = (
     '"%(value)s" is not on the list of wetted materials; choose one of the list (its code or name), '
     "or leave it blank and describe it under material details."
 )
+
+# "not given": the caller holds no fluid for a spare, so the device reads its own duty history
+UNREAD = object()
 
 # A sanity bound, not a policy: the policy bounds of computed intervals are CALIBRATION min/max_interval_days.
 MAX_BASE_INTERVAL_DAYS = 3650
@@ -228,7 +233,7 @@ class Position(ProtectedWhileCited, models.Model):
         minimum = None if "min_flow" in errors else number_or_none(self.min_flow)
         if minimum is not None and normal is not None and minimum > normal:
             errors["min_flow"] = "The minimum flow cannot be above the normal flow."
-        device = self.installed_device() if self.pk and not getattr(self, "_device_checked_elsewhere", False) else None
+        device = self.installed_device() if self.pk and id(self) not in _checked_together.get() else None
         if device is not None and not errors:
             errors.update(flows_above_range(self, device))
         if errors:
@@ -275,6 +280,22 @@ class Position(ProtectedWhileCited, models.Model):
     def assess_each_principle(self, wetted_material=""):
         """What a device of each principle would meet here, the least shortened first (plant/risk.py)."""
         return risk.assess_each_principle(wetted_material, self.fluid.props(), **self._flow_conditions())
+
+
+# the position and device (by identity) whose flows-against-range check the caller makes itself, with both new values
+_checked_together = contextvars.ContextVar("flows_checked_together", default=frozenset())
+
+
+@contextmanager
+def flows_checked_together(position, device):
+    """Inside: the position's and the device's own checks leave the flows-against-range check to the caller, who
+    has both rows' new values (the register import checks a row's position and device together; either row's own
+    check would compare with the other's stored values)."""
+    token = _checked_together.set(_checked_together.get() | {id(position), id(device)})
+    try:
+        yield
+    finally:
+        _checked_together.reset(token)
 
 
 def flows_above_range(position, device) -> dict:
@@ -360,7 +381,7 @@ class Meter(ProtectedWhileCited, models.Model):
         validators=[MinValueValidator(1, "The interval must be at least one day.")],
     )
     status = models.CharField(max_length=12, choices=Status.choices, default=Status.IN_SERVICE)
-    # kept by calibration.fleet.recompute_due_dates (bulk_update, so save() and duty history are not involved)
+    # kept by scheduling.fleet.recompute_due_dates (batched UPDATE statements, so save() and duty history are not involved)
     last_calibrated = models.DateField(null=True, blank=True, editable=False)
     next_due_date = models.DateField(null=True, blank=True, editable=False)
     due_rationale = models.JSONField(default=dict, blank=True, editable=False)
@@ -493,7 +514,7 @@ class Meter(ProtectedWhileCited, models.Model):
             elif not math.isfinite(high - low):
                 errors["range_max"] = "The range is too wide: range high minus range low must be a finite number."
         if (self.position_id and "range_max" not in errors and "flow_units" not in errors
-                and not getattr(self, "_position_checked_elsewhere", False)):
+                and id(self) not in _checked_together.get()):
             errors.update({"range_max": message for message in flows_above_range(self.position, self).values()})
         interval = number_or_none(self.base_interval_days)
         if interval is not None and interval > MAX_BASE_INTERVAL_DAYS:
@@ -518,40 +539,36 @@ class Meter(ProtectedWhileCited, models.Model):
         self.__dict__.pop("_last_duty_fluid", None)
 
     # Risk ------------------------------------------------------------------------------------------
-    def findings(self):
-        """The principle×fluid findings and those from what was found on the meter (maintenance)."""
-        return self.duty_findings() + self.evidence_findings()
+    def findings(self, evidence=None, last_fluid=UNREAD):
+        """The principle×fluid findings and those from what was found on the meter (maintenance).
+
+        evidence: the findings from what was found, when the caller read them already (the bulk recompute reads
+        the whole fleet's at once); last_fluid: for a spare, the fluid it last served, likewise."""
+        found = self.evidence_findings() if evidence is None else list(evidence)
+        return self.duty_findings(last_fluid) + found
 
     def evidence_findings(self):
-        """Findings from the meter's maintenance records (maintenance/loop.py: repeatedly found fouled).
-        The bulk recompute attaches them for the whole fleet from one read; otherwise one query."""
-        attached = getattr(self, "_evidence_findings", None)
-        if attached is not None:
-            return list(attached)
+        """Findings from what was found on the device, from the sources the apps above plant register
+        (plant/evidence.py; repeatedly found fouled, say)."""
         if self.pk is None:
             return []
-        from maintenance.fleet import PREFETCHED, evidence_from_prefetched, meter_evidence
+        return evidence.findings_of(self)
 
-        if hasattr(self, PREFETCHED):  # a page of meters read with maintenance.fleet.evidence_prefetch()
-            return evidence_from_prefetched(getattr(self, PREFETCHED))
-        return meter_evidence(self.pk)
-
-    def duty_findings(self):
+    def duty_findings(self, last_fluid=UNREAD):
         if self.position_id:
             return self.position.assess(self.principle, self.wetted_material)
-        fluid = self.fluid  # a spare: the fluid it last served, without the flows of a place
+        # a spare: the fluid it last served, without the flows of a place
+        fluid = self.fluid if last_fluid is UNREAD else last_fluid
         if fluid is None:
             return []  # a new device that has served nowhere yet
         return risk.assess(self.principle, self.wetted_material, fluid.props())
 
-    def risk_factor(self):
-        return risk.interval_factor(self.findings())
+    def risk_factor(self, evidence=None, last_fluid=UNREAD):
+        return risk.interval_factor(self.findings(evidence, last_fluid))
 
-    def effective_interval_days(self):
-        """Base interval × risk factor, rounded by the one rule for intervals (calibration.intervals.whole_days)."""
-        from calibration.intervals import whole_days
-
-        return max(1, whole_days(self.base_interval_days * self.risk_factor()))
+    def effective_interval_days(self, evidence=None, last_fluid=UNREAD):
+        """Base interval × risk factor, rounded by the one rule for intervals (plant.risk.whole_days)."""
+        return max(1, risk.whole_days(self.base_interval_days * self.risk_factor(evidence, last_fluid)))
 
 
 class DutyPeriod(ProtectedWhileCited, models.Model):

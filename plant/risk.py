@@ -192,6 +192,14 @@ def worst_severity(findings) -> str:
     return next((s for s in SEVERITIES if s in present), "")
 
 
+def whole_days(x: float) -> int:
+    """The one rounding rule for intervals: nearest whole day, halves upward (not banker's rounding).
+
+    Used by the staircase, the reliability interval, the risk factor and the drift shortening alike.
+    """
+    return int(math.floor(checks.number("x", x) + 0.5))
+
+
 def interval_factor(findings) -> float:
     """Smallest interval factor among findings; 1.0 if there are none. A factor that is NaN, ±inf, <= 0 or
     above 1 is refused (ValueError naming the finding): a factor only ever shortens."""

@@ -31,6 +31,7 @@ INSTALLED_APPS = [
     "calibration",
     "reports",
     "maintenance",
+    "scheduling",  # the due-date engine: listens to the apps below it, none of them calls it
     "offline",
 ]
 

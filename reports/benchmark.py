@@ -2,7 +2,7 @@
 
 The naive recompute is what one writes first: for each meter, query its history, fit each point's drift
 with the scalar functions of calibration/drift.py, decide, and write that meter. It follows the same rules
-as calibration/fleet.py (the tests hold both to the same due dates), so the ratio of the two times measures
+as scheduling/fleet.py (the tests hold both to the same due dates), so the ratio of the two times measures
 the bulk reads and the vectorised math, nothing else. It lives here and is used nowhere else.
 """
 from __future__ import annotations
@@ -17,8 +17,9 @@ from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
 from calibration import decision as decision_rules
-from calibration import drift, fleet, intervals
+from calibration import drift, intervals
 from plant import risk
+from scheduling import fleet
 
 
 # The baseline -------------------------------------------------------------------------------------

@@ -202,7 +202,7 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
         "low_pc": (f"Points inside the MPE with p_c below {100 * LOW_PC:.0f} %: conformity not decided",
                    tables.ConformityRiskTable),
     }
-    from maintenance.fleet import evidence_prefetch
+    from scheduling.maintenance_due import evidence_prefetch
 
     # the risk list names each meter's findings, the fouling finding from its maintenance records among them
     # most urgent rows first: misapplied before high risk; the longest overdue (never calibrated first); the

@@ -5,7 +5,7 @@ from __future__ import annotations
 import datetime as dt
 
 from calibration import drift
-from calibration.fleet import load_history, point_histories
+from scheduling.fleet import load_history, point_histories
 from reports.charts import drift_chart_svg
 
 

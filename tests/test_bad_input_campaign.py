@@ -42,7 +42,7 @@ from hypothesis import strategies as st
 from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
 from scipy import stats as scipy_stats
 
-from calibration import due
+from scheduling import due
 from plant import units as flow_units
 from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard

@@ -9,7 +9,7 @@ from django.core.management import call_command
 
 from calibration import conformity
 from calibration.conformity_fleet import prior_for_meter, stored_fits
-from calibration.fleet import recompute_due_dates
+from scheduling.fleet import recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint, ErrorPrior, in_force
 from plant.models import Meter
 

@@ -8,10 +8,11 @@ from django.core.management import call_command
 
 import math
 
-from calibration import due, intervals
+from calibration import intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
 from plant.installations import commission
+from scheduling import due
 
 LAST = dt.date(2026, 1, 1)
 STAIR = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)  # the CALIBRATION policy's staircase

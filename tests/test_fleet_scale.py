@@ -15,8 +15,8 @@ import pytest
 from django.core.management import CommandError, call_command
 
 from calibration import drift
-from calibration.drift_fleet import predict_crossings
-from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
+from scheduling.drift_fleet import predict_crossings
+from scheduling.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint
 from plant.models import Meter, Position
 from reports.benchmark import naive_recompute
@@ -172,7 +172,7 @@ def test_make_fleet_is_realistic_and_refuses_a_second_fleet():
 def test_make_fleet_same_seed_same_history():
     from django.db import transaction
 
-    from calibration.synthetic import FleetBuilder
+    from scheduling.synthetic import FleetBuilder
 
     def build_and_read(seed):
         with transaction.atomic():
@@ -192,7 +192,8 @@ def test_make_fleet_same_seed_same_history():
 def test_vectorised_staircase_equals_the_scalar_sequence():
     """fleet.staircase_steps (all meters at once) against intervals.staircase_sequence meter by meter, with
     base intervals inside and outside the bounds and records of every length (OIML D 10 method 1)."""
-    from calibration import fleet, intervals
+    from calibration import intervals
+    from scheduling import fleet
 
     rng = random.Random(3)
     kw = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)

@@ -8,7 +8,7 @@ U > MPE). The point's U is then the standard's alone (no repeats, no resolution)
 MPE - U = 0.75 %, MPE = 1.0 %, MPE + U = 1.25 %. Indications are chosen so that
 error = 100 × (indicated - 20) / 20 lands on each limit: 20.15 -> 0.75 %, 20.2 -> 1.0 %, 20.25 -> 1.25 %.
 
-Due dates, worked by hand from calibration/due.py with the default policy (min 30 d, max 1095 d, drift
+Due dates, worked by hand from scheduling/due.py with the default policy (min 30 d, max 1095 d, drift
 margin 30 d). A single calibration on 2026-11-20 gives the interval method no observed interval, so the
 meter's base interval holds when it conforms: 2026-11-20 + 365 d = 2027-11-20 (no risk finding, no trend
 from one calibration); when it is observed beyond the MPE the base is shortened by one staircase step (OIML D 10
@@ -25,7 +25,7 @@ import pytest
 
 from calibration import decision
 from calibration.uncertainty import coverage_factor
-from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
+from scheduling.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Area, Fluid, Meter, Site
 from plant.installations import commission

@@ -192,7 +192,7 @@ def test_failure_mid_apply_rolls_back_everything(register, monkeypatch, failing)
         if not importer._fast_writes():
             monkeypatch.setattr(DutyPeriod.objects, "bulk_create", fail)
     else:
-        monkeypatch.setattr("calibration.fleet.recompute_due_dates", fail)
+        monkeypatch.setattr("scheduling.fleet.recompute_due_dates", fail)
     with pytest.raises(RuntimeError, match="disk on fire"):
         importer.apply_import(plan)
     monkeypatch.undo()

@@ -4,7 +4,7 @@ import pytest
 from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
-from calibration.fleet import recompute_due_dates
+from scheduling.fleet import recompute_due_dates
 from maintenance.models import MaintenanceTask
 from plant import importer
 from plant.installations import commission

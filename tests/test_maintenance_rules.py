@@ -8,7 +8,8 @@ import datetime as dt
 import numpy as np
 import pytest
 
-from maintenance import fleet, loop, tasks
+from maintenance import loop, tasks
+from scheduling import maintenance_due as fleet
 from plant import risk
 from plant.risk import FluidProps
 

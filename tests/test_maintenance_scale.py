@@ -7,7 +7,7 @@ import pytest
 from django.core.management import call_command
 
 from maintenance import loop
-from maintenance.fleet import meter_evidence, recompute_maintenance
+from scheduling.maintenance_due import meter_evidence, recompute_maintenance
 from maintenance.models import MaintenanceRecord, MaintenanceTask
 from plant.models import Meter
 

@@ -19,8 +19,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from calibration import decision, drift, drift_fleet, due, errors, intervals
+from calibration import decision, drift, errors, intervals
 from plant import units
+from scheduling import drift_fleet, due
 from calibration import uncertainty as unc
 from maintenance import loop, tasks
 from plant import risk
@@ -80,13 +81,13 @@ CASES = [
       "horizon_days": NONFINITE + [0.0, -5.0]}),
     ("fitted_current_error", lambda **kw: drift.fitted_current_error(drift.cumulative_drift(history()), **kw),
      dict(slope=0.001), {"slope": NONFINITE}),
-    # calibration/drift_fleet.py
+    # scheduling/drift_fleet.py
     ("predict_crossings", lambda rows_override=None, limit=1.0, **kw: drift_fleet.predict_crossings(
         fleet_rows(**(rows_override or {})), pd.Series({0: limit}), **kw), dict(),
      {"limit": NONFINITE + [0.0, -1.0], "confidence": [NAN, 0.0, 1.0], "alpha": [NAN, 1.0],
       "horizon_days": [NAN, INF, 0.0], "negligible_rate": [NAN, -1.0],
       "rows_override": ([{"day": NAN}, {"day": INF}, {"as_found": INF}, {"as_left": -INF}], ("rows",))}),
-    # calibration/due.py
+    # scheduling/due.py
     ("decide_due", due.decide_due, dict(last=DAY, method_interval_days=365),
      {"method_interval_days": NONFINITE + [0, -1, 1.5, None], "risk_factor": NONFINITE + [0.0, -0.5, 1.5],
       "shorten_factor": NONFINITE + [0.0, 2.0], "margin_days": [NAN, INF, -1], "min_days": [NAN, 0],

@@ -7,7 +7,7 @@ import pytest
 from django.db import connection
 from django.test.utils import CaptureQueriesContext
 
-from calibration.fleet import UPDATED_FIELDS, recompute_due_dates
+from scheduling.fleet import UPDATED_FIELDS, recompute_due_dates
 from plant.models import Meter
 
 

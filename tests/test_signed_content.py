@@ -16,7 +16,8 @@ from django.db import connection
 from django.db.migrations.executor import MigrationExecutor
 from django.test import Client
 
-from calibration import fleet, signed_content
+from calibration import signed_content
+from scheduling import fleet
 from calibration.models import CalibrationEvent, CalibrationPoint, SignedRecordError
 from plant.models import Area, Fluid, Meter, Position, Site
 from reports import certificate

@@ -20,7 +20,7 @@ from django.db import transaction
 from calibration import errors
 from plant import units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from calibration.synthetic import NOMINALS, invented_found_errors
+from calibration.invented import NOMINALS, invented_found_errors
 from plant.models import Meter
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_history.json"
@@ -94,7 +94,7 @@ class Command(BaseCommand):
     def _history(self, meter, rng, standards):
         """One meter's invented history, kept the way a plant that is looked after keeps it: each next
         calibration is done on or a little before the due date the tracker gave after the previous one
-        (calibration/fleet.py recomputes it at every sign-off), except that a few meters miss their last one.
+        (scheduling/fleet.py recomputes it at every sign-off), except that a few meters miss their last one.
         """
         factor = meter.risk_factor()
         mpe = meter.mpe_value

@@ -20,8 +20,8 @@ from django.db import transaction
 
 from calibration.models import CalibrationEvent
 from maintenance import synthetic
-from maintenance.fleet import recompute_maintenance
 from maintenance.models import MaintenanceRecord, MaintenanceTask, WalkOrder
+from maintenance.signals import tasks_changed
 from plant.models import Area, Meter
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_maintenance.json"
@@ -89,7 +89,7 @@ class Command(BaseCommand):
                     made[i].notes = note
                 MaintenanceRecord.objects.bulk_create(made)
                 records += len(made)
-        recompute_maintenance()
+        tasks_changed.send(sender=MaintenanceTask, devices=None)  # the stored due dates follow (scheduling)
         call_command("dumpdata", "maintenance.walkorder", "maintenance.maintenancetask",
                      "maintenance.maintenancerecord", indent=1, output=output)
         self.stdout.write(self.style.SUCCESS(f"{records} signed maintenance records written to {output}"))

@@ -12,7 +12,7 @@ from django.db.models import Count
 from django.test import Client
 from tqdm import tqdm
 
-from calibration.fleet import recompute_due_dates
+from scheduling.fleet import recompute_due_dates
 from calibration.forms import NOMINAL_POINTS, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.models import Meter
@@ -86,7 +86,7 @@ class Command(BaseCommand):
         share = conformity / max(fast - conformity, 1e-9)
         rows.append(("  of which conformity risk (priors, PFA, p_c)", f"{conformity:.2f} s ({100 * share:.0f} % added)",
                      f"< {100 * TARGETS['conformity_share']:.0f} % added", share < TARGETS["conformity_share"]))
-        from maintenance.fleet import recompute_maintenance
+        from scheduling.maintenance_due import recompute_maintenance
 
         maintenance, _ = benchmark.timed(recompute_maintenance, repeat=repeat)
         rows.append(("  of which maintenance (nothing changed, nothing written)", f"{maintenance:.2f} s", "", None))

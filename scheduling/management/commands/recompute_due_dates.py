@@ -1,7 +1,7 @@
 from django.core.management import BaseCommand
 from tqdm import tqdm
 
-from calibration.fleet import recompute_due_dates
+from scheduling.fleet import recompute_due_dates
 from plant.models import Meter
 
 

@@ -5,8 +5,8 @@ from django.core.management import BaseCommand, CommandError
 from django.db import connection
 from tqdm import tqdm
 
-from calibration.fleet import recompute_due_dates
-from calibration.synthetic import FleetBuilder
+from scheduling.fleet import recompute_due_dates
+from scheduling.synthetic import FleetBuilder
 from ledger import chain
 
 

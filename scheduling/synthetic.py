@@ -1,7 +1,7 @@
 """A large invented fleet with ten years of signed calibration history, for benchmarks and scale tests.
 
 Seeded and deterministic: the same seed and size give the same plant, tags, dates and errors. Meters are
-variations on the demo plant's installations (plant/management/commands/build_demo_plant.py); drift is
+variations on the demo plant's installations (plant/demo_data.py); drift is
 invented as in the demo history (stable, steady drift, jumps after fouling), scaled by each duty's risk.
 Rows are written with bulk inserts in chunks of meters, so memory stays flat; the per-row save() checks
 are bypassed on purpose, the values being computed with the same functions those checks use.
@@ -14,13 +14,13 @@ import random
 from django.db import transaction
 
 from calibration import errors
+from calibration.invented import NOMINALS, invented_found_errors
 from plant import units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from plant.management.commands.build_demo_plant import FLUIDS, MAKERS, METERS
+from plant.demo_data import FLUIDS, MAKERS, METERS
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 
 TAG_PREFIX = "SYN-"
-NOMINALS = (10, 25, 50, 75, 100)
 YEARS = 10
 SITES = [
     ("Brackenholm Dairy Works", "Mill Road, Brackenholm (invented)"),
@@ -32,12 +32,6 @@ SITES = [
 AREAS = ["Intake", "Process A", "Process B", "CIP", "Boiler house", "Utilities", "Dosing", "Effluent"]
 TECHNICIANS = ["T. Arkwright-Nye", "L. Mbeki-Storr", "P. Halloran", "J. Vesterby", "K. Oduya"]
 PROCEDURE = "In-situ comparison against a portable reference meter in series, five points up the range (WP-SY-01)."
-
-
-def invented_found_errors(rng, offset, mpe):
-    """As-found errors at the nominal points: a common offset tilted up or down the range, plus scatter."""
-    shape = rng.uniform(-0.3, 0.3)
-    return [offset * (1 + shape * (n - 50) / 50) + rng.gauss(0, 0.05 * mpe) for n in NOMINALS]
 
 
 def fluids():
@@ -113,7 +107,6 @@ class FleetBuilder:
         )
         # spares and retired devices are on the shelf: they served at a place (their duty) but hold no position
         meter._duty = (position.area, position.fluid)
-        meter._last_duty_fluid = position.fluid
         return (position if status == "in_service" else None), meter
 
     def _chunk(self, start, size):
@@ -138,8 +131,6 @@ class FleetBuilder:
         DutyPeriod.objects.bulk_create([DutyPeriod(meter=m, position=m.position, area=m._duty[0], fluid=m._duty[1],
                                                    since=since, until=None if m.position else self.today)
                                         for m in meters])
-        for meter in meters:  # no maintenance findings while the calibration history is invented
-            meter._evidence_findings = []
         plans = [(meter, self._history(meter)) for meter in meters]
         events = [event for _, history in plans for event, _ in history]
         CalibrationEvent.objects.bulk_create(events, batch_size=2000)
@@ -166,13 +157,15 @@ class FleetBuilder:
     def _history(self, meter):
         """[(event, (standard, points))] over ten years; the event verdicts are computed here."""
         rng = self.rng
-        factor = meter.risk_factor()
+        fluid = meter._duty[1]  # a spare's too: the fluid of the duty it served
+        # no maintenance findings while the calibration history is invented
+        factor = meter.risk_factor(evidence=[], last_fluid=fluid)
         mpe = meter.mpe_value
         behaviour = rng.choices(["stable", "steady", "fouling"], weights=[6, 3, 1] if factor >= 1 else [3, 4, 3])[0]
         rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.5) * rng.choice([-1, 1])
-        interval = max(365, meter.effective_interval_days())
+        interval = max(365, meter.effective_interval_days(evidence=[], last_fluid=fluid))
         day = self.today - dt.timedelta(days=int(365.25 * YEARS) - rng.randint(0, 120))
-        standard = self.standards[("gas" if meter.fluid.phase in ("gas", "steam") else "liquid", meter.flow_units)]
+        standard = self.standards[("gas" if fluid.phase in ("gas", "steam") else "liquid", meter.flow_units)]
         rule = "guarded" if rng.random() < 0.1 else "simple"
         baseline = rng.uniform(-0.1, 0.1) * mpe
         history = []
@@ -187,7 +180,7 @@ class FleetBuilder:
             left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS] if adjust else []
             event = CalibrationEvent(
                 meter=meter, position=meter.position, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
-                ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=meter.fluid.temperature_c,
+                ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=fluid.temperature_c,
                 pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
                 decision_rule=rule, notes="Zero and span adjusted." if adjust else "",
                 state=CalibrationEvent.State.SIGNED, signed_by="", signed_role="Instrument technician",

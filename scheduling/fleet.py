@@ -1,9 +1,9 @@
 """Recompute next due dates for many meters from bulk queries and vectorised math.
 
 Three reads (meters, signed events, their points) whatever the fleet size; drift fits and crossing
-predictions for every (meter, nominal point) series at once (calibration/drift_fleet.py); the interval
+predictions for every (meter, nominal point) series at once (scheduling/drift_fleet.py); the interval
 method over each meter's own record, its staircase steps and binomial tests for all meters at once
-(calibration/intervals.py); the pure due-date rule per meter (calibration/due.py); one batched write. The
+(calibration/intervals.py); the pure due-date rule per meter (scheduling/due.py); one batched write. The
 same rules as the per-meter path of the meter page, which the benchmark keeps as its baseline and the tests
 compare with this one.
 """
@@ -22,10 +22,12 @@ from django.db import connections, transaction
 from django.db.models import Case, Q, Value, When
 
 from calibration import decision as decision_rules
-from calibration import drift, drift_fleet, due, intervals
+from calibration import conformity_fleet, drift, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, in_force, observed_or_verdict
 from plant import risk
-from plant.models import Fluid, Meter
+from plant.models import DutyPeriod, Fluid, Meter, Position
+from scheduling import drift_fleet, due, reads
+from scheduling.maintenance_due import recompute_maintenance
 
 UPDATED_FIELDS = ["last_calibrated", "next_due_date", "due_rationale", "drift_status", "drift_rate_per_year",
                   "predicted_crossing", "last_in_tolerance", "risk_severity"]
@@ -34,7 +36,6 @@ METER_INPUTS = ["id", "principle", "wetted_material", "flow_units", "mpe_value",
 # what the risk rules read of the position a device serves
 POSITION_INPUTS = ["id", "tag", "fluid", "internal_diameter_mm", "flow_units", "normal_flow", "min_flow"]
 STATUS_PRECEDENCE = ("out_of_tolerance", "scatter", "drifting", "improving", "flat", "insufficient")
-_UNIX_EPOCH_ORDINAL = dt.date(1970, 1, 1).toordinal()
 
 
 def policy():
@@ -88,29 +89,6 @@ def summarise_status(statuses):
 
 
 # Bulk reads ---------------------------------------------------------------------------------------
-def _frame(queryset, columns, numeric=False):
-    """Rows of a values_list queryset straight from the cursor (no per-row model or converter work).
-
-    numeric: every column is a number or NULL, so the rows go through one float array (NULL -> NaN),
-    much faster than column-by-column type inference for a million rows.
-    """
-    sql, params = queryset.values_list(*columns).query.sql_with_params()
-    with connections[queryset.db].cursor() as cursor:
-        cursor.execute(sql, params)
-        rows = cursor.fetchall()
-    if numeric:
-        return pd.DataFrame(np.array(rows, dtype=float).reshape(len(rows), len(columns)), columns=columns)
-    return pd.DataFrame.from_records(rows, columns=columns)
-
-
-def _ordinal_days(values: pd.Series) -> np.ndarray:
-    """Dates (date objects or ISO strings, as the database driver returns them) as proleptic ordinals."""
-    if values.empty:
-        return np.empty(0, dtype=float)
-    days = pd.to_datetime(values).to_numpy(dtype="datetime64[D]").astype(np.int64)
-    return (days + _UNIX_EPOCH_ORDINAL).astype(float)
-
-
 def _flag(values: pd.Series) -> pd.Series:
     """Nullable booleans (SQLite gives 0/1) as True/False/None."""
     flags = values.map({True: True, False: False, 1: True, 0: False}).astype(object)
@@ -127,8 +105,8 @@ def signed_events(where: Q | None = None):
     qs = qs.annotate(observed_in_tolerance=observed_or_verdict())
     columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
                "observed_in_tolerance"]
-    events = _frame(qs.order_by(), columns)
-    events["day"] = _ordinal_days(events["performed_on"])
+    events = reads.frame(qs.order_by(), columns)
+    events["day"] = reads.ordinal_days(events["performed_on"])
     events["adjusted"] = events["adjusted"].astype(bool)
     events["as_found_in_tolerance"] = _flag(events["as_found_in_tolerance"])
     # a COALESCE has no declared type: SQLite hands back 0/1 integers, NULL as None
@@ -146,7 +124,7 @@ def recorded_points(where: Q | None = None):
     """
     qs = CalibrationPoint.objects.all() if where is None else CalibrationPoint.objects.filter(where)
     qs = qs.order_by().annotate(as_left=Case(When(kind=CalibrationPoint.Kind.AS_LEFT, then=Value(1)), default=Value(0)))
-    points = _frame(qs, ["id", "event_id", "as_left", "nominal_pct", "error"], numeric=True)
+    points = reads.frame(qs, ["id", "event_id", "as_left", "nominal_pct", "error"], numeric=True)
     return points.astype({"id": np.int64, "event_id": np.int64, "as_left": np.int8})
 
 
@@ -293,12 +271,10 @@ def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
     return chosen
 
 
-def attach_duties(meters, meters_qs=None):
-    """Give each device the position it serves and that position's fluid (spares: the fluid of their last
-    duty) from three reads, so the risk rules run without a query per device. A few fluid objects are
-    shared rather than one copy per device."""
-    from plant.models import DutyPeriod, Position
-
+def attach_duties(meters, meters_qs=None) -> dict:
+    """Give each device the position it serves and that position's fluid from three reads, so the risk rules
+    run without a query per device; returns {spare's id: the fluid of its last duty (or None)}, for
+    Meter.findings(last_fluid=...). A few fluid objects are shared rather than one copy per device."""
     fluids = Fluid.objects.in_bulk()
     positions = Position.objects.only(*POSITION_INPUTS)
     positions = positions.filter(device__isnull=False) if meters_qs is None else positions.filter(device__in=meters_qs)
@@ -308,13 +284,15 @@ def attach_duties(meters, meters_qs=None):
     if spare_ids:
         duties = DutyPeriod.objects.filter(meter_id__in=spare_ids).order_by("meter_id", "since", "id")
         last_fluid = dict(duties.values_list("meter_id", "fluid_id"))  # the latest of each device wins
+    spare_fluids = {}
     for meter in meters:
         if meter.position_id is not None:
             position = positions[meter.position_id]
             position.fluid = fluids[position.fluid_id]
             meter.position = position
         else:
-            meter._last_duty_fluid = fluids.get(last_fluid.get(meter.pk))
+            spare_fluids[meter.pk] = fluids.get(last_fluid.get(meter.pk))
+    return spare_fluids
 
 
 # The recompute ------------------------------------------------------------------------------------
@@ -330,14 +308,10 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     if not meters:
         return 0
     stored = {m.pk: stored_due_fields(m) for m in meters}
-    attach_duties(meters, None if whole_fleet else meters_qs)
+    spare_fluids = attach_duties(meters, None if whole_fleet else meters_qs)
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
     # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
-    from maintenance.fleet import recompute_maintenance
-
     evidence = recompute_maintenance(chosen_ids)
-    for meter in meters:
-        meter._evidence_findings = evidence.get(meter.pk, [])
     events = signed_events(None if whole_fleet else Q(meter__in=chosen_ids))
     points = recorded_points(None if whole_fleet else Q(event__meter__in=chosen_ids))
     by_meter = {m.pk: m for m in meters}
@@ -356,22 +330,24 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
                                  "observed_in_tolerance"]].to_dict("index")
     drift_by_meter = drift_summary.to_dict("index")
     for meter in meters:
+        findings = meter.findings(evidence.get(meter.pk, []), spare_fluids.get(meter.pk))
         if meter.pk not in last_by_meter:
-            _no_history(meter)
+            _no_history(meter, findings)
         else:
-            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg)
+            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg, findings)
         if progress:
             progress(1)
     write_due_fields([m for m in meters if stored_due_fields(m) != stored[m.pk]], batch_size=batch_size)
     # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
-    from calibration.conformity_fleet import update_conformity
-
-    update_conformity(meters, events, points, last_events, whole_fleet)
+    fluid_ids = {m.pk: m.position.fluid_id if m.position_id else getattr(spare_fluids.get(m.pk), "pk", None)
+                 for m in meters}
+    conformity_fleet.update_conformity(meters, events, points, last_events, whole_fleet, fluid_ids)
     return len(meters)
 
 
-def _no_history(meter):
-    meter.risk_severity = risk.worst_severity(meter.findings())
+def _no_history(meter, findings=None):
+    """findings: the meter's, when the caller read them in bulk (else read here)."""
+    meter.risk_severity = risk.worst_severity(meter.findings() if findings is None else findings)
     meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = meter.last_in_tolerance = None
     meter.drift_status, meter.drift_rate_per_year = "insufficient", None
     meter.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
@@ -400,9 +376,10 @@ def found_out(value) -> bool:
 
 
 def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting",
-           scatter_reason=""):
-    """The pure due-date rule for one meter (calibration/due.py), with the policy's settings."""
-    findings = meter.findings()
+           scatter_reason="", findings=None):
+    """The pure due-date rule for one meter (scheduling/due.py), with the policy's settings (findings: the
+    meter's, when the caller read them in bulk; else read here)."""
+    findings = meter.findings() if findings is None else findings
     if last_failed:
         method = intervals.first_calibration_found_out(method, shorten=cfg["staircase_shorten"],
                                                        min_days=cfg["min_interval_days"],
@@ -425,7 +402,7 @@ def scatter_words(sd, mpe) -> str:
     return f"residual SD {sd:.3g} beside the MPE {mpe:g}"
 
 
-def _assess(meter, last_event, summary, method, cfg):
+def _assess(meter, last_event, summary, method, cfg, findings=None):
     last = dt.date.fromordinal(int(last_event["day"]))
     crossing = nominal = None
     crossing_reason = scatter_reason = ""
@@ -446,7 +423,8 @@ def _assess(meter, last_event, summary, method, cfg):
     # (issue 31: a point inside the MPE that a weak reference could not accept does not shorten the interval)
     observed = last_event["observed_in_tolerance"]
     decision, findings = decide(meter, last, found_out(observed), crossing,
-                                crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason)
+                                crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason,
+                                findings=findings)
     meter.risk_severity = risk.worst_severity(findings)
     meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
     # a last as-found beyond the MPE shows as "last found out of tolerance", whatever the fitted trend says

@@ -1,6 +1,6 @@
 """Maintenance due dates for many tasks at once: two reads, the loop vectorised over tasks, one batched write.
 
-Called by the calibration recompute (calibration/fleet.py) before it judges each meter, so the fouling finding
+Run by the calibration recompute (scheduling/fleet.py) before it judges each meter, so the fouling finding
 of maintenance/loop.py reaches the calibration interval from the same read. The per-task reference is the pure
 loop (maintenance/loop.py: next_frequency, next_due); tests hold both to the same stored fields.
 """
@@ -11,11 +11,12 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 from django.db import connections, transaction
-from django.db.models import Q
+from django.db.models import Prefetch, Q
 
 from maintenance import loop
+from maintenance.models import MaintenanceRecord, MaintenanceTask
+from scheduling import reads
 
-_EPOCH = dt.date(1970, 1, 1)
 CODES = [code for code, _ in loop.CONDITIONS]
 GOOD = np.array([c in loop.GOOD for c in CODES])
 SHORTENS = np.array([c in loop.SHORTENS for c in CODES])
@@ -25,8 +26,6 @@ WRITTEN = ["frequency_days", "last_done", "last_condition", "next_due_date"]
 
 def meter_evidence(meter_id) -> list:
     """The fouling finding of one meter from its last inspections (one query); [] when it has none."""
-    from maintenance.models import MaintenanceRecord
-
     recent = (MaintenanceRecord.objects.filter(meter_id=meter_id, state=MaintenanceRecord.State.SIGNED)
               .order_by("-performed_on", "-id").values_list("performed_on", "condition")[:loop.FOULED_WINDOW])
     finding = loop.fouling_finding(list(recent))
@@ -38,11 +37,7 @@ PREFETCHED = "signed_maintenance_newest"
 
 def evidence_prefetch():
     """Prefetch for a list of meters: their signed records newest first, so the fouling finding of every meter on a
-    page comes from one query (Meter.evidence_findings reads it)."""
-    from django.db.models import Prefetch
-
-    from maintenance.models import MaintenanceRecord
-
+    page comes from one query (findings_of reads it)."""
     return Prefetch("maintenance_records", to_attr=PREFETCHED, queryset=MaintenanceRecord.objects.filter(
         state=MaintenanceRecord.State.SIGNED).order_by("-performed_on", "-id").only("meter_id", "performed_on",
                                                                                      "condition"))
@@ -53,18 +48,12 @@ def evidence_from_prefetched(records) -> list:
     return [finding] if finding else []
 
 
-def _rows(queryset, columns):
-    sql, params = queryset.values_list(*columns).query.sql_with_params()
-    with connections[queryset.db].cursor() as cursor:
-        cursor.execute(sql, params)
-        return pd.DataFrame.from_records(cursor.fetchall(), columns=columns)
-
-
-def _days(values: pd.Series) -> np.ndarray:
-    """Dates (date objects or ISO strings) as days since 1970-01-01; NaT -> a very small number."""
-    if values.empty:
-        return np.empty(0, dtype=np.int64)
-    return pd.to_datetime(values).to_numpy(dtype="datetime64[D]").astype(np.int64)
+def findings_of(meter) -> list:
+    """The evidence source plant asks (plant/evidence.py): from the records prefetched with evidence_prefetch()
+    when the page read them, else one query."""
+    if hasattr(meter, PREFETCHED):
+        return evidence_from_prefetched(getattr(meter, PREFETCHED))
+    return meter_evidence(meter.pk)
 
 
 def vector_frequencies(start: np.ndarray, codes: np.ndarray) -> np.ndarray:
@@ -99,14 +88,12 @@ def recompute_maintenance(meter_ids=None, today=None) -> dict:
     meter_ids: None, or anything `meter_id__in` accepts (a values("pk") queryset). Returns {meter_id: [finding]}
     for the meters found fouled (maintenance/loop.py fouling_finding).
     """
-    from maintenance.models import MaintenanceRecord, MaintenanceTask
-
     where = Q() if meter_ids is None else Q(meter_id__in=meter_ids)
-    tasks = _rows(MaintenanceTask.objects.filter(where, active=True).order_by("pk"),
+    tasks = reads.frame(MaintenanceTask.objects.filter(where, active=True).order_by("pk"),
                   ["id", "meter_id", "start_days", "since"] + WRITTEN)
-    records = _rows(MaintenanceRecord.objects.filter(where, state=MaintenanceRecord.State.SIGNED).order_by(),
+    records = reads.frame(MaintenanceRecord.objects.filter(where, state=MaintenanceRecord.State.SIGNED).order_by(),
                     ["id", "task_id", "meter_id", "performed_on", "condition"])
-    records["day"] = _days(records["performed_on"])
+    records["day"] = reads.epoch_days(records["performed_on"])
     records["code"] = records["condition"].map({c: i for i, c in enumerate(CODES)}).astype(np.int64)
     records = records.sort_values(["day", "id"], kind="stable")
     fouling = _fouling(records)
@@ -125,11 +112,11 @@ def recompute_maintenance(meter_ids=None, today=None) -> dict:
     last = visits.drop_duplicates("task_id", keep="last").set_index("task_id")
     last_day = last["day"].reindex(tasks["id"]).to_numpy()
     last_condition = last["condition"].reindex(tasks["id"]).fillna("").to_numpy()
-    since = _days(tasks["since"])
+    since = reads.epoch_days(tasks["since"])
     done = ~np.isnan(last_day)
     due_day = np.where(done, np.nan_to_num(last_day) + frequency, since).astype(np.int64)
 
-    to_date = _EPOCH.toordinal()
+    to_date = reads.EPOCH_ORDINAL
     computed = pd.DataFrame({
         "id": tasks["id"].to_numpy(),
         "frequency_days": frequency,
@@ -159,15 +146,13 @@ def _fouling(records: pd.DataFrame) -> dict:
     hit = counts[(counts["size"] >= loop.FOULED_WINDOW) & (counts["sum"] >= loop.FOULED_OF)].index
     out = {}
     for meter_id, frame in window[window["meter_id"].isin(hit)].groupby("meter_id"):
-        recent = [(dt.date.fromordinal(int(d) + _EPOCH.toordinal()), c) for d, c in zip(frame["day"], frame["condition"])]
+        recent = [(dt.date.fromordinal(int(d) + reads.EPOCH_ORDINAL), c) for d, c in zip(frame["day"], frame["condition"])]
         out[int(meter_id)] = [loop.fouling_finding(recent)]
     return out
 
 
 def write_task_fields(frame: pd.DataFrame, batch_size=5000):
     """One batched UPDATE of the stored task fields (PostgreSQL: from unnest(arrays); SQLite: executemany)."""
-    from maintenance.models import MaintenanceTask
-
     if frame.empty:
         return
     connection = connections[MaintenanceTask.objects.db]
