@@ -1,10 +1,10 @@
 """What a calibration certificate prints, frozen into the signed record (ISO/IEC 17025:2017 §7.8.2.1, §7.8.8).
 
-At sign-off (CalibrationEvent._sign_once) everything the certificate prints is copied from the register as it
-stands that moment into plain JSON (``at_sign_off``), with a version number, and stored on the locked record; a
-certificate renders from that alone, so editing the device, the position, its area, site or fluid, or a reference
-standard afterwards never changes an issued certificate. The SHA-256 of its canonical JSON lets two copies be
-compared (``digest``).
+At sign-off (CalibrationEvent.at_signature, in the one sign path of ledger/signed.py) everything the certificate
+prints is copied from the register as it stands that moment into plain JSON (``at_sign_off``), with a version
+number, and stored on the locked record; a certificate renders from that alone, so editing the device, the position,
+its area, site or fluid, or a reference standard afterwards never changes an issued certificate. The SHA-256 of its
+canonical JSON lets two copies be compared (``digest``).
 
 Records signed before this was kept get theirs rebuilt from the audit trail as of their signing time
 (``rebuilt``, used by migration 0010 and, for a record stored without sign-off, at printing); what the audit trail
