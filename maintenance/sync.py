@@ -62,9 +62,13 @@ def add_tasks_in_bulk(devices, duty_findings, user):
     from maintenance import loop
     from plant.importer import insert_with_history
 
-    today = timezone.localdate()  # the day sync_tasks sets a derived task up
+    today_at = {}  # the day sync_tasks sets a derived task up: today at the device's site, read once per site
     tasks = []
     for device, findings in zip(devices, duty_findings):
+        site_id = device.position.area.site_id if device.position_id else None
+        if site_id not in today_at:
+            today_at[site_id] = device.today()
+        today = today_at[site_id]
         for spec in catalogue.derive_tasks(device.principle, findings):
             task = MaintenanceTask(meter=device, code=spec.code, title=spec.title, reason=spec.reason,
                                    basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
