@@ -49,6 +49,16 @@ def pytest_configure(config):
     config.stash[_SUMMARY_LINES] = []
 
 
+@pytest.fixture(scope="session", autouse=True)
+def fast_password_hasher(django_test_environment):
+    """Every user a test makes hashes a password: the deliberately slow PBKDF2 cost seconds per test on a busy
+    machine. No test checks the hashing itself; a test that needs the real hashers can override the setting."""
+    from django.test import override_settings
+
+    with override_settings(PASSWORD_HASHERS=["django.contrib.auth.hashers.MD5PasswordHasher"]):
+        yield
+
+
 @pytest.fixture(scope="session")
 def terminal_summary_lines(pytestconfig):
     return pytestconfig.stash[_SUMMARY_LINES]
