@@ -4,19 +4,114 @@ from django.core.management import call_command
 from django.test import Client
 
 
-@pytest.fixture
-def demo_plant(db):
-    call_command("loaddata", "fixtures/demo_plant.json", verbosity=0)
+# The demo in three stages, each loaded on top of the one before: the plant, its signed calibration history,
+# its maintenance history.
+DEMO_STAGES = ["demo_plant", "demo_history", "demo_maintenance"]
+
+
+class DemoSnapshot:
+    """The rows that loading the demo fixtures writes, stage by stage (the project's loaddata: Django's, then the
+    ledger seals the signed records a fixture brought), kept in memory and written again for each test that asks.
+
+    Loading reads 65k lines of JSON, saves every object one by one and hashes a thousand signed records: seconds
+    each time. Writing the same rows back in batches takes a small part of that, so every test still gets its
+    own fresh copy inside its own transaction (tests may change the demo)."""
+
+    def __init__(self):
+        self.stages = {}  # stage -> [(model, primary keys to delete first, objects to insert)]
+
+    @staticmethod
+    def _models():
+        from django.apps import apps
+
+        return [m for m in apps.get_models(include_auto_created=True) if m._meta.managed and not m._meta.proxy]
+
+    @staticmethod
+    def _values(model):
+        names = [f.attname for f in model._meta.local_concrete_fields]
+        return {row[0]: row for row in model._base_manager.values_list("pk", *names)}
+
+    @staticmethod
+    def _inserts(model, objects):
+        """The INSERT statements (SQL and parameters) that write `objects` as loaddata would: raw (no save(), no
+        signals, no auto_now), each field's value as stored."""
+        from django.db import DEFAULT_DB_ALIAS, connections
+        from django.db.models.sql import InsertQuery
+
+        fields = [f for f in model._meta.local_concrete_fields if not getattr(f, "generated", False)]
+        size = connections[DEFAULT_DB_ALIAS].ops.bulk_batch_size(fields, objects) or len(objects)
+        statements = []
+        for start in range(0, len(objects), size):
+            query = InsertQuery(model)
+            query.insert_values(fields, objects[start:start + size], raw=True)
+            statements += query.get_compiler(using=DEFAULT_DB_ALIAS).as_sql()
+        return statements
+
+    def capture(self):
+        """Load the stages one after another in a transaction that is rolled back; keep what each added or changed."""
+        from django.db import transaction
+
+        models = self._models()
+        before = {model: self._values(model) for model in models}
+        with transaction.atomic():
+            for stage in DEMO_STAGES:
+                call_command("loaddata", f"fixtures/{stage}.json", verbosity=0)
+                rows = []
+                for model in models:
+                    after = self._values(model)
+                    changed = [pk for pk, row in after.items() if before[model].get(pk) != row]
+                    gone = [pk for pk in before[model] if pk not in after]
+                    if changed or gone:
+                        stale = [pk for pk in changed if pk in before[model]] + gone
+                        rows.append((model, stale, self._inserts(model, list(model._base_manager.filter(pk__in=changed)))))
+                    before[model] = after
+                self.stages[stage] = rows
+            transaction.set_rollback(True)
+        return self
+
+    def restore(self, stage):
+        """Write one stage's rows again."""
+        from django.core.management.color import no_style
+        from django.db import DEFAULT_DB_ALIAS, connections, transaction
+
+        connection = connections[DEFAULT_DB_ALIAS]
+        rows = self.stages[stage]
+        with transaction.atomic(), connection.cursor() as cursor:
+            # one transaction: foreign keys are checked at its end (a transactional test has no outer one)
+            for model, stale, statements in rows:
+                if stale:
+                    model._base_manager.filter(pk__in=stale)._raw_delete(DEFAULT_DB_ALIAS)
+                for sql, params in statements:
+                    cursor.execute(sql, params)
+            # as loaddata does: PostgreSQL's sequences move past the ids written (nothing to do on SQLite)
+            for sql in connection.ops.sequence_reset_sql(no_style(), [row[0] for row in rows]):
+                cursor.execute(sql)
+
+
+@pytest.fixture(scope="session")
+def demo_snapshot(django_db_setup, django_db_blocker):
+    """The demo's rows, read once per test run (per worker) from the fixtures."""
+    with django_db_blocker.unblock():
+        return DemoSnapshot().capture()
 
 
 @pytest.fixture
-def demo_history(demo_plant):
-    call_command("loaddata", "fixtures/demo_history.json", verbosity=0)
+def demo_plant(db, demo_snapshot):
+    """The invented demo plant (fixtures/demo_plant.json), fresh for this test."""
+    demo_snapshot.restore("demo_plant")
 
 
 @pytest.fixture
-def demo_maintenance(demo_history):
-    call_command("loaddata", "fixtures/demo_maintenance.json", verbosity=0)
+def demo_history(demo_plant, demo_snapshot):
+    """The demo plant and its signed calibration history (fixtures/demo_history.json), sealed in the record chain
+    as loading the fixture seals it."""
+    demo_snapshot.restore("demo_history")
+
+
+@pytest.fixture
+def demo_maintenance(demo_history, demo_snapshot):
+    """The demo plant with its calibration and maintenance histories (fixtures/demo_maintenance.json)."""
+    demo_snapshot.restore("demo_maintenance")
 
 
 def user_with_role(role, username=None):
