@@ -184,7 +184,7 @@ def test_only_accounts_that_enter_calibrations_can_send(field):
     json.dumps({"kind": "calibration", "id": str(uuid.uuid4()), "target": "FT-OFF-1", "data": "x=1"}),
     json.dumps({"kind": "pipework", "id": str(uuid.uuid4()), "target": "FT-OFF-1", "data": []}),
     json.dumps({"id": str(uuid.uuid4())}),
-])
+], ids=["not-json", "bad-uuid", "data-not-pairs", "unknown-kind", "id-only"])  # fixed ids: -n 2 collects alike
 def test_an_unreadable_send_is_refused_and_saves_nothing(field, body):
     response = field["clients"]["tech"].post("/field/send/", body, content_type="application/json")
     assert response.status_code == 400 and response.json()["status"] == "refused"
