@@ -49,5 +49,5 @@ def test_no_two_apps_import_each_other():
 
 
 def test_the_scan_sees_imports_inside_functions():
-    # reports imports maintenance only inside functions (maintenance.fleet in the review): the scan must see those
+    # reports imports maintenance only inside functions (the maintenance review): the scan must see those
     assert any(app == "reports" and module.startswith("maintenance") for _, _, app, module in imports_across_apps())

@@ -23,7 +23,7 @@ from django.apps import apps
 from django.test import Client
 from django.urls import Resolver404, resolve
 
-from tests.conftest import user_with_role
+from tests.helpers import user_with_role
 
 SAMPLE_PER_KIND = 3
 ROLES = ["technician", "reviewer", "administrator"]

@@ -17,8 +17,8 @@ from django.urls.exceptions import Resolver404
 
 from plant import params, risk
 from plant.models import Position
-from tests.conftest import user_with_role
-from tests.test_spreadsheet_safety import url_patterns
+from tests.helpers import user_with_role
+from tests.helpers import url_patterns
 
 ODD_VALUES = ["²", "99999999999999999999", "-1", "x", ""]  # more shapes of odd ids: test_an_id_is_ascii_digits...
 ODD_IDS = ["99999999999999999999", "9223372036854775808", "0"]

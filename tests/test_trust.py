@@ -15,8 +15,8 @@ from calibration.models import CalibrationEvent, CalibrationPoint, Countersignat
 from plant import installations
 from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
 from plant.installations import commission
-from tests.conftest import user_with_role
-from tests.test_calibration_records import entry_data
+from tests.helpers import user_with_role
+from tests.helpers import entry_data
 
 pytestmark = pytest.mark.django_db
 
