@@ -151,20 +151,20 @@ def client(request, db):
 SMALL_WORLDS = {
     "bench": {
         "site": {"name": "Test site"}, "area": "Hall A", "water": {"name": "Water", "conductivity_us_cm": 500},
-        "meter": {"tag": "FT-9"},
+        "device": {"tag": "FT-9"},
         "standard": {"identification": "RS-1", "description": "Master meter", "certificate_number": "C-100"},
     },
     "certificate": {  # what a certificate prints: an address, a maker and model, a traceable standard
         "site": {"name": "Marrowfield Works", "address": "1 Brine Street\nMarrowfield MF1 2AB"},
         "area": "Pickling hall", "water": {"name": "Process water", "conductivity_us_cm": 500},
-        "meter": {"tag": "FT-101", "serial": "SN-778812", "maker": "Ternwell Flow", "model": "TW-300"},
+        "device": {"tag": "FT-101", "serial": "SN-778812", "maker": "Ternwell Flow", "model": "TW-300"},
         "standard": {"identification": "RS-7", "description": "Portable master meter",
                      "certificate_number": "UKAS-0042-7781"},
         "signatory": True,
     },
     "guarded": {  # MPE ±1.0 % of reading, no risk finding; the standards are made per case (guarded_standard)
         "site": {"name": "Guard test site"}, "area": "Hall G", "water": {"name": "Process water", "conductivity_us_cm": 500},
-        "meter": {"tag": "FT-G1", "mpe_value": 1.0, "base_interval_days": 365}, "no_risk_finding": True,
+        "device": {"tag": "FT-G1", "mpe_value": 1.0, "base_interval_days": 365}, "no_risk_finding": True,
     },
     "import": {},  # a plant only (the plant fixture)
     "maintenance": {},  # a plant only (the plant fixture)
@@ -177,7 +177,7 @@ def small_world(request):
 
 
 @pytest.fixture
-def meter(request, db):
+def device(request, db):
     from plant.installations import commission
     from plant.models import Area, Fluid, Site
 
@@ -186,11 +186,11 @@ def meter(request, db):
     water = Fluid.objects.create(phase="liquid", **world["water"])
     values = {"principle": "electromagnetic", "line_size": "DN50", "internal_diameter_mm": 52.5, "range_min": 0,
               "range_max": 40, "mpe_value": 0.5, "mpe_basis": "pct_reading", "wetted_material": "316L",
-              **world["meter"]}
-    meter = commission(area=area, fluid=water, **values)
+              **world["device"]}
+    device = commission(area=area, fluid=water, **values)
     if world.get("no_risk_finding"):
-        assert meter.risk_factor() == 1.0  # no finding for this duty: the risk candidate is the base interval
-    return meter
+        assert device.risk_factor() == 1.0  # no finding for this duty: the risk candidate is the base interval
+    return device
 
 
 @pytest.fixture
@@ -203,10 +203,10 @@ def standard(request, db):
 
 
 @pytest.fixture
-def signed_event(client, meter, standard, monkeypatch):
+def signed_event(client, device, standard, monkeypatch):
     """The certificate world's calibration: entered adjusted, signed three days later."""
     left = [(4, 4.0), (10, 10.01), (20, 20.0), (30, 30.01), (40, 40.0)]
-    event = enter(client, meter, standard, adjusted=True, left=left)
+    event = enter(client, device, standard, adjusted=True, left=left)
     return sign(client, event, at(dt.date(2026, 11, 23)), monkeypatch)
 
 
@@ -239,7 +239,7 @@ def plant(request, db):
                            line_size="DN200", internal_diameter_mm=202.7, range_max=400, mpe_value=2.0,
                            mpe_basis="pct_span", wetted_material="316")
         tech = user_with_role("technician", "tech1")
-        return {"meter": pitot, "fluid": cooling, "area": area, "tech": tech}
+        return {"device": pitot, "fluid": cooling, "area": area, "tech": tech}
     raise pytest.UsageError('the plant fixture needs pytest.mark.small_world("import") or ("maintenance")')
 
 

@@ -25,7 +25,7 @@ class PointInline(LockedWhenSigned, admin.TabularInline):
 
 @admin.register(CalibrationEvent)
 class CalibrationEventAdmin(LockedWhenSigned, admin.ModelAdmin):
-    list_display = ("meter", "performed_on", "technician", "contractor", "state", "as_found_in_tolerance")
+    list_display = ("device", "performed_on", "technician", "contractor", "state", "as_found_in_tolerance")
     list_filter = ("state", "reason")
     inlines = [PointInline]
     actions = None  # no bulk delete of calibration records

@@ -11,7 +11,7 @@ stores.
   is a little wider than the spread of true errors, which overstates the PFA (the safe side).
   Only the whole-fleet recompute refits and stores them (ErrorPrior rows); a recompute of a few devices reads
   the stored fits, so one device's sign-off does not move the prior of its like devices.
-* Per device (Meter.conformity_pfa, Meter.conformity_min_pc): over the as-found points of its last signed
+* Per device (Device.conformity_pfa, Device.conformity_min_pc): over the as-found points of its last signed
   calibration in force, the global PFA of the decision rule that calibration applied (conformity.global_risks,
   the worst point) and the lowest conformance probability of a point inside its MPE (conformity.conformance_
   probability). Points without a stated uncertainty (U = 0: no reference standard) carry no risk figure.
@@ -70,22 +70,22 @@ def group_fits(codes: np.ndarray, values: np.ndarray, groups: int):
     return mean, np.sqrt(square / np.maximum(count - 1, 1)), count
 
 
-def _fluid_id(meter, fluid_ids):
-    return meter.fluid_id if fluid_ids is None else fluid_ids.get(meter.pk)
+def _fluid_id(device, fluid_ids):
+    return device.fluid_id if fluid_ids is None else fluid_ids.get(device.pk)
 
 
-def fit_priors(meters, events: pd.DataFrame, points: pd.DataFrame, fluid_ids=None) -> dict:
+def fit_priors(devices, events: pd.DataFrame, points: pd.DataFrame, fluid_ids=None) -> dict:
     """{(principle, fluid_id): (mean, sd, count)} and {(principle, None): ...}: every as-found error (error / the
     device's MPE) of the events held (signed, in force), grouped by the device's principle and fluid now, and by
     principle. Groups of fewer than two values are left out. fluid_ids: {device id: fluid id} when the caller
     read them (a spare's is its last duty's); else each device's `fluid_id`."""
     found = points[(points["as_left"] == 0) & points["event_id"].isin(events["id"])]
-    meter_of_event = pd.Series(events["meter_id"].to_numpy(), index=events["id"].to_numpy())
+    meter_of_event = pd.Series(events["device_id"].to_numpy(), index=events["id"].to_numpy())
     point_meter = meter_of_event.reindex(found["event_id"].to_numpy()).to_numpy()
     # per device: its row, its (principle, fluid) group and its principle group
     pair_code, principle_code, pairs, principles, mpe, ids = {}, {}, [], [], [], []
     row_pair, row_principle = [], []
-    for m in meters:
+    for m in devices:
         pair = (m.principle, _fluid_id(m, fluid_ids))
         if pair not in pair_code:
             pair_code[pair] = len(pairs)
@@ -137,13 +137,13 @@ def stored_fits(principles=None) -> dict:
     return {(p, f): (m, s, n) for p, f, m, s, n in qs.values_list("principle", "fluid_id", "mean", "sd", "count")}
 
 
-def prior_for_meter(meter, fits=None) -> Prior:
+def prior_for_meter(device, fits=None) -> Prior:
     """The prior a device's results are judged with (one small read of the stored fits when `fits` is None)."""
     if fits is None:
-        fits = stored_fits([meter.principle])
-    fluid = meter.fluid
-    mean, sd, count, scope = conformity.choose_prior(fits, meter.principle, fluid.pk if fluid else None)
-    return Prior(mean, sd, count, scope, principle=meter.get_principle_display(), fluid=str(fluid) if fluid else "")
+        fits = stored_fits([device.principle])
+    fluid = device.fluid
+    mean, sd, count, scope = conformity.choose_prior(fits, device.principle, fluid.pk if fluid else None)
+    return Prior(mean, sd, count, scope, principle=device.get_principle_display(), fluid=str(fluid) if fluid else "")
 
 
 # The recompute's part -----------------------------------------------------------------------------------
@@ -203,40 +203,40 @@ def point_risks(error, mpe, U, k, rule, prior_mean, prior_sd, target=None, accep
     return pc, pfa
 
 
-def update_conformity(meters, events: pd.DataFrame, points: pd.DataFrame, last_events: pd.DataFrame,
+def update_conformity(devices, events: pd.DataFrame, points: pd.DataFrame, last_events: pd.DataFrame,
                       whole_fleet: bool, fluid_ids=None):
     """The recompute's conformity part: refit and store the priors (whole fleet only), then set and store each
     device's conformity_pfa and conformity_min_pc from its last calibration (writing the changed rows only)."""
     if whole_fleet:
-        fits = fit_priors(meters, events, points, fluid_ids)
+        fits = fit_priors(devices, events, points, fluid_ids)
         if fits != stored_fits():
             store_priors(fits)
     else:
-        fits = stored_fits({m.principle for m in meters})
-    by_meter = {m.pk: m for m in meters}
+        fits = stored_fits({m.principle for m in devices})
+    by_meter = {m.pk: m for m in devices}
     results = {pk: (None, None) for pk in by_meter}
     if not last_events.empty:
         last = last_events[last_events.index.isin(list(by_meter))]
         pts = _last_points(last["id"].to_numpy())
         if not pts.empty:
             event_meter = pd.Series(last.index.to_numpy(), index=last["id"].to_numpy())
-            meter_ids = event_meter.reindex(pts["event_id"].to_numpy()).to_numpy()
+            device_ids = event_meter.reindex(pts["event_id"].to_numpy()).to_numpy()
             rules = pd.Series(last["decision_rule"].to_numpy(), index=last["id"].to_numpy())
             groups = {}   # one prior per (principle, fluid), looked up once
             prior_of = {}
-            for pk in set(meter_ids.tolist()):
-                meter = by_meter[pk]
-                key = (meter.principle, _fluid_id(meter, fluid_ids))
+            for pk in set(device_ids.tolist()):
+                device = by_meter[pk]
+                key = (device.principle, _fluid_id(device, fluid_ids))
                 if key not in groups:
                     groups[key] = conformity.choose_prior(fits, *key)[:2]
                 prior_of[pk] = groups[key]
-            priors = np.array([prior_of[pk] for pk in meter_ids.tolist()], dtype=float).reshape(len(meter_ids), 2)
+            priors = np.array([prior_of[pk] for pk in device_ids.tolist()], dtype=float).reshape(len(device_ids), 2)
             pc, pfa = point_risks(pts["error"], pts["mpe"], pts["expanded_uncertainty"], pts["coverage_factor"],
                                   rules.reindex(pts["event_id"].to_numpy()).to_numpy(), priors[:, 0], priors[:, 1],
                                   accept_limit=pts["acceptance_limit"].to_numpy())
             inside = np.abs(pts["error"].to_numpy()) <= pts["mpe"].to_numpy()
-            frame = pd.DataFrame({"meter_id": meter_ids, "pfa": pfa, "pc": np.where(inside, pc, np.nan)})
-            grouped = frame.groupby("meter_id").agg(pfa=("pfa", "max"), pc=("pc", "min"))
+            frame = pd.DataFrame({"device_id": device_ids, "pfa": pfa, "pc": np.where(inside, pc, np.nan)})
+            grouped = frame.groupby("device_id").agg(pfa=("pfa", "max"), pc=("pc", "min"))
             for pk, worst, lowest in zip(grouped.index.tolist(), grouped["pfa"].tolist(), grouped["pc"].tolist()):
                 results[int(pk)] = (None if worst != worst else worst, None if lowest != lowest else lowest)
     write_conformity(results)
@@ -250,25 +250,25 @@ def _same(a, b) -> bool:
 
 
 def write_conformity(results: dict, batch_size=1000):
-    """Store {meter_id: (pfa, min_pc)} for the rows whose stored values differ (one transaction)."""
-    from plant.models import Meter
+    """Store {device_id: (pfa, min_pc)} for the rows whose stored values differ (one transaction)."""
+    from plant.models import Device
 
     ids = list(results)
     current = {}
     if len(ids) > 5000:   # most of the fleet: one read of every row is cheaper than many chunks
-        current = {pk: (pfa, pc) for pk, pfa, pc in Meter.objects.order_by().values_list("pk", *CONFORMITY_FIELDS)}
+        current = {pk: (pfa, pc) for pk, pfa, pc in Device.objects.order_by().values_list("pk", *CONFORMITY_FIELDS)}
     else:
         for start in range(0, len(ids), 900):
-            current.update((pk, (pfa, pc)) for pk, pfa, pc in Meter.objects.filter(pk__in=ids[start:start + 900])
+            current.update((pk, (pfa, pc)) for pk, pfa, pc in Device.objects.filter(pk__in=ids[start:start + 900])
                            .order_by().values_list("pk", *CONFORMITY_FIELDS))
     changed = [(pfa, pc, pk) for pk, (pfa, pc) in results.items()
                if pk in current and not (_same(pfa, current[pk][0]) and _same(pc, current[pk][1]))]
     if not changed:
         return 0
-    connection = connections[Meter.objects.db]
+    connection = connections[Device.objects.db]
     quote = connection.ops.quote_name
-    sql = (f"UPDATE {quote(Meter._meta.db_table)} SET {quote('conformity_pfa')} = %s, "
-           f"{quote('conformity_min_pc')} = %s WHERE {quote(Meter._meta.pk.column)} = %s")
+    sql = (f"UPDATE {quote(Device._meta.db_table)} SET {quote('conformity_pfa')} = %s, "
+           f"{quote('conformity_min_pc')} = %s WHERE {quote(Device._meta.pk.column)} = %s")
     with transaction.atomic(using=connection.alias), connection.cursor() as cursor:
         for start in range(0, len(changed), batch_size):
             cursor.executemany(sql, changed[start:start + batch_size])

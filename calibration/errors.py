@@ -110,10 +110,10 @@ def to_error_units(value_in_flow_units: float, basis: str, reference: float, spa
     return value_in_flow_units if s is None else value_in_flow_units / s
 
 
-def error_unit(meter) -> str:
+def error_unit(device) -> str:
     """The unit errors, MPE and U of `meter` are stated in: its MPE basis, or its flow units for an absolute MPE."""
-    if meter.mpe_basis == "absolute":
+    if device.mpe_basis == "absolute":
         from plant.units import label_for
 
-        return label_for(meter.flow_units)
-    return meter.get_mpe_basis_display()
+        return label_for(device.flow_units)
+    return device.get_mpe_basis_display()

@@ -53,31 +53,31 @@ class EventForm(forms.ModelForm):
             "density_kg_m3": forms.NumberInput(attrs={**NUMERIC, "step": "any"}),
         }
 
-    def __init__(self, *args, meter=None, **kwargs):
+    def __init__(self, *args, device=None, **kwargs):
         super().__init__(*args, **kwargs)
         condition = self.fields["condition_received"]
         condition.required = True
         condition.error_messages["required"] = ("Describe the meter's condition as received (e.g. installed, in "
                                                 "service, no visible damage).")
-        if meter is not None:
+        if device is not None:
             # accepted: any suitable standard, so one expired on the date of calibration gets its own message;
             # listed: those in date today, and whatever was ticked
             field = self.fields["reference_standards"]
             # accepted also: a standard whose units cannot be converted here, so it is refused with the reason
-            field.queryset = ReferenceStandard.offered_for(meter, convertible_only=False)
+            field.queryset = ReferenceStandard.offered_for(device, convertible_only=False)
             key = self.add_prefix("reference_standards")
             # a correction starts from the standards of the record it corrects, listed even if out of date today
             sent = ((self.data.getlist(key) if hasattr(self.data, "getlist") else self.data.get(key)) if self.is_bound
                     else self.initial.get("reference_standards", []))
             ticked = {str(v) for v in (sent if isinstance(sent, (list, tuple)) else [sent]) if v is not None}
-            today = meter.today()  # the date at the meter's site
+            today = device.today()  # the date at the meter's site
             field.widget.choices = [
                 (value, f"{label} · {value.instance.units_label}") for value, label in field.choices
-                if (value.instance.due_date >= today and entry_can_convert(value.instance.units, meter.flow_units))
+                if (value.instance.due_date >= today and entry_can_convert(value.instance.units, device.flow_units))
                 or str(value) in ticked]
             self.fields["density_kg_m3"].help_text = (
                 "Needed when the reference standard measures mass and this meter volume (it is in "
-                f"{units.label_for(meter.flow_units)}), or the other way round: the density at the conditions of the "
+                f"{units.label_for(device.flow_units)}), or the other way round: the density at the conditions of the "
                 "calibration converts the reference readings.")
 
 
@@ -198,22 +198,22 @@ class PointRowForm(forms.Form):
         error_messages={"invalid": "Enter the resolution as a number.", "min_value": "Resolution cannot be negative."},
     )
 
-    def __init__(self, *args, meter=None, conversion=None, **kwargs):
-        self.meter = meter
-        self.conversion = conversion or ReferenceConversion(meter.flow_units if meter is not None else "")
+    def __init__(self, *args, device=None, conversion=None, **kwargs):
+        self.device = device
+        self.conversion = conversion or ReferenceConversion(device.flow_units if device is not None else "")
         self.values_checked = False  # the header's tick: readings held with "check this value" are confirmed
         super().__init__(*args, **kwargs)
 
     def _hold_implausible(self, data):
         """Hold a reading further from the reference than the meter could explain (calibration/plausibility.py)
         until the header's tick confirms it."""
-        meter, ref, ind = self.meter, data.get("reference_value"), data.get("indicated_value")
-        if self.values_checked or self.errors or meter is None or ref is None or ind is None or not self.conversion.known:
+        device, ref, ind = self.device, data.get("reference_value"), data.get("indicated_value")
+        if self.values_checked or self.errors or device is None or ref is None or ind is None or not self.conversion.known:
             return
         try:
-            mpe = mpe_in_flow_units(meter.mpe_value, meter.mpe_basis, ref, meter.range_max - meter.range_min)
-            held = plausibility.reading_to_check(ref, ind, meter.range_min, meter.range_max, mpe,
-                                                 units.label_for(meter.flow_units))
+            mpe = mpe_in_flow_units(device.mpe_value, device.mpe_basis, ref, device.range_max - device.range_min)
+            held = plausibility.reading_to_check(ref, ind, device.range_min, device.range_max, mpe,
+                                                 units.label_for(device.flow_units))
         except (ValueError, ArithmeticError, TypeError):
             return  # the row's own checks say what is wrong
         if held:
@@ -276,9 +276,9 @@ class PointRowForm(forms.Form):
         # the reading as entered (the standard's units) is kept; the error is computed in the meter's units
         data["reference_entered"] = ref
         conversion = self.conversion
-        if ref is not None and self.meter is not None:
-            meter = self.meter
-            label = units.label_for(meter.flow_units)
+        if ref is not None and self.device is not None:
+            device = self.device
+            label = units.label_for(device.flow_units)
             converted = ref
             if conversion.converts:
                 converted = data["reference_value"] = conversion.to_meter(ref)
@@ -289,13 +289,13 @@ class PointRowForm(forms.Form):
             elif not math.isfinite(converted):
                 self.add_error("reference_value", "The reference flow is too large to convert to the meter's units; "
                                                   "check the value, the standard and the density.")
-            elif converted < meter.range_min or converted > meter.range_max:
+            elif converted < device.range_min or converted > device.range_max:
                 shown = (f"{ref:g} {units.label_for(conversion.units)} ({converted:.6g} {label})" if conversion.converts
                          else f"{ref:g} {label}")
                 self.add_error("reference_value",
                                f"{shown} is outside the meter's calibrated range "
-                               f"{meter.range_min:g}–{meter.range_max:g} {label}.")
-            elif converted == 0 and meter.mpe_basis == "pct_reading":
+                               f"{device.range_min:g}–{device.range_max:g} {label}.")
+            elif converted == 0 and device.mpe_basis == "pct_reading":
                 self.add_error("reference_value", "A % of reading error needs a reference flow above zero.")
         self._hold_implausible(data)
         return data
@@ -313,7 +313,7 @@ class PointRowForm(forms.Form):
             indicated_value=data["indicated_value"], repeats=data["repeats"], resolution=data["resolution"] or 0.0,
         )
         try:
-            point.compute(self.meter, standards, rule, factor=self.conversion.factor())
+            point.compute(self.device, standards, rule, factor=self.conversion.factor())
             if math.isfinite(point.error) and math.isfinite(point.expanded_uncertainty):
                 return point
         except (ValueError, ArithmeticError):
@@ -324,8 +324,8 @@ class PointRowForm(forms.Form):
             return
         indicated = sum(repeats) / len(repeats) if repeats else data["indicated_value"]
         try:
-            error = point_error(data["reference_value"], indicated, self.meter.mpe_basis,
-                                self.meter.range_max - self.meter.range_min)
+            error = point_error(data["reference_value"], indicated, self.device.mpe_basis,
+                                self.device.range_max - self.device.range_min)
         except (ValueError, ArithmeticError):
             error = math.inf
         if not math.isfinite(error):
@@ -340,13 +340,13 @@ class PointRowForm(forms.Form):
 
 
 class BasePointGrid(forms.BaseFormSet):
-    def __init__(self, *args, meter=None, **kwargs):
-        self.meter = meter
+    def __init__(self, *args, device=None, **kwargs):
+        self.device = device
         kwargs.setdefault("initial", [{"nominal_pct": n} for n in NOMINAL_POINTS])
         super().__init__(*args, **kwargs)
 
     def get_form_kwargs(self, index):
-        return {"meter": self.meter}
+        return {"device": self.device}
 
     def kept_forms(self):
         """The rows not ticked "remove" (a removed row is neither checked nor saved)."""
@@ -383,17 +383,17 @@ PointGrid = forms.formset_factory(PointRowForm, formset=BasePointGrid, extra=0, 
 class CalibrationEntry:
     """The whole tablet form; validates everything first, then saves in one transaction."""
 
-    def __init__(self, meter, data=None, user=None, corrects=None, draft=None):
+    def __init__(self, device, data=None, user=None, corrects=None, draft=None):
         """`corrects`: the signed record this entry corrects (ISO/IEC 17025 §7.8.8); the form starts from its values.
         `draft`: a draft being edited; the form starts from its values and saving rewrites it (and its points)."""
         from django.conf import settings
 
-        self.meter = meter
+        self.device = device
         self.user = user
         self.draft = draft
         self.corrects = corrects if draft is None else draft.supersedes
         bound = data is not None
-        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": meter.today()}  # the date at the meter's site
+        initial = {"decision_rule": settings.CALIBRATION["decision_rule"], "performed_on": device.today()}  # the date at the meter's site
         grids = {}
         if self.corrects is not None:
             initial, grids = correction_initial(self.corrects)
@@ -403,19 +403,19 @@ class CalibrationEntry:
         header = CorrectionForm if self.corrects is not None else EventForm
         self.low_tur_policy = settings.CALIBRATION.get("low_tur_policy", "require_guarded")
         instance = {"instance": draft} if draft is not None else {}
-        self.event_form = (header(data, prefix="ev", meter=meter, **instance) if bound
-                           else header(prefix="ev", initial=initial, meter=meter))
+        self.event_form = (header(data, prefix="ev", device=device, **instance) if bound
+                           else header(prefix="ev", initial=initial, device=device))
         self.as_found, self.as_left = (
-            PointGrid(data, prefix=prefix, meter=meter) if bound
-            else PointGrid(prefix=prefix, meter=meter, **({"initial": grids[kind]} if grids.get(kind) else {}))
+            PointGrid(data, prefix=prefix, device=device) if bound
+            else PointGrid(prefix=prefix, device=device, **({"initial": grids[kind]} if grids.get(kind) else {}))
             for prefix, kind in (("af", CalibrationPoint.Kind.AS_FOUND), ("al", CalibrationPoint.Kind.AS_LEFT)))
         self.non_field_errors = []
-        self.conversion = ReferenceConversion(meter.flow_units)
+        self.conversion = ReferenceConversion(device.flow_units)
 
     def _conversion(self):
         """The units of the reference readings (the ticked standards') and how they become the meter's; a
         pair that cannot be converted, or a missing density, is refused at its field here."""
-        form, meter_units = self.event_form, self.meter.flow_units
+        form, meter_units = self.event_form, self.device.flow_units
         data = getattr(form, "cleaned_data", {})
         standards = list(data.get("reference_standards") or [])
         if not standards:
@@ -486,7 +486,7 @@ class CalibrationEntry:
                         computed.append(form.check_results(list(standards), rule))
             low = [p for p in computed if p is not None and p.tur < uncertainty.TUR_WARNING]
             if low and uncertainty.low_tur_requires_guarded(rule, [p.tur for p in low], self.low_tur_policy):
-                label = units.label_for(self.meter.flow_units)
+                label = units.label_for(self.device.flow_units)
                 where = ", ".join(f"{p.reference_value:.6g} {label} ({p.tur:.1f}:1)" for p in low)
                 self.event_form.add_error(
                     "decision_rule",
@@ -502,8 +502,8 @@ class CalibrationEntry:
     @transaction.atomic
     def save(self):
         event = self.event_form.save(commit=False)
-        event.meter = self.meter
-        event.meter_units = self.meter.flow_units
+        event.device = self.device
+        event.meter_units = self.device.flow_units
         event.reference_units = self.conversion.units
         original = self.corrects
         if original is not None:
@@ -542,7 +542,7 @@ class CalibrationEntry:
                     reference_entered=row["reference_entered"],
                     indicated_value=row["indicated_value"], repeats=row["repeats"], resolution=row["resolution"] or 0.0,
                 )
-                point.compute(self.meter, standards, event.decision_rule, factor=factor)
+                point.compute(self.device, standards, event.decision_rule, factor=factor)
                 point.save()
         event.evaluate()
         event.save()

@@ -23,7 +23,7 @@ from calibration.ledger_kinds import CALIBRATION, COUNTERSIGNATURE
 from ledger.signed import AlwaysSignedQuerySet, LockedQuerySet, SignedRecord, SignedRecordError, signature_errors
 from plant import citations, risk
 from plant.citations import CitedQuerySet, ProtectedWhileCited
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, number_or_none
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site, number_or_none
 
 # What the tablet form can supply for a conversion between a standard's units and a meter's
 # (calibration.units.conversion_needs): the fluid density at the calibration. A pair that needs more (line
@@ -49,7 +49,7 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
 
     # the measuring principle of a standard: a device principle (a master meter, judged by the same principle×fluid
     # rules as a meter, plant/risk.py) or a primary method, which the risk rules do not restrict
-    PRINCIPLE_CHOICES = [*Meter.Principle.choices,
+    PRINCIPLE_CHOICES = [*Device.Principle.choices,
                          ("gravimetric", "Gravimetric (weighed collection)"),
                          ("volumetric_prover", "Volumetric prover (pipe or tank)")]
 
@@ -102,7 +102,7 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
         super().save(*args, **kwargs)
 
     @classmethod
-    def offered_for(cls, meter, on_date=None, convertible_only=True):
+    def offered_for(cls, device, on_date=None, convertible_only=True):
         """Standards the tablet form offers for `meter`: not withdrawn, of the meter's fluid phase (or of none
         stated), and, when `on_date` is given, in date then; by units (one query whatever the units):
 
@@ -120,13 +120,13 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
 
         A new spare that has served nowhere yet has no fluid: on the bench any phase may be used."""
         qs = cls.objects.filter(withdrawn=False)
-        fluid = meter.fluid
+        fluid = device.fluid
         if fluid is not None:
             qs = qs.filter(models.Q(phase="") | models.Q(phase=fluid.phase))
             unfit = cls.principles_unfit_for(fluid)
             if unfit:
                 qs = qs.exclude(principle__in=unfit)
-        qs = qs.filter(cls._units_and_range_q(meter, convertible_only))
+        qs = qs.filter(cls._units_and_range_q(device, convertible_only))
         if on_date is not None:
             qs = qs.filter(due_date__gte=on_date)
         return qs
@@ -140,15 +140,15 @@ class ReferenceStandard(ProtectedWhileCited, models.Model):
                 if any(f.severity == "misapplied" for f in risk.assess(p, "", props))]
 
     @staticmethod
-    def _units_and_range_q(meter, convertible_only):
-        low, high = meter.range_min, meter.range_max
-        if meter.flow_units not in units.FLOW_UNITS:  # not a code (not saved through the model): same text only
-            return models.Q(units=meter.flow_units, range_min__lte=low, range_max__gte=high)
+    def _units_and_range_q(device, convertible_only):
+        low, high = device.range_min, device.range_max
+        if device.flow_units not in units.FLOW_UNITS:  # not a code (not saved through the model): same text only
+            return models.Q(units=device.flow_units, range_min__lte=low, range_max__gte=high)
         allowed = models.Q(pk__in=[])
         for code in units.FLOW_UNITS:
-            needs = units.conversion_needs(code, meter.flow_units)
+            needs = units.conversion_needs(code, device.flow_units)
             if not needs:
-                lo, hi = (units.convert(v, meter.flow_units, code) for v in (low, high))
+                lo, hi = (units.convert(v, device.flow_units, code) for v in (low, high))
                 slack = 1e-9 * max(abs(lo), abs(hi), 1.0)  # a converted bound is not exact in binary
                 allowed |= models.Q(units=code, range_min__lte=lo + slack, range_max__gte=hi - slack)
             elif needs <= ENTRY_SUPPLIES or not convertible_only:
@@ -305,7 +305,7 @@ class CalibrationEvent(SignedRecord):
         GUARDED = "guarded", "Guarded acceptance (ILAC-G8, w = U)"
         RISK = "risk", "Risk-based acceptance (JCGM 106, PFA within the target)"
 
-    meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="calibrations")
+    device = models.ForeignKey(Device, on_delete=models.PROTECT, related_name="calibrations")
     # the position the device was installed at when calibrated (blank: calibrated on the bench as a spare)
     position = models.ForeignKey(Position, null=True, blank=True, on_delete=models.PROTECT,
                                  related_name="calibrations", editable=False)
@@ -374,7 +374,7 @@ class CalibrationEvent(SignedRecord):
     class Meta:
         ordering = ["-performed_on", "-id"]
         # drafts are few among hundreds of thousands of signed events: the review finds them by this index
-        indexes = [models.Index(fields=["meter"], condition=models.Q(state="draft"), name="calibration_draft_idx")]
+        indexes = [models.Index(fields=["device"], condition=models.Q(state="draft"), name="calibration_draft_idx")]
         permissions = [
             ("sign_calibration", "Can sign own calibrations"),
             ("countersign_calibration", "Can countersign calibrations"),
@@ -382,7 +382,7 @@ class CalibrationEvent(SignedRecord):
         ]
 
     def __str__(self):
-        return f"{self.meter} {self.performed_on} ({self.get_state_display()})"
+        return f"{self.device} {self.performed_on} ({self.get_state_display()})"
 
     def clean(self):
         errors = {}
@@ -414,10 +414,10 @@ class CalibrationEvent(SignedRecord):
         found = {}
         if not (self.correction_reason or "").strip():
             found["correction_reason"] = "State why the calibration is corrected: the reason is printed on the new certificate."
-        replaced = CalibrationEvent.objects.filter(pk=self.supersedes_id).values("state", "meter_id").first()
+        replaced = CalibrationEvent.objects.filter(pk=self.supersedes_id).values("state", "device_id").first()
         if replaced is None or replaced["state"] != self.State.SIGNED:
             found["supersedes"] = "Only a signed calibration can be corrected; a draft is signed or left as it is."
-        elif self.meter_id and replaced["meter_id"] != self.meter_id:
+        elif self.device_id and replaced["device_id"] != self.device_id:
             found["supersedes"] = "A correction is recorded for the same device as the calibration it corrects."
         return found
 
@@ -432,7 +432,7 @@ class CalibrationEvent(SignedRecord):
     @property
     def device_units(self):
         """The meter's units on this record: as recorded at entry, else (older records) the meter's now."""
-        return self.meter_units or self.meter.flow_units
+        return self.meter_units or self.device.flow_units
 
     @property
     def entered_units(self):
@@ -474,12 +474,12 @@ class CalibrationEvent(SignedRecord):
         problems = self.correction_errors()
         if problems:
             raise ValidationError(problems)
-        if self._state.adding and self.position_id is None and self.meter_id:
+        if self._state.adding and self.position_id is None and self.device_id:
             # where the device served when it was calibrated; a correction keeps the record's it corrects
             if self.supersedes_id:
                 self.position_id = self.supersedes.position_id
             elif isinstance(self.performed_on, dt.date):
-                self.position_id = self.meter.position_on(self.performed_on)
+                self.position_id = self.device.position_on(self.performed_on)
         super().save(*args, **kwargs)
 
     def delete(self, *args, **kwargs):
@@ -581,7 +581,7 @@ class CalibrationEvent(SignedRecord):
         standards = list(self.reference_standards.all())
         factor = self.unit_factor()
         for point in self.points.all():
-            point.compute(self.meter, standards, self.decision_rule, factor=factor)
+            point.compute(self.device, standards, self.decision_rule, factor=factor)
         as_found = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_FOUND)]
         as_left = [p.decision for p in self.points_of(CalibrationPoint.Kind.AS_LEFT)] or as_found
         self.as_found_in_tolerance = decision.verdict_in_tolerance(as_found) if as_found else None
@@ -605,7 +605,7 @@ class CalibrationEvent(SignedRecord):
         factor = self.unit_factor()
         self._points_signed = list(self.points.all())
         for point in self._points_signed:
-            point.compute(self.meter, standards, self.decision_rule, factor=factor)
+            point.compute(self.device, standards, self.decision_rule, factor=factor)
             point.save()
         self.evaluate()
         self.standards_snapshot = [s.snapshot() for s in standards]
@@ -686,7 +686,7 @@ class CalibrationPoint(models.Model):
         tur = self.tur
         return None if tur is None else uncertainty.tur_warning(tur)
 
-    def compute(self, meter, standards, rule, factor=1.0):
+    def compute(self, device, standards, rule, factor=1.0):
         """Error, MPE, expanded uncertainty (all in the meter's error basis), k, nu_eff and the decision.
 
         `standards`: the reference standards used (all of them enter U), or one standard, or None.
@@ -696,11 +696,11 @@ class CalibrationPoint(models.Model):
             standards = []
         elif isinstance(standards, ReferenceStandard):
             standards = [standards]
-        span = meter.range_max - meter.range_min
-        basis = meter.mpe_basis
+        span = device.range_max - device.range_min
+        basis = device.mpe_basis
         # stored to 9 decimals (far below the 3 shown): 20.15 vs 20 is 0.75 %, not 0.7499999999999929 %
         self.error = round(errors.point_error(self.reference_value, self.indication_used, basis, span), 9)
-        self.mpe = meter.mpe_value
+        self.mpe = device.mpe_value
         if not standards:
             raise ValueError("reference_standards: choose the reference standard used; the uncertainty of a point "
                              "cannot be computed without it")
@@ -709,16 +709,16 @@ class CalibrationPoint(models.Model):
             [(s.expanded_uncertainty * factor if s.uncertainty_basis == ReferenceStandard.UncertaintyBasis.ABSOLUTE
               else s.expanded_uncertainty, s.uncertainty_basis) for s in standards],
             self.repeats, self.resolution,
-            repeatability=None if len(self.repeats or []) >= 2 else past_repeatability(meter, self.reference_value),
+            repeatability=None if len(self.repeats or []) >= 2 else past_repeatability(device, self.reference_value),
         )
         self.expanded_uncertainty = errors.to_error_units(budget.U, basis, self.reference_value, span)
         self.coverage_factor = budget.k
         self.dof_effective = budget.nu_eff if budget.nu_eff != float("inf") else None
-        self.acceptance_limit = self.limit_for(meter, rule)
+        self.acceptance_limit = self.limit_for(device, rule)
         self.decision = decision.decide(self.error, self.mpe, self.expanded_uncertainty, rule,
                                         accept_limit=self.acceptance_limit)
 
-    def limit_for(self, meter, rule):
+    def limit_for(self, device, rule):
         """The acceptance limit of `rule` at this point (after error, MPE, U and k are computed). Risk-based: from
         the stored prior of like devices and the PFA target (calibration.conformity.acceptance_limits_for_pfa)."""
         if rule == CalibrationEvent.Rule.SIMPLE:
@@ -729,9 +729,9 @@ class CalibrationPoint(models.Model):
 
         if not self.expanded_uncertainty or not self.coverage_factor:
             return self.mpe   # no uncertainty stated: the measurement is taken as exact (as the other rules do)
-        prior = getattr(meter, "_conformity_prior", None)
+        prior = getattr(device, "_conformity_prior", None)
         if prior is None:
-            prior = meter._conformity_prior = conformity_fleet.prior_for_meter(meter)
+            prior = device._conformity_prior = conformity_fleet.prior_for_meter(device)
         u = self.expanded_uncertainty / self.coverage_factor
         _, upper = conformity.acceptance_limits_for_pfa(prior.mean * self.mpe, prior.sd * self.mpe, u, -self.mpe,
                                                         self.mpe, conformity_fleet.pfa_target())
@@ -767,16 +767,16 @@ class ErrorPrior(models.Model):
         return f"{self.principle} / {self.fluid_id or 'any fluid'}: {self.mean:+.3f} ± {self.sd:.3f} MPE (n={self.count})"
 
 
-def past_repeatability(meter, reference_value):
+def past_repeatability(device, reference_value):
     """The device's repeatability from its own past repeats, for a point of fewer than two readings: the pooled
     relative SD (GUM 4.2.4) of the repeat readings of its signed points with two or more, scaled to this
     reference flow; None when it has none. Read once per meter object (cached on it)."""
-    if meter is None or meter.pk is None:
+    if device is None or device.pk is None:
         return None
-    cached = getattr(meter, "_past_repeatability", False)
+    cached = getattr(device, "_past_repeatability", False)
     if cached is False:
         groups = []
-        rows = CalibrationPoint.objects.filter(in_force("event"), event__meter_id=meter.pk,
+        rows = CalibrationPoint.objects.filter(in_force("event"), event__device_id=device.pk,
                                                event__state=CalibrationEvent.State.SIGNED)
         for repeats in rows.values_list("repeats", flat=True):
             values = [float(v) for v in (repeats or [])]
@@ -787,7 +787,7 @@ def past_repeatability(meter, reference_value):
         if groups:
             relative, dof = uncertainty.pooled_sd(groups)
             cached = (relative, dof, sum(len(g) for g in groups), len(groups))
-        meter._past_repeatability = cached
+        device._past_repeatability = cached
     if cached is None:
         return None
     relative, dof, readings, points = cached
@@ -859,14 +859,14 @@ citations.protect(ReferenceStandard, label=lambda s: f"Reference standard {s.ide
                   instead="withdraw it from use instead", action=("withdraw_from_use", "Withdraw from use"))
 for cited, lookup, noun in (
     (ReferenceStandard, "reference_standards", SIGNED_CALIBRATIONS),
-    (Meter, "meter", SIGNED_CALIBRATIONS),
+    (Device, "device", SIGNED_CALIBRATIONS),
     (Position, "position", SIGNED_CALIBRATIONS),
     (Area, "position__area", ("signed calibration at its positions", "signed calibrations at its positions")),
     (Site, "position__area__site", ("signed calibration at its positions", "signed calibrations at its positions")),
     (Fluid, "position__fluid", ("signed calibration at positions on it", "signed calibrations at positions on it")),
 ):
     citations.cite(cited, citations.Citation(CalibrationEvent._meta.label, lookup, "is cited by", noun, SIGNED_ONLY))
-for cited, device_field in ((DutyPeriod, "meter"), (Installation, "device")):
+for cited, device_field in ((DutyPeriod, "device"), (Installation, "device")):
     citations.cite(cited, citations.Coverage(CalibrationEvent._meta.label, "covers the dates of", SIGNED_CALIBRATIONS,
                                              device_field, SIGNED_ONLY))
 # the signer is the user who entered the record (the sign-off views allow no one else): signed_by keeps the name

@@ -229,7 +229,7 @@ def drift_rows(Event, Point, event, own_points) -> list:
     window (or by `event` itself) is left out. With no as-left points the as-left condition is the as-found one.
     `Event`/`Point`: the models (the app's, or a migration's); `own_points`: `event`'s point contents, so the
     rows can be built while it is being signed."""
-    others = (Event.objects.filter(meter_id=event.meter_id, state=SIGNED, signed_at__lte=event.signed_at,
+    others = (Event.objects.filter(device_id=event.device_id, state=SIGNED, signed_at__lte=event.signed_at,
                                    performed_on__lte=event.performed_on).exclude(pk=event.pk))
     replaced = set(Event.objects.filter(supersedes__in=others, state=SIGNED, signed_at__lte=event.signed_at)
                    .values_list("supersedes_id", flat=True))
@@ -341,9 +341,9 @@ def _ordered_points(points):
     return [point_content(p) for p in sorted(points, key=lambda p: (p.kind, p.nominal_pct, p.pk or 0))]
 
 
-def served_fluid_id(DutyPeriod, meter_id, position_id, day):
+def served_fluid_id(DutyPeriod, device_id, position_id, day):
     """The fluid the device served at the position on `day` (its duty history), or None when none is recorded."""
-    duty = (DutyPeriod.objects.filter(meter_id=meter_id, position_id=position_id, since__lte=day)
+    duty = (DutyPeriod.objects.filter(device_id=device_id, position_id=position_id, since__lte=day)
             .filter(Q(until__isnull=True) | Q(until__gte=day)).order_by("-since", "-id")
             .values_list("fluid_id", flat=True).first())
     return duty
@@ -355,12 +355,12 @@ def at_sign_off(event, points) -> dict:
     from calibration.models import CalibrationEvent, CalibrationPoint
     from plant.models import DutyPeriod, Fluid
 
-    device, position = event.meter, event.position
+    device, position = event.device, event.position
     area = position.area if position is not None else None
     site = area.site if area is not None else None
     fluid = None
     if position is not None:
-        fluid_id = served_fluid_id(DutyPeriod, event.meter_id, position.pk, event.performed_on)
+        fluid_id = served_fluid_id(DutyPeriod, event.device_id, position.pk, event.performed_on)
         fluid = Fluid.objects.get(pk=fluid_id) if fluid_id else position.fluid
     from calibration.conformity_fleet import event_conformity, prior_for_meter
 
@@ -402,14 +402,14 @@ def rebuilt(event, apps) -> dict:
             return get(app, model).objects.get(pk=pk)
         return found
 
-    device = version("plant", "Meter", event.meter_id, "device")
+    device = version("plant", "Meter", event.device_id, "device")
     position = version("plant", "Position", event.position_id, "position")
     area = site = fluid = None
     if position is not None:
         area = get("plant", "Area").objects.get(pk=position.area_id)
         site = get("plant", "Site").objects.get(pk=area.site_id)
         current.update({"area", "site"})  # neither keeps an audit trail
-        fluid_id = served_fluid_id(get("plant", "DutyPeriod"), event.meter_id, event.position_id,
+        fluid_id = served_fluid_id(get("plant", "DutyPeriod"), event.device_id, event.position_id,
                                    event.performed_on) or position.fluid_id
         fluid = version("plant", "Fluid", fluid_id, "service fluid")
     standards = list(event.standards_snapshot or [])

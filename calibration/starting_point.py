@@ -5,7 +5,7 @@ from calibration.models import CalibrationEvent, CalibrationPoint, in_force
 
 def as_left_of_last_calibration(device) -> dict:
     """The device's state when it was put away; empty when it was never calibrated."""
-    event = (CalibrationEvent.objects.filter(in_force(), meter=device, state=CalibrationEvent.State.SIGNED)
+    event = (CalibrationEvent.objects.filter(in_force(), device=device, state=CalibrationEvent.State.SIGNED)
              .order_by("-performed_on", "-id").prefetch_related("points").first())
     if event is None:
         return {}

@@ -20,13 +20,13 @@ from calibration import conformity_fleet, signed_content
 from calibration.signed_content import certificate_number, digest
 from plant.db_failures import nothing_saved_page
 from plant.entry_device import device_mismatch
-from plant.models import Meter
+from plant.models import Device
 from plant.roles import role_of
 
 
 def installed_at(tag):
     """The device installed at the position `tag` (404 when there is no such position or it is vacant)."""
-    return get_object_or_404(Meter.objects.select_related("position__area__site", "position__fluid"),
+    return get_object_or_404(Device.objects.select_related("position__area__site", "position__fluid"),
                              position__tag=tag)
 
 
@@ -38,17 +38,17 @@ def new_calibration(request, tag):
 @permission_required("calibration.add_calibrationevent", raise_exception=True)
 def new_bench_calibration(request, pk):
     """A spare calibrated on the bench (no position): the record follows the device."""
-    meter = get_object_or_404(Meter.objects.select_related("position__area__site", "position__fluid"), pk=pk,
-                              status=Meter.Status.SPARE)
-    if meter.position_id:
-        return redirect(meter.calibrate_url())
-    return _calibration_entry(request, meter)
+    device = get_object_or_404(Device.objects.select_related("position__area__site", "position__fluid"), pk=pk,
+                              status=Device.Status.SPARE)
+    if device.position_id:
+        return redirect(device.calibrate_url())
+    return _calibration_entry(request, device)
 
 
-def _calibration_entry(request, meter, corrects=None, draft=None):
-    entry = CalibrationEntry(meter, request.POST if request.method == "POST" else None, user=request.user,
+def _calibration_entry(request, device, corrects=None, draft=None):
+    entry = CalibrationEntry(device, request.POST if request.method == "POST" else None, user=request.user,
                              corrects=corrects, draft=draft)
-    swapped = (device_mismatch(meter, request.POST) if request.method == "POST" and corrects is None and draft is None
+    swapped = (device_mismatch(device, request.POST) if request.method == "POST" and corrects is None and draft is None
                else "")
     if swapped:
         entry.non_field_errors.append(swapped)
@@ -68,7 +68,7 @@ def _calibration_entry(request, meter, corrects=None, draft=None):
             return redirect(event)
     status = 400 if request.method == "POST" else 200
     return render(request, "calibration/entry.html", {
-        "meter": meter, "entry": entry, "corrects": entry.corrects, "draft": draft,
+        "device": device, "entry": entry, "corrects": entry.corrects, "draft": draft,
         "corrects_number": certificate_number(entry.corrects) if entry.corrects is not None else ""}, status=status)
 
 
@@ -82,14 +82,14 @@ def _can_edit_draft(user, event):
 def edit_draft(request, pk):
     """Correct a draft before it is signed: the tablet form filled with its values; saving rewrites the draft."""
     event = get_object_or_404(CalibrationEvent.objects.select_related(
-        "meter__position__area__site", "meter__position__fluid", "supersedes"), pk=pk)
+        "device__position__area__site", "device__position__fluid", "supersedes"), pk=pk)
     if not event.is_draft:
         return event_detail(request, pk, sign_error=(
             "Only a draft can be edited; a signed calibration is put right by a correction." if event.is_signed
             else "This draft was discarded; enter a new calibration."))
     if not _can_edit_draft(request.user, event):
         raise PermissionDenied("Only the technician who entered this draft, or a reviewer, can edit it.")
-    return _calibration_entry(request, event.meter, draft=event)
+    return _calibration_entry(request, event.device, draft=event)
 
 
 @require_POST
@@ -114,7 +114,7 @@ def correct_event(request, pk):
     """A correction of a signed calibration (ISO/IEC 17025:2017 §7.8.8): a new record, filled with the signed one's
     values, that states why and replaces it when signed. A correction already started is reused."""
     original = get_object_or_404(CalibrationEvent.objects.select_related(
-        "meter__position__area__site", "meter__position__fluid"), pk=pk)
+        "device__position__area__site", "device__position__fluid"), pk=pk)
     existing = CalibrationEvent.objects.filter(supersedes=original).exclude(
         state=CalibrationEvent.State.DISCARDED).first()
     if existing is not None:
@@ -122,7 +122,7 @@ def correct_event(request, pk):
     if not original.is_signed:
         return event_detail(request, pk, sign_error="A draft is not corrected: it is signed or left as it is; "
                                                     "only a signed calibration can be corrected.")
-    return _calibration_entry(request, original.meter, corrects=original)
+    return _calibration_entry(request, original.device, corrects=original)
 
 
 def _result_rows(points, risks=None):
@@ -141,7 +141,7 @@ def _conformity(event, points, content):
     """The calibration's conformity risk: as frozen at sign-off (content version 2), else computed now with the
     stored prior of like devices (a draft, or a record signed before risks were kept: the page says so)."""
     contents = [dict(signed_content.point_content(p), acceptance_limit=p.acceptance_limit) for p in points]
-    prior = conformity_fleet.prior_for_meter(event.meter)
+    prior = conformity_fleet.prior_for_meter(event.device)
     now = conformity_fleet.event_conformity(contents, event.decision_rule, prior)
     frozen = (content or {}).get("conformity")
     return now, frozen
@@ -150,7 +150,7 @@ def _conformity(event, points, content):
 @permission_required("calibration.view_calibrationevent", raise_exception=True)
 def event_detail(request, pk, sign_error=None):
     event = get_object_or_404(
-        CalibrationEvent.objects.select_related("meter__position__area__site", "meter__position__fluid", "position", "supersedes", "performed_by",
+        CalibrationEvent.objects.select_related("device__position__area__site", "device__position__fluid", "position", "supersedes", "performed_by",
                                                 "created_by", "superseded_by"), pk=pk
     )
     correction = getattr(event, "superseded_by", None)
@@ -173,7 +173,7 @@ def event_detail(request, pk, sign_error=None):
         "low_tur": any(warning for _, _, warning, _ in rows),
         "risks": risks_signed or risks_now, "risks_frozen": risks_signed is not None,
         # a signed record states its errors in the unit it was signed with
-        "error_unit": content["mpe"]["error_unit"] if content else error_unit(event.meter),
+        "error_unit": content["mpe"]["error_unit"] if content else error_unit(event.device),
         "standards": standards,
         "countersignature": getattr(event, "countersignature", None),
         "problems": [] if event.is_signed else event.problems(),

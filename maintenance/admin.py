@@ -26,7 +26,7 @@ class PhotoInline(LockedWhenSigned, admin.TabularInline):
 
 @admin.register(MaintenanceRecord)
 class MaintenanceRecordAdmin(LockedWhenSigned, SimpleHistoryAdmin):
-    list_display = ("meter", "performed_on", "task", "condition", "technician", "state")
+    list_display = ("device", "performed_on", "task", "condition", "technician", "state")
     list_filter = ("state", "condition")
     inlines = [PhotoInline]
     actions = None  # no bulk delete of maintenance records
@@ -36,7 +36,7 @@ class MaintenanceRecordAdmin(LockedWhenSigned, SimpleHistoryAdmin):
 
 @admin.register(MaintenanceTask)
 class MaintenanceTaskAdmin(RefuseCitedDeletes, SimpleHistoryAdmin):
-    list_display = ("meter", "title", "frequency_days", "next_due_date", "origin", "active")
+    list_display = ("device", "title", "frequency_days", "next_due_date", "origin", "active")
     list_filter = ("origin", "active", "code")
     actions = None
 

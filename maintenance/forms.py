@@ -93,20 +93,20 @@ class RecordForm(forms.ModelForm):
             "performed_on": {"required": "Enter the date of the work.", "invalid": "Enter a valid date."},
         }
 
-    def __init__(self, *args, meter=None, user=None, **kwargs):
+    def __init__(self, *args, device=None, user=None, **kwargs):
         super().__init__(*args, **kwargs)
-        self.meter, self.user = meter, user
-        self.fields["task"].queryset = MaintenanceTask.objects.filter(meter=meter, active=True).order_by("code", "pk")
+        self.device, self.user = device, user
+        self.fields["task"].queryset = MaintenanceTask.objects.filter(device=device, active=True).order_by("code", "pk")
         self.fields["task"].empty_label = None
         self.fields["task"].label_from_instance = task_label
         self.fields["condition"].choices = [c for c in self.fields["condition"].choices if c[0]]
-        self.instance.meter = meter
+        self.instance.device = device
         self.instance.technician = (user.get_full_name() or user.username) if user else ""
 
     @transaction.atomic
     def save(self, commit=True):
         record = super().save(commit=False)
-        record.meter = self.meter
+        record.device = self.device
         record.created_by = self.user
         record.technician = (self.user.get_full_name() or self.user.username) if self.user else record.technician
         record.save()

@@ -21,7 +21,7 @@ from maintenance import loop
 from maintenance.ledger_kinds import MAINTENANCE
 from plant import citations
 from plant.citations import CitedQuerySet, ProtectedWhileCited
-from plant.models import DutyPeriod, Installation, Meter, unstorable_value_errors
+from plant.models import DutyPeriod, Installation, Device, unstorable_value_errors
 
 MAX_TASK_DAYS = 3650  # a sanity bound, as the meter's base interval
 
@@ -31,7 +31,7 @@ class MaintenanceTask(ProtectedWhileCited, models.Model):
         DERIVED = "derived", "From the duty"
         REVIEWER = "reviewer", "Set by a reviewer"
 
-    meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="maintenance_tasks")
+    device = models.ForeignKey(Device, on_delete=models.PROTECT, related_name="maintenance_tasks")
     code = models.CharField(max_length=40, help_text="catalogue code (maintenance/tasks.py) or CUSTOM")
     title = models.CharField(max_length=120)
     reason = models.TextField()
@@ -57,16 +57,16 @@ class MaintenanceTask(ProtectedWhileCited, models.Model):
     objects = CitedQuerySet.as_manager()
 
     class Meta:
-        ordering = ["meter", "code", "id"]
+        ordering = ["device", "code", "id"]
         indexes = [models.Index(fields=["next_due_date"], condition=models.Q(active=True),
                                 name="maint_task_due_idx"),
                    # the review joins tasks to installed devices: this answers it without reading the task rows
-                   models.Index(fields=["meter", "active", "next_due_date", "code"], include=["id"],
+                   models.Index(fields=["device", "active", "next_due_date", "code"], include=["id"],
                                 name="maint_task_meter_due_idx")]
         permissions = [("review_maintenance", "Can add, change and retire maintenance tasks")]
 
     def __str__(self):
-        return f"{self.meter}: {self.title}"
+        return f"{self.device}: {self.title}"
 
     def clean(self):
         errors = unstorable_value_errors(self)
@@ -104,7 +104,7 @@ class MaintenanceRecord(SignedRecord):
         SIGNED = "signed", "Signed"
 
 
-    meter = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="maintenance_records")
+    device = models.ForeignKey(Device, on_delete=models.PROTECT, related_name="maintenance_records")
     task = models.ForeignKey(MaintenanceTask, on_delete=models.PROTECT, related_name="records")
     performed_on = models.DateField("date of the work")
     technician = models.CharField(max_length=120)
@@ -134,11 +134,11 @@ class MaintenanceRecord(SignedRecord):
 
     class Meta:
         ordering = ["-performed_on", "-id"]
-        indexes = [models.Index(fields=["meter", "performed_on"], name="maint_record_meter_day_idx")]
+        indexes = [models.Index(fields=["device", "performed_on"], name="maint_record_meter_day_idx")]
         permissions = [("sign_maintenance", "Can sign own maintenance records")]
 
     def __str__(self):
-        return f"{self.meter} {self.performed_on} {self.get_condition_display()} ({self.get_state_display()})"
+        return f"{self.device} {self.performed_on} {self.get_condition_display()} ({self.get_state_display()})"
 
     def get_absolute_url(self):
         return reverse("maintenance:record-detail", args=[self.pk])
@@ -149,7 +149,7 @@ class MaintenanceRecord(SignedRecord):
 
     def clean(self):
         errors = unstorable_value_errors(self)
-        if self.task_id and self.meter_id and self.task.meter_id != self.meter_id:
+        if self.task_id and self.device_id and self.task.device_id != self.device_id:
             errors["task"] = "This task belongs to another meter."
         elif self.task_id and self._state.adding and not self.task.active:
             errors["task"] = "This task is retired; choose an active task."
@@ -245,14 +245,14 @@ class WalkOrder(models.Model):
 
 # What signed maintenance records cite (plant/citations.py): a task's meter is frozen while signed records of it exist
 # (moved to another meter, the records would say the work was done on a device it was not done on)
-citations.protect(MaintenanceTask, label=lambda t: f"Maintenance task “{t.title}” of {t.meter}",
-                  instead="retire it instead (untick Active)", frozen=("meter",))
+citations.protect(MaintenanceTask, label=lambda t: f"Maintenance task “{t.title}” of {t.device}",
+                  instead="retire it instead (untick Active)", frozen=("device",))
 SIGNED_RECORDS = ("signed maintenance record", "signed maintenance records")
 SIGNED_ONLY = {"state": MaintenanceRecord.State.SIGNED}
-for cited, lookup in ((Meter, "meter"), (MaintenanceTask, "task")):
+for cited, lookup in ((Device, "device"), (MaintenanceTask, "task")):
     citations.cite(cited, citations.Citation(MaintenanceRecord._meta.label, lookup, "is cited by", SIGNED_RECORDS,
                                              SIGNED_ONLY))
-for cited, device_field in ((DutyPeriod, "meter"), (Installation, "device")):
+for cited, device_field in ((DutyPeriod, "device"), (Installation, "device")):
     citations.cite(cited, citations.Coverage(MaintenanceRecord._meta.label, "covers the dates of", SIGNED_RECORDS,
                                              device_field, SIGNED_ONLY))
 citations.cite(settings.AUTH_USER_MODEL, citations.Citation(

@@ -2,7 +2,7 @@
 from django.db.models.signals import post_save
 from django.dispatch import Signal, receiver
 
-from plant.models import Fluid, Meter, Position
+from plant.models import Fluid, Device, Position
 from plant.signals import devices_registered
 
 # Tasks were added or changed by hand (a reviewer's form, the demo builder): their stored due dates are stale.
@@ -10,7 +10,7 @@ from plant.signals import devices_registered
 tasks_changed = Signal()
 
 
-@receiver(post_save, sender=Meter, dispatch_uid="maintenance-meter-tasks")
+@receiver(post_save, sender=Device, dispatch_uid="maintenance-meter-tasks")
 def meter_saved(sender, instance, raw=False, **kwargs):
     if raw:  # loaddata: the fixture brings its own tasks
         return
@@ -25,9 +25,9 @@ def fluid_saved(sender, instance, raw=False, created=False, **kwargs):
         return
     from maintenance.sync import sync_tasks
 
-    for meter in Meter.objects.filter(position__fluid=instance).select_related("position"):
-        meter.position.fluid = instance
-        sync_tasks(meter)
+    for device in Device.objects.filter(position__fluid=instance).select_related("position"):
+        device.position.fluid = instance
+        sync_tasks(device)
 
 
 @receiver(post_save, sender=Position, dispatch_uid="maintenance-position-tasks")

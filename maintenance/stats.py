@@ -22,15 +22,15 @@ COLOURS = {"clean": "#0b6e69", "light_deposit": "#8fc7c1", "heavy_deposit": "#b4
 def findings_frame(site=None) -> pd.DataFrame:
     """principle (display name), fluid, condition of every signed record (optionally of one site): one query."""
     from maintenance.models import MaintenanceRecord
-    from plant.models import Meter
+    from plant.models import Device
 
     records = MaintenanceRecord.objects.filter(state=MaintenanceRecord.State.SIGNED)
     if site is not None:
-        records = records.filter(meter__position__area__site=site)
+        records = records.filter(device__position__area__site=site)
     frame = pd.DataFrame.from_records(
-        list(records.order_by().values_list("meter__principle", "meter__position__fluid__name", "condition")),
+        list(records.order_by().values_list("device__principle", "device__position__fluid__name", "condition")),
         columns=["principle", "fluid", "condition"])
-    names = dict(Meter.Principle.choices)
+    names = dict(Device.Principle.choices)
     frame["principle"] = frame["principle"].map(lambda p: names.get(p, p))
     return frame
 

@@ -18,19 +18,19 @@ def _saved(task, reason):
 
 
 @transaction.atomic
-def sync_tasks(meter, today=None):
+def sync_tasks(device, today=None):
     """Create, update or retire the meter's derived tasks; returns the specs the duty calls for."""
-    today = today or meter.today()  # the date at the meter's site
-    specs = catalogue.derive_tasks(meter.principle, meter.duty_findings())
-    existing = {t.code: t for t in meter.maintenance_tasks.filter(origin=MaintenanceTask.Origin.DERIVED)}
-    reviewer_codes = set(meter.maintenance_tasks.filter(origin=MaintenanceTask.Origin.REVIEWER)
+    today = today or device.today()  # the date at the meter's site
+    specs = catalogue.derive_tasks(device.principle, device.duty_findings())
+    existing = {t.code: t for t in device.maintenance_tasks.filter(origin=MaintenanceTask.Origin.DERIVED)}
+    reviewer_codes = set(device.maintenance_tasks.filter(origin=MaintenanceTask.Origin.REVIEWER)
                          .values_list("code", flat=True))
     for spec in specs:
         if spec.code in reviewer_codes:
             continue  # a reviewer has taken this task over
         task = existing.get(spec.code)
         if task is None:
-            task = MaintenanceTask(meter=meter, code=spec.code, title=spec.title, reason=spec.reason,
+            task = MaintenanceTask(device=device, code=spec.code, title=spec.title, reason=spec.reason,
                                    basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
                                    since=today)
             _saved(task, "Called for by the duty: " + spec.explanation())
@@ -70,7 +70,7 @@ def add_tasks_in_bulk(devices, duty_findings, user):
             today_at[site_id] = device.today()
         today = today_at[site_id]
         for spec in catalogue.derive_tasks(device.principle, findings):
-            task = MaintenanceTask(meter=device, code=spec.code, title=spec.title, reason=spec.reason,
+            task = MaintenanceTask(device=device, code=spec.code, title=spec.title, reason=spec.reason,
                                    basis=spec.basis, base_days=spec.base_days, severity_factor=spec.factor,
                                    since=today)
             reason = "Called for by the duty: " + spec.explanation()  # as sync_tasks writes it

@@ -83,19 +83,19 @@ def invent_visits(rng: random.Random, start_days: int, since: dt.date, until: dt
         current, streak = loop.step(current, streak, condition, lower, upper)
 
 
-def specs_for(meter):
-    return catalogue.derive_tasks(meter.principle, meter.duty_findings())
+def specs_for(device):
+    return catalogue.derive_tasks(device.principle, device.duty_findings())
 
 
-def build_tasks(meter, since):
+def build_tasks(device, since):
     """Unsaved derived tasks of a meter, their stored fields filled as save() would."""
     from maintenance.models import MaintenanceTask
 
-    return [MaintenanceTask(meter=meter, code=s.code, title=s.title, reason=s.reason, basis=s.basis,
+    return [MaintenanceTask(device=device, code=s.code, title=s.title, reason=s.reason, basis=s.basis,
                             base_days=s.base_days, severity_factor=s.factor, start_days=s.frequency_days,
                             frequency_days=s.frequency_days, next_due_date=since, since=since,
                             change_reason="Called for by the duty: " + s.explanation())
-            for s in specs_for(meter)]
+            for s in specs_for(device)]
 
 
 def build_records(task, visits, rng):
@@ -106,23 +106,23 @@ def build_records(task, visits, rng):
     for day, condition in visits:
         technician = rng.choice(TECHNICIANS)
         out.append(MaintenanceRecord(
-            meter_id=task.meter_id, task=task, performed_on=day, technician=technician, condition=condition,
+            device_id=task.device_id, task=task, performed_on=day, technician=technician, condition=condition,
             action=ACTIONS[condition], parts="", minutes_spent=rng.choice([20, 30, 45, 60, 90]), notes="",
             state=MaintenanceRecord.State.SIGNED, signed_by=technician, signed_role="Technician",
             signed_at=dt.datetime.combine(day, dt.time(14, 30), tzinfo=dt.timezone.utc)))
     return out
 
 
-def add_fleet_history(meters, rng, since, until):
+def add_fleet_history(devices, rng, since, until):
     """Tasks and signed visits for freshly bulk-created meters (make_fleet); returns (tasks, records) counts."""
     from maintenance.models import MaintenanceRecord, MaintenanceTask
 
-    tasks = [t for m in meters for t in build_tasks(m, since)]
+    tasks = [t for m in devices for t in build_tasks(m, since)]
     MaintenanceTask.objects.bulk_create(tasks, batch_size=2000)
-    fluids = {m.pk: m.fluid.props() for m in meters}
+    fluids = {m.pk: m.fluid.props() for m in devices}
     records = []
     for task in tasks:
-        model = duty_model(task.code, fluids[task.meter_id])
+        model = duty_model(task.code, fluids[task.device_id])
         # a few duties upset over the last months (invented): the fouling finding occurs at scale too
         upset = until - dt.timedelta(days=150) if model["tau"] and model["tau"] < 1000 and rng.random() < 0.08 else None
         visits = invent_visits(rng, task.start_days, since, until, task.code, model, upset_from=upset)

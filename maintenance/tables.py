@@ -4,10 +4,10 @@ from plant.columns import IsoDateColumn
 
 
 class MaintenanceTaskColumns(tables.Table):
-    tag = tables.Column(accessor="meter__position__tag", verbose_name="Tag", order_by=("meter__position__tag",),
-                        linkify=lambda record: record.meter.get_absolute_url() + "#maintenance")
-    site = tables.Column(accessor="meter__position__area__site__name", verbose_name="Site", order_by=("meter__position__area__site__name",))
-    area = tables.Column(accessor="meter__position__area__name", verbose_name="Area", order_by=("meter__position__area__name",))
+    tag = tables.Column(accessor="device__position__tag", verbose_name="Tag", order_by=("device__position__tag",),
+                        linkify=lambda record: record.device.get_absolute_url() + "#maintenance")
+    site = tables.Column(accessor="device__position__area__site__name", verbose_name="Site", order_by=("device__position__area__site__name",))
+    area = tables.Column(accessor="device__position__area__name", verbose_name="Area", order_by=("device__position__area__name",))
     title = tables.Column(verbose_name="Task")
     next_due_date = IsoDateColumn(verbose_name="Due date")
 
@@ -21,7 +21,7 @@ class MaintenanceOverdueTable(MaintenanceTaskColumns):
     last_condition = tables.Column(verbose_name="Last found", default="never done")
 
     def render_days_overdue(self, record):
-        return (record.meter.today() - record.next_due_date).days  # days at the position's site
+        return (record.device.today() - record.next_due_date).days  # days at the position's site
 
     def value_days_overdue(self, record):
         return self.render_days_overdue(record)

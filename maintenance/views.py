@@ -13,31 +13,31 @@ from maintenance.forms import RecordForm, TaskForm
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 from maintenance.signals import tasks_changed
 from plant.db_failures import nothing_saved_page
-from plant.models import Meter
+from plant.models import Device
 from plant.params import query_id
 from plant.roles import role_of
 
 
 @permission_required("maintenance.add_maintenancerecord", raise_exception=True)
 def new_record(request, tag):
-    meter = get_object_or_404(Meter.objects.select_related("position__area__site", "position__fluid"), position__tag=tag)
+    device = get_object_or_404(Device.objects.select_related("position__area__site", "position__fluid"), position__tag=tag)
     if request.method == "POST":
-        form = RecordForm(request.POST, request.FILES, meter=meter, user=request.user)
+        form = RecordForm(request.POST, request.FILES, device=device, user=request.user)
         if form.is_valid():
             return redirect(form.save())
     else:
-        initial = {"performed_on": meter.today()}  # the date at the position's site
+        initial = {"performed_on": device.today()}  # the date at the position's site
         task = query_id(request, "task")
         if task is not None:
             initial["task"] = task
-        form = RecordForm(meter=meter, user=request.user, initial=initial)
-    return render(request, "maintenance/entry.html", {"meter": meter, "form": form},
+        form = RecordForm(device=device, user=request.user, initial=initial)
+    return render(request, "maintenance/entry.html", {"device": device, "form": form},
                   status=400 if request.method == "POST" else 200)
 
 
 @permission_required("maintenance.view_maintenancerecord", raise_exception=True)
 def record_detail(request, pk, sign_error=None):
-    record = get_object_or_404(MaintenanceRecord.objects.select_related("meter__position__area__site", "meter__position__fluid", "task"),
+    record = get_object_or_404(MaintenanceRecord.objects.select_related("device__position__area__site", "device__position__fluid", "task"),
                                pk=pk)
     can_sign = (not record.is_signed and request.user.has_perm("maintenance.sign_maintenance")
                 and record.created_by_id == request.user.pk)
@@ -75,35 +75,35 @@ def photo(request, pk):
     return response
 
 
-def _task_form(request, meter, task):
+def _task_form(request, device, task):
     form = TaskForm(request.POST or None, instance=task)
     if request.method == "POST" and form.is_valid():
         with transaction.atomic():
             saved = form.save()
-            tasks_changed.send(sender=MaintenanceTask, devices=[meter.pk])  # the due dates follow (scheduling)
+            tasks_changed.send(sender=MaintenanceTask, devices=[device.pk])  # the due dates follow (scheduling)
         messages.success(request, f"Task “{saved.title}” saved.")
-        return redirect(meter.get_absolute_url() + "#maintenance")
-    return render(request, "maintenance/task_form.html", {"form": form, "meter": meter, "task": task},
+        return redirect(device.get_absolute_url() + "#maintenance")
+    return render(request, "maintenance/task_form.html", {"form": form, "device": device, "task": task},
                   status=400 if request.method == "POST" else 200)
 
 
 @permission_required("maintenance.review_maintenance", raise_exception=True)
 def task_add(request, tag):
-    meter = get_object_or_404(Meter, position__tag=tag)
-    return _task_form(request, meter, MaintenanceTask(meter=meter))
+    device = get_object_or_404(Device, position__tag=tag)
+    return _task_form(request, device, MaintenanceTask(device=device))
 
 
 @permission_required("maintenance.review_maintenance", raise_exception=True)
 def task_edit(request, pk):
-    task = get_object_or_404(MaintenanceTask.objects.select_related("meter"), pk=pk)
-    return _task_form(request, task.meter, task)
+    task = get_object_or_404(MaintenanceTask.objects.select_related("device"), pk=pk)
+    return _task_form(request, task.device, task)
 
 
 # The meter page's section ---------------------------------------------------------------------------
-def meter_section(meter, calibrations=None):
+def meter_section(device, calibrations=None):
     """Context of the meter page's maintenance section: three queries (tasks, records, calibration verdicts)."""
-    tasks = list(meter.maintenance_tasks.order_by("-active", "next_due_date", "code"))
-    records = list(meter.maintenance_records.select_related("task").order_by("performed_on", "id"))
+    tasks = list(device.maintenance_tasks.order_by("-active", "next_due_date", "code"))
+    records = list(device.maintenance_records.select_related("task").order_by("performed_on", "id"))
     signed = [r for r in records if r.is_signed]
     rows = []
     for task in tasks:
@@ -113,7 +113,7 @@ def meter_section(meter, calibrations=None):
         rows.append({"task": task, "frequency": result.frequency_days, "steps": result.steps,
                      "due": loop.next_due(last, result.frequency_days, task.since) if task.active else None,
                      "due_sentence": loop.due_sentence(last, result.frequency_days, task.since)})
-    verdicts = list(meter.calibrations.filter(state="signed").values_list("performed_on", "as_found_in_tolerance"))
+    verdicts = list(device.calibrations.filter(state="signed").values_list("performed_on", "as_found_in_tolerance"))
     pairs = loop.failures_after_fouling([(r.performed_on, r.condition) for r in signed], verdicts)
     return {"rows": rows, "records": list(reversed(records))[:20],
             "failures_after_fouling": pairs, "window": loop.FAILURE_WINDOW_DAYS}

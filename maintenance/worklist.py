@@ -93,20 +93,20 @@ def rows(end: dt.date, site=None, area=None, start: dt.date | None = None) -> li
 
     from calibration.models import CalibrationEvent, ReferenceStandard
     from maintenance.models import MaintenanceTask
-    from plant.models import Meter
+    from plant.models import Device
 
-    meters = Meter.objects.filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
+    devices = Device.objects.filter(status=Device.Status.IN_SERVICE, position__isnull=False)
     if site is not None:
-        meters = meters.filter(position__area__site=site)
+        devices = devices.filter(position__area__site=site)
     if area is not None:
-        meters = meters.filter(position__area=area)
-    principles = dict(Meter.Principle.choices)
+        devices = devices.filter(position__area=area)
+    principles = dict(Device.Principle.choices)
     items = []
-    due_meters = list(meters.filter(Q(next_due_date__lte=end) | Q(next_due_date__isnull=True))
+    due_meters = list(devices.filter(Q(next_due_date__lte=end) | Q(next_due_date__isnull=True))
                       .select_related("position__fluid", "position__area__site", "position__area__walk_order"))
-    drafts = dict(CalibrationEvent.objects.filter(meter__in=[m.pk for m in due_meters],
+    drafts = dict(CalibrationEvent.objects.filter(device__in=[m.pk for m in due_meters],
                                                   state=CalibrationEvent.State.DRAFT)
-                  .order_by("meter_id", "pk").values_list("meter_id", "pk"))  # the newest draft wins
+                  .order_by("device_id", "pk").values_list("device_id", "pk"))  # the newest draft wins
     # the standards depend only on the fluid's phase, the units and the range: one query per distinct kind
     offered: dict[tuple, tuple[str, ...]] = {}
     for m in due_meters:
@@ -135,9 +135,9 @@ def rows(end: dt.date, site=None, area=None, start: dt.date | None = None) -> li
                               draft_id=draft))
     common = ["position__tag", "principle", "position__fluid__name", "position__area_id", "position__area__name",
               "position__area__site__name", "position__area__walk_order__position", "serial"]
-    tasks = MaintenanceTask.objects.filter(active=True, next_due_date__lte=end, meter__in=meters.values("pk"))
+    tasks = MaintenanceTask.objects.filter(active=True, next_due_date__lte=end, device__in=devices.values("pk"))
     for (tag, principle, fluid, area_id, area_name, site_name, walk, serial, due, title, freq, last) in \
-            tasks.values_list(*[f"meter__{c}" for c in common], "next_due_date", "title", "frequency_days",
+            tasks.values_list(*[f"device__{c}" for c in common], "next_due_date", "title", "frequency_days",
                               "last_condition"):
         items.append(WorkItem(site_name, area_name, area_id, walk if walk is not None else NO_WALK_POSITION, tag,
                               principles.get(principle, principle), fluid, MAINTENANCE, title, due,

@@ -34,26 +34,26 @@ class CalibrationKind(RecordKind):
     title = "Calibration"
     permission = "calibration.add_calibrationevent"
 
-    def client_rules(self, meter):
-        return entry_rules(meter)
+    def client_rules(self, device):
+        return entry_rules(device)
 
-    def pages(self, user, meters):
-        return [reverse("plant:position-calibrate", args=[m.tag]) for m in meters if m.position_id]
+    def pages(self, user, devices):
+        return [reverse("plant:position-calibrate", args=[m.tag]) for m in devices if m.position_id]
 
     def receive(self, user, client_id, target, data):
         known = self.known(user, client_id)
         if known is not None:
             return known
-        meter = self.meter_for(target, data)  # the device installed at the tag now (never a retired one)
-        entry = CalibrationEntry(meter, data, user=user)
+        device = self.meter_for(target, data)  # the device installed at the tag now (never a retired one)
+        entry = CalibrationEntry(device, data, user=user)
         if not entry.is_valid():
             raise Refused(entry_errors(entry))
         performed_on = entry.event_form.cleaned_data["performed_on"]
-        covering = CalibrationEvent.objects.filter(meter=meter, performed_on=performed_on,
+        covering = CalibrationEvent.objects.filter(device=device, performed_on=performed_on,
                                                    state=CalibrationEvent.State.SIGNED).first()
         if covering is not None:
             raise Refused({entry.event_form.add_prefix("performed_on"): [
-                f"A signed calibration of {meter.tag} on {performed_on} is already on record "
+                f"A signed calibration of {device.tag} on {performed_on} is already on record "
                 f"(calibration {covering.pk}); check the date, or discard this entry if it is the same work."]})
         entry.event_form.instance.client_id = client_id
         return self.saved_once(user, client_id, entry.save)

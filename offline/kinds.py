@@ -48,14 +48,14 @@ class RecordKind:
     model = None
 
     def find(self, client_id):
-        return self.model.objects.select_related("meter").filter(client_id=client_id).first()
+        return self.model.objects.select_related("device").filter(client_id=client_id).first()
 
     def _received(self, record, user, created):
         if record.created_by_id != user.pk:
             # an id is random; this only happens if a tablet reuses one. Say nothing about the other record.
             raise Refused({"__all__": ["This entry's id is already used by another record; discard it and "
                                        "enter it again."]})
-        return Received(url=record.get_absolute_url(), label=f"{record.meter} {record.performed_on}",
+        return Received(url=record.get_absolute_url(), label=f"{record.device} {record.performed_on}",
                         created=created)
 
     def known(self, user, client_id):
@@ -68,18 +68,18 @@ class RecordKind:
         """The device installed at the position `target` (a tag). When the entry names the device it was
         written for (the entry page's hidden ``device``), a device swapped out since is refused: the readings
         belong to that device, not to the one installed now."""
-        from plant.models import Meter, Position
+        from plant.models import Device, Position
 
-        meter = (Meter.objects.select_related("position__area__site", "position__fluid")
+        device = (Device.objects.select_related("position__area__site", "position__fluid")
                  .filter(position__tag=target).first())
-        if meter is None:
+        if device is None:
             if not Position.objects.filter(tag=target).exists():
                 raise Refused({"__all__": [f"Position {target} is not in the register any more."]})
             raise Refused({"__all__": [f"No device is installed at {target} now; the entry cannot be saved to it."]})
-        written_for = device_mismatch(meter, data)
+        written_for = device_mismatch(device, data)
         if written_for:
             raise Refused({"__all__": [written_for]})
-        return meter
+        return device
 
     def saved_once(self, user, client_id, save, lost_race=()):
         """save() in its own transaction; when the same id arrived at the same moment from another send,

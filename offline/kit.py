@@ -11,7 +11,7 @@ from django.urls import reverse
 
 from offline import kinds
 from plant import localtime
-from plant.models import Meter, Site
+from plant.models import Device, Site
 
 DEFAULTS = {"weeks_ahead": 6, "max_meters": 200}
 
@@ -21,7 +21,7 @@ def setting(name):
 
 
 def allowed_kinds(user):
-    if not user.has_perm("plant.view_meter"):
+    if not user.has_perm("plant.view_device"):
         return []
     return [k for k in kinds.all_kinds() if user.has_perm(k.permission)]
 
@@ -29,16 +29,16 @@ def allowed_kinds(user):
 def due_meters(user, site=None, area=None, today=None):
     """In-service meters due (or overdue, or never calibrated) within the coming weeks, most urgent first."""
     if not allowed_kinds(user):
-        return Meter.objects.none()
+        return Device.objects.none()
     weeks = dt.timedelta(weeks=setting("weeks_ahead"))
-    meters = (Meter.objects.select_related("position__area__site")
-              .filter(status=Meter.Status.IN_SERVICE, position__isnull=False)
+    devices = (Device.objects.select_related("position__area__site")
+              .filter(status=Device.Status.IN_SERVICE, position__isnull=False)
               .filter(_due_by(today, weeks) | Q(next_due_date__isnull=True)))
     if site:
-        meters = meters.filter(position__area__site_id=site)
+        devices = devices.filter(position__area__site_id=site)
     if area:
-        meters = meters.filter(position__area_id=area)
-    return meters.order_by(F("next_due_date").asc(nulls_first=True), "position__tag")  # never calibrated first
+        devices = devices.filter(position__area_id=area)
+    return devices.order_by(F("next_due_date").asc(nulls_first=True), "position__tag")  # never calibrated first
 
 
 def _due_by(today, weeks):
@@ -54,10 +54,10 @@ def _due_by(today, weeks):
                         for day, pks in sites_by_date.items()))
 
 
-def kit(user, meters):
+def kit(user, devices):
     """The URLs the tablet stores: the offline pages, the assets they need, each kind's entry pages."""
     pages = [reverse("offline:home"), reverse("offline:queue")]
     for kind in allowed_kinds(user):
-        pages.extend(kind.pages(user, meters))
+        pages.extend(kind.pages(user, devices))
     assets = [static("site.css"), static("offline/field.js")]
     return {"owner": str(user.pk), "pages": pages, "assets": assets}

@@ -22,9 +22,9 @@ class MaintenanceKind(RecordKind):
     title = "Maintenance"
     permission = "maintenance.add_maintenancerecord"
 
-    def client_rules(self, meter):
+    def client_rules(self, device):
         """Required fields with the server form's own messages, the date input and each field's label."""
-        fields = RecordForm(meter=meter).fields
+        fields = RecordForm(device=device).fields
         return {
             "required": {name: str(field.error_messages["required"])
                          for name, field in fields.items() if field.required},
@@ -33,15 +33,15 @@ class MaintenanceKind(RecordKind):
             "messages": {"future_date": "The date of the work is in the future."},
         }
 
-    def pages(self, user, meters):
-        return [reverse("plant:position-maintain", args=[m.tag]) for m in meters if m.position_id]
+    def pages(self, user, devices):
+        return [reverse("plant:position-maintain", args=[m.tag]) for m in devices if m.position_id]
 
     def receive(self, user, client_id, target, data):
         known = self.known(user, client_id)
         if known is not None:
             return known
-        meter = self.meter_for(target, data)
-        form = RecordForm(data, meter=meter, user=user)  # no files: photos are not sent from the queue
+        device = self.meter_for(target, data)
+        form = RecordForm(data, device=device, user=user)  # no files: photos are not sent from the queue
         if not form.is_valid():
             raise Refused(form_errors(form))
         form.instance.client_id = client_id

@@ -15,48 +15,48 @@ AS_FOUND_REQUIRED = "Enter at least one as-found point."
 AS_LEFT_REQUIRED = "An adjustment was made: enter the as-left points."
 
 
-def _row_message(meter, field, **values):
+def _row_message(device, field, **values):
     row = {"nominal_pct": "50", "reference_value": "", "indicated_value": "", "repeats": "", "resolution": ""}
     row.update({k: str(v) for k, v in values.items()})
-    form = PointRowForm(row, meter=meter)
+    form = PointRowForm(row, device=device)
     form.is_valid()
     messages = form.errors.get(field)
     return str(messages[0]) if messages else ""
 
 
-def entry_rules(meter):
+def entry_rules(device):
     event_fields = EventForm().fields
     required = {
         f"ev-{name}": str(field.error_messages["required"])
         for name, field in event_fields.items() if field.required
     }
-    inside = meter.range_min + (meter.range_max - meter.range_min) / 2
-    probe = meter.range_max + (meter.range_max - meter.range_min) + 1
-    outside = _row_message(meter, "reference_value", reference_value=probe, indicated_value=probe)
+    inside = device.range_min + (device.range_max - device.range_min) / 2
+    probe = device.range_max + (device.range_max - device.range_min) + 1
+    outside = _row_message(device, "reference_value", reference_value=probe, indicated_value=probe)
     row = PointRowForm.base_fields
     # readings are entered in the ticked standard's units: the tablet checks the meter's range only when those
     # are the meter's, and asks for the density where the server would (CalibrationEntry._conversion)
-    standard_units = {str(pk): code for pk, code in ReferenceStandard.offered_for(meter).values_list("pk", "units")}
-    density_required = {pk: density_required_message(code, meter.flow_units) for pk, code in standard_units.items()
-                        if "density" in units.conversion_needs(code, meter.flow_units)}
+    standard_units = {str(pk): code for pk, code in ReferenceStandard.offered_for(device).values_list("pk", "units")}
+    density_required = {pk: density_required_message(code, device.flow_units) for pk, code in standard_units.items()
+                        if "density" in units.conversion_needs(code, device.flow_units)}
     return {
         "required": required,
-        "range_min": meter.range_min,
-        "range_max": meter.range_max,
-        "mpe_basis": meter.mpe_basis,
+        "range_min": device.range_min,
+        "range_max": device.range_max,
+        "mpe_basis": device.mpe_basis,
         "grids": ["af", "al"],
-        "meter_units": meter.flow_units,
+        "meter_units": device.flow_units,
         "standard_units": standard_units,
         "messages": {
             "reference_invalid": str(row["reference_value"].error_messages["invalid"]),
             "indicated_invalid": str(row["indicated_value"].error_messages["invalid"]),
-            "reference_required": _row_message(meter, "reference_value", indicated_value=inside),
-            "indicated_required": _row_message(meter, "indicated_value", reference_value=inside),
-            "negative": _row_message(meter, "reference_value", reference_value=-1, indicated_value=1),
+            "reference_required": _row_message(device, "reference_value", indicated_value=inside),
+            "indicated_required": _row_message(device, "indicated_value", reference_value=inside),
+            "negative": _row_message(device, "reference_value", reference_value=-1, indicated_value=1),
             # the value is put back in by the tablet
             "outside_range": outside.replace(f"{probe:g}", "{value}", 1),
-            "zero_of_reading": (_row_message(meter, "reference_value", reference_value=0, indicated_value=0)
-                                if meter.mpe_basis == "pct_reading" and meter.range_min <= 0 else ""),
+            "zero_of_reading": (_row_message(device, "reference_value", reference_value=0, indicated_value=0)
+                                if device.mpe_basis == "pct_reading" and device.range_min <= 0 else ""),
             "blank_as_found_row": "Enter the reference flow at this point, or tick Remove on its row.",
             "as_found_required": AS_FOUND_REQUIRED,
             "as_left_required": AS_LEFT_REQUIRED,
@@ -68,7 +68,7 @@ def entry_rules(meter):
                             "as typed, tick “Readings held are right as typed” and save again."),
         },
         "hold": {"mpe_factor": plausibility.MPE_FACTOR, "range_factor": plausibility.RANGE_FACTOR,
-                 "mpe_value": meter.mpe_value},
+                 "mpe_value": device.mpe_value},
         # the physical bounds of the conditions, with the server's sentence ({value} put back in by the tablet)
         "conditions": {f"ev-{name}": [low, high, _bound_message(name, high)]
                        for name, (low, high, _unit, _why) in plausibility.CONDITION_BOUNDS.items()},

@@ -48,16 +48,16 @@ def _filters(request):
     return query_id(request, "site"), query_id(request, "area")
 
 
-READ_REGISTER = permission_required("plant.view_meter", raise_exception=True)
+READ_REGISTER = permission_required("plant.view_device", raise_exception=True)
 
 
 @READ_REGISTER
 def home(request):
     site, area = _filters(request)
-    meters = list(due_meters(request.user, site=site, area=area)[: setting("max_meters") + 1])
+    devices = list(due_meters(request.user, site=site, area=area)[: setting("max_meters") + 1])
     limit = setting("max_meters")
     return render(request, "offline/home.html", {
-        "meters": meters[:limit], "more": len(meters) > limit, "limit": limit,
+        "meters": devices[:limit], "more": len(devices) > limit, "limit": limit,
         "weeks": setting("weeks_ahead"), "can_enter": bool(allowed_kinds(request.user)),
         "sites": Site.objects.order_by("name"), "areas": Area.objects.select_related("site"),
         "site": site, "area": area,
@@ -74,8 +74,8 @@ def queue(request):
 @require_GET
 def kit_list(request):
     site, area = _filters(request)
-    meters = due_meters(request.user, site=site, area=area)[: setting("max_meters")]
-    return JsonResponse(kit(request.user, meters))
+    devices = due_meters(request.user, site=site, area=area)[: setting("max_meters")]
+    return JsonResponse(kit(request.user, devices))
 
 
 @never_cache

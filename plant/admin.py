@@ -5,7 +5,7 @@ from django.core.exceptions import ValidationError
 from django.forms.models import BaseInlineFormSet
 
 from plant import citations
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site
 
 
 class RefuseCitedDeletes:
@@ -42,8 +42,8 @@ class DutyInline(admin.TabularInline):
     extra = 0
 
 
-@admin.register(Meter)
-class MeterAdmin(RefuseCitedDeletes, admin.ModelAdmin):
+@admin.register(Device)
+class DeviceAdmin(RefuseCitedDeletes, admin.ModelAdmin):
     list_display = ("__str__", "serial", "principle", "status")
     list_filter = ("principle", "status", "position__area__site", "position__fluid")
     search_fields = ("position__tag", "serial")

@@ -95,9 +95,9 @@ class Coverage:
     def counts(self, protected_model, pks) -> dict:
         # until is inclusive (the certificate reads the duty of the day a device was removed as still served)
         covered = (apps.get_model(self.record)._base_manager.filter(**self.signed)
-                   .filter(meter=OuterRef(self.device_field), performed_on__gte=OuterRef("since"),
+                   .filter(device=OuterRef(self.device_field), performed_on__gte=OuterRef("since"),
                            performed_on__lte=Coalesce(OuterRef("until"), Value(dt.date.max, models.DateField())))
-                   .order_by().values("meter").annotate(n=Count("pk")).values("n"))
+                   .order_by().values("device").annotate(n=Count("pk")).values("n"))
         rows = (protected_model._base_manager.filter(pk__in=pks)
                 .annotate(n=Coalesce(Subquery(covered), 0)).values_list("pk", "n"))
         return {pk: n for pk, n in rows if n}

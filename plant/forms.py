@@ -7,7 +7,7 @@ import datetime as dt
 from plant import localtime
 from plant.units import UNKNOWN_UNIT, label_for
 from plant.installations import Removal
-from plant.models import UNKNOWN_MATERIAL, Fluid, Meter, Position, Site
+from plant.models import UNKNOWN_MATERIAL, Fluid, Device, Position, Site
 
 YES_WORDS = frozenset({"on", "yes", "y", "true", "t", "1"})
 NO_WORDS = frozenset({"off", "no", "n", "false", "f", "0", ""})
@@ -74,11 +74,11 @@ class PositionForm(forms.ModelForm):
         error_messages = {"flow_units": {"invalid_choice": UNKNOWN_UNIT}}
 
 
-class MeterForm(forms.ModelForm):
+class DeviceForm(forms.ModelForm):
     """The device: what it is and how it was calibrated. Where it is installed changes only by a swap."""
 
     class Meta:
-        model = Meter
+        model = Device
         exclude = ["status"]
         error_messages = {"wetted_material": {"invalid_choice": UNKNOWN_MATERIAL},
                           "flow_units": {"invalid_choice": UNKNOWN_UNIT}}
@@ -88,7 +88,7 @@ class SwapForm(forms.Form):
     """Remove the device at a position and install another: a spare from stores, or a new one."""
 
     device = forms.ModelChoiceField(
-        queryset=Meter.objects.none(), label="Device to install",
+        queryset=Device.objects.none(), label="Device to install",
         error_messages={"required": "Choose the device to install.",
                         "invalid_choice": "That device is not a spare on the shelf any more; choose another."})
     brand_new = YesNoField(required=False, label="New from the maker (no calibration of ours yet; its maker's "
@@ -110,7 +110,7 @@ class SwapForm(forms.Form):
         self.position = position
         if not may_accept_unfit:
             del self.fields["unfit_reason"]
-        self.fields["device"].queryset = Meter.objects.filter(position__isnull=True, status=Meter.Status.SPARE)
+        self.fields["device"].queryset = Device.objects.filter(position__isnull=True, status=Device.Status.SPARE)
         self.fields["device"].label_from_instance = lambda d: (
             f"{d.device_label} · {d.get_principle_display()} · {d.range_min:g}–{d.range_max:g} {label_for(d.flow_units)}"
             f" · due {d.next_due_date:%Y-%m-%d}" if d.next_due_date else

@@ -53,7 +53,7 @@ class ImportForm(forms.Form):
 
 
 @require_http_methods(["GET", "POST"])
-@permission_required(["plant.add_meter", "plant.change_meter", "plant.add_fluid", "plant.change_fluid"], raise_exception=True)
+@permission_required(["plant.add_device", "plant.change_device", "plant.add_fluid", "plant.change_fluid"], raise_exception=True)
 @nothing_saved_page("import", back="plant:import")
 def import_register(request):
     if request.method == "GET":
@@ -98,7 +98,7 @@ def _kind(request):
 
 
 @require_GET
-@permission_required("plant.view_meter", raise_exception=True)
+@permission_required("plant.view_device", raise_exception=True)
 def export_register_csv(request):
     kind = _kind(request)
     if kind is None:
@@ -111,7 +111,7 @@ def export_register_csv(request):
 
 
 @require_GET
-@permission_required("plant.view_meter", raise_exception=True)
+@permission_required("plant.view_device", raise_exception=True)
 def export_register_xlsx(request):
     kind = _kind(request)
     if kind is None:

@@ -46,8 +46,8 @@ from django.utils import timezone
 
 from plant import units
 from plant import installations, risk, spreadsheet
-from plant.forms import FluidForm, MeterForm, PositionForm
-from plant.models import (Area, DutyPeriod, Fluid, Installation, Meter, Position, Site, flows_above_range,
+from plant.forms import FluidForm, DeviceForm, PositionForm
+from plant.models import (Area, DutyPeriod, Fluid, Installation, Device, Position, Site, flows_above_range,
                           flows_checked_together)
 from plant.signals import devices_changed, devices_registered
 
@@ -74,7 +74,7 @@ REQUIRED_COLUMNS = {
 OPTIONAL_COLUMNS = {"meters": ("unfit_reason",)}
 KINDS = {
     "fluids": {"model": Fluid, "form": FluidForm, "key": "name", "columns": FLUID_COLUMNS},
-    "meters": {"model": Meter, "form": None, "key": "tag", "columns": METER_COLUMNS},
+    "meters": {"model": Device, "form": None, "key": "tag", "columns": METER_COLUMNS},
 }
 TRUE_WORDS = {"yes", "y", "true", "t", "1"}
 FALSE_WORDS = {"no", "n", "false", "f", "0", ""}
@@ -270,15 +270,15 @@ def _format(value) -> str:
 class RegisterRow:
     """One row of the meter register: a position and the device installed there (new, unsaved ones for a new row)."""
 
-    def __init__(self, device: Meter | None = None, position: Position | None = None):
-        self.device = device if device is not None else Meter()
+    def __init__(self, device: Device | None = None, position: Position | None = None):
+        self.device = device if device is not None else Device()
         self.position = position if position is not None else (device.position if device is not None else Position())
         self.unfit_reason = ""  # a reviewer's reason to install a device not fit for the duty (new rows)
 
 
 def _field(model, column):
     """The model field behind a column (for the register: the position's or the device's)."""
-    if model is Meter and column in POSITION_COLUMNS:
+    if model is Device and column in POSITION_COLUMNS:
         return Position._meta.get_field(column)
     return model._meta.get_field(column)
 
@@ -310,9 +310,9 @@ class RegisterRowForm:
     existing tag changes the position and the device installed there now. Devices are swapped on the position's
     page, not by import."""
 
-    base_fields = {**PositionForm.base_fields, **MeterForm.base_fields}
+    base_fields = {**PositionForm.base_fields, **DeviceForm.base_fields}
 
-    def __init__(self, data, instance: RegisterRow, position_form=PositionForm, device_form=MeterForm):
+    def __init__(self, data, instance: RegisterRow, position_form=PositionForm, device_form=DeviceForm):
         self.instance = instance
         self.new = instance.position.pk is None
         # a device not fit for the duty goes in only with a reviewer's written reason (plant/installations.py);
@@ -320,7 +320,7 @@ class RegisterRowForm:
         self.unfit_reason = instance.unfit_reason = str(data.get("unfit_reason") or "").strip()
         self.position_form = position_form(data={k: v for k, v in data.items() if k in PositionForm.base_fields},
                                            instance=instance.position)
-        self.device_form = device_form(data={k: v for k, v in data.items() if k in MeterForm.base_fields},
+        self.device_form = device_form(data={k: v for k, v in data.items() if k in DeviceForm.base_fields},
                                        instance=instance.device)
         self.errors: dict[str, list[str]] = {}
 
@@ -349,7 +349,7 @@ class RegisterRowForm:
             position = self.position_form.save()
             if self.new:
                 device = self.device_form.save(commit=False)
-                device.status = Meter.Status.SPARE
+                device.status = Device.Status.SPARE
                 device.save()
                 installations.install(device, position, position.area.site.today(), new_device=True, recompute=False,
                                       unfit_reason=self.unfit_reason)
@@ -362,7 +362,7 @@ def export_rows(kind: str) -> pd.DataFrame:
     """The register as a DataFrame of strings, in exactly the import columns (so it imports back unchanged)."""
     spec = _spec(kind)
     if kind == "meters":
-        queryset = (Meter.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
+        queryset = (Device.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
                     .order_by("position__tag"))
         objects = [RegisterRow(device) for device in queryset]
     else:
@@ -641,10 +641,10 @@ def _process(plan: Plan, register: Register) -> None:
     if plan.kind == "meters":
         forms_used = {"position": _checked_against(PositionForm, {"area": register.areas_by_pk,
                                                                   "fluid": register.fluids_by_pk}),
-                      "device": _checked_against(MeterForm, {})}
+                      "device": _checked_against(DeviceForm, {})}
         new = RegisterRow()
         forms_used["new"] = {**model_to_dict(new.position, fields=list(PositionForm.base_fields)),
-                             **model_to_dict(new.device, fields=list(MeterForm.base_fields))}
+                             **model_to_dict(new.device, fields=list(DeviceForm.base_fields))}
     else:
         forms_used = {"fluid": _checked_against(FluidForm, {})}
     first_seen: dict[str, int] = {}
@@ -678,7 +678,7 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
     field_errors: dict[str, str] = {column: NUL_MESSAGE for column in spec["columns"] if "\x00" in raw.get(column, "")}
     existing = None
     if key and key_column not in field_errors:
-        if model is Meter:
+        if model is Device:
             existing = register.existing_row(key)
             if existing is not None and existing.device.position_id is None:
                 plan.errors.append(RowError(row_number, "tag", (
@@ -688,15 +688,15 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
         else:
             found = register.fluids.find(key)
             existing = copy.copy(found) if found is not None else None
-    instance = existing if existing is not None else (RegisterRow() if model is Meter else model())
+    instance = existing if existing is not None else (RegisterRow() if model is Device else model())
     before = {column: _cell(instance, column) for column in spec["columns"]} if existing else {}
     plan_row = PlanRow(row_number=row_number, key=key, action="update" if existing else "create")
 
     if existing is None and "new" in forms_used:
         data = dict(forms_used["new"])  # a new row starts from the defaults, the same for every new row
-    elif model is Meter:
+    elif model is Device:
         data = {**model_to_dict(instance.position, fields=list(PositionForm.base_fields)),
-                **model_to_dict(instance.device, fields=list(MeterForm.base_fields))}
+                **model_to_dict(instance.device, fields=list(DeviceForm.base_fields))}
     else:
         data = model_to_dict(instance, fields=list(FluidForm.base_fields))
     for column in spec["columns"]:
@@ -722,7 +722,7 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
             value = _normalise_choice(model_field, value)
         data[column] = value
 
-    if model is Meter:
+    if model is Device:
         data["unfit_reason"] = raw.get("unfit_reason", "")
         _resolve_meter_relations(plan, plan_row, raw, data, field_errors, register)
 
@@ -730,7 +730,7 @@ def _process_row(plan: Plan, spec: dict, raw: dict, row_number: int, key: str, r
         plan.errors.append(RowError(row_number, column, message))
         data.pop(column, None)
 
-    if model is Meter:
+    if model is Device:
         form = RegisterRowForm(data=data, instance=instance, position_form=forms_used["position"],
                                device_form=forms_used["device"])
     else:
@@ -934,7 +934,7 @@ def _write(plan: Plan, user) -> None:
         insert_with_history(Fluid, [row.form.instance for row in changed if row.action == "create"], user)
         updated = [row.form.instance.pk for row in changed if row.action == "update"]
         if updated:
-            devices_changed.send(sender=Meter, devices=Meter.objects.filter(position__fluid__in=updated))
+            devices_changed.send(sender=Device, devices=Device.objects.filter(position__fluid__in=updated))
         return
 
     Site.objects.bulk_create(register.new_sites, batch_size=WRITE_BATCH)
@@ -954,9 +954,9 @@ def _write(plan: Plan, user) -> None:
         touched |= Q(pk__range=(min(new_ids), max(new_ids)))
     if len(updated_ids) > 10 * LOOKUP_BATCH:
         # the whole fleet in one pass costs less than a query naming every id
-        devices_changed.send(sender=Meter, devices=None)
+        devices_changed.send(sender=Device, devices=None)
     elif updated_ids or new_ids:
-        devices_changed.send(sender=Meter, devices=Meter.objects.filter(touched))
+        devices_changed.send(sender=Device, devices=Device.objects.filter(touched))
 
 
 def _unfit_fields(row: RegisterRow, user) -> dict:
@@ -983,16 +983,16 @@ def _create_rows(rows: list[RegisterRow], user) -> list[int]:
     for row in rows:
         device = row.device
         device.position = row.position
-        device.status = Meter.Status.IN_SERVICE
+        device.status = Device.Status.IN_SERVICE
         findings = device.duty_findings()  # a new device: no maintenance findings yet
-        device.risk_severity = risk.worst_severity(findings)  # as Meter.save judges it
+        device.risk_severity = risk.worst_severity(findings)  # as Device.save judges it
         devices.append(device)
         duty_findings.append(findings)
-    insert_with_history(Meter, devices, user)
+    insert_with_history(Device, devices, user)
     insert_with_history(Installation, [Installation(device=row.device, position=row.position, since=row.today,
                                                     installed_by=user, starting_point={}, **_unfit_fields(row, user))
                                        for row in rows], user)
-    _plain(DutyPeriod, [DutyPeriod(meter=row.device, position=row.position, area_id=row.position.area_id,
+    _plain(DutyPeriod, [DutyPeriod(device=row.device, position=row.position, area_id=row.position.area_id,
                                    fluid_id=row.position.fluid_id, since=row.today) for row in rows])
-    devices_registered.send(sender=Meter, devices=devices, duty_findings=duty_findings, user=user)
+    devices_registered.send(sender=Device, devices=devices, duty_findings=duty_findings, user=user)
     return [device.pk for device in devices]

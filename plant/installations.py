@@ -13,7 +13,7 @@ from django.db import transaction
 
 from plant import units
 from plant import fit
-from plant.models import Installation, Meter, Position, flows_above_range
+from plant.models import Installation, Device, Position, flows_above_range
 from plant.signals import device_moved, devices_changed
 
 UNFIT_PERMISSION = "plant.accept_unfit_device"
@@ -48,7 +48,7 @@ def read_starting_point_with(reader):
         _starting_point_readers.append(reader)
 
 
-def starting_point(device: Meter) -> dict:
+def starting_point(device: Device) -> dict:
     """The device's state when it was put away, which is where its drift starts again at the new position (the
     registered reader's; empty when it was never calibrated or no reader is registered)."""
     for reader in _starting_point_readers:
@@ -58,19 +58,19 @@ def starting_point(device: Meter) -> dict:
     return {}
 
 
-def refresh_due(device: Meter):
+def refresh_due(device: Device):
     """The device's stored due date recomputed from its signed records (by whoever listens to devices_changed),
     so the check below trusts no stale value."""
-    devices_changed.send(sender=Meter, devices=Meter.objects.filter(pk=device.pk))
+    devices_changed.send(sender=Device, devices=Device.objects.filter(pk=device.pk))
     device.refresh_from_db(fields=["last_calibrated", "next_due_date", "due_rationale", "risk_severity"])
 
 
-def install_problems(device: Meter, position: Position, on_date: dt.date, *, new_device: bool = False,
+def install_problems(device: Device, position: Position, on_date: dt.date, *, new_device: bool = False,
                      replacing: bool = False) -> list[str]:
     """Why `device` may not be installed at `position` on `on_date` (empty = it may), from its stored due
     date (steps that install call refresh_due first)."""
     found = []
-    if device.status == Meter.Status.REMOVED:
+    if device.status == Device.Status.REMOVED:
         found.append(f"Device {device.device_label} is retired and cannot be installed again.")
     if device.position_id and device.position_id != position.pk:
         found.append(f"Device {device.device_label} is installed at {device.position.tag}; remove it there first.")
@@ -89,7 +89,7 @@ def install_problems(device: Meter, position: Position, on_date: dt.date, *, new
     return found
 
 
-def unfit_findings(device: Meter, position: Position) -> list:
+def unfit_findings(device: Device, position: Position) -> list:
     """The principle×fluid findings that make `device` not fit for the duty at `position` (plant/risk.py's
     misapplied findings: an electromagnetic device on a non-conductive liquid, say)."""
     if not position.fluid_id:
@@ -97,12 +97,12 @@ def unfit_findings(device: Meter, position: Position) -> list:
     return [f for f in position.assess(device.principle, device.wetted_material) if f.severity == "misapplied"]
 
 
-def unfit_sentence(device: Meter, position: Position, findings) -> str:
+def unfit_sentence(device: Device, position: Position, findings) -> str:
     what = "; ".join(f"{f.title} ({f.reason.rstrip('.')})" for f in findings)
     return f"Device {device.device_label} is not fit for the duty at {position.tag}: {what}."
 
 
-def _accept_unfit(device: Meter, position: Position, user, unfit_reason: str) -> dict:
+def _accept_unfit(device: Device, position: Position, user, unfit_reason: str) -> dict:
     """Refuse a device not fit for the duty unless a reviewer gives a written reason; the fields the installation
     keeps when one is given. A step run with no user (a management command) is the operator's: the reason is
     still required."""
@@ -126,7 +126,7 @@ def unfit_fields(findings, reason: str, user) -> dict:
             "unfit_accepted_by": user}
 
 
-def range_warnings(device: Meter, position: Position) -> list[str]:
+def range_warnings(device: Device, position: Position) -> list[str]:
     """How the position's normal and minimum flow sit in the device's range (plant/fit.py), in the device's units."""
     high = device.range_max
     if not isinstance(high, (int, float)) or isinstance(high, bool) or not high > 0 or device.principle not in fit.USABLE_MINIMUM_FRACTION:
@@ -136,7 +136,7 @@ def range_warnings(device: Meter, position: Position) -> list[str]:
         position.flow_in(position.min_flow, device.flow_units), units_label=units.label_for(device.flow_units))
 
 
-def fit_warnings(device: Meter, position: Position) -> list[str]:
+def fit_warnings(device: Device, position: Position) -> list[str]:
     """What the technician should know before fitting `device` at `position` (not refusals): units that differ,
     an MPE wider than the accuracy the position needs, flows low in its range, and the principle×fluid findings
     of high risk it would meet there (findings that make it unfit are refusals: unfit_findings)."""
@@ -144,7 +144,7 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
     if units.code_for(device.flow_units) != units.code_for(position.flow_units):
         warnings.append(f"The device reads in {units.label_for(device.flow_units)}; the position's flows are stated "
                         f"in {units.label_for(position.flow_units)}.")
-    if (position.required_accuracy_pct and device.mpe_basis == Meter.MpeBasis.PERCENT_READING
+    if (position.required_accuracy_pct and device.mpe_basis == Device.MpeBasis.PERCENT_READING
             and device.mpe_value > position.required_accuracy_pct):
         warnings.append(f"The device's MPE (±{device.mpe_value:g} % of reading) is wider than the ±"
                         f"{position.required_accuracy_pct:g} % {position.tag} requires.")
@@ -154,11 +154,11 @@ def fit_warnings(device: Meter, position: Position) -> list[str]:
     return warnings
 
 
-def _after_move(device: Meter, on_date: dt.date, recompute=True):
+def _after_move(device: Device, on_date: dt.date, recompute=True):
     """The duty history follows the move; the listeners recompute the due date with the new duty's risk (the
     stored risk and the derived maintenance tasks followed at device.save())."""
     device.record_duty_change(on_date)
-    device_moved.send(sender=Meter, device=device, on_date=on_date, settle_due=recompute)
+    device_moved.send(sender=Device, device=device, on_date=on_date, settle_due=recompute)
 
 
 def _install(device, position, on_date, user, *, new_device=False, recompute=True,
@@ -172,7 +172,7 @@ def _install(device, position, on_date, user, *, new_device=False, recompute=Tru
     installation = Installation.objects.create(device=device, position=position, since=on_date, installed_by=user,
                                                starting_point=starting_point(device), **accepted)
     device.position = position
-    device.status = Meter.Status.IN_SERVICE
+    device.status = Device.Status.IN_SERVICE
     device.save()
     _after_move(device, on_date, recompute)
     return installation
@@ -196,14 +196,14 @@ def _remove(device, on_date, user, reason, to=Removal.SHELF) -> Installation:
     return installation
 
 
-def install(device: Meter, position: Position, on_date: dt.date, user=None, *, new_device=False,
+def install(device: Device, position: Position, on_date: dt.date, user=None, *, new_device=False,
             recompute=True, unfit_reason="") -> Installation:
     with transaction.atomic():
         return _install(device, position, on_date, user, new_device=new_device, recompute=recompute,
                         unfit_reason=unfit_reason)
 
 
-def remove(device: Meter, on_date: dt.date, reason: str, user=None, to=Removal.SHELF) -> Installation:
+def remove(device: Device, on_date: dt.date, reason: str, user=None, to=Removal.SHELF) -> Installation:
     with transaction.atomic():
         return _remove(device, on_date, user, reason, to)
 
@@ -214,7 +214,7 @@ class SwapResult:
     installed: Installation
 
 
-def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, user=None,
+def swap(position: Position, new_device: Device, on_date: dt.date, reason: str, user=None,
          to=Removal.SHELF, *, brand_new=False, unfit_reason="") -> SwapResult:
     """Remove the device at `position` (reason; to the shelf or retired) and install `new_device` there."""
     with transaction.atomic():
@@ -237,7 +237,7 @@ def swap(position: Position, new_device: Meter, on_date: dt.date, reason: str, u
         return SwapResult(removed, installed)
 
 
-def commission(*, since: dt.date | None = None, user=None, unfit_reason="", **fields) -> Meter:
+def commission(*, since: dt.date | None = None, user=None, unfit_reason="", **fields) -> Device:
     """A new position and a new device installed there at once (the register's "new meter"): position fields
     (tag, area, fluid, line size, flows...) go to the position, the rest to the device. A device not fit for the
     duty needs `unfit_reason`, as at a swap."""
@@ -245,9 +245,9 @@ def commission(*, since: dt.date | None = None, user=None, unfit_reason="", **fi
     position_fields["flow_units"] = units.code_for(fields.get("flow_units", "m3/h"))
     with transaction.atomic():
         position = Position.objects.create(**position_fields)
-        status = fields.pop("status", Meter.Status.IN_SERVICE)
-        device = Meter.objects.create(**fields, status=Meter.Status.SPARE)
-        if status == Meter.Status.IN_SERVICE:
+        status = fields.pop("status", Device.Status.IN_SERVICE)
+        device = Device.objects.create(**fields, status=Device.Status.SPARE)
+        if status == Device.Status.IN_SERVICE:
             # a new device's due fields are set by the next recompute, as for any new register entry
             _install(device, position, since or position.area.site.today(), user, new_device=True, recompute=False,
                      unfit_reason=unfit_reason)

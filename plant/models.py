@@ -170,17 +170,17 @@ class Fluid(ProtectedWhileCited, models.Model):
     def refresh_meter_risk(self):
         """Re-judge the meters on this fluid (their stored risk severity) after its properties changed."""
         by_severity = {}
-        for meter in Meter.objects.filter(position__fluid=self).select_related("position"):
-            meter.position.fluid = self
-            by_severity.setdefault(risk.worst_severity(meter.findings()), []).append(meter.pk)
+        for device in Device.objects.filter(position__fluid=self).select_related("position"):
+            device.position.fluid = self
+            by_severity.setdefault(risk.worst_severity(device.findings()), []).append(device.pk)
         for severity, pks in by_severity.items():
-            Meter.objects.filter(pk__in=pks).update(risk_severity=severity)
+            Device.objects.filter(pk__in=pks).update(risk_severity=severity)
 
 
 class Position(ProtectedWhileCited, models.Model):
     """A place in the process, named by its tag: where a device is installed and the duty it serves there.
 
-    The device (a `Meter`) is installed, removed and swapped through `plant.installations`; calibration and
+    The device (a `Device`) is installed, removed and swapped through `plant.installations`; calibration and
     maintenance history follow the device, duty and the principle×fluid risk follow the position it served.
     """
 
@@ -220,7 +220,7 @@ class Position(ProtectedWhileCited, models.Model):
         """The device installed here now, or None (one read; None without a query when there is none)."""
         try:
             return self.device
-        except Meter.DoesNotExist:
+        except Device.DoesNotExist:
             return None
 
     def clean(self):
@@ -252,7 +252,7 @@ class Position(ProtectedWhileCited, models.Model):
             device.position = self
             if previous is not None and (previous["area_id"], previous["fluid_id"]) != (self.area_id, self.fluid_id):
                 device.record_duty_change()
-            Meter.objects.filter(pk=device.pk).update(risk_severity=risk.worst_severity(device.findings()))
+            Device.objects.filter(pk=device.pk).update(risk_severity=risk.worst_severity(device.findings()))
 
     def flow_in(self, value, to_code):
         """A flow of this position (in its own units) in `to_code`, or None when it cannot be converted
@@ -321,7 +321,7 @@ def flows_above_range(position, device) -> dict:
     return errors
 
 
-class Meter(ProtectedWhileCited, models.Model):
+class Device(ProtectedWhileCited, models.Model):
     class Principle(models.TextChoices):
         ELECTROMAGNETIC = "electromagnetic", "Electromagnetic"
         CORIOLIS = "coriolis", "Coriolis"
@@ -534,7 +534,7 @@ class Meter(ProtectedWhileCited, models.Model):
         on_date = on_date or self.today()
         self.duties.filter(until__isnull=True).update(until=on_date)
         if self.position_id:
-            DutyPeriod.objects.create(meter=self, position=self.position, area_id=self.position.area_id,
+            DutyPeriod.objects.create(device=self, position=self.position, area_id=self.position.area_id,
                                       fluid_id=self.position.fluid_id, since=on_date)
         self.__dict__.pop("_last_duty_fluid", None)
 
@@ -574,7 +574,7 @@ class Meter(ProtectedWhileCited, models.Model):
 class DutyPeriod(ProtectedWhileCited, models.Model):
     """Where and on what a device served, so its risk can be judged from its whole service life."""
 
-    meter = models.ForeignKey(Meter, on_delete=models.CASCADE, related_name="duties")
+    device = models.ForeignKey(Device, on_delete=models.CASCADE, related_name="duties")
     position = models.ForeignKey(Position, null=True, blank=True, on_delete=models.PROTECT, related_name="duties")
     area = models.ForeignKey(Area, on_delete=models.PROTECT)
     fluid = models.ForeignKey(Fluid, on_delete=models.PROTECT)
@@ -584,17 +584,17 @@ class DutyPeriod(ProtectedWhileCited, models.Model):
     objects = CitedQuerySet.as_manager()
 
     class Meta:
-        ordering = ["meter", "-since", "-id"]
+        ordering = ["device", "-since", "-id"]
 
     def __str__(self):
         where = self.position.tag if self.position_id else str(self.area)
-        return f"{self.meter.device_label}: {self.fluid} at {where} from {self.since}"
+        return f"{self.device.device_label}: {self.fluid} at {where} from {self.since}"
 
 
 class Installation(ProtectedWhileCited, models.Model):
     """A device at a position from one date until another (open while it is there)."""
 
-    device = models.ForeignKey(Meter, on_delete=models.PROTECT, related_name="installations")
+    device = models.ForeignKey(Device, on_delete=models.PROTECT, related_name="installations")
     position = models.ForeignKey(Position, on_delete=models.PROTECT, related_name="installations")
     since = models.DateField()
     until = models.DateField(null=True, blank=True)
@@ -639,10 +639,10 @@ citations.protect(Area, label=lambda a: f"Area {a}", instead=STAYS)
 citations.protect(Fluid, label=lambda f: f"Fluid {f.name}", instead=STAYS)
 citations.protect(Position, label=lambda p: f"Position {p.tag}",
                   instead="it stays in the register as the place they were made")
-citations.protect(Meter, label=lambda m: f"Device S/N {m.serial}" if m.serial else f"Device #{m.pk}",
+citations.protect(Device, label=lambda m: f"Device S/N {m.serial}" if m.serial else f"Device #{m.pk}",
                   instead="take it out of service instead")
 citations.protect(DutyPeriod, label=lambda d: f"Duty period {d}", instead="it stays in the device's duty history",
-                  frozen=("meter", "position", "area", "fluid", "since"))
+                  frozen=("device", "position", "area", "fluid", "since"))
 citations.protect(Installation, label=lambda i: f"Installation {i}",
                   instead="it stays in the device's installation history", frozen=("device", "position", "since"))
 # users: every link from a signed record to a user is a PROTECT foreign key, so Django refuses the delete itself;

@@ -9,7 +9,7 @@ from django.contrib.auth.models import Group, Permission
 
 TECHNICIAN, REVIEWER, ADMINISTRATOR = "technician", "reviewer", "administrator"
 
-READ = ["plant.view_site", "plant.view_area", "plant.view_fluid", "plant.view_meter", "plant.view_dutyperiod",
+READ = ["plant.view_site", "plant.view_area", "plant.view_fluid", "plant.view_device", "plant.view_dutyperiod",
         "plant.view_position", "plant.view_installation",
         "calibration.view_referencestandard", "calibration.view_calibrationevent", "calibration.view_calibrationpoint"]
 
@@ -19,7 +19,7 @@ ROLE_PERMISSIONS = {
                         "maintenance.view_maintenancetask", "maintenance.view_maintenancerecord",
                         "maintenance.add_maintenancerecord", "maintenance.sign_maintenance"],
     REVIEWER: READ + ["calibration.view_review", "calibration.countersign_calibration",
-                      "plant.add_meter", "plant.change_meter", "plant.add_position", "plant.change_position",
+                      "plant.add_device", "plant.change_device", "plant.add_position", "plant.change_position",
                       "plant.swap_device", "plant.accept_unfit_device", "plant.add_fluid", "plant.change_fluid",
                       "plant.add_site", "plant.add_area", "calibration.add_referencestandard",
                       "calibration.change_referencestandard",

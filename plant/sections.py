@@ -2,7 +2,7 @@
 
 plant sits at the bottom of the dependency order, so its views cannot call the apps that know about
 maintenance or drift charts. Those apps register here from their AppConfig.ready() instead, and the page
-renders what is registered, in ``order``. A provider takes the device (a ``Meter``) and returns the context
+renders what is registered, in ``order``. A provider takes the device (a ``Device``) and returns the context
 its template reads as ``section``; the template is included in the page's ``slot``:
 
 - ``"due"``: inside the next-due-date card, under the due-date reasoning;

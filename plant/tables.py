@@ -3,7 +3,7 @@ import django_tables2 as tables
 from django.db.models import Case, F, IntegerField, Value, When
 from django.utils.html import format_html
 
-from plant.models import Meter
+from plant.models import Device
 
 # most urgent first when a column is sorted ascending
 DRIFT_ORDER = ("out_of_tolerance", "drifting", "improving", "insufficient", "flat")
@@ -21,7 +21,7 @@ def _nulls_first(queryset, field, is_descending):
     return queryset.order_by(expression, "position__tag"), True
 
 
-class MeterTable(tables.Table):
+class DeviceTable(tables.Table):
     tag = tables.Column(accessor="position__tag", verbose_name="Tag", linkify=lambda record: record.get_absolute_url(),
                         order_by=("position__tag",), attrs={"td": {"class": "nowrap"}})
     serial = tables.Column(verbose_name="Device S/N", default="—")
@@ -41,7 +41,7 @@ class MeterTable(tables.Table):
     calibrate = tables.Column(empty_values=(), verbose_name="", orderable=False, exclude_from_export=True)
 
     class Meta:
-        model = Meter
+        model = Device
         # the quick action stays within an 820 px tablet's view; the wider columns scroll after it
         fields = ("tag", "next_due_date", "last_calibrated", "last_in_tolerance", "drift_status", "calibrate",
                   "serial", "principle", "fluid", "area", "site")

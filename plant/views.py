@@ -9,19 +9,19 @@ from django.utils.encoding import escape_uri_path
 
 from plant import installations, risk, sections
 from plant.params import configure_table
-from plant.forms import FluidForm, MeterForm, PositionForm, SwapForm
-from plant.models import Fluid, Installation, Meter, Position
-from plant.filters import MeterFilter
-from plant.tables import MeterTable
+from plant.forms import FluidForm, DeviceForm, PositionForm, SwapForm
+from plant.models import Fluid, Installation, Device, Position
+from plant.filters import DeviceFilter
+from plant.tables import DeviceTable
 
 
-@permission_required("plant.view_meter", raise_exception=True)
+@permission_required("plant.view_device", raise_exception=True)
 def position_list(request):
     """The register: the positions with the device installed at each (its due date, drift, risk)."""
-    queryset = Meter.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
-    meter_filter = MeterFilter(request.GET, queryset=queryset)
+    queryset = Device.objects.filter(position__isnull=False).select_related("position__area__site", "position__fluid")
+    meter_filter = DeviceFilter(request.GET, queryset=queryset)
     can_calibrate = request.user.has_perm("calibration.add_calibrationevent")
-    table = MeterTable(meter_filter.qs, exclude=() if can_calibrate else ("calibrate",))
+    table = DeviceTable(meter_filter.qs, exclude=() if can_calibrate else ("calibrate",))
     configure_table(request, table, per_page=50)
     return render(request, "plant/position_list.html", {"filter": meter_filter, "table": table})
 
@@ -29,41 +29,41 @@ def position_list(request):
 POSITION_RELATED = ("position__area__site", "position__fluid")
 
 
-def _device_context(meter):
+def _device_context(device):
     """What the page shows of a device: its risk at the duty served, due date, drift, records, moves."""
-    findings = meter.findings()
+    findings = device.findings()
     factor = min((f.interval_factor for f in findings), default=1.0)
     return {
-        "meter": meter,
+        "device": device,
         "findings": findings,
         "factor": factor,
         "deciding": [f for f in findings if f.interval_factor == factor and factor < 1.0],
         "recommendation": risk.recommendation(findings),
-        "duties": meter.duties.select_related("area__site", "fluid", "position"),
-        "due": meter.due_rationale or {},
-        "calibrations": meter.calibrations.select_related("position")[:20],
-        "audit": _audit_rows(meter),
-        "sections": sections.render_context(meter),  # what calibration, maintenance and reports add
-        "device_moves": meter.installations.select_related("position", "installed_by", "removed_by", "unfit_accepted_by"),
+        "duties": device.duties.select_related("area__site", "fluid", "position"),
+        "due": device.due_rationale or {},
+        "calibrations": device.calibrations.select_related("position")[:20],
+        "audit": _audit_rows(device),
+        "sections": sections.render_context(device),  # what calibration, maintenance and reports add
+        "device_moves": device.installations.select_related("position", "installed_by", "removed_by", "unfit_accepted_by"),
     }
 
 
-@permission_required("plant.view_meter", raise_exception=True)
+@permission_required("plant.view_device", raise_exception=True)
 def position_detail(request, tag):
     """A position's page (URLs by tag): the position, the device installed there now, and its history."""
     position = get_object_or_404(Position.objects.select_related("area__site", "fluid"), tag=tag)
-    meter = position.installed_device()
+    device = position.installed_device()
     moves = list(position.installations.select_related("device", "installed_by", "removed_by", "unfit_accepted_by"))
-    if meter is not None:
-        context = _device_context(meter)
+    if device is not None:
+        context = _device_context(device)
     else:
-        context = {"meter": None, "audit": _audit_rows(None, position), "last_move": moves[0] if moves else None,
+        context = {"device": None, "audit": _audit_rows(None, position), "last_move": moves[0] if moves else None,
                    "by_principle": _findings_by_principle(position, moves[0].device if moves else None)}
     context.update({
         "position": position,
         "duty_fluid": position.fluid,
         "position_moves": moves,
-        "fit_warnings": installations.fit_warnings(meter, position) if meter is not None else [],
+        "fit_warnings": installations.fit_warnings(device, position) if device is not None else [],
     })
     return render(request, "plant/position_detail.html", context)
 
@@ -71,7 +71,7 @@ def position_detail(request, tag):
 def _findings_by_principle(position, last_device):
     """A position with no device: its findings depend on the principle of the device still to be chosen, so the
     page shows what a device of each principle would meet here (the last device's own principle marked)."""
-    labels = dict(Meter.Principle.choices)
+    labels = dict(Device.Principle.choices)
     last = last_device.principle if last_device is not None else None
     return [{"principle": principle, "label": labels.get(principle, principle), "findings": findings,
              "factor": risk.interval_factor(findings),
@@ -80,20 +80,20 @@ def _findings_by_principle(position, last_device):
             for principle, findings in position.assess_each_principle()]
 
 
-@permission_required("plant.view_meter", raise_exception=True)
+@permission_required("plant.view_device", raise_exception=True)
 def device_detail(request, pk):
     """A device's own page, wherever it is: installed (its position's page says the same), or a spare."""
-    meter = get_object_or_404(Meter.objects.select_related(*POSITION_RELATED), pk=pk)
-    context = _device_context(meter)
-    position = meter.position if meter.position_id else None
-    context.update({"position": position, "duty_fluid": position.fluid if position is not None else meter.fluid})
+    device = get_object_or_404(Device.objects.select_related(*POSITION_RELATED), pk=pk)
+    context = _device_context(device)
+    position = device.position if device.position_id else None
+    context.update({"position": position, "duty_fluid": position.fluid if position is not None else device.fluid})
     return render(request, "plant/device_detail.html", context)
 
 
-@permission_required("plant.view_meter", raise_exception=True)
+@permission_required("plant.view_device", raise_exception=True)
 def device_list(request):
     """Devices not installed anywhere: spares on the shelf (first the ones that may be installed) and retired."""
-    spares = (Meter.objects.filter(position__isnull=True).order_by("-status", F("next_due_date").asc(nulls_first=True),
+    spares = (Device.objects.filter(position__isnull=True).order_by("-status", F("next_due_date").asc(nulls_first=True),
                                                                   "serial", "pk"))
     return render(request, "plant/device_list.html", {"devices": spares})
 
@@ -136,15 +136,15 @@ def position_swap(request, tag):
     }, status=400 if request.method == "POST" else 200)
 
 
-def _audit_rows(meter, position=None, limit=30):
+def _audit_rows(device, position=None, limit=30):
     """Who changed what on this device, the position it serves (or `position`), its installations and the
     position's fluid, newest first, with old and new values."""
     rows = []
-    position = position or (meter.position if meter is not None and meter.position_id else None)
+    position = position or (device.position if device is not None and device.position_id else None)
     sources = []
-    if meter is not None:
-        sources.append((f"device {meter.device_label}", meter.history.select_related("history_user")[:limit]))
-        sources.append(("installation", Installation.history.filter(device=meter)
+    if device is not None:
+        sources.append((f"device {device.device_label}", device.history.select_related("history_user")[:limit]))
+        sources.append(("installation", Installation.history.filter(device=device)
                         .select_related("history_user", "position")[:limit]))
     if position is not None:
         sources.append((f"position {position.tag}", position.history.select_related("history_user")[:limit]))
@@ -178,10 +178,10 @@ def position_edit(request, tag):
     return _edit(request, position, PositionForm, "plant/record_form.html", f"Position {position.tag}")
 
 
-@permission_required("plant.change_meter", raise_exception=True)
+@permission_required("plant.change_device", raise_exception=True)
 def device_edit(request, pk):
-    meter = get_object_or_404(Meter, pk=pk)
-    return _edit(request, meter, MeterForm, "plant/record_form.html", f"Device {meter.device_label}")
+    device = get_object_or_404(Device, pk=pk)
+    return _edit(request, device, DeviceForm, "plant/record_form.html", f"Device {device.device_label}")
 
 
 @permission_required("plant.change_fluid", raise_exception=True)

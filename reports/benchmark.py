@@ -60,52 +60,52 @@ def _naive_observations(events):
 
 def naive_recompute(meters_qs=None, progress=None):
     """Recompute due dates one meter at a time: its own queries, scalar fits, its own UPDATE."""
-    from plant.models import Meter
+    from plant.models import Device
 
     cfg = fleet.policy()
-    meters = list((meters_qs if meters_qs is not None else Meter.objects.all()).select_related("position__fluid").order_by("pk"))
-    for meter in meters:
-        events, points = fleet.load_history(Meter.objects.filter(pk=meter.pk))
+    devices = list((meters_qs if meters_qs is not None else Device.objects.all()).select_related("position__fluid").order_by("pk"))
+    for device in devices:
+        events, points = fleet.load_history(Device.objects.filter(pk=device.pk))
         if events.empty:
-            fleet._no_history(meter)
+            fleet._no_history(device)
         else:
             ordered = sorted(events.itertuples(), key=lambda e: (e.performed_on, e.id))
             last_row = ordered[-1]
             last = last_row.performed_on
             # the crossing against the MPE whatever the rule (issue 31: the due date counts |E| <= MPE)
             best, rate, statuses, scatter_sd = _naive_crossings(fleet.point_histories(events, points),
-                                                                meter.mpe_value, 0.0)
+                                                                device.mpe_value, 0.0)
             crossing, crossing_reason, scatter_reason = None, "", ""
             if best is not None:
                 crossing = fleet.crossing_date(best[1].day, last)
                 crossing_reason = (f"{drift.bound_name(rate[0])} at {best[0]:g} % of range, "
                                    f"{fleet.drift_rate_words(rate[0], rate[1])}:")
             pairs = _naive_observations(events)
-            method = intervals.interval_by_method(cfg["interval_method"], meter.base_interval_days,
+            method = intervals.interval_by_method(cfg["interval_method"], device.base_interval_days,
                                                   [p[0] for p in pairs], [p[1] for p in pairs],
                                                   **fleet.method_settings(cfg))
-            meter.drift_status = fleet.summarise_status(statuses)
-            if meter.drift_status == "scatter" and scatter_sd is not None:
-                scatter_reason = fleet.scatter_words(scatter_sd, meter.mpe_value)
-            decision, _ = fleet.decide(meter, last, fleet.found_out(last_row.observed_in_tolerance), crossing,
-                                       crossing_reason, method, cfg, crossing_kind=meter.drift_status,
+            device.drift_status = fleet.summarise_status(statuses)
+            if device.drift_status == "scatter" and scatter_sd is not None:
+                scatter_reason = fleet.scatter_words(scatter_sd, device.mpe_value)
+            decision, _ = fleet.decide(device, last, fleet.found_out(last_row.observed_in_tolerance), crossing,
+                                       crossing_reason, method, cfg, crossing_kind=device.drift_status,
                                        scatter_reason=scatter_reason)
-            meter.last_calibrated = last
-            meter.next_due_date = decision.due
-            meter.drift_status = decision_rules.drift_status_given_verdict(
-                meter.drift_status, fleet.stored_verdict(last_row.observed_in_tolerance))
-            meter.due_rationale = {**decision.rationale(), "drift_point_pct": float(best[0]) if best else None,
+            device.last_calibrated = last
+            device.next_due_date = decision.due
+            device.drift_status = decision_rules.drift_status_given_verdict(
+                device.drift_status, fleet.stored_verdict(last_row.observed_in_tolerance))
+            device.due_rationale = {**decision.rationale(), "drift_point_pct": float(best[0]) if best else None,
                                    "drift_chart_pct": float(rate[2]) if rate is not None else None,
-                                   "drift_status": meter.drift_status,
+                                   "drift_status": device.drift_status,
                                    "drift_rate_u_per_year": float(f"{rate[1] * 365.25:.6g}") if rate is not None else None}
-            meter.drift_rate_per_year = rate[0] * 365.25 if rate is not None else None
-            meter.predicted_crossing = crossing
-            meter.last_in_tolerance = fleet.stored_verdict(last_row.as_found_in_tolerance)
-            meter.risk_severity = risk.worst_severity(meter.findings())
-        Meter.objects.filter(pk=meter.pk).update(**{name: getattr(meter, name) for name in fleet.UPDATED_FIELDS})
+            device.drift_rate_per_year = rate[0] * 365.25 if rate is not None else None
+            device.predicted_crossing = crossing
+            device.last_in_tolerance = fleet.stored_verdict(last_row.as_found_in_tolerance)
+            device.risk_severity = risk.worst_severity(device.findings())
+        Device.objects.filter(pk=device.pk).update(**{name: getattr(device, name) for name in fleet.UPDATED_FIELDS})
         if progress:
             progress(1)
-    return len(meters)
+    return len(devices)
 
 
 # Measuring ----------------------------------------------------------------------------------------

@@ -1,12 +1,12 @@
 from django import forms
 
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 
 
 class ReviewFilterForm(forms.Form):
     site = forms.ModelChoiceField(queryset=Site.objects.all(), required=False)
     area = forms.ModelChoiceField(queryset=Area.objects.select_related("site"), required=False)
-    principle = forms.ChoiceField(choices=[("", "any")] + list(Meter.Principle.choices), required=False)
+    principle = forms.ChoiceField(choices=[("", "any")] + list(Device.Principle.choices), required=False)
     fluid = forms.ModelChoiceField(queryset=Fluid.objects.all(), required=False)
     days = forms.IntegerField(min_value=1, max_value=365, initial=14, required=False, label="Look ahead (days)",
                               error_messages={"min_value": "Look ahead at least one day.",

@@ -9,7 +9,7 @@ def tasks_in_service(filters: dict):
     from maintenance.models import MaintenanceTask
     from reports.review import installed
 
-    return MaintenanceTask.objects.filter(installed(filters, via="meter__"), active=True)
+    return MaintenanceTask.objects.filter(installed(filters, via="device__"), active=True)
 
 
 def buckets(filters: dict, days: int, today: dt.date):
@@ -23,7 +23,7 @@ def buckets(filters: dict, days: int, today: dt.date):
     base = tasks_in_service(filters)
     counts = base.aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
     # installed devices' tags are unique: tag, code and id order the list as the register does
-    rows = base.select_related("meter__position__area__site").order_by("meter__position__tag", "code", "pk")
+    rows = base.select_related("device__position__area__site").order_by("device__position__tag", "code", "pk")
     return [
         Bucket("maint_overdue", "Maintenance overdue", rows.filter(conditions["maint_overdue"]),
                MaintenanceOverdueTable, counts["maint_overdue"]),

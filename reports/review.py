@@ -15,7 +15,7 @@ from django.db.models import Count, F, Q
 from calibration.conformity_fleet import pfa_target
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant import localtime
-from plant.models import Meter, Position, Site
+from plant.models import Device, Position, Site
 
 SEVERE, HIGH = "misapplied", "high"
 #: conformance probability below which a point inside the MPE is listed (95 %, the coverage of U; common practice)
@@ -39,9 +39,9 @@ DEVICE_LOOKUPS = {"site": "position__area__site", "area": "position__area", "pri
 def installed(filters: dict, via: str = "") -> Q:
     """Devices installed at positions, narrowed by the page's filters (site, area, principle, fluid).
 
-    ``via`` is the path from the rows filtered to their device: "" for devices, "meter__" for calibrations and
+    ``via`` is the path from the rows filtered to their device: "" for devices, "device__" for calibrations and
     maintenance tasks (joined, so the database need not list every installed device first)."""
-    condition = Q(**{f"{via}status": Meter.Status.IN_SERVICE, f"{via}position__isnull": False})
+    condition = Q(**{f"{via}status": Device.Status.IN_SERVICE, f"{via}position__isnull": False})
     for name, value in filters.items():
         if value not in (None, ""):
             condition &= Q(**{via + DEVICE_LOOKUPS[name]: value})
@@ -50,7 +50,7 @@ def installed(filters: dict, via: str = "") -> Q:
 
 def on_shelf(filters: dict, via: str = "") -> Q:
     """Spare devices (the principle filter applies; a spare has no site, area or fluid of its own)."""
-    condition = Q(**{f"{via}position__isnull": True, f"{via}status": Meter.Status.SPARE})
+    condition = Q(**{f"{via}position__isnull": True, f"{via}status": Device.Status.SPARE})
     if filters.get("principle") not in (None, ""):
         condition &= Q(**{f"{via}principle": filters["principle"]})
     return condition
@@ -58,7 +58,7 @@ def on_shelf(filters: dict, via: str = "") -> Q:
 
 def registered(filters: dict):
     """The installed devices in the page's scope."""
-    return Meter.objects.filter(installed(filters))
+    return Device.objects.filter(installed(filters))
 
 
 def in_service(filters: dict):
@@ -116,7 +116,7 @@ def meter_conditions(today, days):
         # to predict a crossing
         "drifting": (Q(predicted_crossing__isnull=False, next_due_date__isnull=False,
                        predicted_crossing__lt=F("next_due_date"))
-                     | Q(drift_status__in=[Meter.DriftStatus.DRIFTING, Meter.DriftStatus.SCATTER])),
+                     | Q(drift_status__in=[Device.DriftStatus.DRIFTING, Device.DriftStatus.SCATTER])),
         # the latest signed as-found was out of tolerance
         "failed": Q(last_in_tolerance=False),
         # misapplied meters and high-risk duties (principle×fluid rules)
@@ -134,7 +134,7 @@ def standards_expiring(today, days):
 
 def spares(filters: dict):
     """Devices on the shelf in the page's scope."""
-    return Meter.objects.filter(on_shelf(filters))
+    return Device.objects.filter(on_shelf(filters))
 
 
 def spares_overdue(filters: dict, today):
@@ -157,11 +157,11 @@ def vacant_positions(filters: dict):
 
 def unsigned_drafts(filters: dict):
     # joined to the few drafts, not "meter in (every installed device)": the drafts index decides the plan
-    wanted = installed(filters, via="meter__")
+    wanted = installed(filters, via="device__")
     if not any(filters.get(k) not in (None, "") for k in ("site", "area", "fluid")):
-        wanted |= on_shelf(filters, via="meter__")
+        wanted |= on_shelf(filters, via="device__")
     return (CalibrationEvent.objects.filter(wanted, state=CalibrationEvent.State.DRAFT)
-            .select_related("meter__position"))
+            .select_related("device__position"))
 
 
 def page_of(queryset, bottom: int, top: int) -> list:
@@ -185,7 +185,7 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     from reports import tables
 
     todays = {today: None} if today else local_todays(filters)
-    meters = in_service(filters)
+    devices = in_service(filters)
     conditions = meter_conditions(todays, days)
     counts = registered(filters).aggregate(**{key: Count("pk", filter=c) for key, c in conditions.items()})
     standards = standards_expiring(today or localtime.today(), days)  # the plant's date: standards serve all sites
@@ -207,10 +207,10 @@ def build(filters: dict, days: int = 14, today: dt.date | None = None):
     # the risk list names each meter's findings, the fouling finding from its maintenance records among them
     # most urgent rows first: misapplied before high risk; the longest overdue (never calibrated first); the
     # earliest due. A column the reviewer sorts on replaces this order.
-    rows = {"risk": meters.prefetch_related(evidence_prefetch()).order_by("-risk_severity", "position__tag"),
-            "overdue": meters.order_by(F("next_due_date").asc(nulls_first=True), "position__tag"),
-            "due": meters.order_by("next_due_date", "position__tag")}
-    buckets = [Bucket(key, title, rows.get(key, meters).filter(conditions[key]), table, counts[key])
+    rows = {"risk": devices.prefetch_related(evidence_prefetch()).order_by("-risk_severity", "position__tag"),
+            "overdue": devices.order_by(F("next_due_date").asc(nulls_first=True), "position__tag"),
+            "due": devices.order_by("next_due_date", "position__tag")}
+    buckets = [Bucket(key, title, rows.get(key, devices).filter(conditions[key]), table, counts[key])
                for key, (title, table) in titles.items()]
     buckets.append(Bucket("standards", f"Reference standards expired or due within {days} days", standards,
                           tables.StandardTable, standards.count()))

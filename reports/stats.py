@@ -14,12 +14,12 @@ import pandas as pd
 
 from calibration.models import CalibrationEvent, in_force, observed_or_verdict
 from plant import localtime
-from plant.models import Meter
+from plant.models import Device
 
 WINDOW_DAYS = 365
 
-EVENT_COLUMNS = ["event_id", "meter_id", "performed_on", "as_found_in_tolerance", "principle", "fluid", "site"]
-METER_COLUMNS = ["meter_id", "tag", "principle", "fluid", "site", "drift_rate_per_year"]
+EVENT_COLUMNS = ["event_id", "device_id", "performed_on", "as_found_in_tolerance", "principle", "fluid", "site"]
+METER_COLUMNS = ["device_id", "tag", "principle", "fluid", "site", "drift_rate_per_year"]
 
 COLUMNS = [
     "group",
@@ -42,7 +42,7 @@ COLUMN_LABELS = {
     "mean_abs_drift_per_year": "Mean |drift| per year (error units)",
 }
 
-PRINCIPLE_NAMES = dict(Meter.Principle.choices)
+PRINCIPLE_NAMES = dict(Device.Principle.choices)
 
 
 def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFrame, pd.DataFrame]:
@@ -53,10 +53,10 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
     status) with the same attributes and its drift_rate_per_year. Two queries.
     """
     today = today or localtime.today()  # the plant's date
-    meters = Meter.objects.all()
+    devices = Device.objects.all()
     if site is not None:
-        meters = meters.filter(position__area__site=site)
-    meter_rows = meters.order_by().values_list(
+        devices = devices.filter(position__area__site=site)
+    meter_rows = devices.order_by().values_list(
         "pk", "position__tag", "principle", "position__fluid__name", "position__area__site__name", "drift_rate_per_year"
     )
     meters_df = pd.DataFrame.from_records(list(meter_rows), columns=METER_COLUMNS)
@@ -65,11 +65,11 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
         in_force(), state=CalibrationEvent.State.SIGNED, performed_on__lte=today,
     )
     if site is not None:
-        events = events.filter(meter__position__area__site=site)
+        events = events.filter(device__position__area__site=site)
     # reliability statistics count the observed as-found condition (|E| <= MPE), not the rule's verdict (issue 31)
     event_rows = events.order_by().annotate(observed_in_tolerance=observed_or_verdict()).values_list(
-        "pk", "meter_id", "performed_on", "observed_in_tolerance",
-        "meter__principle", "meter__position__fluid__name", "meter__position__area__site__name",
+        "pk", "device_id", "performed_on", "observed_in_tolerance",
+        "device__principle", "device__position__fluid__name", "device__position__area__site__name",
     )
     events_df = pd.DataFrame.from_records(list(event_rows), columns=EVENT_COLUMNS)
 
@@ -80,26 +80,26 @@ def fleet_frame(today: Optional[dt.date] = None, site=None) -> Tuple[pd.DataFram
     return events_df, meters_df
 
 
-def _group_table(events: pd.DataFrame, meters: pd.DataFrame, key: str, today: pd.Timestamp) -> pd.DataFrame:
-    meters = meters[["meter_id", key, "abs_drift"]]
+def _group_table(events: pd.DataFrame, devices: pd.DataFrame, key: str, today: pd.Timestamp) -> pd.DataFrame:
+    devices = devices[["device_id", key, "abs_drift"]]
     # the group of an event is its meter's (events of meters outside meters_df are left out)
     ev = events.drop(columns=[c for c in ("principle", "fluid", "site") if c in events.columns])
-    ev = ev.merge(meters[["meter_id", key]], on="meter_id", how="inner")
+    ev = ev.merge(devices[["device_id", key]], on="device_id", how="inner")
     recent = ev[ev["performed_on"] > today - pd.Timedelta(days=WINDOW_DAYS)]
 
-    ev = ev.sort_values(["meter_id", "performed_on", "event_id"])
-    ev["interval_days"] = ev.groupby("meter_id")["performed_on"].diff().dt.days
+    ev = ev.sort_values(["device_id", "performed_on", "event_id"])
+    ev["interval_days"] = ev.groupby("device_id")["performed_on"].diff().dt.days
 
     table = pd.DataFrame({
-        "meters": meters.groupby(key)["meter_id"].nunique(),
+        "meters": devices.groupby(key)["device_id"].nunique(),
         "calibrations_12m": recent.groupby(key)["event_id"].count(),
         "in_tolerance_12m_pct": recent.groupby(key)["in_tol"].mean() * 100.0,
         "calibrations_all": ev.groupby(key)["event_id"].count(),
         "in_tolerance_all_pct": ev.groupby(key)["in_tol"].mean() * 100.0,
         "mean_interval_days": ev.groupby(key)["interval_days"].mean(),
-        "mean_abs_drift_per_year": meters.groupby(key)["abs_drift"].mean(),
+        "mean_abs_drift_per_year": devices.groupby(key)["abs_drift"].mean(),
     })
-    table = table.reindex(sorted(meters[key].dropna().unique(), key=str))
+    table = table.reindex(sorted(devices[key].dropna().unique(), key=str))
     for column in ("meters", "calibrations_12m", "calibrations_all"):
         table[column] = table[column].fillna(0).astype(int)
     for column in ("in_tolerance_12m_pct", "in_tolerance_all_pct", "mean_interval_days", "mean_abs_drift_per_year"):
@@ -116,7 +116,7 @@ def fleet_statistics(events_df: pd.DataFrame, meters_df: pd.DataFrame, today) ->
       share of them found in tolerance (events without an as-found verdict are left out of the rate);
     - calibrations_all / in_tolerance_all_pct: the same over every event up to today;
     - mean_interval_days: mean of the gaps between consecutive calibrations of each meter, pooled over the group;
-    - mean_abs_drift_per_year: mean |Meter.drift_rate_per_year| over the meters that have one.
+    - mean_abs_drift_per_year: mean |Device.drift_rate_per_year| over the meters that have one.
     A rate or mean with nothing to average is NaN. Groups are sorted by name.
     """
     today = pd.Timestamp(today)
@@ -124,9 +124,9 @@ def fleet_statistics(events_df: pd.DataFrame, meters_df: pd.DataFrame, today) ->
     events["performed_on"] = pd.to_datetime(events["performed_on"])
     events = events[events["performed_on"] <= today]
     events["in_tol"] = events["as_found_in_tolerance"].map({True: 1.0, False: 0.0}).astype(float)
-    meters = meters_df.copy()
-    meters["abs_drift"] = pd.to_numeric(meters["drift_rate_per_year"], errors="coerce").abs()
-    return _group_table(events, meters, "principle", today), _group_table(events, meters, "fluid", today)
+    devices = meters_df.copy()
+    devices["abs_drift"] = pd.to_numeric(devices["drift_rate_per_year"], errors="coerce").abs()
+    return _group_table(events, devices, "principle", today), _group_table(events, devices, "fluid", today)
 
 
 # Chart --------------------------------------------------------------------------------------------

@@ -20,8 +20,8 @@ def _statistics(request):
     if form.is_bound and not form.is_valid():
         empty = pd.DataFrame(columns=stats.COLUMNS)
         return form, empty, empty.copy(), today
-    events, meters = stats.fleet_frame(today, site=site)
-    by_principle, by_fluid = stats.fleet_statistics(events, meters, today)
+    events, devices = stats.fleet_frame(today, site=site)
+    by_principle, by_fluid = stats.fleet_statistics(events, devices, today)
     return form, by_principle, by_fluid, today
 
 

@@ -7,7 +7,7 @@ from plant import risk
 from plant.columns import IsoDateColumn
 
 
-class MeterColumns(tables.Table):
+class DeviceColumns(tables.Table):
     tag = tables.Column(accessor="position__tag", verbose_name="Tag", order_by=("position__tag",),
                         linkify=lambda record: record.get_absolute_url())
     serial = tables.Column(verbose_name="Device S/N", default="—")
@@ -28,7 +28,7 @@ class MeterColumns(tables.Table):
         return record.get_principle_display()
 
 
-class OverdueTable(MeterColumns):
+class OverdueTable(DeviceColumns):
     next_due_date = IsoDateColumn(verbose_name="Due date", default="never calibrated")
     days_overdue = tables.Column(empty_values=(), verbose_name="Days overdue")
 
@@ -51,12 +51,12 @@ class OverdueTable(MeterColumns):
         return queryset.order_by(key, "position__tag"), True
 
 
-class DueTable(MeterColumns):
+class DueTable(DeviceColumns):
     next_due_date = IsoDateColumn(verbose_name="Due date")
     last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
 
 
-class DriftingTable(MeterColumns):
+class DriftingTable(DeviceColumns):
     #: left out on the page (kept in the CSV): the drift's four columns and the meter's need more than 820 px
     page_exclude = ("principle",)
 
@@ -73,12 +73,12 @@ class DriftingTable(MeterColumns):
         return f"{value:+.3f}{f' ± {u:.3f}' if u is not None else ''} {record.get_mpe_basis_display()}"
 
 
-class FailedTable(MeterColumns):
+class FailedTable(DeviceColumns):
     last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
     next_due_date = IsoDateColumn(verbose_name="Due date")
 
 
-class ConformityRiskTable(MeterColumns):
+class ConformityRiskTable(DeviceColumns):
     """The last calibration's conformity risk (JCGM 106): the PFA of the rule applied and the lowest p_c of a point
     inside the MPE. A low p_c asks for a calibration with a better reference, not a shorter interval."""
 
@@ -86,7 +86,7 @@ class ConformityRiskTable(MeterColumns):
     conformity_min_pc = tables.Column(verbose_name="Lowest p_c inside MPE", attrs={"td": {"class": "nowrap"}})
     last_calibrated = IsoDateColumn(verbose_name="Last calibrated")
 
-    class Meta(MeterColumns.Meta):
+    class Meta(DeviceColumns.Meta):
         sequence = ("tag", "conformity_pfa", "conformity_min_pc", "last_calibrated", "serial", "principle", "fluid",
                     "area", "site")
 
@@ -99,7 +99,7 @@ class ConformityRiskTable(MeterColumns):
         return percent(value)
 
 
-class RiskTable(MeterColumns):
+class RiskTable(DeviceColumns):
     """Misapplied meters and high-risk duties: findings in plain words on the page, their codes in the export."""
 
     severity = tables.Column(accessor="risk_severity", verbose_name="Severity")
@@ -112,7 +112,7 @@ class RiskTable(MeterColumns):
     #: and principle; the prose "Why" folds under each finding (render_codes)
     page_exclude = ("serial", "principle", "area", "reasons")
 
-    class Meta(MeterColumns.Meta):
+    class Meta(DeviceColumns.Meta):
         # what to do and the interval meanwhile come first, within an 820 px tablet's view; the long prose last
         sequence = ("tag", "severity", "interval", "recommendation", "codes", "serial", "principle", "fluid", "area",
                     "site", "reasons")
@@ -212,7 +212,7 @@ class VacantTable(tables.Table):
 
 
 class DraftTable(tables.Table):
-    meter = tables.Column(empty_values=(), verbose_name="Tag or device", order_by=("meter__position__tag",))
+    device = tables.Column(empty_values=(), verbose_name="Tag or device", order_by=("device__position__tag",))
     performed_on = IsoDateColumn(linkify=lambda record: record.get_absolute_url(), verbose_name="Date")
     technician = tables.Column()
 
@@ -220,7 +220,7 @@ class DraftTable(tables.Table):
         attrs = {"class": "grid"}
 
     def render_meter(self, record):
-        return str(record.meter)
+        return str(record.device)
 
     def value_meter(self, record):
-        return str(record.meter)
+        return str(record.device)

@@ -14,15 +14,15 @@ def _worst(frame, kind):
     return None if values.empty else float(values.loc[values.abs().idxmax()])
 
 
-def meter_drift_chart(meter, horizon_days=730) -> str:
-    from plant.models import Meter
+def meter_drift_chart(device, horizon_days=730) -> str:
+    from plant.models import Device
 
-    events, points = load_history(Meter.objects.filter(pk=meter.pk))
+    events, points = load_history(Device.objects.filter(pk=device.pk))
     trend = bound = None
     bound_label = drift.BOUND_WORDS
-    crossing = meter.predicted_crossing
+    crossing = device.predicted_crossing
     histories = point_histories(events, points) if not events.empty else {}
-    nominal = _chart_nominal(meter, histories)
+    nominal = _chart_nominal(device, histories)
     if nominal is None:  # nothing fitted: the worst point of each calibration
         history, point_label = [], "worst point"
         for row in events.sort_values("performed_on").itertuples():
@@ -32,7 +32,7 @@ def meter_drift_chart(meter, horizon_days=730) -> str:
     else:  # the points the drift was fitted on
         point_label = f"{nominal:g} % of range"
         history = [(dt.date.fromordinal(int(e.day)), e.as_found, e.left_value()) for e in histories[nominal]]
-        result = drift.fit_drift(histories[nominal], mpe=meter.mpe_value)
+        result = drift.fit_drift(histories[nominal], mpe=device.mpe_value)
         fit, baseline = result.fit, result.current  # the fitted path from the last as-left
         if fit is not None and baseline is not None and result.last_day is not None:
             t_last = result.last_day
@@ -43,16 +43,16 @@ def meter_drift_chart(meter, horizon_days=730) -> str:
             trend = [(dt.date.fromordinal(int(t)), baseline + fit.slope * (t - t_last)) for t in days]
             bound = [(dt.date.fromordinal(int(t)),
                       baseline + fit.slope * (t - t_last) + side * fit.prediction_margin(t, 0.95)) for t in days]
-    unit = meter.get_mpe_basis_display()
-    return drift_chart_svg(history, meter.mpe_value, width=720, height=300, unit=unit,
+    unit = device.get_mpe_basis_display()
+    return drift_chart_svg(history, device.mpe_value, width=720, height=300, unit=unit,
                            trend=trend, bound=bound, crossing=crossing, bound_label=bound_label,
                            point_label=point_label)
 
 
-def _chart_nominal(meter, histories):
+def _chart_nominal(device, histories):
     """The point whose rate the page shows (the crossing's, else the most scattered, else the worst significant
     slope), else the point predicted to cross first, else the point with the largest last as-found."""
-    rationale = meter.due_rationale or {}
+    rationale = device.due_rationale or {}
     for key in ("drift_chart_pct", "drift_point_pct"):
         if rationale.get(key) in histories:
             return rationale[key]

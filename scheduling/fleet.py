@@ -25,7 +25,7 @@ from calibration import decision as decision_rules
 from calibration import conformity_fleet, drift, intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, in_force, observed_or_verdict
 from plant import risk
-from plant.models import DutyPeriod, Fluid, Meter, Position
+from plant.models import DutyPeriod, Fluid, Device, Position
 from scheduling import drift_fleet, due, reads
 from scheduling.maintenance_due import recompute_maintenance
 
@@ -46,15 +46,15 @@ def policy():
 def load_history(meters_qs):
     """Signed, not superseded events and their points for the meters, as two DataFrames."""
     events = pd.DataFrame.from_records(
-        CalibrationEvent.objects.filter(in_force(), meter__in=meters_qs, state=CalibrationEvent.State.SIGNED)
+        CalibrationEvent.objects.filter(in_force(), device__in=meters_qs, state=CalibrationEvent.State.SIGNED)
         .annotate(observed_in_tolerance=observed_or_verdict())
-        .values("id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
+        .values("id", "device_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
                 "observed_in_tolerance"),
-        columns=["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
+        columns=["id", "device_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
                  "observed_in_tolerance"],
     )
     points = pd.DataFrame.from_records(
-        CalibrationPoint.objects.filter(in_force("event"), event__meter__in=meters_qs,
+        CalibrationPoint.objects.filter(in_force("event"), event__device__in=meters_qs,
                                         event__state=CalibrationEvent.State.SIGNED)
         .order_by("event_id", "kind", "nominal_pct", "id")
         .values("event_id", "kind", "nominal_pct", "error", "expanded_uncertainty"),
@@ -96,14 +96,14 @@ def _flag(values: pd.Series) -> pd.Series:
 
 
 def signed_events(where: Q | None = None):
-    """Signed, not superseded events (optionally narrowed by `where`): id, meter_id, day (ordinal),
+    """Signed, not superseded events (optionally narrowed by `where`): id, device_id, day (ordinal),
     adjusted, decision_rule, as_found_in_tolerance (the rule's verdict) and observed_in_tolerance (|E| <= MPE,
     what the interval methods count; issue 31)."""
     qs = CalibrationEvent.objects.filter(in_force(), state=CalibrationEvent.State.SIGNED)
     if where is not None:
         qs = qs.filter(where)
     qs = qs.annotate(observed_in_tolerance=observed_or_verdict())
-    columns = ["id", "meter_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
+    columns = ["id", "device_id", "performed_on", "adjusted", "decision_rule", "as_found_in_tolerance",
                "observed_in_tolerance"]
     events = reads.frame(qs.order_by(), columns)
     events["day"] = reads.ordinal_days(events["performed_on"])
@@ -133,8 +133,8 @@ def interval_observations(events: pd.DataFrame):
     interval methods count |E| <= MPE, not the rule's verdict (issue 31; NCSL RP-1 observed reliability)."""
     if events.empty:
         return events.assign(elapsed=pd.Series(dtype=float))
-    ordered = events.sort_values(["meter_id", "day", "id"], kind="stable")
-    elapsed = ordered.groupby("meter_id")["day"].diff()
+    ordered = events.sort_values(["device_id", "day", "id"], kind="stable")
+    elapsed = ordered.groupby("device_id")["day"].diff()
     observed = ordered.assign(elapsed=elapsed).dropna(subset=["elapsed", "observed_in_tolerance"])
     # a second calibration on the same day is a repeat, not an interval
     return observed[observed["elapsed"] > 0]
@@ -144,7 +144,7 @@ def interval_observations(events: pd.DataFrame):
 def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -> pd.DataFrame:
     """Per meter: earliest crossing (day and nominal point), the drift rate shown and status.
 
-    limits: the MPE per meter_id (whatever the decision rule, issue 31). Ties go to the lower nominal point, as on the meter page.
+    limits: the MPE per device_id (whatever the decision rule, issue 31). Ties go to the lower nominal point, as on the meter page.
     The point shown (shown_nominal; its rate rate_slope, rate_se: slope and standard uncertainty, per day) is
     the crossing's; with no crossing, the "scatter" point with the largest residual SD; else the point of the
     worst significant slope (worst_slope). scatter_sd: the largest residual SD among the meter's "scatter"
@@ -153,7 +153,7 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
     columns = ["crossing_day", "crossing_nominal", "worst_slope", "status", "rate_slope", "rate_se", "shown_nominal",
                "scatter_sd"]
     if points.empty:
-        return pd.DataFrame(columns=columns, index=pd.Index([], name="meter_id"))
+        return pd.DataFrame(columns=columns, index=pd.Index([], name="device_id"))
     # one value per (event, kind, nominal): the last recorded wins, as in point_histories
     pts = points[points["event_id"].isin(events["id"])]
     if not pts["id"].is_monotonic_increasing:
@@ -162,42 +162,42 @@ def meter_drift(events: pd.DataFrame, points: pd.DataFrame, limits: pd.Series) -
     found = pts[pts["as_left"] == 0][["event_id", "nominal_pct", "error"]].rename(columns={"error": "as_found"})
     left = pts[pts["as_left"] == 1][["event_id", "nominal_pct", "error"]].rename(columns={"error": "as_left"})
     wide = found.merge(left, on=["event_id", "nominal_pct"], how="outer")
-    wide = wide.merge(events[["id", "meter_id", "day", "adjusted"]], left_on="event_id", right_on="id", how="inner")
-    series_codes = wide.groupby(["meter_id", "nominal_pct"], sort=False).ngroup().to_numpy()
+    wide = wide.merge(events[["id", "device_id", "day", "adjusted"]], left_on="event_id", right_on="id", how="inner")
+    series_codes = wide.groupby(["device_id", "nominal_pct"], sort=False).ngroup().to_numpy()
     rows = pd.DataFrame({"series": series_codes, "day": wide["day"].to_numpy(), "order": wide["event_id"].to_numpy(),
                          "as_found": wide["as_found"].to_numpy(), "as_left": wide["as_left"].to_numpy(),
                          "adjusted": wide["adjusted"].to_numpy()})
-    key_frame = wide[["meter_id", "nominal_pct"]].drop_duplicates().reset_index(drop=True)  # in ngroup order
-    limit = pd.Series(limits.reindex(key_frame["meter_id"]).to_numpy(), index=np.arange(len(key_frame)))
+    key_frame = wide[["device_id", "nominal_pct"]].drop_duplicates().reset_index(drop=True)  # in ngroup order
+    limit = pd.Series(limits.reindex(key_frame["device_id"]).to_numpy(), index=np.arange(len(key_frame)))
     result = drift_fleet.predict_crossings(rows, limit)
     result = pd.concat([key_frame, result.reset_index(drop=True)], axis=1)
 
     # one statement per meter: when any point's bound is already at the limit on the last calibration day
     # ("scatter too large to predict"), no crossing date is given from its other points either
     scattered = result[result["status"] == "scatter"]
-    predicted = result[~result["meter_id"].isin(scattered["meter_id"])]
-    crossing = (predicted.dropna(subset=["day"]).sort_values(["meter_id", "day", "nominal_pct"], kind="stable")
-                .drop_duplicates("meter_id").set_index("meter_id"))
+    predicted = result[~result["device_id"].isin(scattered["device_id"])]
+    crossing = (predicted.dropna(subset=["day"]).sort_values(["device_id", "day", "nominal_pct"], kind="stable")
+                .drop_duplicates("device_id").set_index("device_id"))
     rated = result[result["significant"].astype(bool) & result["slope"].notna()]
     rated = rated.assign(magnitude=rated["slope"].abs())
-    worst = (rated.sort_values(["meter_id", "magnitude", "nominal_pct"], ascending=[True, False, True], kind="stable")
-             .drop_duplicates("meter_id").set_index("meter_id"))
+    worst = (rated.sort_values(["device_id", "magnitude", "nominal_pct"], ascending=[True, False, True], kind="stable")
+             .drop_duplicates("device_id").set_index("device_id"))
     rank = {status: i for i, status in enumerate(STATUS_PRECEDENCE)}
-    status = result.assign(rank=result["status"].map(rank)).groupby("meter_id")["rank"].min()
+    status = result.assign(rank=result["status"].map(rank)).groupby("device_id")["rank"].min()
     summary = pd.DataFrame(index=status.index)
     summary["crossing_day"] = crossing["day"]
     summary["crossing_nominal"] = crossing["nominal_pct"]
     summary["worst_slope"] = worst["slope"]
     summary["status"] = status.map(dict(enumerate(STATUS_PRECEDENCE)))
     # the point the page shows (its rate and its chart): the crossing's, else the most scattered, else the worst
-    widest = (scattered.sort_values(["meter_id", "sd", "nominal_pct"], ascending=[True, False, True], kind="stable")
-              .drop_duplicates("meter_id").set_index("meter_id"))
+    widest = (scattered.sort_values(["device_id", "sd", "nominal_pct"], ascending=[True, False, True], kind="stable")
+              .drop_duplicates("device_id").set_index("device_id"))
     shown = pd.concat([crossing, widest[~widest.index.isin(crossing.index)]])
     shown = pd.concat([shown, worst[~worst.index.isin(shown.index)]])
     summary["rate_slope"] = shown["slope"]
     summary["rate_se"] = shown["se"]
     summary["shown_nominal"] = shown["nominal_pct"]
-    summary["scatter_sd"] = scattered.groupby("meter_id")["sd"].max()
+    summary["scatter_sd"] = scattered.groupby("device_id")["sd"].max()
     return summary[columns]
 
 
@@ -216,18 +216,18 @@ def method_settings(cfg) -> dict:
                 min_days=cfg["min_interval_days"], max_days=cfg["max_interval_days"])
 
 
-def staircase_steps(meter_ids, starts, in_tol, base_intervals, kw) -> np.ndarray:
+def staircase_steps(device_ids, starts, in_tol, base_intervals, kw) -> np.ndarray:
     """intervals.staircase_sequence for every meter at once: one array op per step of the longest record.
 
     meter_ids/in_tol: the observations ordered by meter and date; starts: where each meter's rows begin.
     Returns the interval after each observation (aligned with the rows). The arithmetic is the scalar one
     (x × factor + 0.5, floored, held to the bounds) on whole-day floats, so the days are the same.
     """
-    steps = np.zeros(meter_ids.size, dtype=np.int64)
-    if not meter_ids.size:
+    steps = np.zeros(device_ids.size, dtype=np.int64)
+    if not device_ids.size:
         return steps
-    counts = np.diff(np.r_[starts, meter_ids.size])
-    base = np.array([base_intervals.get(int(m), 1) for m in meter_ids[starts]], dtype=float)
+    counts = np.diff(np.r_[starts, device_ids.size])
+    base = np.array([base_intervals.get(int(m), 1) for m in device_ids[starts]], dtype=float)
     current = np.clip(base, kw["min_days"], kw["max_days"])
     for k in range(int(counts.max())):
         active = counts > k
@@ -239,59 +239,59 @@ def staircase_steps(meter_ids, starts, in_tol, base_intervals, kw) -> np.ndarray
 
 
 def method_by_meter(meter_obs: pd.DataFrame, base_intervals: dict, cfg) -> dict:
-    """{meter_id: intervals.MethodInterval} from each meter's own record, for every meter in base_intervals.
+    """{device_id: intervals.MethodInterval} from each meter's own record, for every meter in base_intervals.
 
     The staircase steps and the binomial tails of the reliability test are computed for all meters at once;
     what remains per meter is the pure rule's choice and its sentence (intervals.interval_by_method, no query).
     """
-    ordered = meter_obs.sort_values(["meter_id", "day", "id"], kind="stable")
-    meter_ids = ordered["meter_id"].to_numpy()
+    ordered = meter_obs.sort_values(["device_id", "day", "id"], kind="stable")
+    device_ids = ordered["device_id"].to_numpy()
     elapsed = ordered["elapsed"].to_numpy(dtype=float)
     in_tol = ordered["observed_in_tolerance"].astype(bool).to_numpy()
-    starts = np.flatnonzero(np.r_[True, meter_ids[1:] != meter_ids[:-1]]) if meter_ids.size else np.empty(0, int)
-    bounds = np.r_[starts, meter_ids.size]
+    starts = np.flatnonzero(np.r_[True, device_ids[1:] != device_ids[:-1]]) if device_ids.size else np.empty(0, int)
+    bounds = np.r_[starts, device_ids.size]
     counts = np.diff(bounds)
-    passes = np.add.reduceat(in_tol.astype(np.int64), starts) if meter_ids.size else np.empty(0, int)
+    passes = np.add.reduceat(in_tol.astype(np.int64), starts) if device_ids.size else np.empty(0, int)
     below, above = intervals.binomial_tails(counts, passes, cfg["reliability_target"])
     settings_kw = method_settings(cfg)
     method = cfg["interval_method"]
-    steps = staircase_steps(meter_ids, starts, in_tol, base_intervals, settings_kw)
+    steps = staircase_steps(device_ids, starts, in_tol, base_intervals, settings_kw)
     chosen = {}
     for k, start in enumerate(starts):
-        meter_id = int(meter_ids[start])
-        if meter_id not in base_intervals:
+        device_id = int(device_ids[start])
+        if device_id not in base_intervals:
             continue
         stop = bounds[k + 1]
-        chosen[meter_id] = intervals.interval_by_method(
-            method, base_intervals[meter_id], elapsed[start:stop].tolist(), in_tol[start:stop].tolist(),
+        chosen[device_id] = intervals.interval_by_method(
+            method, base_intervals[device_id], elapsed[start:stop].tolist(), in_tol[start:stop].tolist(),
             tails=(below[k], above[k]), steps=steps[start:stop].tolist(), **settings_kw)
-    for meter_id, base in base_intervals.items():
-        if meter_id not in chosen:
-            chosen[meter_id] = intervals.interval_by_method(method, base, [], [], **settings_kw)
+    for device_id, base in base_intervals.items():
+        if device_id not in chosen:
+            chosen[device_id] = intervals.interval_by_method(method, base, [], [], **settings_kw)
     return chosen
 
 
-def attach_duties(meters, meters_qs=None) -> dict:
+def attach_duties(devices, meters_qs=None) -> dict:
     """Give each device the position it serves and that position's fluid from three reads, so the risk rules
     run without a query per device; returns {spare's id: the fluid of its last duty (or None)}, for
-    Meter.findings(last_fluid=...). A few fluid objects are shared rather than one copy per device."""
+    Device.findings(last_fluid=...). A few fluid objects are shared rather than one copy per device."""
     fluids = Fluid.objects.in_bulk()
     positions = Position.objects.only(*POSITION_INPUTS)
     positions = positions.filter(device__isnull=False) if meters_qs is None else positions.filter(device__in=meters_qs)
     positions = {p.pk: p for p in positions}
-    spare_ids = [m.pk for m in meters if m.position_id is None]
+    spare_ids = [m.pk for m in devices if m.position_id is None]
     last_fluid = {}
     if spare_ids:
-        duties = DutyPeriod.objects.filter(meter_id__in=spare_ids).order_by("meter_id", "since", "id")
-        last_fluid = dict(duties.values_list("meter_id", "fluid_id"))  # the latest of each device wins
+        duties = DutyPeriod.objects.filter(device_id__in=spare_ids).order_by("device_id", "since", "id")
+        last_fluid = dict(duties.values_list("device_id", "fluid_id"))  # the latest of each device wins
     spare_fluids = {}
-    for meter in meters:
-        if meter.position_id is not None:
-            position = positions[meter.position_id]
+    for device in devices:
+        if device.position_id is not None:
+            position = positions[device.position_id]
             position.fluid = fluids[position.fluid_id]
-            meter.position = position
+            device.position = position
         else:
-            spare_fluids[meter.pk] = fluids.get(last_fluid.get(meter.pk))
+            spare_fluids[device.pk] = fluids.get(last_fluid.get(device.pk))
     return spare_fluids
 
 
@@ -300,25 +300,25 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     """Recompute and store the due-date fields of the meters (all when None); returns the count."""
 
     whole_fleet = meters_qs is None
-    meters_qs = Meter.objects.all() if whole_fleet else meters_qs
+    meters_qs = Device.objects.all() if whole_fleet else meters_qs
     cfg = policy()
     # the stored results are read too: a row whose recomputed fields equal them is not written again (on
     # PostgreSQL every rewrite leaves a dead row and index entries behind; issue 32)
-    meters = list(meters_qs.only(*METER_INPUTS, *UPDATED_FIELDS).order_by("pk"))
-    if not meters:
+    devices = list(meters_qs.only(*METER_INPUTS, *UPDATED_FIELDS).order_by("pk"))
+    if not devices:
         return 0
-    stored = {m.pk: stored_due_fields(m) for m in meters}
-    spare_fluids = attach_duties(meters, None if whole_fleet else meters_qs)
+    stored = {m.pk: stored_due_fields(m) for m in devices}
+    spare_fluids = attach_duties(devices, None if whole_fleet else meters_qs)
     chosen_ids = None if whole_fleet else meters_qs.values("pk")
     # maintenance due dates first: what was found on the meters (fouling) is a finding of the calibration too
     evidence = recompute_maintenance(chosen_ids)
-    events = signed_events(None if whole_fleet else Q(meter__in=chosen_ids))
-    points = recorded_points(None if whole_fleet else Q(event__meter__in=chosen_ids))
-    by_meter = {m.pk: m for m in meters}
+    events = signed_events(None if whole_fleet else Q(device__in=chosen_ids))
+    points = recorded_points(None if whole_fleet else Q(event__device__in=chosen_ids))
+    by_meter = {m.pk: m for m in devices}
     obs = interval_observations(events)
 
-    last_events = events.sort_values(["meter_id", "day", "id"], kind="stable").drop_duplicates("meter_id", keep="last")
-    last_events = last_events.set_index("meter_id")
+    last_events = events.sort_values(["device_id", "day", "id"], kind="stable").drop_duplicates("device_id", keep="last")
+    last_events = last_events.set_index("device_id")
     # the drift crossing is predicted against the MPE, whatever the rule: the due date counts the observed
     # condition |E| <= MPE (issue 31), not the guard band of a rule
     mpe = pd.Series({pk: m.mpe_value for pk, m in by_meter.items()})
@@ -329,28 +329,28 @@ def recompute_due_dates(meters_qs=None, progress=None, batch_size=1000):
     last_by_meter = last_events[["id", "day", "decision_rule", "as_found_in_tolerance",
                                  "observed_in_tolerance"]].to_dict("index")
     drift_by_meter = drift_summary.to_dict("index")
-    for meter in meters:
-        findings = meter.findings(evidence.get(meter.pk, []), spare_fluids.get(meter.pk))
-        if meter.pk not in last_by_meter:
-            _no_history(meter, findings)
+    for device in devices:
+        findings = device.findings(evidence.get(device.pk, []), spare_fluids.get(device.pk))
+        if device.pk not in last_by_meter:
+            _no_history(device, findings)
         else:
-            _assess(meter, last_by_meter[meter.pk], drift_by_meter.get(meter.pk), methods[meter.pk], cfg, findings)
+            _assess(device, last_by_meter[device.pk], drift_by_meter.get(device.pk), methods[device.pk], cfg, findings)
         if progress:
             progress(1)
-    write_due_fields([m for m in meters if stored_due_fields(m) != stored[m.pk]], batch_size=batch_size)
+    write_due_fields([m for m in devices if stored_due_fields(m) != stored[m.pk]], batch_size=batch_size)
     # conformity risk (JCGM 106): priors of like devices and each device's stored risk fields (issue 31)
     fluid_ids = {m.pk: m.position.fluid_id if m.position_id else getattr(spare_fluids.get(m.pk), "pk", None)
-                 for m in meters}
-    conformity_fleet.update_conformity(meters, events, points, last_events, whole_fleet, fluid_ids)
-    return len(meters)
+                 for m in devices}
+    conformity_fleet.update_conformity(devices, events, points, last_events, whole_fleet, fluid_ids)
+    return len(devices)
 
 
-def _no_history(meter, findings=None):
+def _no_history(device, findings=None):
     """findings: the meter's, when the caller read them in bulk (else read here)."""
-    meter.risk_severity = risk.worst_severity(meter.findings() if findings is None else findings)
-    meter.last_calibrated = meter.next_due_date = meter.predicted_crossing = meter.last_in_tolerance = None
-    meter.drift_status, meter.drift_rate_per_year = "insufficient", None
-    meter.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
+    device.risk_severity = risk.worst_severity(device.findings() if findings is None else findings)
+    device.last_calibrated = device.next_due_date = device.predicted_crossing = device.last_in_tolerance = None
+    device.drift_status, device.drift_rate_per_year = "insufficient", None
+    device.due_rationale = {"winner": "none", "due": None, "bounded": "", "candidates": [],
                            "note": "No signed calibration yet: due now."}
 
 
@@ -375,11 +375,11 @@ def found_out(value) -> bool:
     return value is not None and not pd.isna(value) and not bool(value)
 
 
-def decide(meter, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting",
+def decide(device, last, last_failed, crossing, crossing_reason, method, cfg, crossing_kind="drifting",
            scatter_reason="", findings=None):
     """The pure due-date rule for one meter (scheduling/due.py), with the policy's settings (findings: the
     meter's, when the caller read them in bulk; else read here)."""
-    findings = meter.findings() if findings is None else findings
+    findings = device.findings() if findings is None else findings
     if last_failed:
         method = intervals.first_calibration_found_out(method, shorten=cfg["staircase_shorten"],
                                                        min_days=cfg["min_interval_days"],
@@ -402,7 +402,7 @@ def scatter_words(sd, mpe) -> str:
     return f"residual SD {sd:.3g} beside the MPE {mpe:g}"
 
 
-def _assess(meter, last_event, summary, method, cfg, findings=None):
+def _assess(device, last_event, summary, method, cfg, findings=None):
     last = dt.date.fromordinal(int(last_event["day"]))
     crossing = nominal = None
     crossing_reason = scatter_reason = ""
@@ -418,40 +418,40 @@ def _assess(meter, last_event, summary, method, cfg, findings=None):
             crossing = crossing_date(summary["crossing_day"], last)
             crossing_reason = f"{drift.bound_name(rate)} at {nominal:g} % of range, {drift_rate_words(rate, rate_se)}:"
         if status == "scatter" and not pd.isna(summary["scatter_sd"]):
-            scatter_reason = scatter_words(float(summary["scatter_sd"]), meter.mpe_value)
+            scatter_reason = scatter_words(float(summary["scatter_sd"]), device.mpe_value)
     # the due date and the drift status count the observed condition (|E| <= MPE); the stored verdict is the rule's
     # (issue 31: a point inside the MPE that a weak reference could not accept does not shorten the interval)
     observed = last_event["observed_in_tolerance"]
-    decision, findings = decide(meter, last, found_out(observed), crossing,
+    decision, findings = decide(device, last, found_out(observed), crossing,
                                 crossing_reason, method, cfg, crossing_kind=status, scatter_reason=scatter_reason,
                                 findings=findings)
-    meter.risk_severity = risk.worst_severity(findings)
-    meter.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
+    device.risk_severity = risk.worst_severity(findings)
+    device.last_in_tolerance = stored_verdict(last_event["as_found_in_tolerance"])
     # a last as-found beyond the MPE shows as "last found out of tolerance", whatever the fitted trend says
     status = decision_rules.drift_status_given_verdict(status, stored_verdict(observed))
-    meter.last_calibrated = last
-    meter.next_due_date = decision.due
-    meter.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_chart_pct": shown,
+    device.last_calibrated = last
+    device.next_due_date = decision.due
+    device.due_rationale = {**decision.rationale(), "drift_point_pct": nominal, "drift_chart_pct": shown,
                            "drift_status": status,
                            "drift_rate_u_per_year": float(f"{rate_se * 365.25:.6g}") if rate_se is not None else None}
-    meter.drift_status = status
-    meter.drift_rate_per_year = rate * 365.25 if rate is not None else None
-    meter.predicted_crossing = crossing
+    device.drift_status = status
+    device.drift_rate_per_year = rate * 365.25 if rate is not None else None
+    device.predicted_crossing = crossing
 
 
-def stored_due_fields(meter) -> tuple:
+def stored_due_fields(device) -> tuple:
     """The recompute's fields of a meter as the database would hold them (the rationale as canonical JSON), to
     tell a changed row from an unchanged one."""
-    return tuple(json.dumps(getattr(meter, name), sort_keys=True, cls=DjangoJSONEncoder) if name == "due_rationale"
-                 else getattr(meter, name) for name in UPDATED_FIELDS)
+    return tuple(json.dumps(getattr(device, name), sort_keys=True, cls=DjangoJSONEncoder) if name == "due_rationale"
+                 else getattr(device, name) for name in UPDATED_FIELDS)
 
 
-def write_due_fields(meters, batch_size=1000):
+def write_due_fields(devices, batch_size=1000):
     """Store the recomputed fields of the meters: batched statements, values prepared once per column."""
-    connection = connections[Meter.objects.db]
-    fields = [Meter._meta.get_field(name) for name in UPDATED_FIELDS]
+    connection = connections[Device.objects.db]
+    fields = [Device._meta.get_field(name) for name in UPDATED_FIELDS]
     quote = connection.ops.quote_name
-    table, pk = quote(Meter._meta.db_table), quote(Meter._meta.pk.column)
+    table, pk = quote(Device._meta.db_table), quote(Device._meta.pk.column)
     with transaction.atomic(using=connection.alias), connection.cursor() as cursor:
         if connection.vendor == "postgresql":
             # one UPDATE ... FROM unnest(arrays) per batch: a round trip per batch rather than per meter
@@ -462,8 +462,8 @@ def write_due_fields(meters, batch_size=1000):
             names = ", ".join(["id"] + [quote(f.column) for f in fields])
             sql = f"UPDATE {table} AS m SET {columns} FROM unnest({arrays}) AS v({names}) WHERE m.{pk} = v.id"
             dump = {"JSONField": json.dumps}
-            for start in range(0, len(meters), batch_size * 5):
-                batch = meters[start:start + batch_size * 5]
+            for start in range(0, len(devices), batch_size * 5):
+                batch = devices[start:start + batch_size * 5]
                 params = [[m.pk for m in batch]]
                 for f in fields:
                     prepare = dump.get(f.get_internal_type(), lambda v: v)
@@ -477,6 +477,6 @@ def write_due_fields(meters, batch_size=1000):
             sql = (f"UPDATE {table} SET " + ", ".join(f"{quote(f.column)} = %s" for f in fields)
                    + f" WHERE {pk} = %s")
             rows = [[prepare(getattr(m, f.attname)) for f, prepare in zip(fields, preparers)] + [m.pk]
-                    for m in meters]
+                    for m in devices]
             for start in range(0, len(rows), batch_size):
                 cursor.executemany(sql, rows[start:start + batch_size])

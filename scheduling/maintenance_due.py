@@ -24,9 +24,9 @@ FOULED = np.array([c in loop.FOULED for c in CODES])
 WRITTEN = ["frequency_days", "last_done", "last_condition", "next_due_date"]
 
 
-def meter_evidence(meter_id) -> list:
+def meter_evidence(device_id) -> list:
     """The fouling finding of one meter from its last inspections (one query); [] when it has none."""
-    recent = (MaintenanceRecord.objects.filter(meter_id=meter_id, state=MaintenanceRecord.State.SIGNED)
+    recent = (MaintenanceRecord.objects.filter(device_id=device_id, state=MaintenanceRecord.State.SIGNED)
               .order_by("-performed_on", "-id").values_list("performed_on", "condition")[:loop.FOULED_WINDOW])
     finding = loop.fouling_finding(list(recent))
     return [finding] if finding else []
@@ -39,7 +39,7 @@ def evidence_prefetch():
     """Prefetch for a list of meters: their signed records newest first, so the fouling finding of every meter on a
     page comes from one query (findings_of reads it)."""
     return Prefetch("maintenance_records", to_attr=PREFETCHED, queryset=MaintenanceRecord.objects.filter(
-        state=MaintenanceRecord.State.SIGNED).order_by("-performed_on", "-id").only("meter_id", "performed_on",
+        state=MaintenanceRecord.State.SIGNED).order_by("-performed_on", "-id").only("device_id", "performed_on",
                                                                                      "condition"))
 
 
@@ -48,12 +48,12 @@ def evidence_from_prefetched(records) -> list:
     return [finding] if finding else []
 
 
-def findings_of(meter) -> list:
+def findings_of(device) -> list:
     """The evidence source plant asks (plant/evidence.py): from the records prefetched with evidence_prefetch()
     when the page read them, else one query."""
-    if hasattr(meter, PREFETCHED):
-        return evidence_from_prefetched(getattr(meter, PREFETCHED))
-    return meter_evidence(meter.pk)
+    if hasattr(device, PREFETCHED):
+        return evidence_from_prefetched(getattr(device, PREFETCHED))
+    return meter_evidence(device.pk)
 
 
 def vector_frequencies(start: np.ndarray, codes: np.ndarray) -> np.ndarray:
@@ -82,17 +82,17 @@ def vector_frequencies(start: np.ndarray, codes: np.ndarray) -> np.ndarray:
     return current
 
 
-def recompute_maintenance(meter_ids=None, today=None) -> dict:
+def recompute_maintenance(device_ids=None, today=None) -> dict:
     """Store every active task's frequency, last visit and next due date for the meters (all when None).
 
-    meter_ids: None, or anything `meter_id__in` accepts (a values("pk") queryset). Returns {meter_id: [finding]}
+    meter_ids: None, or anything `device_id__in` accepts (a values("pk") queryset). Returns {device_id: [finding]}
     for the meters found fouled (maintenance/loop.py fouling_finding).
     """
-    where = Q() if meter_ids is None else Q(meter_id__in=meter_ids)
+    where = Q() if device_ids is None else Q(device_id__in=device_ids)
     tasks = reads.frame(MaintenanceTask.objects.filter(where, active=True).order_by("pk"),
-                  ["id", "meter_id", "start_days", "since"] + WRITTEN)
+                  ["id", "device_id", "start_days", "since"] + WRITTEN)
     records = reads.frame(MaintenanceRecord.objects.filter(where, state=MaintenanceRecord.State.SIGNED).order_by(),
-                    ["id", "task_id", "meter_id", "performed_on", "condition"])
+                    ["id", "task_id", "device_id", "performed_on", "condition"])
     records["day"] = reads.epoch_days(records["performed_on"])
     records["code"] = records["condition"].map({c: i for i, c in enumerate(CODES)}).astype(np.int64)
     records = records.sort_values(["day", "id"], kind="stable")
@@ -137,17 +137,17 @@ def recompute_maintenance(meter_ids=None, today=None) -> dict:
 
 
 def _fouling(records: pd.DataFrame) -> dict:
-    """{meter_id: [finding]} for meters with heavy deposit or blocked in FOULED_OF of their last FOULED_WINDOW."""
+    """{device_id: [finding]} for meters with heavy deposit or blocked in FOULED_OF of their last FOULED_WINDOW."""
     if records.empty:
         return {}
     newest = records.iloc[::-1]
-    window = newest[newest.groupby("meter_id").cumcount() < loop.FOULED_WINDOW]
-    counts = window.assign(fouled=FOULED[window["code"].to_numpy()]).groupby("meter_id")["fouled"].agg(["sum", "size"])
+    window = newest[newest.groupby("device_id").cumcount() < loop.FOULED_WINDOW]
+    counts = window.assign(fouled=FOULED[window["code"].to_numpy()]).groupby("device_id")["fouled"].agg(["sum", "size"])
     hit = counts[(counts["size"] >= loop.FOULED_WINDOW) & (counts["sum"] >= loop.FOULED_OF)].index
     out = {}
-    for meter_id, frame in window[window["meter_id"].isin(hit)].groupby("meter_id"):
+    for device_id, frame in window[window["device_id"].isin(hit)].groupby("device_id"):
         recent = [(dt.date.fromordinal(int(d) + reads.EPOCH_ORDINAL), c) for d, c in zip(frame["day"], frame["condition"])]
-        out[int(meter_id)] = [loop.fouling_finding(recent)]
+        out[int(device_id)] = [loop.fouling_finding(recent)]
     return out
 
 

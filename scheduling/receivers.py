@@ -6,7 +6,7 @@ from calibration.models import CalibrationEvent
 from ledger.signals import record_signed
 from maintenance.models import MaintenanceRecord
 from maintenance.signals import tasks_changed
-from plant.models import Meter
+from plant.models import Device
 from plant.signals import device_moved, devices_changed
 from scheduling import fleet, maintenance_due  # through the modules, so a test may replace the functions
 
@@ -18,13 +18,13 @@ DATED_RECORDS = (CalibrationEvent, MaintenanceRecord)
 def record_signed_(sender, record, **kwargs):
     if sender in DATED_RECORDS:
         # the calibration recompute refreshes the device's maintenance due dates first
-        fleet.recompute_due_dates(Meter.objects.filter(pk=record.meter_id))
+        fleet.recompute_due_dates(Device.objects.filter(pk=record.device_id))
 
 
 @receiver(device_moved, dispatch_uid="scheduling-device-moved")
 def device_moved_(sender, device, settle_due=True, **kwargs):
     if settle_due:  # with the new duty's risk
-        fleet.recompute_due_dates(Meter.objects.filter(pk=device.pk))
+        fleet.recompute_due_dates(Device.objects.filter(pk=device.pk))
 
 
 @receiver(devices_changed, dispatch_uid="scheduling-devices-changed")

@@ -18,7 +18,7 @@ from calibration.invented import NOMINALS, invented_found_errors
 from plant import units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from plant.demo_data import FLUIDS, MAKERS, METERS
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site
 
 TAG_PREFIX = "SYN-"
 YEARS = 10
@@ -100,14 +100,14 @@ class FleetBuilder:
             tag=f"{TAG_PREFIX}{number:06d}", area=rng.choice(self.areas), fluid=self.fluids[fluid], line_size=size,
             internal_diameter_mm=bore, flow_units=code, normal_flow=round(rmax * rng.uniform(0.4, 0.7), 3),
             min_flow=round(rmax * rng.uniform(0.03, 0.15), 3))
-        meter = Meter(
+        device = Device(
             principle=principle, range_min=0, range_max=rmax, flow_units=code, wetted_material=material,
             serial=f"SN{rng.randint(1000000, 9999999)}", maker=rng.choice(MAKERS), model=f"M{rng.randint(10, 99)}",
             mpe_value=mpe, mpe_basis=basis, base_interval_days=rng.choice([365, 365, 540, 730]), status=status,
         )
         # spares and retired devices are on the shelf: they served at a place (their duty) but hold no position
-        meter._duty = (position.area, position.fluid)
-        return (position if status == "in_service" else None), meter
+        device._duty = (position.area, position.fluid)
+        return (position if status == "in_service" else None), device
 
     def _chunk(self, start, size):
         pairs = [self._meter(start + i + 1) for i in range(size)]
@@ -116,22 +116,22 @@ class FleetBuilder:
             position.clean_fields(exclude=["area", "fluid"])
             position.clean()
         Position.objects.bulk_create(positions)
-        meters = []
-        for position, meter in pairs:
-            meter.position = position
-            meter.clean_fields()
-            meter.clean()
-            meters.append(meter)
-        Meter.objects.bulk_create(meters)
+        devices = []
+        for position, device in pairs:
+            device.position = position
+            device.clean_fields()
+            device.clean()
+            devices.append(device)
+        Device.objects.bulk_create(devices)
         # bulk_create skips the installation path (plant.installations): the installations and the duty
         # history are written here, one row per device
         since = self.today - dt.timedelta(days=int(365.25 * YEARS))
         Installation.objects.bulk_create([Installation(device=m, position=m.position, since=since)
-                                          for m in meters if m.position is not None])
-        DutyPeriod.objects.bulk_create([DutyPeriod(meter=m, position=m.position, area=m._duty[0], fluid=m._duty[1],
+                                          for m in devices if m.position is not None])
+        DutyPeriod.objects.bulk_create([DutyPeriod(device=m, position=m.position, area=m._duty[0], fluid=m._duty[1],
                                                    since=since, until=None if m.position else self.today)
-                                        for m in meters])
-        plans = [(meter, self._history(meter)) for meter in meters]
+                                        for m in devices])
+        plans = [(device, self._history(device)) for device in devices]
         events = [event for _, history in plans for event, _ in history]
         CalibrationEvent.objects.bulk_create(events, batch_size=2000)
         links = CalibrationEvent.reference_standards.through
@@ -146,26 +146,26 @@ class FleetBuilder:
         CalibrationPoint.objects.bulk_create(points, batch_size=5000)
         from maintenance.synthetic import add_fleet_history
 
-        tasks, records = add_fleet_history(meters, self.maintenance_rng, self.today - dt.timedelta(days=int(365.25 * 5)),
+        tasks, records = add_fleet_history(devices, self.maintenance_rng, self.today - dt.timedelta(days=int(365.25 * 5)),
                                            self.today - dt.timedelta(days=3))
         self.totals["tasks"] += tasks
         self.totals["maintenance"] += records
-        self.totals["meters"] += len(meters)
+        self.totals["meters"] += len(devices)
         self.totals["events"] += len(events)
         self.totals["points"] += len(points)
 
-    def _history(self, meter):
+    def _history(self, device):
         """[(event, (standard, points))] over ten years; the event verdicts are computed here."""
         rng = self.rng
-        fluid = meter._duty[1]  # a spare's too: the fluid of the duty it served
+        fluid = device._duty[1]  # a spare's too: the fluid of the duty it served
         # no maintenance findings while the calibration history is invented
-        factor = meter.risk_factor(evidence=[], last_fluid=fluid)
-        mpe = meter.mpe_value
+        factor = device.risk_factor(evidence=[], last_fluid=fluid)
+        mpe = device.mpe_value
         behaviour = rng.choices(["stable", "steady", "fouling"], weights=[6, 3, 1] if factor >= 1 else [3, 4, 3])[0]
         rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.5) * rng.choice([-1, 1])
-        interval = max(365, meter.effective_interval_days(evidence=[], last_fluid=fluid))
+        interval = max(365, device.effective_interval_days(evidence=[], last_fluid=fluid))
         day = self.today - dt.timedelta(days=int(365.25 * YEARS) - rng.randint(0, 120))
-        standard = self.standards[("gas" if fluid.phase in ("gas", "steam") else "liquid", meter.flow_units)]
+        standard = self.standards[("gas" if fluid.phase in ("gas", "steam") else "liquid", device.flow_units)]
         rule = "guarded" if rng.random() < 0.1 else "simple"
         baseline = rng.uniform(-0.1, 0.1) * mpe
         history = []
@@ -179,7 +179,7 @@ class FleetBuilder:
             adjust = max(abs(e) for e in found) > 0.6 * mpe
             left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS] if adjust else []
             event = CalibrationEvent(
-                meter=meter, position=meter.position, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
+                device=device, position=device.position, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=PROCEDURE,
                 ambient_temp_c=round(rng.uniform(5, 30), 1), fluid_temp_c=fluid.temperature_c,
                 pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
                 decision_rule=rule, notes="Zero and span adjusted." if adjust else "",
@@ -187,32 +187,32 @@ class FleetBuilder:
                 signed_at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc),
             )
             event.signed_by = event.technician
-            points = self._points(meter, standard, rule, CalibrationPoint.Kind.AS_FOUND, found)
-            points += self._points(meter, standard, rule, CalibrationPoint.Kind.AS_LEFT, left)
+            points = self._points(device, standard, rule, CalibrationPoint.Kind.AS_FOUND, found)
+            points += self._points(device, standard, rule, CalibrationPoint.Kind.AS_LEFT, left)
             self._verdicts(event, points)
             history.append((event, (standard, points)))
             baseline = sum(left) / len(left) if adjust else offset
             day += dt.timedelta(days=int(interval * rng.uniform(0.9, 1.1)))
-        if meter.status == "in_service" and rng.random() < 0.005:  # a few drafts left unsigned
-            event = CalibrationEvent(meter=meter, position=meter.position, performed_on=self.today,
+        if device.status == "in_service" and rng.random() < 0.005:  # a few drafts left unsigned
+            event = CalibrationEvent(device=device, position=device.position, performed_on=self.today,
                                      technician=rng.choice(TECHNICIANS),
                                      procedure=PROCEDURE, decision_rule=rule)
-            points = self._points(meter, standard, rule, CalibrationPoint.Kind.AS_FOUND,
+            points = self._points(device, standard, rule, CalibrationPoint.Kind.AS_FOUND,
                                   [rng.gauss(0, 0.1 * mpe) for _ in NOMINALS])
             self._verdicts(event, points)
             history.append((event, (standard, points)))
             self.totals["drafts"] += 1
         return history
 
-    def _points(self, meter, standard, rule, kind, errors_in_basis):
-        span = meter.range_max - meter.range_min
+    def _points(self, device, standard, rule, kind, errors_in_basis):
+        span = device.range_max - device.range_min
         out = []
         for nominal, error in zip(NOMINALS, errors_in_basis):
-            reference = round(meter.range_min + span * nominal / 100 * self.rng.uniform(0.97, 1.0), 4)
-            indicated = errors.indication_for_error(reference, error, meter.mpe_basis, span)
+            reference = round(device.range_min + span * nominal / 100 * self.rng.uniform(0.97, 1.0), 4)
+            indicated = errors.indication_for_error(reference, error, device.mpe_basis, span)
             point = CalibrationPoint(kind=kind, nominal_pct=nominal, reference_value=reference,
                                      indicated_value=round(indicated, 6))
-            point.compute(meter, standard, rule)
+            point.compute(device, standard, rule)
             out.append(point)
         return out
 

@@ -22,7 +22,7 @@ from calibration import dcc, dcc_schema
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
 from plant.installations import commission
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 
 # People ---------------------------------------------------------------------------------------------------------
 
@@ -103,11 +103,11 @@ def certificate_entry_data(standard, performed_on=TODAY, **kwargs):
     return entry_data(standard, **{"ev-performed_on": performed_on.isoformat(), "ev-procedure": PROCEDURE, **kwargs})
 
 
-def enter(client, meter, standard, **kwargs):
+def enter(client, device, standard, **kwargs):
     from calibration.models import CalibrationEvent
 
     before = set(CalibrationEvent.objects.values_list("pk", flat=True))
-    response = client.post(f"/positions/{meter.tag}/calibrate/", certificate_entry_data(standard, **kwargs))
+    response = client.post(f"/positions/{device.tag}/calibrate/", certificate_entry_data(standard, **kwargs))
     assert response.status_code == 302, response.content.decode()[:2000]
     return CalibrationEvent.objects.exclude(pk__in=before).get()
 
@@ -163,11 +163,11 @@ def guarded_standard(U):
                                             expanded_uncertainty=u_ref, uncertainty_basis="pct_reading")
 
 
-def calibrate(meter, ref_standard, rule, errors, day=GUARD_DAY):
+def calibrate(device, ref_standard, rule, errors, day=GUARD_DAY):
     """Record and sign one calibration with as-found points at 20 m³/h (50 %), or at several nominals."""
     from calibration.models import CalibrationEvent, CalibrationPoint
 
-    event = CalibrationEvent.objects.create(meter=meter, performed_on=day, technician="A. Tester",
+    event = CalibrationEvent.objects.create(device=device, performed_on=day, technician="A. Tester",
                                             procedure="Comparison against the master meter", decision_rule=rule)
     event.reference_standards.add(ref_standard)
     for i, error in enumerate(errors):
@@ -225,8 +225,8 @@ def row(tag, n, **overrides):
 
 
 # Maintenance records --------------------------------------------------------------------------------------------
-def task_of(meter, code):
-    return MaintenanceTask.objects.get(meter=meter, code=code)
+def task_of(device, code):
+    return MaintenanceTask.objects.get(device=device, code=code)
 
 
 def post_data(chosen, **extra):
@@ -240,12 +240,12 @@ def post_data(chosen, **extra):
 # The review's lists ---------------------------------------------------------------------------------------------
 def make_meter(tag, area, fluid, principle="electromagnetic", **due):
     # MISAPPLIED-1 is not fit for its duty on purpose: it goes in with a reason, as a reviewer would write one
-    meter = commission(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
+    device = commission(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
                        internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L",
                        unfit_reason="Test plant: the review must list it as not fit.")
     if due:
-        Meter.objects.filter(pk=meter.pk).update(**due)
-    return meter
+        Device.objects.filter(pk=device.pk).update(**due)
+    return device
 
 
 def export(client, key, **params):
@@ -276,9 +276,9 @@ def png(colour):
     return buffer.getvalue()
 
 
-def draft_calibration(meter, standard, tech, found=((4, 4.01), (20, 20.05), (40, 40.04))):
+def draft_calibration(device, standard, tech, found=((4, 4.01), (20, 20.05), (40, 40.04))):
     event = CalibrationEvent.objects.create(
-        meter=meter, performed_on=meter.today(), technician="Tess Tester", performed_by=tech, created_by=tech,
+        device=device, performed_on=device.today(), technician="Tess Tester", performed_by=tech, created_by=tech,
         procedure="Comparison against the portable reference, three points", condition_received="In service")
     event.reference_standards.add(standard)
     for reference, indicated in found:
@@ -287,9 +287,9 @@ def draft_calibration(meter, standard, tech, found=((4, 4.01), (20, 20.05), (40,
     return event
 
 
-def draft_maintenance(meter, tech, photos=()):
-    task = MaintenanceTask.objects.filter(meter=meter).first()
-    record = MaintenanceRecord.objects.create(meter=meter, task=task, performed_on=meter.today(), technician="T",
+def draft_maintenance(device, tech, photos=()):
+    task = MaintenanceTask.objects.filter(device=device).first()
+    record = MaintenanceRecord.objects.create(device=device, task=task, performed_on=device.today(), technician="T",
                                               condition="light_deposit", action="Cleaned the electrodes.",
                                               minutes_spent=40, created_by=tech)
     for i, data in enumerate(photos):
@@ -305,17 +305,17 @@ def build_world():
     site = Site.objects.create(name="Chain site")
     area = Area.objects.create(site=site, name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
-    meter = commission(tag="FT-L1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    device = commission(tag="FT-L1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                        internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
     standard = ReferenceStandard.objects.create(identification="RS-L", description="ref", range_max=40,
                                                 certificate_number="C-L", due_date=dt.date(2099, 1, 1),
                                                 expanded_uncertainty=0.1)
     tech, reviewer = user_with_role("technician", "tech-l"), user_with_role("reviewer", "reviewer-l")
-    signed = draft_calibration(meter, standard, tech).sign(by="Tess Tester")
+    signed = draft_calibration(device, standard, tech).sign(by="Tess Tester")
     counter = Countersignature.objects.create(event=signed, user=reviewer, name="Rev Tester", role="Reviewer")
-    maintenance = draft_maintenance(meter, tech, photos=[png((200, 10, 10)), png((10, 10, 200))]).sign(by="T")
-    draft = draft_calibration(meter, standard, tech, found=((10, 10.1),))
-    return {"meter": meter, "standard": standard, "tech": tech, "reviewer": reviewer, "signed": signed,
+    maintenance = draft_maintenance(device, tech, photos=[png((200, 10, 10)), png((10, 10, 200))]).sign(by="T")
+    draft = draft_calibration(device, standard, tech, found=((10, 10.1),))
+    return {"device": device, "standard": standard, "tech": tech, "reviewer": reviewer, "signed": signed,
             "counter": counter, "maintenance": maintenance, "draft": draft}
 
 

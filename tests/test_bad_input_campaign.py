@@ -48,7 +48,7 @@ from calibration.forms import CalibrationEntry
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard
 from plant import importer, spreadsheet
 from plant.forms import FluidForm
-from plant.models import MAX_BASE_INTERVAL_DAYS, Area, DutyPeriod, Fluid, Meter, Position, Site
+from plant.models import MAX_BASE_INTERVAL_DAYS, Area, DutyPeriod, Fluid, Device, Position, Site
 from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
@@ -126,9 +126,9 @@ def base(db):
         "Steam 10 bar": Fluid.objects.create(name="Steam 10 bar", phase="steam", temperature_c=184.1),
         "Oil": Fluid.objects.create(name="Oil", phase="liquid", conductivity_us_cm=0.0, viscosity_mpa_s=50),
     }
-    meters = {}
+    devices = {}
     for tag, (principle, area, fluid, (low, high), units, normal, minimum, mpe, basis, interval) in METERS.items():
-        meters[tag] = commission(
+        devices[tag] = commission(
             tag=tag, principle=principle, area=areas[area], fluid=fluids[fluid], line_size="DN50",
             internal_diameter_mm=52.5, range_min=low, range_max=high, flow_units=units, normal_flow=normal,
             min_flow=minimum, wetted_material="316L", mpe_value=mpe, mpe_basis=basis, base_interval_days=interval,
@@ -149,26 +149,26 @@ def base(db):
     standards = by_units["m3/h"]
     # A signed calibration whose record must never move. Signed by flipping the state of a computed draft, so the
     # baseline does not depend on the fleet recompute that sign() runs afterwards.
-    event = CalibrationEvent.objects.create(meter=meters["FT-100"], performed_on=SIGNED_ON, technician="A. Fieldtech",
+    event = CalibrationEvent.objects.create(device=devices["FT-100"], performed_on=SIGNED_ON, technician="A. Fieldtech",
                                             procedure="Comparison against master meter")
     event.reference_standards.add(standards["RS-1"])
     for nominal, ref, ind in ((25, 10.0, 10.02), (50, 20.0, 20.05), (100, 40.0, 39.9)):
         point = CalibrationPoint(event=event, kind="as_found", nominal_pct=nominal, reference_value=ref,
                                  indicated_value=ind)
-        point.compute(event.meter, standards["RS-1"], event.decision_rule)
+        point.compute(event.device, standards["RS-1"], event.decision_rule)
         point.save()
     event.evaluate()
     event.save()
     CalibrationEvent.objects.filter(pk=event.pk).update(state="signed", signed_by="A. Fieldtech",
                                                         signed_role="Technician")
-    return {"sites": sites, "areas": areas, "fluids": fluids, "meters": meters, "standards": standards,
+    return {"sites": sites, "areas": areas, "fluids": fluids, "meters": devices, "standards": standards,
             "standards_by_units": by_units}
 
 
 # State that a rejected case must leave untouched --------------------------------------------------------------------
-COUNTED = (Site, Area, Fluid, Meter, DutyPeriod, ReferenceStandard, CalibrationEvent, CalibrationPoint,
+COUNTED = (Site, Area, Fluid, Device, DutyPeriod, ReferenceStandard, CalibrationEvent, CalibrationPoint,
            CalibrationEvent.reference_standards.through, Countersignature,
-           Fluid.history.model, Meter.history.model, CalibrationEvent.history.model)
+           Fluid.history.model, Device.history.model, CalibrationEvent.history.model)
 
 
 def signed_records():
@@ -289,7 +289,7 @@ class Material(Choice):
     """The fixed list of wetted materials (issue 17 item 7): a code of the list, or blank for "not recorded"."""
 
     def __init__(self):
-        self.pairs = [(str(value), str(label)) for value, label in Meter._meta.get_field("wetted_material").choices]
+        self.pairs = [(str(value), str(label)) for value, label in Device._meta.get_field("wetted_material").choices]
 
     def form(self, raw):
         if raw is None or raw == "":
@@ -306,7 +306,7 @@ class FlowUnits(Choice):
     """A unit code of plant/units.py; the importer also takes a usual spelling (code_for) or the label."""
 
     def __init__(self):
-        self.pairs = [(str(value), str(label)) for value, label in Meter._meta.get_field("flow_units").choices]
+        self.pairs = [(str(value), str(label)) for value, label in Device._meta.get_field("flow_units").choices]
 
     def imported(self, raw):
         ok, value = super().imported(raw)
@@ -392,7 +392,7 @@ FLUID_SPEC = {
 
 def meter_spec(base):
     return {
-        "tag": Text(40, required=True), "principle": Choice(Meter.Principle),
+        "tag": Text(40, required=True), "principle": Choice(Device.Principle),
         "area": ForeignKey(a.pk for a in base["areas"].values()),
         "fluid": ForeignKey(f.pk for f in base["fluids"].values()),
         "line_size": Text(20, required=True), "internal_diameter_mm": Num(0.1, required=True),
@@ -400,7 +400,7 @@ def meter_spec(base):
         "normal_flow": Num(), "min_flow": Num(), "wetted_material": Material(),
         "material_details": Text(120), "serial": Text(60),
         "maker": Text(80), "model": Text(80), "mpe_value": Num(1e-9, required=True),
-        "mpe_basis": Choice(Meter.MpeBasis),
+        "mpe_basis": Choice(Device.MpeBasis),
         "base_interval_days": Num(1, required=True, integer=True, maximum=MAX_BASE_INTERVAL_DAYS),
     }
 
@@ -565,7 +565,7 @@ def good_meter_data(draw, base):
     minimum = draw(optional(st.just(repr((float(normal) if normal else float(high)) * draw(st.floats(0, 1))))))
     return {
         "tag": draw(name_like("FT-").map(lambda s: s[:40])),
-        "principle": draw(st.sampled_from([v for v, _ in Meter.Principle.choices])),
+        "principle": draw(st.sampled_from([v for v, _ in Device.Principle.choices])),
         "area": str(draw(st.sampled_from(sorted(a.pk for a in base["areas"].values())))),
         "fluid": str(draw(st.sampled_from(sorted(f.pk for f in base["fluids"].values())))),
         "line_size": draw(st.sampled_from(["DN50", "DN100", "2 in", "DN25", "DN 1200"])),
@@ -576,7 +576,7 @@ def good_meter_data(draw, base):
         "material_details": draw(st.sampled_from(["", "PTFE liner", "grade 2"])),
         "serial": draw(st.text(max_size=12)), "maker": draw(st.text(max_size=12)), "model": draw(st.text(max_size=12)),
         "mpe_value": draw(number_text(0.01, 5)),
-        "mpe_basis": draw(st.sampled_from([v for v, _ in Meter.MpeBasis.choices])),
+        "mpe_basis": draw(st.sampled_from([v for v, _ in Device.MpeBasis.choices])),
         "base_interval_days": draw(st.sampled_from(["365", "180", "730", "30", "3650", "1", "365.0", " 90 "])),
     }
 
@@ -661,16 +661,16 @@ def misapplied(values):
     return any(f.severity == "misapplied" for f in findings)
 
 
-def check_accepted_meter(meter, values, base):
-    meter = Meter.objects.select_related("position__fluid").get(pk=meter.pk)
+def check_accepted_meter(device, values, base):
+    device = Device.objects.select_related("position__fluid").get(pk=device.pk)
     for name, value in values.items():
-        holder = meter.position if name in importer.POSITION_COLUMNS else meter
+        holder = device.position if name in importer.POSITION_COLUMNS else device
         assert stored(holder, name) == value, (name, value, stored(holder, name))
     # what the register then computes from it must not fail
-    meter.findings()
-    interval = meter.effective_interval_days()
+    device.findings()
+    interval = device.effective_interval_days()
     assert 1 <= interval <= MAX_BASE_INTERVAL_DAYS
-    due.decide_due(dt.date(2026, 1, 1), meter.base_interval_days, meter.risk_factor())
+    due.decide_due(dt.date(2026, 1, 1), device.base_interval_days, device.risk_factor())
 
 
 def test_meter_form(base):
@@ -680,7 +680,7 @@ def test_meter_form(base):
         tag, data = case
         with rolled_back():
             before = state()
-            instance = Meter.objects.get(position__tag=tag) if tag else None
+            instance = Device.objects.get(position__tag=tag) if tag else None
             old = (instance.area_id, instance.fluid_id) if instance else None  # the form edits the instance
             duties = DutyPeriod.objects.count()
             others = set(Position.objects.exclude(device=instance).values_list("tag", flat=True))
@@ -689,10 +689,10 @@ def test_meter_form(base):
             form = importer.RegisterRowForm(data=data, instance=importer.RegisterRow(instance))
             if form.is_valid():
                 assert not bad, f"accepted, but {sorted(bad)} should have been refused: {data!r}"
-                meter = form.save().device
-                check_accepted_meter(meter, values, base)
-                meter.refresh_from_db()
-                duty_change = old != (meter.area_id, meter.fluid_id)  # a new row opens its first duty period
+                device = form.save().device
+                check_accepted_meter(device, values, base)
+                device.refresh_from_db()
+                duty_change = old != (device.area_id, device.fluid_id)  # a new row opens its first duty period
                 assert DutyPeriod.objects.count() == duties + duty_change
                 assert state()[1] == before[1]
                 tally("meter form", True)
@@ -713,7 +713,7 @@ ANY_FLOAT = st.one_of(st.floats(), st.sampled_from([math.nan, math.inf, -math.in
 
 @st.composite
 def model_case(draw, base):
-    kind = draw(st.sampled_from(["fluid", "meter"]))
+    kind = draw(st.sampled_from(["fluid", "device"]))
     if kind == "fluid":
         values = {"name": draw(name_like("Direct ")), "phase": draw(st.sampled_from(["liquid", "gas", "slurry"])),
                   "conductivity_us_cm": draw(st.one_of(st.none(), st.floats(0, 1e5))),
@@ -810,7 +810,7 @@ def test_models_validate_on_save(base):
                 obj = PositionAndDevice(
                     Position(area=base["areas"]["North", "Hall A"], fluid=base["fluids"]["Water"],
                              flow_units="m3/h", **position_values),
-                    Meter(**device_values))
+                    Device(**device_values))
             try:
                 obj.save()
             except ValidationError as exc:
@@ -821,7 +821,7 @@ def test_models_validate_on_save(base):
                 return
             assert not bad, f"saved, but {sorted(bad)} should have been refused: {values!r}"
             for name, value in expected.items():
-                holder = obj.holder(name) if kind == "meter" else obj
+                holder = obj.holder(name) if kind == "device" else obj
                 fresh = type(holder).objects.get(pk=holder.pk)
                 assert stored(fresh, name) == value, (name, value, stored(fresh, name))
             assert state()[1] == before[1]
@@ -978,7 +978,7 @@ def _changed(raw, initial):
     return ("" if initial is None else initial) != ("" if value is None else value)
 
 
-def judge_row(index, raw, meter):
+def judge_row(index, raw, device):
     """('blank' | 'filled' | 'bad', bad fields, values) for one grid row, as the tablet page must treat it."""
     initial = NOMINALS[index] if index < 5 else None
     changed = (_changed(raw.get("nominal_pct"), initial)
@@ -1005,10 +1005,10 @@ def judge_row(index, raw, meter):
         return "bad", bad, {}
     if ref is None and ind is None and not repeats:
         return "blank", set(), {}
-    low, high = meter.range_min, meter.range_max
+    low, high = device.range_min, device.range_max
     if ref is None:
         bad.add("reference_value")
-    elif ref < 0 or ref < low or ref > high or (ref == 0 and meter.mpe_basis == "pct_reading"):
+    elif ref < 0 or ref < low or ref > high or (ref == 0 and device.mpe_basis == "pct_reading"):
         bad.add("reference_value")
     if ind is None and not repeats:
         bad.add("indicated_value")
@@ -1028,17 +1028,17 @@ def judge_row(index, raw, meter):
                              "repeats": repeats, "resolution": res or 0.0}
 
 
-def expected_results(meter, standards, row):
+def expected_results(device, standards, row):
     """Error (VIM 4.31: indication - reference, on the meter's MPE basis) and U at 95 % (GUM budget: every reference
     standard used, Type B; repeatability Type A with n - 1 degrees of freedom; resolution rectangular; k the t
     quantile at the Welch-Satterthwaite nu_eff, GUM G.4), or None if they are not finite numbers."""
     ref, reps = row["reference_value"], row["repeats"]
     indicated = sum(reps) / len(reps) if reps else row["indicated_value"]
-    span = meter.range_max - meter.range_min
+    span = device.range_max - device.range_min
     try:
         diff = indicated - ref
         error = {"absolute": diff, "pct_reading": 100.0 * diff / ref if ref else math.inf,
-                 "pct_span": 100.0 * diff / span}[meter.mpe_basis]
+                 "pct_span": 100.0 * diff / span}[device.mpe_basis]
         u_ref2 = sum(((s.expanded_uncertainty * abs(ref) / 100.0 if s.uncertainty_basis == "pct_reading"
                        else s.expanded_uncertainty) / 2) ** 2 for s in standards)
         u_rep = statistics.stdev(reps) / math.sqrt(len(reps)) if len(reps) >= 2 else 0.0
@@ -1048,7 +1048,7 @@ def expected_results(meter, standards, row):
         k = scipy_stats.norm.ppf(0.975) if math.isinf(nu) else scipy_stats.t.ppf(0.975, nu)
         U_flow = k * u_c
         U = {"absolute": U_flow, "pct_reading": 100.0 * U_flow / abs(ref) if ref else math.inf,
-             "pct_span": 100.0 * U_flow / span}[meter.mpe_basis]
+             "pct_span": 100.0 * U_flow / span}[device.mpe_basis]
     except (ArithmeticError, ValueError):
         return None
     if not (math.isfinite(error) and math.isfinite(U)):
@@ -1076,7 +1076,7 @@ def ilac_decision(error, mpe, U, rule):
 
 def judge_calibration(case, base):
     """(bad locations, expected event values, expected points) for a tablet entry."""
-    meter = base["meters"][case["tag"]]
+    device = base["meters"][case["tag"]]
     bad = set()
     bad_event, event = judge(EVENT_SPEC, case["event"])
     bad |= {("ev", name) for name in bad_event}
@@ -1091,7 +1091,7 @@ def judge_calibration(case, base):
     if performed_on is None or performed_on > dt.date.today() + dt.timedelta(days=1):  # unreadable or in the future
         bad.add(("ev", "performed_on"))
     event["performed_on"] = performed_on
-    offered = base["standards_by_units"][meter.flow_units]
+    offered = base["standards_by_units"][device.flow_units]
     standards = [offered[s] for s in case["standards"] if s in offered]
     if not standards or len(standards) != len(case["standards"]):
         bad.add(("ev", "reference_standards"))
@@ -1104,7 +1104,7 @@ def judge_calibration(case, base):
         elif total is not None:
             bad.add((prefix, "management"))
             raw_rows = []
-        rows[prefix] = [judge_row(i, raw, meter) for i, raw in enumerate(raw_rows)]
+        rows[prefix] = [judge_row(i, raw, device) for i, raw in enumerate(raw_rows)]
         bad |= {(prefix, i, f) for i, (_, fields, _) in enumerate(rows[prefix]) for f in fields}
     if bad:
         return bad, event, []
@@ -1133,14 +1133,14 @@ def judge_calibration(case, base):
         for i, (status, _, values) in enumerate(rows[prefix]):
             if status != "filled":
                 continue
-            results = expected_results(meter, standards, values)
+            results = expected_results(device, standards, values)
             if results is None:
                 bad.add((prefix, i, "results"))
             points.append({**values, "kind": kind, "results": results})
     # the decision-rule policy (quenby.settings, "require_guarded"): simple acceptance is refused when a point's TUR,
     # MPE / its own U (ANSI/NCSL Z540.3), is below 4:1
     if event["decision_rule"] == "simple" and any(
-            p["results"] is not None and p["results"][1] > 0 and meter.mpe_value / p["results"][1] < 4 for p in points):
+            p["results"] is not None and p["results"][1] > 0 and device.mpe_value / p["results"][1] < 4 for p in points):
         bad.add(("ev", "decision_rule"))
     return bad, event, points
 
@@ -1174,7 +1174,7 @@ def check_rejected_entry(entry, bad, body, case):
             assert form_errors if field == "results" else field in form_errors, (where, form_errors, case)
 
 
-def check_accepted_entry(meter, event, expected_event, points, case):
+def check_accepted_entry(device, event, expected_event, points, case):
     for name, value in expected_event.items():
         assert stored(event, name) == value, (name, value, stored(event, name))
     # who performed it: the logged-in user, unless an outside contractor is named (issue 15 item 7)
@@ -1191,7 +1191,7 @@ def check_accepted_entry(meter, event, expected_event, points, case):
             assert stored(point, name) == expected[name], (name, expected, case)
         error, U = expected["results"]
         assert point.error == pytest.approx(error, rel=1e-9, abs=1e-9), (point.error, error, case)
-        assert point.mpe == meter.mpe_value
+        assert point.mpe == device.mpe_value
         assert math.isfinite(point.expanded_uncertainty) and point.expanded_uncertainty >= 0
         if abs(expected["reference_value"]) >= 1e-300:  # below that the binary rounding of tiny numbers dominates
             assert point.expanded_uncertainty == pytest.approx(U, rel=1e-9, abs=1e-12), (point, U, case)
@@ -1207,14 +1207,14 @@ def test_calibration_form(base, client, admin_user):
     @campaign(250)
     @given(calibration_case())
     def run(case):
-        meter = base["meters"][case["tag"]]
+        device = base["meters"][case["tag"]]
         with rolled_back():
             before = state()
             last_pk = CalibrationEvent.objects.order_by("pk").values_list("pk", flat=True).last()
             bad, expected_event, points = judge_calibration(case, base)
             data = post_data(case, base)
             if case["via"] == "page":
-                response = client.post(f"/positions/{meter.tag}/calibrate/", data)
+                response = client.post(f"/positions/{device.tag}/calibrate/", data)
                 assert response.status_code in (302, 400), (response.status_code, case)
                 accepted = response.status_code == 302
                 entry = None if accepted else response.context["entry"]
@@ -1222,14 +1222,14 @@ def test_calibration_form(base, client, admin_user):
                 query = QueryDict(mutable=True)
                 for key, value in data.items():
                     query.setlist(key, value if isinstance(value, list) else [value])
-                entry = CalibrationEntry(Meter.objects.get(pk=meter.pk), query, user=admin_user)
+                entry = CalibrationEntry(Device.objects.get(pk=device.pk), query, user=admin_user)
                 accepted = entry.is_valid()
                 if accepted:
                     entry.save()
             if accepted:
                 assert not bad, f"accepted, but {sorted(bad, key=str)} should have been refused: {case!r}"
                 event = CalibrationEvent.objects.get(pk__gt=last_pk)
-                check_accepted_entry(meter, event, expected_event, points, case)
+                check_accepted_entry(device, event, expected_event, points, case)
                 if case["via"] == "page":
                     assert response["Location"] == event.get_absolute_url()
                     assert client.get(event.get_absolute_url()).status_code == 200
@@ -1360,7 +1360,7 @@ def judge_import(kind, table, base):
         return missing, set(), {}
     spec = FLUID_SPEC if kind == "fluids" else meter_spec(base)
     fluids = {f.name: f for f in Fluid.objects.all()}
-    meters = {m.tag: m for m in Meter.objects.filter(position__isnull=False)
+    devices = {m.tag: m for m in Device.objects.filter(position__isnull=False)
               .select_related("position__area__site", "position__fluid")}
     sites = {}
     for site, area in base["areas"]:
@@ -1381,10 +1381,10 @@ def judge_import(kind, table, base):
             seen.add(folded)
         current = None
         if key and key_column not in row_bad:
-            current = fluids.get(_find(fluids, key)) if kind == "fluids" else meters.get(key)
+            current = fluids.get(_find(fluids, key)) if kind == "fluids" else devices.get(key)
         values = {name: ((stored(current, name) if kind == "fluids" else stored_in_row(current, name)) if current else
                          Fluid._meta.get_field(name).get_default() if kind == "fluids" else
-                         importer._field(Meter, name).get_default()) for name in spec}
+                         importer._field(Device, name).get_default()) for name in spec}
         for name, field in spec.items():
             if name not in raw or name in ("area", "fluid") or name in row_bad:
                 continue
@@ -1440,7 +1440,7 @@ def check_accepted_import(kind, expected):
         if kind == "fluids":
             obj = Fluid.objects.get(name=key)
         else:
-            obj = Meter.objects.select_related("position__area__site", "position__fluid").get(position__tag=key)
+            obj = Device.objects.select_related("position__area__site", "position__fluid").get(position__tag=key)
         for name, value in values.items():
             if name == "area":
                 assert (obj.area.site.name, obj.area.name) == value

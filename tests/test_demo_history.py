@@ -7,18 +7,18 @@ from django.db.models import Count, Min
 
 from calibration.forms import EventForm
 from calibration.models import CalibrationEvent, SignedRecordError
-from plant.models import Meter
+from plant.models import Device
 
 pytestmark = pytest.mark.django_db
 GENERATED_ON = dt.date(2026, 12, 4)  # the generator's fixed "today" (build_demo_history.TODAY)
 
 
 def test_every_meter_has_three_to_eight_years_of_signed_history(demo_history):
-    rows = CalibrationEvent.objects.values("meter").annotate(first=Min("performed_on"), n=Count("id"))
-    assert len(rows) == Meter.objects.exclude(serial="SN730342").count()  # all but the spare never calibrated
-    bench = Meter.objects.get(serial="SN730118").pk  # the spare calibrated once, on the bench, a month ago
+    rows = CalibrationEvent.objects.values("device").annotate(first=Min("performed_on"), n=Count("id"))
+    assert len(rows) == Device.objects.exclude(serial="SN730342").count()  # all but the spare never calibrated
+    bench = Device.objects.get(serial="SN730118").pk  # the spare calibrated once, on the bench, a month ago
     for row in rows:
-        if row["meter"] == bench:
+        if row["device"] == bench:
             assert row["n"] == 1 and (GENERATED_ON - row["first"]).days == 30
             continue
         years = (GENERATED_ON - row["first"]).days / 365.25
@@ -37,9 +37,9 @@ def test_history_mixes_in_and_out_of_tolerance(demo_history):
 def test_risky_duties_drift_more(demo_history):
     """The generator scales drift by 1/risk factor: meters with findings fail more often at as-found."""
     fail_rate = {True: [0, 0], False: [0, 0]}
-    for meter in Meter.objects.filter(position__isnull=False).select_related("position__fluid"):
-        risky = meter.risk_factor() < 1
-        events = list(meter.calibrations.all())
+    for device in Device.objects.filter(position__isnull=False).select_related("position__fluid"):
+        risky = device.risk_factor() < 1
+        events = list(device.calibrations.all())
         fail_rate[risky][0] += sum(1 for e in events if e.as_found_in_tolerance is False)
         fail_rate[risky][1] += len(events)
     assert fail_rate[True][0] / fail_rate[True][1] > fail_rate[False][0] / fail_rate[False][1]
@@ -62,7 +62,7 @@ def test_signed_event_refuses_a_model_form_edit(demo_history):
 def test_demo_meter_page_and_event_page_render(client, demo_history):
     event = CalibrationEvent.objects.filter(adjusted=True).first()
     assert client.get(f"/calibrations/{event.pk}/").status_code == 200
-    assert client.get(f"/positions/{event.meter.tag}/").status_code == 200
+    assert client.get(f"/positions/{event.device.tag}/").status_code == 200
 
 
 def test_demo_plant_looks_looked_after(demo_history):
@@ -70,19 +70,19 @@ def test_demo_plant_looks_looked_after(demo_history):
     missed), a few whose due date the drift model shortens or flags, one or two last found out of tolerance.
     The due dates do not depend on the day of the recompute, only "overdue" does."""
     call_command("recompute_due_dates")
-    meters = list(Meter.objects.filter(position__isnull=False).select_related("position"))
-    total = len(meters)
-    overdue = [m.tag for m in meters if m.next_due_date < GENERATED_ON]
-    drifting = [m.tag for m in meters
+    devices = list(Device.objects.filter(position__isnull=False).select_related("position"))
+    total = len(devices)
+    overdue = [m.tag for m in devices if m.next_due_date < GENERATED_ON]
+    drifting = [m.tag for m in devices
                 if m.due_rationale["winner"] == "drift" or m.due_rationale["findings"]
                 and m.drift_status in ("drifting", "scatter")]
-    failed = [m.tag for m in meters if m.last_in_tolerance is False]
+    failed = [m.tag for m in devices if m.last_in_tolerance is False]
     assert total == 44
     assert total - len(overdue) >= 0.8 * total, overdue  # most in date
     assert 2 <= len(overdue) <= 6, overdue  # a few overdue
     assert 2 <= len(drifting) <= 12, drifting  # a few drifting
     assert 1 <= len(failed) <= 2, failed  # one or two failed
     # nothing is due before the calibration it follows, nor sooner than the policy minimum
-    assert all((m.next_due_date - m.last_calibrated).days >= 30 for m in meters)
+    assert all((m.next_due_date - m.last_calibrated).days >= 30 for m in devices)
     # and the interval method lengthens intervals where the record is clean
-    assert any((m.next_due_date - m.last_calibrated).days > m.base_interval_days for m in meters)
+    assert any((m.next_due_date - m.last_calibrated).days > m.base_interval_days for m in devices)

@@ -57,7 +57,7 @@ def test_the_findings_by_principle_are_those_of_the_risk_rules_least_affected_fi
 
 def test_a_reader_who_may_not_install_gets_no_install_action(demo_plant):
     reader = User.objects.create_user("reader", password="pw")
-    reader.user_permissions.add(*Permission.objects.filter(codename__in=["view_meter", "view_position"]))
+    reader.user_permissions.add(*Permission.objects.filter(codename__in=["view_device", "view_position"]))
     client = Client()
     client.force_login(reader)
     page = client.get("/positions/FT-115/").content.decode()

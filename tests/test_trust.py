@@ -13,7 +13,7 @@ from django.test import Client
 
 from calibration.models import CalibrationEvent, CalibrationPoint, Countersignature, ReferenceStandard, SignedRecordError
 from plant import installations
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site
 from plant.installations import commission
 from tests.helpers import user_with_role
 from tests.helpers import entry_data
@@ -26,7 +26,7 @@ def world(db):
     site = Site.objects.create(name="Trust site")
     area = Area.objects.create(site=site, name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
-    meter = commission(tag="FT-T1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    device = commission(tag="FT-T1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                                  internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
     standard = ReferenceStandard.objects.create(identification="RS-T", description="ref", range_max=40,
                                                 certificate_number="C-T", due_date=dt.date(2099, 1, 1),
@@ -40,12 +40,12 @@ def world(db):
     for name, user in users.items():
         clients[name] = Client()
         clients[name].force_login(user)
-    clients["technician"].post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
+    clients["technician"].post(f"/positions/{device.tag}/calibrate/", entry_data(standard))
     draft = CalibrationEvent.objects.get()
-    clients["technician"].post(f"/positions/{meter.tag}/calibrate/", entry_data(standard))
+    clients["technician"].post(f"/positions/{device.tag}/calibrate/", entry_data(standard))
     signed = CalibrationEvent.objects.exclude(pk=draft.pk).get()
     assert clients["technician"].post(f"/calibrations/{signed.pk}/sign/").status_code == 302
-    return {"meter": meter, "standard": standard, "users": users, "clients": clients, "draft": draft, "signed": signed}
+    return {"device": device, "standard": standard, "users": users, "clients": clients, "draft": draft, "signed": signed}
 
 
 ROLES = ["anonymous", "norole", "technician", "reviewer", "administrator"]
@@ -75,7 +75,7 @@ MATRIX = [
 
 @pytest.mark.parametrize("name,method,url,expected", MATRIX, ids=[m[0] for m in MATRIX])
 def test_permission_matrix(world, name, method, url, expected):
-    url = url.format(signed=world["signed"].pk, draft=world["draft"].pk, fluid=world["meter"].fluid_id)
+    url = url.format(signed=world["signed"].pk, draft=world["draft"].pk, fluid=world["device"].fluid_id)
     for role, status in zip(ROLES, expected):
         if status is None:
             continue
@@ -104,19 +104,19 @@ def test_csrf_enforced_on_every_form(world):
     strict = Client(enforce_csrf_checks=True)
     strict.force_login(world["users"]["administrator"])
     posts = [
-        f"/positions/{world['meter'].tag}/calibrate/",
+        f"/positions/{world['device'].tag}/calibrate/",
         f"/calibrations/{world['draft'].pk}/sign/",
         f"/calibrations/{world['signed'].pk}/countersign/",
         "/positions/import/",
         "/accounts/logout/",
-        f"/admin/plant/meter/{world['meter'].pk}/change/",
-        f"/positions/{world['meter'].tag}/edit/",
-        f"/fluids/{world['meter'].fluid_id}/edit/",
+        f"/admin/plant/device/{world['device'].pk}/change/",
+        f"/positions/{world['device'].tag}/edit/",
+        f"/fluids/{world['device'].fluid_id}/edit/",
     ]
     for url in posts:
         assert strict.post(url, {}).status_code == 403, url
     assert Client(enforce_csrf_checks=True).post("/accounts/login/", {"username": "x", "password": "y"}).status_code == 403
-    page = world["clients"]["technician"].get(f"/positions/{world['meter'].tag}/calibrate/").content.decode()
+    page = world["clients"]["technician"].get(f"/positions/{world['device'].tag}/calibrate/").content.decode()
     assert 'name="csrfmiddlewaretoken"' in page
 
 
@@ -132,7 +132,7 @@ def test_two_sessions_signing_at_once_exactly_one_wins(world):
     points = list(template.points.values("kind", "nominal_pct", "reference_value", "indicated_value"))
     for race in range(RACES):
         event = CalibrationEvent.objects.create(
-            meter=template.meter, performed_on=template.performed_on, technician=template.technician,
+            device=template.device, performed_on=template.performed_on, technician=template.technician,
             performed_by=template.performed_by, procedure=template.procedure, created_by=template.created_by,
             condition_received="In service")
         event.reference_standards.add(world["standard"])
@@ -169,29 +169,29 @@ def test_two_sessions_signing_at_once_exactly_one_wins(world):
 
 def test_audit_trail_records_who_and_what(world):
     client = world["clients"]["administrator"]
-    meter = world["meter"]
-    data = {f.name: getattr(meter, f.attname) for f in Meter._meta.concrete_fields if f.editable and f.name != "id"}
-    data.update(area=meter.area_id, fluid=meter.fluid_id, mpe_value=0.75)
-    response = client.post(f"/admin/plant/meter/{meter.pk}/change/",
+    device = world["device"]
+    data = {f.name: getattr(device, f.attname) for f in Device._meta.concrete_fields if f.editable and f.name != "id"}
+    data.update(area=device.area_id, fluid=device.fluid_id, mpe_value=0.75)
+    response = client.post(f"/admin/plant/device/{device.pk}/change/",
                            {**{k: ("" if v is None else v) for k, v in data.items()},
                             "duties-TOTAL_FORMS": 1, "duties-INITIAL_FORMS": 1,
-                            "duties-0-id": meter.duties.get().pk, "duties-0-meter": meter.pk,
-                            "duties-0-area": meter.area_id, "duties-0-fluid": meter.fluid_id,
-                            "duties-0-since": meter.duties.get().since})
+                            "duties-0-id": device.duties.get().pk, "duties-0-meter": device.pk,
+                            "duties-0-area": device.area_id, "duties-0-fluid": device.fluid_id,
+                            "duties-0-since": device.duties.get().since})
     assert response.status_code == 302, response.content.decode()[:3000]
-    latest = meter.history.first()
+    latest = device.history.first()
     assert latest.history_user == world["users"]["administrator"]
     change = latest.diff_against(latest.prev_record).changes
     assert [(c.field, c.old, c.new) for c in change] == [("mpe_value", 0.5, 0.75)]
-    page = client.get(f"/positions/{meter.tag}/").content.decode()
+    page = client.get(f"/positions/{device.tag}/").content.decode()
     assert "mpe_value: 0.5 → 0.75" in page and "Administrator Tester" in page
     signed = world["signed"]
     assert signed.history.filter(state="signed").exists()
 
 
 def snapshot():
-    models = [Site, Area, Fluid, Position, Meter, Installation, DutyPeriod, ReferenceStandard, CalibrationEvent,
-              CalibrationPoint, Countersignature, Meter.history.model, Position.history.model,
+    models = [Site, Area, Fluid, Position, Device, Installation, DutyPeriod, ReferenceStandard, CalibrationEvent,
+              CalibrationPoint, Countersignature, Device.history.model, Position.history.model,
               Installation.history.model, CalibrationEvent.history.model]
     return {m.__name__: serializers.serialize("json", m._base_manager.order_by("pk")) for m in models}
 
@@ -200,15 +200,15 @@ def snapshot():
 def test_backup_restored_into_empty_database_is_identical(world, tmp_path):
     world["clients"]["reviewer"].post(f"/calibrations/{world['signed'].pk}/countersign/")
     # a swap too: a closed installation, a device on the shelf, the new one installed
-    meter = world["signed"].meter
-    spare = Meter.objects.create(principle=meter.principle, range_min=0, range_max=meter.range_max,
-                                 flow_units=meter.flow_units, serial="SN-RT-1", mpe_value=1.0, status="spare")
-    installations.swap(meter.position, spare, meter.today(), "round trip", brand_new=True)
+    device = world["signed"].device
+    spare = Device.objects.create(principle=device.principle, range_min=0, range_max=device.range_max,
+                                 flow_units=device.flow_units, serial="SN-RT-1", mpe_value=1.0, status="spare")
+    installations.swap(device.position, spare, device.today(), "round trip", brand_new=True)
     before = snapshot()
     path = tmp_path / "backup.json"
     call_command("backup", str(path))
     call_command("flush", interactive=False, verbosity=0)
-    assert Meter.objects.count() == 0 and CalibrationEvent.objects.count() == 0
+    assert Device.objects.count() == 0 and CalibrationEvent.objects.count() == 0
     call_command("restore", str(path))
     after = snapshot()
     for name in before:

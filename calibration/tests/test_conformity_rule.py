@@ -59,12 +59,12 @@ def weak(db):
 
 
 @pytest.mark.django_db
-def test_risk_rule_end_to_end(client, meter, weak, monkeypatch, settings):
+def test_risk_rule_end_to_end(client, device, weak, monkeypatch, settings):
     settings.CALIBRATION = {**settings.CALIBRATION, "low_tur_policy": "require_risk"}
-    refused = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(weak, **{"ev-decision_rule": "guarded"}))
+    refused = client.post(f"/positions/{device.tag}/calibrate/", entry_data(weak, **{"ev-decision_rule": "guarded"}))
     assert refused.status_code == 400 and "requires risk-based acceptance" in refused.content.decode()
     assert not CalibrationEvent.objects.exists()   # nothing half-saved
-    event = enter(client, meter, weak, **{"ev-decision_rule": "risk"})
+    event = enter(client, device, weak, **{"ev-decision_rule": "risk"})
     target = settings.QUENBY_PFA_TARGET
     for p in event.points.filter(kind="as_found"):
         u = p.expanded_uncertainty / p.coverage_factor
@@ -102,12 +102,12 @@ def test_the_field_finding(rule):
 
     from calibration.uncertainty import coverage_factor
     from plant.installations import commission
-    from plant.models import Area, Fluid, Meter, Site
+    from plant.models import Area, Fluid, Device, Site
 
     site = Site.objects.create(name="Field site")
     area = Area.objects.create(site=site, name="Hall F")
     water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=500)
-    meter = commission(tag="FT-F1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    device = commission(tag="FT-F1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                        internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.2, mpe_basis="pct_reading",
                        wetted_material="316L", base_interval_days=365)
     ref = ReferenceStandard.objects.create(identification="RS-F", description="Master meter", range_min=0,
@@ -115,7 +115,7 @@ def test_the_field_finding(rule):
                                            expanded_uncertainty=0.1 * 2 / coverage_factor(math.inf),
                                            uncertainty_basis="pct_reading")
     day = dt.date(2026, 11, 20)
-    event = CalibrationEvent.objects.create(meter=meter, performed_on=day, technician="A. Tester",
+    event = CalibrationEvent.objects.create(device=device, performed_on=day, technician="A. Tester",
                                             procedure="Comparison against the master meter", decision_rule=rule)
     event.reference_standards.add(ref)
     from calibration.models import CalibrationPoint
@@ -128,10 +128,10 @@ def test_the_field_finding(rule):
     points = list(event.points.order_by("nominal_pct"))
     assert [p.error for p in points] == [pytest.approx(-0.11), pytest.approx(-0.125)]
     assert points[0].expanded_uncertainty == pytest.approx(0.1, rel=1e-9)
-    meter = Meter.objects.get(pk=meter.pk)
+    device = Device.objects.get(pk=device.pk)
     assert event.as_found_observed_in_tolerance is True
-    assert meter.next_due_date == day + dt.timedelta(days=365)   # the base interval: not shortened
-    assert meter.drift_status == "insufficient"
+    assert device.next_due_date == day + dt.timedelta(days=365)   # the base interval: not shortened
+    assert device.drift_status == "insufficient"
     risks = event.signed_content["conformity"]
     if rule == "guarded":
         assert [p.decision for p in points] == ["conditional pass", "conditional pass"]

@@ -86,20 +86,20 @@ def extended_digest(content):
 
 # The download ----------------------------------------------------------------------------------------------------
 @pytest.fixture
-def signed(client, meter, standard, monkeypatch):  # noqa: F811
-    event = enter(client, meter, standard, adjusted=True,
+def signed(client, device, standard, monkeypatch):  # noqa: F811
+    event = enter(client, device, standard, adjusted=True,
                   left=[(4, 4.0), (10, 10.01), (20, 20.0), (30, 30.01), (40, 40.0)])
     return sign(client, event, at(dt.date(2026, 11, 23)), monkeypatch)
 
 
-def test_download_of_a_signed_calibration_and_refusal_for_a_draft(client, signed, meter, standard):  # noqa: F811
+def test_download_of_a_signed_calibration_and_refusal_for_a_draft(client, signed, device, standard):  # noqa: F811
     response = client.get(f"/calibrations/{signed.pk}/certificate.xml")
     assert response.status_code == 200
     assert response["Content-Type"].startswith("application/xml")
     assert f'filename="{certificate.certificate_number(signed)}.xml"' in response["Content-Disposition"]
     assert_matches_content(response.content, signed.content_as_signed())
     assert read_back(response.content)["persons"]["quenby_signedBy"] == "B. Signatory"
-    draft = enter(client, meter, standard)
+    draft = enter(client, device, standard)
     refused = client.get(f"/calibrations/{draft.pk}/certificate.xml")
     assert refused.status_code == 404
     with pytest.raises(ValueError, match="signed calibrations only"):

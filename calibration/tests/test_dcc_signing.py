@@ -34,8 +34,8 @@ def throwaway(kind="rsa"):
 
 
 @pytest.fixture
-def signed(client, meter, standard, monkeypatch):  # noqa: F811
-    return sign(client, enter(client, meter, standard), at(dt.date(2026, 11, 23)), monkeypatch)
+def signed(client, device, standard, monkeypatch):  # noqa: F811
+    return sign(client, enter(client, device, standard), at(dt.date(2026, 11, 23)), monkeypatch)
 
 
 @pytest.mark.parametrize("kind", ["rsa", "ec"])

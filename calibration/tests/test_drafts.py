@@ -24,16 +24,16 @@ def logged_in(role, name=None):
 
 
 @pytest.fixture
-def author(meter, standard):  # noqa: F811
+def author(device, standard):  # noqa: F811
     return logged_in("technician", "tech-a")
 
 
 @pytest.fixture
-def draft(author, meter, standard):  # noqa: F811
+def draft(author, device, standard):  # noqa: F811
     client, _ = author
-    held = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, found=TYPO))
+    held = client.post(f"/positions/{device.tag}/calibrate/", entry_data(standard, found=TYPO))
     assert held.status_code == 400 and "Check this value" in held.content.decode()  # tests/test_plausibility.py
-    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, found=TYPO,
+    response = client.post(f"/positions/{device.tag}/calibrate/", entry_data(standard, found=TYPO,
                                                                         **{"ev-values_checked": "on"}))
     assert response.status_code == 302, response.content.decode()[:2000]
     event = CalibrationEvent.objects.get()

@@ -25,7 +25,7 @@ import pytest
 from calibration import decision
 from scheduling.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import ReferenceStandard
-from plant.models import Meter
+from plant.models import Device
 from reports.benchmark import naive_recompute
 from reports.certificate import certificate_html
 from tests.helpers import calibrate, guarded_standard as standard
@@ -43,8 +43,8 @@ def certificate_text(event):
     return re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", certificate_html(event)))
 
 
-def stored_due_fields(meter):
-    return Meter.objects.filter(pk=meter.pk).values(*UPDATED_FIELDS).get()
+def stored_due_fields(device):
+    return Device.objects.filter(pk=device.pk).values(*UPDATED_FIELDS).get()
 
 
 # (error %, U %, rule) -> (point decision, verdict text) — hand-worked against ILAC-G8:09/2019 §4.2.1/§4.2.2
@@ -71,10 +71,10 @@ CASES = [
 
 @pytest.mark.parametrize("sign", [1, -1], ids=["positive", "negative"])
 @pytest.mark.parametrize("error,U,rule,expected_decision,expected_verdict", CASES)
-def test_boundary_case_from_decision_to_due_date_and_certificate(meter, sign, error, U, rule, expected_decision,
+def test_boundary_case_from_decision_to_due_date_and_certificate(device, sign, error, U, rule, expected_decision,
                                                                   expected_verdict):
     error = sign * error if error else 0.0
-    event = calibrate(meter, standard(U), rule, [error])
+    event = calibrate(device, standard(U), rule, [error])
     point = event.points.get()
     # the point: error and U as hand-worked, then its decision
     assert point.error == error
@@ -88,19 +88,19 @@ def test_boundary_case_from_decision_to_due_date_and_certificate(meter, sign, er
     # module docstring)
     observed = abs(error) <= 1.0
     assert event.as_found_observed_in_tolerance is observed
-    meter.refresh_from_db()
-    assert meter.last_in_tolerance is conforming
-    assert meter.last_calibrated == DAY
+    device.refresh_from_db()
+    assert device.last_in_tolerance is conforming
+    assert device.last_calibrated == DAY
     # the drift fit too is judged against the MPE whatever the rule (issue 31); one calibration: no trend
-    assert meter.drift_status == ("insufficient" if observed else "out_of_tolerance")
-    assert meter.next_due_date == (IN_TOLERANCE_DUE if observed else NOT_CONFORMING_DUE)
-    assert meter.due_rationale["winner"] == "method" and meter.due_rationale["bounded"] == ""
+    assert device.drift_status == ("insufficient" if observed else "out_of_tolerance")
+    assert device.next_due_date == (IN_TOLERANCE_DUE if observed else NOT_CONFORMING_DUE)
+    assert device.due_rationale["winner"] == "method" and device.due_rationale["bounded"] == ""
     if conforming:
-        assert meter.predicted_crossing is None
+        assert device.predicted_crossing is None
     # the naive per-meter recompute (the benchmark's baseline) stores the same fields
-    bulk = stored_due_fields(meter)
-    naive_recompute(Meter.objects.filter(pk=meter.pk))
-    assert stored_due_fields(meter) == bulk
+    bulk = stored_due_fields(device)
+    naive_recompute(Device.objects.filter(pk=device.pk))
+    assert stored_due_fields(device) == bulk
     # the certificate states the verdict and, under the guarded rule, the guard band in ILAC-G8's terms
     text = certificate_text(event)
     assert f"As found {expected_verdict}" in text
@@ -121,23 +121,23 @@ def test_boundary_case_from_decision_to_due_date_and_certificate(meter, sign, er
     assert (u_above in text) == (rule == "guarded" and U > 1.0)
 
 
-def test_a_zero_error_with_u_above_mpe_is_not_conforming_but_not_out_of_tolerance(meter):
+def test_a_zero_error_with_u_above_mpe_is_not_conforming_but_not_out_of_tolerance(device):
     # U > MPE: the guarded rule cannot accept even a zero error (conditional pass, ILAC-G8:09/2019 §4.2.2), so the
     # stored verdict is not conforming and the meter is on the review's failed list; the observed error is within
     # the MPE, so the drift status (and the due date) do not treat it as found out of tolerance (issue 31).
-    event = calibrate(meter, standard(1.5), "guarded", [0.0])
+    event = calibrate(device, standard(1.5), "guarded", [0.0])
     assert event.points.get().decision == "conditional pass"
     assert event.as_found_observed_in_tolerance is True
-    meter.refresh_from_db()
-    assert meter.drift_status == "insufficient"
-    assert meter.next_due_date == IN_TOLERANCE_DUE
-    assert meter.last_in_tolerance is False
-    assert meter.due_rationale["drift_point_pct"] is None
-    assert Meter.objects.filter(pk=meter.pk, last_in_tolerance=False).exists()  # the review's failed list reads this
+    device.refresh_from_db()
+    assert device.drift_status == "insufficient"
+    assert device.next_due_date == IN_TOLERANCE_DUE
+    assert device.last_in_tolerance is False
+    assert device.due_rationale["drift_point_pct"] is None
+    assert Device.objects.filter(pk=device.pk, last_in_tolerance=False).exists()  # the review's failed list reads this
 
 
-def test_one_guard_band_point_among_passes_makes_the_event_not_conforming(meter):
-    event = calibrate(meter, standard(0.25), "guarded", [0.5, -0.875, 0.75])
+def test_one_guard_band_point_among_passes_makes_the_event_not_conforming(device):
+    event = calibrate(device, standard(0.25), "guarded", [0.5, -0.875, 0.75])
     assert [p.decision for p in event.points.order_by("nominal_pct")] == ["pass", "conditional pass", "pass"]
     assert event.as_found_in_tolerance is False
     text = certificate_text(event)
@@ -145,9 +145,9 @@ def test_one_guard_band_point_among_passes_makes_the_event_not_conforming(meter)
     assert "Guard band (as found at 51 %)" in text  # only the guard-band point is named
 
 
-def test_conditional_fail_is_out_of_tolerance_with_its_probability_wording(meter):
+def test_conditional_fail_is_out_of_tolerance_with_its_probability_wording(device):
     # |E| = 1.125 %: MPE < |E| < MPE + U -> conditional fail (ILAC-G8:09/2019), out of tolerance
-    event = calibrate(meter, standard(0.25), "guarded", [1.125])
+    event = calibrate(device, standard(0.25), "guarded", [1.125])
     assert event.points.get().decision == "conditional fail"
     text = certificate_text(event)
     assert "As found out of tolerance" in text
@@ -156,7 +156,7 @@ def test_conditional_fail_is_out_of_tolerance_with_its_probability_wording(meter
 
 @pytest.mark.parametrize("method", ["staircase", "reliability"])
 @pytest.mark.parametrize("rule", ["simple", "guarded"])
-def test_a_guard_band_result_counts_as_observed_in_tolerance_for_the_interval_methods(meter, settings, method, rule):
+def test_a_guard_band_result_counts_as_observed_in_tolerance_for_the_interval_methods(device, settings, method, rule):
     """Two calibrations a year apart: the first a plain pass (0.5 %), the second at |E| = MPE (1.0 %).
 
     Hand-worked method candidates from the second calibration (2027-11-20), default policy:
@@ -175,23 +175,23 @@ def test_a_guard_band_result_counts_as_observed_in_tolerance_for_the_interval_me
     ref = ReferenceStandard.objects.create(identification="RS-Y", description="Master meter", range_min=0,
                                            range_max=50, certificate_number="C-Y", due_date=dt.date(2027, 6, 1),
                                            expanded_uncertainty=0.25, uncertainty_basis="pct_reading")
-    calibrate(meter, ref, rule, [0.5], day=first)
-    last = calibrate(meter, ref, rule, [1.0])
-    meter.refresh_from_db()
+    calibrate(device, ref, rule, [0.5], day=first)
+    last = calibrate(device, ref, rule, [1.0])
+    device.refresh_from_db()
     method_days = 456
-    candidates = {c["name"]: c for c in meter.due_rationale["candidates"]}
+    candidates = {c["name"]: c for c in device.due_rationale["candidates"]}
     assert candidates["method"]["due"] == (DAY + dt.timedelta(days=method_days)).isoformat()
     if method == "reliability":
         assert "reliability target 95% not applied" in candidates["method"]["reason"]
-    assert meter.next_due_date == DAY + dt.timedelta(days=method_days) and meter.due_rationale["winner"] == "method"
+    assert device.next_due_date == DAY + dt.timedelta(days=method_days) and device.due_rationale["winner"] == "method"
     assert last.as_found_in_tolerance is (rule == "simple")   # the statement of conformity follows the rule
     assert last.as_found_observed_in_tolerance is True
-    assert meter.drift_status == "insufficient"
-    bulk = stored_due_fields(meter)
-    naive_recompute(Meter.objects.filter(pk=meter.pk))
-    assert stored_due_fields(meter) == bulk
+    assert device.drift_status == "insufficient"
+    bulk = stored_due_fields(device)
+    naive_recompute(Device.objects.filter(pk=device.pk))
+    assert stored_due_fields(device) == bulk
     recompute_due_dates()
-    assert stored_due_fields(meter) == bulk
+    assert stored_due_fields(device) == bulk
 
 
 def test_decide_is_not_moved_by_binary_noise_in_U():

@@ -52,22 +52,22 @@ def test_condition_bounds():
 
 # the tablet form ------------------------------------------------------------------------------------------------
 @pytest.mark.django_db
-def test_typo_is_held_then_saved_only_when_confirmed(client, meter, standard):  # noqa: F811
+def test_typo_is_held_then_saved_only_when_confirmed(client, device, standard):  # noqa: F811
     typo = [(4, 4.01), (10, 10.02), (20, 2005), (30, 29.97), (40, 40.04)]
-    held = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, found=typo))
+    held = client.post(f"/positions/{device.tag}/calibrate/", entry_data(standard, found=typo))
     assert held.status_code == 400
     body = held.content.decode()
     assert "Check this value: an indication of 2005 m³/h is off the meter&#x27;s scale" in body
     assert CalibrationEvent.objects.count() == 0  # nothing saved
-    confirmed = client.post(f"/positions/{meter.tag}/calibrate/",
+    confirmed = client.post(f"/positions/{device.tag}/calibrate/",
                             entry_data(standard, found=typo, **{"ev-values_checked": "on"}))
     assert confirmed.status_code == 302
     assert CalibrationEvent.objects.get().as_found_in_tolerance is False  # saved as typed, because confirmed
 
 
 @pytest.mark.django_db
-def test_right_values_are_not_held(client, meter, standard):  # noqa: F811
-    assert client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, found=RIGHT)).status_code == 302
+def test_right_values_are_not_held(client, device, standard):  # noqa: F811
+    assert client.post(f"/positions/{device.tag}/calibrate/", entry_data(standard, found=RIGHT)).status_code == 302
 
 
 @pytest.mark.django_db
@@ -76,17 +76,17 @@ def test_right_values_are_not_held(client, meter, standard):  # noqa: F811
     ("fluid_temp_c", "1200", "1200 °C cannot be right here"),
     ("fluid_temp_c", "-300", "Temperature is below absolute zero."),  # the model's own message
 ])
-def test_conditions_outside_bounds_are_refused(client, meter, standard, field, value, message):  # noqa: F811
-    response = client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard, **{f"ev-{field}": value}))
+def test_conditions_outside_bounds_are_refused(client, device, standard, field, value, message):  # noqa: F811
+    response = client.post(f"/positions/{device.tag}/calibrate/", entry_data(standard, **{f"ev-{field}": value}))
     assert response.status_code == 400 and message in response.content.decode()
     assert CalibrationEvent.objects.count() == 0
 
 
 @pytest.mark.django_db
-def test_tablet_rules_carry_the_hold_and_the_bounds(meter):  # noqa: F811
+def test_tablet_rules_carry_the_hold_and_the_bounds(device):  # noqa: F811
     from offline.rules import entry_rules
 
-    rules = entry_rules(meter)
+    rules = entry_rules(device)
     assert rules["hold"] == {"mpe_factor": 10.0, "range_factor": 1.5, "mpe_value": 0.5}
     low, high, message = rules["conditions"]["ev-ambient_temp_c"]
     assert (low, high) == (-60.0, 60.0)

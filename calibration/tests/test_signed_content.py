@@ -19,7 +19,7 @@ from django.test import Client
 from calibration import signed_content
 from scheduling import fleet
 from calibration.models import CalibrationEvent, CalibrationPoint, SignedRecordError
-from plant.models import Area, Fluid, Meter, Position, Site
+from plant.models import Area, Fluid, Device, Position, Site
 from reports import certificate
 from tests.helpers import user_with_role
 from tests.helpers import TODAY, at, enter, flat, pdf_text, sign
@@ -47,14 +47,14 @@ def text_of(body):
     return flat(html.unescape(re.sub(r"<[^>]+>", " ", body)))
 
 
-def edit_the_register(meter, standard, settings):
+def edit_the_register(device, standard, settings):
     """Everything the certificate names, changed after signing: device, position, area, site, fluid, standard, lab."""
-    device = Meter.objects.get(pk=meter.pk)
+    device = Device.objects.get(pk=device.pk)
     device.serial, device.maker, device.model = "SN-NEW-999", "Otherco", "OC-1"
     device.range_min, device.range_max, device.mpe_value, device.mpe_basis = 5, 80, 1.0, "pct_span"
     device.principle, device.wetted_material = "vortex", "alloy C-276"
     device.save()
-    position = Position.objects.get(pk=meter.position_id)
+    position = Position.objects.get(pk=device.position_id)
     old_fluid = position.fluid
     old_fluid.name = "Renamed water"
     old_fluid.save()
@@ -63,22 +63,22 @@ def edit_the_register(meter, standard, settings):
     position.area = Area.objects.create(site=other_site, name="New hall")
     position.fluid = Fluid.objects.create(name="Syrup", phase="liquid", conductivity_us_cm=300)
     position.save()
-    Area.objects.filter(pk=meter.area.pk).update(name="Renamed hall")
-    Site.objects.filter(pk=meter.area.site_id).update(name="Renamed Works", address="99 Changed Street")
+    Area.objects.filter(pk=device.area.pk).update(name="Renamed hall")
+    Site.objects.filter(pk=device.area.site_id).update(name="Renamed Works", address="99 Changed Street")
     standard.certificate_number, standard.expanded_uncertainty, standard.due_date = "NEW-1", 0.3, dt.date(2029, 1, 1)
     standard.save()
     settings.CALIBRATION_LAB = {"name": "Another Lab", "address": "Elsewhere"}
 
 
-def test_reprint_after_register_edits_is_the_same_certificate(client, meter, standard, signed_event, settings):
+def test_reprint_after_register_edits_is_the_same_certificate(client, device, standard, signed_event, settings):
     """HTML byte for byte and PDF text: the register edits after signing reach no issued certificate."""
     before_html = html_of(signed_event)
     before_pdf = pdf_of(client, signed_event)
     for shown in ("SN-778812", "Ternwell Flow / TW-300", "FT-101", "Marrowfield Works", "Pickling hall",
                   "Process water", "0 to 40 m³/h", "± 0.5 % of reading", "UKAS-0042-7781"):
         assert shown in before_pdf, shown
-    edit_the_register(meter, standard, settings)
-    assert Meter.objects.get(pk=meter.pk).serial == "SN-NEW-999"  # the register did change
+    edit_the_register(device, standard, settings)
+    assert Device.objects.get(pk=device.pk).serial == "SN-NEW-999"  # the register did change
     after_html = html_of(signed_event)
     # ISO/IEC 17025:2017 §7.8.8: an issued certificate is not changed; §7.8.2.1: what it states is that of the item
     # as calibrated (identity, range, specification, location, standards, results)
@@ -89,11 +89,11 @@ def test_reprint_after_register_edits_is_the_same_certificate(client, meter, sta
         assert new not in after_html, new
 
 
-def test_reprint_keeps_the_fluid_served_on_the_day(client, meter, standard, monkeypatch):
+def test_reprint_keeps_the_fluid_served_on_the_day(client, device, standard, monkeypatch):
     """The service fluid printed is the one of the duty on the day of calibration, frozen with the record."""
-    event = sign(client, enter(client, meter, standard), at(TODAY), monkeypatch)
+    event = sign(client, enter(client, device, standard), at(TODAY), monkeypatch)
     assert event.signed_content["service_fluid"] == "Process water"
-    position = Position.objects.get(pk=meter.position_id)
+    position = Position.objects.get(pk=device.position_id)
     position.fluid = Fluid.objects.create(name="Cane syrup", phase="liquid", conductivity_us_cm=300)
     position.save()
     assert "Cane syrup" not in html_of(event) and "Process water" in html_of(event)
@@ -164,7 +164,7 @@ def correct(client, original, reason=REASON, **changes):
     return client.post(f"/calibrations/{original.pk}/correct/", data)
 
 
-def test_correction_from_the_results_page(client, meter, standard, signed_event, monkeypatch):
+def test_correction_from_the_results_page(client, device, standard, signed_event, monkeypatch):
     page = client.get(f"/calibrations/{signed_event.pk}/").content.decode()
     assert f'href="/calibrations/{signed_event.pk}/correct/"' in page and "Correct this calibration" in page
     filled = client.get(f"/calibrations/{signed_event.pk}/correct/").content.decode()
@@ -182,7 +182,7 @@ def test_correction_from_the_results_page(client, meter, standard, signed_event,
     response = correct(client, signed_event, **{f"af-{index}-indicated_value": "20.02"})
     assert response.status_code == 302, response.content.decode()[:3000]
     draft = CalibrationEvent.objects.get(supersedes=signed_event)
-    assert draft.correction_reason == REASON and draft.meter_id == signed_event.meter_id
+    assert draft.correction_reason == REASON and draft.device_id == signed_event.device_id
     assert draft.position_id == signed_event.position_id and draft.performed_on == signed_event.performed_on
     assert draft.technician == signed_event.technician  # the same calibration, restated
     assert draft.points.get(kind="as_found", reference_value=20).indicated_value == 20.02
@@ -228,8 +228,8 @@ def test_reviewer_is_told_how_a_correction_is_made(signed_event):
     assert reviewer.get(f"/calibrations/{signed_event.pk}/correct/").status_code == 403
 
 
-def test_a_draft_cannot_be_corrected(client, meter, standard):
-    draft = enter(client, meter, standard)
+def test_a_draft_cannot_be_corrected(client, device, standard):
+    draft = enter(client, device, standard)
     response = client.get(f"/calibrations/{draft.pk}/correct/")
     assert response.status_code == 400 and "only a signed calibration can be corrected" in response.content.decode()
     assert not CalibrationEvent.objects.filter(supersedes=draft).exists()
@@ -247,12 +247,12 @@ def _forget_content(event):
                        ["{}", event.pk])
 
 
-def test_a_record_without_content_prints_the_audit_trail_as_of_its_signing(client, meter, standard, signed_event,
+def test_a_record_without_content_prints_the_audit_trail_as_of_its_signing(client, device, standard, signed_event,
                                                                              settings):
     frozen = CalibrationEvent.objects.get(pk=signed_event.pk).signed_content
-    position = Position.objects.get(pk=meter.position_id)
-    _backdate_trail(Meter.objects.get(pk=meter.pk), position, position.fluid, standard)
-    edit_the_register(meter, standard, settings)
+    position = Position.objects.get(pk=device.position_id)
+    _backdate_trail(Device.objects.get(pk=device.pk), position, position.fluid, standard)
+    edit_the_register(device, standard, settings)
     _forget_content(signed_event)
     event = CalibrationEvent.objects.get(pk=signed_event.pk)
     rebuilt = event.content_as_signed()
@@ -291,15 +291,15 @@ AFTER = [("calibration", "0010_freeze_signed_content")]
 
 
 @pytest.mark.django_db(transaction=True)
-def test_migration_fills_records_signed_before_from_the_audit_trail(client, meter, standard, monkeypatch, settings):
-    first = sign(client, enter(client, meter, standard, performed_on=dt.date(2025, 11, 20)),
+def test_migration_fills_records_signed_before_from_the_audit_trail(client, device, standard, monkeypatch, settings):
+    first = sign(client, enter(client, device, standard, performed_on=dt.date(2025, 11, 20)),
                  at(dt.date(2025, 11, 21)), monkeypatch)
-    second = sign(client, enter(client, meter, standard), at(dt.date(2026, 11, 23)), monkeypatch)
+    second = sign(client, enter(client, device, standard), at(dt.date(2026, 11, 23)), monkeypatch)
     frozen = {e.pk: CalibrationEvent.objects.get(pk=e.pk).signed_content for e in (first, second)}
-    position = Position.objects.get(pk=meter.position_id)
-    _backdate_trail(Meter.objects.get(pk=meter.pk), position, position.fluid, standard, day=dt.date(2025, 1, 1))
-    draft = enter(client, meter, standard, performed_on=dt.date(2026, 11, 30), found=[(10, 10.01)])
-    edit_the_register(meter, standard, settings)
+    position = Position.objects.get(pk=device.position_id)
+    _backdate_trail(Device.objects.get(pk=device.pk), position, position.fluid, standard, day=dt.date(2025, 1, 1))
+    draft = enter(client, device, standard, performed_on=dt.date(2026, 11, 30), found=[(10, 10.01)])
+    edit_the_register(device, standard, settings)
     for event in (first, second):
         _forget_content(event)
     try:
@@ -336,11 +336,11 @@ def test_demo_records_carry_the_content_frozen_at_their_sign_off(demo_history):
     assert all(e.signed_content["certificate"]["number"] == signed_content.certificate_number(e) for e in events)
 
 
-def test_fill_missing_stores_what_a_reprint_would_have_rebuilt(client, meter, standard, monkeypatch):
+def test_fill_missing_stores_what_a_reprint_would_have_rebuilt(client, device, standard, monkeypatch):
     """The migration's filler, in batches smaller than the records: each gets the content its reprint rebuilt."""
     from django.apps import apps
 
-    events = [sign(client, enter(client, meter, standard, performed_on=day), at(day), monkeypatch)
+    events = [sign(client, enter(client, device, standard, performed_on=day), at(day), monkeypatch)
               for day in (dt.date(2026, 11, 2), dt.date(2026, 11, 9), dt.date(2026, 11, 16))]
     for event in events[:2]:
         _forget_content(event)

@@ -85,9 +85,9 @@ def test_shared_example_is_read_shown_and_confirmed(reviewer, bench_standard):
     assert bench_standard.certificate_number == "GP_DCC_temperature_typical_1.2"
 
 
-def test_our_own_export_is_read_with_its_flow_results(client, meter, standard, reviewer, bench_standard,  # noqa: F811
+def test_our_own_export_is_read_with_its_flow_results(client, device, standard, reviewer, bench_standard,  # noqa: F811
                                                       monkeypatch):
-    event = sign(client, enter(client, meter, standard), at(dt.date(2026, 11, 23)), monkeypatch)
+    event = sign(client, enter(client, device, standard), at(dt.date(2026, 11, 23)), monkeypatch)
     xml = certificate.certificate_xml(event)
     content = event.content_as_signed()
     response = upload(reviewer, bench_standard, xml, "ours.xml")

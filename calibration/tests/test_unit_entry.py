@@ -23,7 +23,7 @@ from calibration.forms import CalibrationEntry, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard, SignedRecordError
 from offline.rules import entry_rules
 from plant import importer
-from plant.models import Area, Fluid, Meter, Position, Site
+from plant.models import Area, Fluid, Device, Position, Site
 from plant.installations import commission
 from reports.certificate import certificate_html
 from tests.helpers import user_with_role
@@ -87,8 +87,8 @@ def tech():
 
 def test_a_kg_h_reading_on_an_m3_h_meter_is_converted_with_the_density(tech, plant, weigh_tank):
     # 19964 kg/h / 998.2 kg/m³ = 20 m³/h exactly (hand-worked); indication 20.05 -> error 100 × 0.05/20 = 0.25 %
-    meter = plant["volume"]
-    response = tech.post(f"/positions/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)], density=WATER_20C))
+    device = plant["volume"]
+    response = tech.post(f"/positions/{device.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)], density=WATER_20C))
     assert response.status_code == 302, html.unescape(response.content.decode())[-3000:]
     event = CalibrationEvent.objects.get()
     assert (event.reference_units, event.meter_units, event.density_kg_m3) == ("kg/h", "m3/h", WATER_20C)
@@ -106,8 +106,8 @@ def test_an_absolute_standard_uncertainty_is_converted_too(tech, plant):
     # U = 10 kg/h (k = 2) -> 10 / 998.2 = 0.0100180 m³/h; u = 0.0050090 m³/h at 20 m³/h = 0.0250451 % of reading;
     # U = 1.95996 × 0.0250451 = 0.049087 % (hand-worked)
     rig = standard("RS-ABS", "kg/h", 50000, basis="absolute", U=10)
-    meter = plant["volume"]
-    assert tech.post(f"/positions/{meter.tag}/calibrate/",
+    device = plant["volume"]
+    assert tech.post(f"/positions/{device.tag}/calibrate/",
                      post([rig], [(19964, 20.05)], density=WATER_20C)).status_code == 302
     assert CalibrationPoint.objects.get().expanded_uncertainty == pytest.approx(0.049087, abs=2e-6)
 
@@ -115,8 +115,8 @@ def test_an_absolute_standard_uncertainty_is_converted_too(tech, plant):
 def test_a_fixed_factor_needs_no_density(tech, plant):
     # 5.5 L/s × 3.6 = 19.8 m³/h (1 L = 1e-3 m³); indication 19.8 -> error 0
     prover = standard("RS-LS", "L/s", 12)
-    meter = plant["volume"]
-    assert tech.post(f"/positions/{meter.tag}/calibrate/", post([prover], [(5.5, 19.8)])).status_code == 302
+    device = plant["volume"]
+    assert tech.post(f"/positions/{device.tag}/calibrate/", post([prover], [(5.5, 19.8)])).status_code == 302
     event = CalibrationEvent.objects.get()
     point = event.points.get()
     assert point.reference_value == pytest.approx(19.8, rel=1e-12) and point.error == pytest.approx(0, abs=1e-9)
@@ -124,10 +124,10 @@ def test_a_fixed_factor_needs_no_density(tech, plant):
 
 
 def test_missing_density_is_refused_at_the_density_field_and_nothing_is_saved(tech, plant, weigh_tank):
-    meter = plant["volume"]
-    response = tech.post(f"/positions/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)]))
+    device = plant["volume"]
+    response = tech.post(f"/positions/{device.tag}/calibrate/", post([weigh_tank], [(19964, 20.05)]))
     assert response.status_code == 400 and counts() == (0, 0)
-    entry = CalibrationEntry(meter, post([weigh_tank], [(19964, 20.05)]))
+    entry = CalibrationEntry(device, post([weigh_tank], [(19964, 20.05)]))
     assert not entry.is_valid()
     assert list(entry.event_form.errors) == ["density_kg_m3"]
     message = entry.event_form.errors["density_kg_m3"][0]
@@ -148,18 +148,18 @@ def test_a_pair_the_form_cannot_convert_is_refused_at_the_standards_field(tech, 
     # Nm³/h against kg/h needs the gas density at the normal conditions; Nm³/h against actual m³/h needs the line's
     # absolute pressure and temperature (plant.units.conversion_needs): the form takes neither
     normal = standard("RS-N", "Nm3/h", 1000)
-    for meter, needs in ((plant["mass"], "the gas density at reference conditions"),
+    for device, needs in ((plant["mass"], "the gas density at reference conditions"),
                          (plant["gas_volume"], "the line's absolute pressure and temperature")):
-        response = tech.post(f"/positions/{meter.tag}/calibrate/", post([normal], [(100, 100)], density=0.8))
+        response = tech.post(f"/positions/{device.tag}/calibrate/", post([normal], [(100, 100)], density=0.8))
         assert response.status_code == 400 and counts() == (0, 0)
-        entry = CalibrationEntry(meter, post([normal], [(100, 100)], density=0.8))
+        entry = CalibrationEntry(device, post([normal], [(100, 100)], density=0.8))
         assert not entry.is_valid()
         message = entry.event_form.errors["reference_standards"][0]
         assert message.startswith(f"Reference standard RS-N reads in Nm³/h (0 °C, 101.325 kPa) and this meter in "
-                                  f"{'kg/h' if meter.flow_units == 'kg/h' else 'm³/h'}: converting between them "
+                                  f"{'kg/h' if device.flow_units == 'kg/h' else 'm³/h'}: converting between them "
                                   f"needs {needs}")
         # not offered on the page either
-        page = tech.get(f"/positions/{meter.tag}/calibrate/").content.decode()
+        page = tech.get(f"/positions/{device.tag}/calibrate/").content.decode()
         assert f'name="ev-reference_standards" value="{normal.pk}"' not in page
 
 
@@ -171,13 +171,13 @@ def test_standards_of_different_units_ticked_together_are_refused(tech, plant, w
 
 
 def test_the_meter_range_is_checked_after_conversion_and_the_standard_range_in_its_own_unit(tech, plant):
-    meter = plant["volume"]
+    device = plant["volume"]
     small = standard("RS-SMALL", "kg/h", 10000)  # offered (its readings convert with the density) whatever its range
-    entry = CalibrationEntry(meter, post([small], [(49910, 50)], density=WATER_20C))  # 50 m³/h > 40
+    entry = CalibrationEntry(device, post([small], [(49910, 50)], density=WATER_20C))  # 50 m³/h > 40
     assert not entry.is_valid()
     assert entry.as_found.forms[0].errors["reference_value"] == [
         "49910 kg/h (50 m³/h) is outside the meter's calibrated range 0–40 m³/h."]
-    entry = CalibrationEntry(meter, post([small], [(19964, 20.05)], density=WATER_20C))
+    entry = CalibrationEntry(device, post([small], [(19964, 20.05)], density=WATER_20C))
     assert not entry.is_valid()
     assert entry.as_found.forms[0].errors["reference_value"] == [
         "Reference standard RS-SMALL is calibrated over 0–10000 kg/h and usable from 1000 kg/h (common practice: "
@@ -186,34 +186,34 @@ def test_the_meter_range_is_checked_after_conversion_and_the_standard_range_in_i
 
 
 def test_offered_standards_compare_ranges_after_a_fixed_factor_and_keep_the_page_queries_bounded(tech, plant):
-    meter = plant["volume"]  # 0–40 m³/h = 0–11.111 L/s
+    device = plant["volume"]  # 0–40 m³/h = 0–11.111 L/s
     wide = standard("RS-WIDE", "L/s", 11.2)
     narrow = standard("RS-NARROW", "L/s", 11)  # 39.6 m³/h: does not cover the meter
     exact = standard("RS-EXACT", "L/s", 40 / 3.6)  # exactly the meter's range high, after conversion
     rig = standard("RS-RIG", "kg/h", 100)  # needs the density: offered whatever its range
     gas = standard("RS-N", "Nm3/h", 1000)  # not convertible here: accepted (to say why) but not offered
-    offered = set(ReferenceStandard.offered_for(meter).values_list("identification", flat=True))
+    offered = set(ReferenceStandard.offered_for(device).values_list("identification", flat=True))
     assert offered == {"RS-WIDE", "RS-EXACT", "RS-RIG"}
-    accepted = set(ReferenceStandard.offered_for(meter, convertible_only=False).values_list("identification",
+    accepted = set(ReferenceStandard.offered_for(device, convertible_only=False).values_list("identification",
                                                                                             flat=True))
     assert accepted == {"RS-WIDE", "RS-EXACT", "RS-RIG", "RS-N"}
-    page = tech.get(f"/positions/{meter.tag}/calibrate/").content.decode()
+    page = tech.get(f"/positions/{device.tag}/calibrate/").content.decode()
     for s in (wide, exact, rig):
         assert f'name="ev-reference_standards" value="{s.pk}"' in page
     for s in (narrow, gas):
         assert f'name="ev-reference_standards" value="{s.pk}"' not in page
     with CaptureQueriesContext(connection) as few:
-        tech.get(f"/positions/{meter.tag}/calibrate/")
+        tech.get(f"/positions/{device.tag}/calibrate/")
     for i, units in enumerate(["m3/h", "L/min", "USgpm", "kg/s", "t/h", "lb/h", "Sm3/h"] * 3):
         standard(f"RS-X{i}", units, 1e6)
     with CaptureQueriesContext(connection) as many:
-        tech.get(f"/positions/{meter.tag}/calibrate/")
+        tech.get(f"/positions/{device.tag}/calibrate/")
     assert len(many) == len(few)
 
 
 def _signed(tech, plant, weigh_tank):
-    meter = plant["volume"]
-    tech.post(f"/positions/{meter.tag}/calibrate/", post([weigh_tank], [(19964, 20.05), (29946, 30.0)],
+    device = plant["volume"]
+    tech.post(f"/positions/{device.tag}/calibrate/", post([weigh_tank], [(19964, 20.05), (29946, 30.0)],
                                                      density=WATER_20C))
     event = CalibrationEvent.objects.get()
     assert tech.post(f"/calibrations/{event.pk}/sign/").status_code == 302
@@ -273,11 +273,11 @@ def test_a_signed_record_keeps_its_density_and_entered_values(tech, plant, weigh
 
 
 def test_an_entry_sent_from_the_tablet_queue_is_checked_the_same_way(tech, plant, weigh_tank):
-    meter = plant["volume"]
+    device = plant["volume"]
 
     def send(client_id, data):
         pairs = [[k, str(x)] for k, v in data.items() for x in (v if isinstance(v, list) else [v])]
-        body = json.dumps({"kind": "calibration", "id": str(client_id), "target": meter.tag, "data": pairs})
+        body = json.dumps({"kind": "calibration", "id": str(client_id), "target": device.tag, "data": pairs})
         return tech.post("/field/send/", body, content_type="application/json")
 
     cid = uuid.uuid4()
@@ -291,12 +291,12 @@ def test_an_entry_sent_from_the_tablet_queue_is_checked_the_same_way(tech, plant
 
 
 def test_the_tablet_knows_each_standards_units_and_the_density_message(plant, weigh_tank):
-    meter = plant["volume"]
+    device = plant["volume"]
     prover = standard("RS-LS", "L/s", 12)
-    rules = entry_rules(meter)
+    rules = entry_rules(device)
     assert rules["meter_units"] == "m3/h"
     assert rules["standard_units"] == {str(weigh_tank.pk): "kg/h", str(prover.pk): "L/s"}
-    entry = CalibrationEntry(meter, post([weigh_tank], [(19964, 20.05)]))
+    entry = CalibrationEntry(device, post([weigh_tank], [(19964, 20.05)]))
     entry.is_valid()
     assert rules["messages"]["density_required"] == {str(weigh_tank.pk): entry.event_form.errors["density_kg_m3"][0]}
 
@@ -304,10 +304,10 @@ def test_the_tablet_knows_each_standards_units_and_the_density_message(plant, we
 def test_unit_codes_on_the_models_and_the_importer(plant):
     from django.core.exceptions import ValidationError
 
-    meter = plant["volume"]
-    meter.flow_units = "m³/h"  # a spelling, not a code
+    device = plant["volume"]
+    device.flow_units = "m³/h"  # a spelling, not a code
     with pytest.raises(ValidationError) as refused:
-        meter.save()
+        device.save()
     assert refused.value.message_dict["flow_units"][0].startswith('"m³/h" is not one of the flow units in use')
     with pytest.raises(ValidationError):
         standard("RS-BAD", "per meter's units", 10)
@@ -329,7 +329,7 @@ def test_unit_codes_on_the_models_and_the_importer(plant):
     content = "\n".join([header, row("FT-A", "gpm"), row("FT-B", "Nm³/h"), row("FT-C", "kg/h")]) + "\n"
     applied = importer.apply_import(importer.plan_import("meters", importer.read_table(content.encode(), "m.csv")))
     assert applied.applied
-    assert dict(Meter.objects.filter(position__tag__in=["FT-A", "FT-B", "FT-C"])
+    assert dict(Device.objects.filter(position__tag__in=["FT-A", "FT-B", "FT-C"])
                 .values_list("position__tag", "flow_units")) == {"FT-A": "USgpm", "FT-B": "Nm3/h", "FT-C": "kg/h"}
     # the position's flows are stated in the same unit as the row's device
     assert dict(Position.objects.filter(tag__in=["FT-A", "FT-B", "FT-C"]).values_list("tag", "flow_units")) == {

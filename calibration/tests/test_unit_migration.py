@@ -46,9 +46,9 @@ def _meters(old, spellings):
     site = old.get_model("plant", "Site").objects.create(name="S")
     area = old.get_model("plant", "Area").objects.create(site=site, name="A")
     fluid = old.get_model("plant", "Fluid").objects.create(name="Water", phase="liquid")
-    Meter = old.get_model("plant", "Meter")
+    Device = old.get_model("plant", "Meter")
     for tag, text in spellings.items():
-        Meter.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+        Device.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=50, range_max=10, mpe_value=0.5, flow_units=text)
 
 
@@ -67,8 +67,8 @@ def test_legacy_spellings_become_codes():
     _standards(old, {"RS-1": "m³/h", "RS-2": "kg/h", "RS-3": "L/min"})
     try:
         new = _migrate(AFTER)
-        meters = dict(new.get_model("plant", "Meter").objects.values_list("tag", "flow_units"))
-        assert meters == {"M-1": "m3/h", "M-2": "L/s", "M-3": "kg/h", "M-4": "Nm3/h", "M-5": "USgpm",
+        devices = dict(new.get_model("plant", "Meter").objects.values_list("tag", "flow_units"))
+        assert devices == {"M-1": "m3/h", "M-2": "L/s", "M-3": "kg/h", "M-4": "Nm3/h", "M-5": "USgpm",
                           "M-6": "lb/h", "M-7": "t/h"}
         standards = dict(new.get_model("calibration", "ReferenceStandard").objects.values_list("identification",
                                                                                              "units"))

@@ -184,7 +184,7 @@ def test_migration_seals_earlier_records_in_signing_order_and_says_so(settings, 
     settings.MEDIA_ROOT = tmp_path / "media"
     world = build_world()
     # a record signed later but dated earlier: the migration seals by signing time, then id
-    early = draft_calibration(world["meter"], world["standard"], world["tech"]).sign(
+    early = draft_calibration(world["device"], world["standard"], world["tech"]).sign(
         by="Tess Tester", at=timezone.now() - dt.timedelta(days=30))
     executor = MigrationExecutor(connection)
     executor.migrate([("ledger", "0001_record_chain")])
@@ -285,7 +285,7 @@ def test_two_calibrations_signed_at_once_chain_as_one(settings, tmp_path):
     world = build_world()
     expected = [(e.kind, e.record_id) for e in LedgerEntry.objects.all()]
     for _ in range(ROUNDS):
-        drafts = [draft_calibration(world["meter"], world["standard"], world["tech"]) for _ in range(2)]
+        drafts = [draft_calibration(world["device"], world["standard"], world["tech"]) for _ in range(2)]
         # loaded first, as the sign-off view loads a draft before signing it
         failures = sign_at_once([lambda d=CalibrationEvent.objects.get(pk=d.pk): d.sign(by="Tess Tester")
                                  for d in drafts])
@@ -303,10 +303,10 @@ def test_calibration_maintenance_and_countersignature_at_once_chain_as_one(setti
     world = build_world()
     expected = [(e.kind, e.record_id) for e in LedgerEntry.objects.all()]
     for _ in range(ROUNDS):
-        event = draft_calibration(world["meter"], world["standard"], world["tech"]).sign(by="Tess Tester")
+        event = draft_calibration(world["device"], world["standard"], world["tech"]).sign(by="Tess Tester")
         expected.append(("calibration", event.pk))
-        calibration = draft_calibration(world["meter"], world["standard"], world["tech"])
-        record = draft_maintenance(world["meter"], world["tech"], photos=[png((1, 2, 3))])
+        calibration = draft_calibration(world["device"], world["standard"], world["tech"])
+        record = draft_maintenance(world["device"], world["tech"], photos=[png((1, 2, 3))])
         failures = sign_at_once([
             lambda: calibration.sign(by="Tess Tester"),
             lambda: record.sign(by="T"),
@@ -323,7 +323,7 @@ def test_the_admin_cannot_sign_past_sign_off(world):
     admin = Client()
     admin.force_login(user_with_role("administrator", "admin-l"))
     for url in (f"/admin/calibration/calibrationevent/{world['draft'].pk}/change/",
-                f"/admin/maintenance/maintenancerecord/{draft_maintenance(world['meter'], world['tech']).pk}/change/"):
+                f"/admin/maintenance/maintenancerecord/{draft_maintenance(world['device'], world['tech']).pk}/change/"):
         page = admin.get(url)
         assert page.status_code == 200
         body = page.content.decode()

@@ -10,7 +10,7 @@ from ledger.signals import record_signed
 from ledger.signed import SignedRecord, SignedRecordError
 from maintenance.models import MaintenanceRecord, MaintenanceTask
 from plant.installations import commission
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.signals import devices_changed
 
 pytestmark = pytest.mark.django_db
@@ -21,11 +21,11 @@ def record(tmp_path, settings):
     settings.MEDIA_ROOT = tmp_path / "media"
     area = Area.objects.create(site=Site.objects.create(name="Base site"), name="Utilities")
     cooling = Fluid.objects.create(name="Cooling water", phase="liquid", conductivity_us_cm=1800, biofouling=True)
-    meter = commission(tag="FT-B1", principle="averaging_pitot", area=area, fluid=cooling, line_size="DN200",
+    device = commission(tag="FT-B1", principle="averaging_pitot", area=area, fluid=cooling, line_size="DN200",
                        internal_diameter_mm=202.7, range_max=400, mpe_value=2.0, mpe_basis="pct_span",
                        wetted_material="316")
-    task = MaintenanceTask.objects.get(meter=meter, code="PITOT_PULL_CLEAN")
-    return MaintenanceRecord.objects.create(meter=meter, task=task, performed_on=timezone.localdate(),
+    task = MaintenanceTask.objects.get(device=device, code="PITOT_PULL_CLEAN")
+    return MaintenanceRecord.objects.create(device=device, task=task, performed_on=timezone.localdate(),
                                             technician="T", condition="blocked", action="rodded", minutes_spent=30)
 
 
@@ -81,8 +81,8 @@ def test_a_second_signer_is_told_who_signed(record):
 
 
 def test_devices_changed_recomputes_the_devices_named(record):
-    meter = record.meter
-    Meter.objects.filter(pk=meter.pk).update(due_rationale={}, next_due_date=None)
-    devices_changed.send(sender=Meter, devices=Meter.objects.filter(pk=meter.pk))
-    meter.refresh_from_db()
-    assert meter.due_rationale["note"] == "No signed calibration yet: due now."
+    device = record.device
+    Device.objects.filter(pk=device.pk).update(due_rationale={}, next_due_date=None)
+    devices_changed.send(sender=Device, devices=Device.objects.filter(pk=device.pk))
+    device.refresh_from_db()
+    assert device.due_rationale["note"] == "No signed calibration yet: due now."

@@ -6,7 +6,7 @@ import pytest
 from django.core.management import call_command
 
 from maintenance.models import MaintenanceRecord, MaintenanceTask
-from plant.models import Meter
+from plant.models import Device
 
 pytestmark = pytest.mark.django_db
 
@@ -17,13 +17,13 @@ def demo(demo_maintenance):
 
 
 def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, client):
-    task = MaintenanceTask.objects.get(meter__position__tag="FT-601", code="PITOT_PULL_CLEAN")
+    task = MaintenanceTask.objects.get(device__position__tag="FT-601", code="PITOT_PULL_CLEAN")
     # the duty says 90 d × 0.5 = 45 d; what was found brought it down (to the lower bound, 45/4 -> 11 d)
     assert task.start_days == 45 and task.frequency_days == 11
     assert MaintenanceRecord.objects.filter(task=task, condition="blocked").exists()
     assert MaintenanceRecord.objects.filter(task=task, condition__in=["blocked", "heavy_deposit"]).count() >= 3
-    meter = Meter.objects.get(position__tag="FT-601")
-    assert "MAINT_FOULED" in [f.code for f in meter.findings()]
+    device = Device.objects.get(position__tag="FT-601")
+    assert "MAINT_FOULED" in [f.code for f in device.findings()]
     body = client.get("/positions/FT-601/").content.decode()
     # pages show the finding in plain words (the code stays in exports)
     assert "Found fouled at inspection after inspection" in body and "3 of the last 4 inspections" in body
@@ -31,7 +31,7 @@ def test_pitot_in_cooling_water_shortened_fouled_and_failure_beside_it(demo, cli
 
 
 def test_syrup_magmeter_found_clean_for_years_lengthened(demo, client):
-    task = MaintenanceTask.objects.get(meter__position__tag="FT-303", code="ELECTRODE_CLEAN")
+    task = MaintenanceTask.objects.get(device__position__tag="FT-303", code="ELECTRODE_CLEAN")
     conditions = list(MaintenanceRecord.objects.filter(task=task).values_list("condition", flat=True))
     assert len(conditions) >= 5 and set(conditions) == {"clean"}
     # 135 d (180 × 0.75, sticky fluid) × 1.5 after each three cleans: 135 -> 203 -> 305 (202.5 and 304.5 half up)
@@ -57,7 +57,7 @@ def test_fixture_is_what_the_seeded_command_builds(demo_history, tmp_path):
     committed = json.loads(open("fixtures/demo_maintenance.json").read())
     def canonical(rows):
         """Rows without their keys (a database's sequences may not restart): a record names its task by code."""
-        tasks = {r["pk"]: (r["fields"]["meter"], r["fields"]["code"]) for r in rows
+        tasks = {r["pk"]: (r["fields"]["device"], r["fields"]["code"]) for r in rows
                  if r["model"] == "maintenance.maintenancetask"}
         out = []
         for r in rows:
@@ -76,10 +76,10 @@ def test_signed_demo_record_refuses_a_model_form_edit(demo_maintenance):
     from calibration.models import SignedRecordError
     from maintenance.forms import RecordForm
 
-    record = MaintenanceRecord.objects.filter(meter__position__tag="FT-601", condition="blocked").first()
+    record = MaintenanceRecord.objects.filter(device__position__tag="FT-601", condition="blocked").first()
     form = RecordForm(data={"performed_on": record.performed_on.isoformat(), "task": record.task_id,
                             "condition": "clean", "action": "changed", "minutes_spent": "5"},
-                      instance=record, meter=record.meter)
+                      instance=record, device=record.device)
     assert form.is_valid(), form.errors
     with pytest.raises(SignedRecordError):
         form.save()

@@ -12,7 +12,7 @@ from PIL import Image
 
 from calibration.models import SignedRecordError
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
-from plant.models import Fluid, Meter
+from plant.models import Fluid, Device
 from plant.installations import commission
 from tests.helpers import post_data, task_of, user_with_role
 
@@ -25,8 +25,8 @@ def png_bytes(size=(8, 8), kind="PNG"):
     return buffer.getvalue()
 
 
-def signed_record(meter, code, condition, day, tech):
-    record = MaintenanceRecord.objects.create(meter=meter, task=task_of(meter, code), performed_on=day,
+def signed_record(device, code, condition, day, tech):
+    record = MaintenanceRecord.objects.create(device=device, task=task_of(device, code), performed_on=day,
                                               technician="T", condition=condition, action="done", minutes_spent=30,
                                               created_by=tech)
     return record.sign(by="T")
@@ -34,7 +34,7 @@ def signed_record(meter, code, condition, day, tech):
 
 # Tasks follow the duty ----------------------------------------------------------------------------------
 def test_tasks_derived_when_the_meter_is_registered(plant):
-    tasks = {t.code: t for t in plant["meter"].maintenance_tasks.all()}
+    tasks = {t.code: t for t in plant["device"].maintenance_tasks.all()}
     assert set(tasks) == {"VISUAL_INSPECTION", "DP_ZERO_CHECK", "PITOT_PULL_CLEAN"}
     # common practice: 90 d × high (0.5) = 45 d, due now (never done)
     assert tasks["PITOT_PULL_CLEAN"].start_days == 45
@@ -43,25 +43,25 @@ def test_tasks_derived_when_the_meter_is_registered(plant):
 
 
 def test_duty_change_retires_with_reason_and_a_fluid_change_updates_frequency(plant):
-    meter = plant["meter"]
+    device = plant["device"]
     clean = Fluid.objects.create(name="Clean water", phase="liquid", conductivity_us_cm=400)
-    position = meter.position  # the duty is the position's; the device installed there follows it
+    position = device.position  # the duty is the position's; the device installed there follows it
     position.fluid = clean
     position.save()
-    task = task_of(meter, "PITOT_PULL_CLEAN")
+    task = task_of(device, "PITOT_PULL_CLEAN")
     assert not task.active and task.change_reason.startswith("No longer called for")
     position.fluid = plant["fluid"]
     position.save()
-    assert task_of(meter, "PITOT_PULL_CLEAN").active
+    assert task_of(device, "PITOT_PULL_CLEAN").active
     fluid = plant["fluid"]
     fluid.biofouling, fluid.scaling = False, False
     fluid.save()
-    assert not task_of(meter, "PITOT_PULL_CLEAN").active
+    assert not task_of(device, "PITOT_PULL_CLEAN").active
 
 
 # Signed records are locked on every path --------------------------------------------------------------
 def test_signed_record_refuses_save_delete_update_and_queryset_delete(plant):
-    record = signed_record(plant["meter"], "PITOT_PULL_CLEAN", "blocked", timezone.localdate(), plant["tech"])
+    record = signed_record(plant["device"], "PITOT_PULL_CLEAN", "blocked", timezone.localdate(), plant["tech"])
     record.notes = "changed"
     with pytest.raises(SignedRecordError):
         record.save()
@@ -80,7 +80,7 @@ def test_signed_record_refuses_save_delete_update_and_queryset_delete(plant):
 
 
 def test_photos_of_a_signed_record_are_locked(plant):
-    record = MaintenanceRecord.objects.create(meter=plant["meter"], task=task_of(plant["meter"], "PITOT_PULL_CLEAN"),
+    record = MaintenanceRecord.objects.create(device=plant["device"], task=task_of(plant["device"], "PITOT_PULL_CLEAN"),
                                               performed_on=timezone.localdate(), technician="T", condition="clean",
                                               action="a", minutes_spent=5)
     photo = MaintenancePhoto(record=record, content_type="image/png")
@@ -99,7 +99,7 @@ def test_photos_of_a_signed_record_are_locked(plant):
 
 
 def test_admin_offers_no_change_or_delete_of_signed_records(plant, admin_user):
-    record = signed_record(plant["meter"], "PITOT_PULL_CLEAN", "clean", timezone.localdate(), plant["tech"])
+    record = signed_record(plant["device"], "PITOT_PULL_CLEAN", "clean", timezone.localdate(), plant["tech"])
     request = RequestFactory().get("/")
     request.user = admin_user
     model_admin = admin_site._registry[MaintenanceRecord]
@@ -109,46 +109,46 @@ def test_admin_offers_no_change_or_delete_of_signed_records(plant, admin_user):
 
 
 def test_signing_sets_the_task_due_date_from_what_was_found(plant):
-    meter = plant["meter"]
+    device = plant["device"]
     day = timezone.localdate() - dt.timedelta(days=10)
-    signed_record(meter, "PITOT_PULL_CLEAN", "blocked", day, plant["tech"])
-    task = task_of(meter, "PITOT_PULL_CLEAN")
+    signed_record(device, "PITOT_PULL_CLEAN", "blocked", day, plant["tech"])
+    task = task_of(device, "PITOT_PULL_CLEAN")
     # 45 d × 0.5 = 22.5 -> 23 d after the visit
     assert task.frequency_days == 23 and task.last_done == day and task.last_condition == "blocked"
     assert task.next_due_date == day + dt.timedelta(days=23)
 
 
 def test_fouled_three_of_four_gives_a_finding_that_shortens_calibration(plant):
-    meter = plant["meter"]
-    meter.findings()  # no evidence yet
-    assert meter.evidence_findings() == []
+    device = plant["device"]
+    device.findings()  # no evidence yet
+    assert device.evidence_findings() == []
     today = timezone.localdate()
     for weeks, condition in ((40, "heavy_deposit"), (30, "clean"), (20, "blocked"), (10, "heavy_deposit")):
-        signed_record(meter, "PITOT_PULL_CLEAN", condition, today - dt.timedelta(weeks=weeks), plant["tech"])
-    meter = Meter.objects.get(pk=meter.pk)
-    codes = [f.code for f in meter.findings()]
+        signed_record(device, "PITOT_PULL_CLEAN", condition, today - dt.timedelta(weeks=weeks), plant["tech"])
+    device = Device.objects.get(pk=device.pk)
+    codes = [f.code for f in device.findings()]
     assert "MAINT_FOULED" in codes
     # the duty's worst (pitot ports, high 0.5) and the fouling finding (high 0.5): risk factor 0.5 either way;
     # the stored severity includes it
-    assert meter.risk_severity == "high"
-    assert meter.risk_factor() == 0.5
+    assert device.risk_severity == "high"
+    assert device.risk_factor() == 0.5
 
 
 def test_fouling_finding_lowers_the_factor_of_a_clean_duty(plant, client):
     water = Fluid.objects.create(name="Plain water", phase="liquid", conductivity_us_cm=400)
-    meter = commission(tag="FT-EM1", principle="electromagnetic", area=plant["area"], fluid=water,
+    device = commission(tag="FT-EM1", principle="electromagnetic", area=plant["area"], fluid=water,
                                  line_size="DN50", internal_diameter_mm=52.5, range_max=40, mpe_value=0.5)
-    assert meter.risk_factor() == 1.0 and meter.effective_interval_days() == 365
+    assert device.risk_factor() == 1.0 and device.effective_interval_days() == 365
     today = timezone.localdate()
     for weeks in (40, 30, 20):
-        signed_record(meter, "VISUAL_INSPECTION", "heavy_deposit", today - dt.timedelta(weeks=weeks), plant["tech"])
-    assert Meter.objects.get(pk=meter.pk).risk_factor() == 1.0  # three inspections only: not yet 3 of 4
-    signed_record(meter, "VISUAL_INSPECTION", "clean", today, plant["tech"])
-    meter = Meter.objects.get(pk=meter.pk)
+        signed_record(device, "VISUAL_INSPECTION", "heavy_deposit", today - dt.timedelta(weeks=weeks), plant["tech"])
+    assert Device.objects.get(pk=device.pk).risk_factor() == 1.0  # three inspections only: not yet 3 of 4
+    signed_record(device, "VISUAL_INSPECTION", "clean", today, plant["tech"])
+    device = Device.objects.get(pk=device.pk)
     # 3 of the last 4: high, 0.5 -> effective calibration interval 365 × 0.5 = 182.5 -> 183 (the one rounding
     # rule for intervals: halves upward, calibration.intervals.whole_days)
-    assert meter.risk_factor() == 0.5 and meter.effective_interval_days() == 183
-    assert meter.risk_severity == "high"
+    assert device.risk_factor() == 0.5 and device.effective_interval_days() == 183
+    assert device.risk_severity == "high"
     # the review's risk list names it, its reason read for the page's meters in one query
     exported = client.get("/review/", {"export": "risk"}).content.decode()
     assert "FT-EM1" in exported and "MAINT_FOULED" in exported and "3 of the last 4 inspections" in exported
@@ -163,7 +163,7 @@ def tech_client(plant):
 
 
 def test_form_saves_a_draft_with_photo_and_the_logged_in_technician(plant, tech_client):
-    task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
+    task = task_of(plant["device"], "PITOT_PULL_CLEAN")
     page = tech_client.get("/positions/FT-P1/maintain/")
     body = page.content.decode()
     assert page.status_code == 200 and "permit to work" in body and "depressurise and drain" in body
@@ -191,14 +191,14 @@ def test_form_saves_a_draft_with_photo_and_the_logged_in_technician(plant, tech_
     (SimpleUploadedFile("anim.gif", b"", content_type="image/gif"), "is empty"),
 ])
 def test_photo_refusals_by_content(plant, tech_client, upload, message):
-    task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
+    task = task_of(plant["device"], "PITOT_PULL_CLEAN")
     response = tech_client.post("/positions/FT-P1/maintain/", {**post_data(task), "photos": [upload]})
     assert response.status_code == 400 and message in response.content.decode()
     assert MaintenanceRecord.objects.count() == 0 and MaintenancePhoto.objects.count() == 0
 
 
 def test_photo_of_a_wrong_image_type_and_too_large_are_refused(plant, tech_client, settings):
-    task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
+    task = task_of(plant["device"], "PITOT_PULL_CLEAN")
     gif = SimpleUploadedFile("anim.gif", png_bytes(kind="GIF"), content_type="image/gif")
     response = tech_client.post("/positions/FT-P1/maintain/", {**post_data(task), "photos": [gif]})
     assert response.status_code == 400 and "anim.gif is a GIF image; attach a JPEG, PNG or WebP photo." in \
@@ -221,7 +221,7 @@ def test_photo_of_a_wrong_image_type_and_too_large_are_refused(plant, tech_clien
     ("task", "", "Choose the task you did."),
 ])
 def test_bad_field_refused_at_the_field_nothing_saved(plant, tech_client, field, value, message):
-    task = task_of(plant["meter"], "PITOT_PULL_CLEAN")
+    task = task_of(plant["device"], "PITOT_PULL_CLEAN")
     response = tech_client.post("/positions/FT-P1/maintain/", post_data(task, **{field: value}))
     assert response.status_code == 400
     form = response.context["form"]
@@ -236,7 +236,7 @@ def test_task_of_another_meter_or_retired_is_refused(plant, tech_client):
     response = tech_client.post("/positions/FT-P1/maintain/", post_data(foreign))
     assert response.status_code == 400 and response.context["form"].errors["task"] == [
         "Choose one of this meter's tasks."]
-    retired = task_of(plant["meter"], "DP_ZERO_CHECK")
+    retired = task_of(plant["device"], "DP_ZERO_CHECK")
     retired.active = False
     retired.save()
     response = tech_client.post("/positions/FT-P1/maintain/", post_data(retired))
@@ -246,7 +246,7 @@ def test_task_of_another_meter_or_retired_is_refused(plant, tech_client):
 
 
 def test_only_the_author_signs_and_a_reviewer_cannot_enter(plant):
-    record = MaintenanceRecord.objects.create(meter=plant["meter"], task=task_of(plant["meter"], "VISUAL_INSPECTION"),
+    record = MaintenanceRecord.objects.create(device=plant["device"], task=task_of(plant["device"], "VISUAL_INSPECTION"),
                                               performed_on=timezone.localdate(), technician="T", condition="clean",
                                               action="a", minutes_spent=5, created_by=plant["tech"])
     other = Client()
@@ -262,17 +262,17 @@ def test_only_the_author_signs_and_a_reviewer_cannot_enter(plant):
 def test_reviewer_adds_changes_and_retires_with_reason_kept(plant):
     reviewer = Client()
     reviewer.force_login(user_with_role("reviewer", "rev1"))
-    meter = plant["meter"]
+    device = plant["device"]
     refused = reviewer.post("/positions/FT-P1/tasks/add/", {"title": "Check the purge supply", "reason": "r",
                                                          "base_days": "30", "change_reason": ""})
     assert refused.status_code == 400 and "Say why" in refused.content.decode()
     assert reviewer.post("/positions/FT-P1/tasks/add/", {"title": "Check the purge supply", "reason": "Purge air",
                                                       "base_days": "30", "change_reason": "Purge fitted 2026"}
                          ).status_code == 302
-    added = MaintenanceTask.objects.get(meter=meter, code="CUSTOM")
+    added = MaintenanceTask.objects.get(device=device, code="CUSTOM")
     assert added.origin == "reviewer" and added.start_days == 30 and added.history.first().history_change_reason \
         == "Purge fitted 2026"
-    task = task_of(meter, "PITOT_PULL_CLEAN")
+    task = task_of(device, "PITOT_PULL_CLEAN")
     response = reviewer.post(f"/maintenance/tasks/{task.pk}/edit/", {
         "title": task.title, "reason": task.reason, "base_days": "0", "active": "on", "change_reason": "x"})
     assert response.status_code == 400 and "The frequency must be at least one day." in response.content.decode()
@@ -282,17 +282,17 @@ def test_reviewer_adds_changes_and_retires_with_reason_kept(plant):
     task.refresh_from_db()
     assert not task.active and task.origin == "reviewer" and task.change_reason == "Purge keeps ports open"
     # the duty no longer touches a reviewer's task
-    meter.save()
-    assert not task_of(meter, "PITOT_PULL_CLEAN").active
+    device.save()
+    assert not task_of(device, "PITOT_PULL_CLEAN").active
     technician = Client()
     technician.force_login(plant["tech"])
     assert technician.get(f"/maintenance/tasks/{task.pk}/edit/").status_code == 403
 
 
 def test_meter_page_shows_each_task_due_date_and_why(plant, client):
-    meter = plant["meter"]
+    device = plant["device"]
     day = timezone.localdate() - dt.timedelta(days=5)
-    signed_record(meter, "PITOT_PULL_CLEAN", "blocked", day, plant["tech"])
+    signed_record(device, "PITOT_PULL_CLEAN", "blocked", day, plant["tech"])
     from django.utils.html import strip_tags
 
     body = strip_tags(client.get("/positions/FT-P1/").content.decode())
@@ -307,15 +307,15 @@ def test_meter_page_shows_an_as_found_failure_beside_the_blockage_found_before_i
     beside it. Hand-worked: blocked on day D, calibration found out of tolerance on D + 17 -> "17 d after"."""
     from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 
-    meter = plant["meter"]
+    device = plant["device"]
     blocked_on = timezone.localdate() - dt.timedelta(days=60)
-    signed_record(meter, "PITOT_PULL_CLEAN", "blocked", blocked_on, plant["tech"])
+    signed_record(device, "PITOT_PULL_CLEAN", "blocked", blocked_on, plant["tech"])
     standard = ReferenceStandard.objects.create(identification="RS-M1", description="Master meter", range_min=0,
                                                 range_max=500, certificate_number="C-M1",
                                                 due_date=timezone.localdate() + dt.timedelta(days=200),
                                                 expanded_uncertainty=0.2, uncertainty_basis="pct_reading")
     failed_on = blocked_on + dt.timedelta(days=17)
-    event = CalibrationEvent.objects.create(meter=meter, performed_on=failed_on, technician="T",
+    event = CalibrationEvent.objects.create(device=device, performed_on=failed_on, technician="T",
                                             procedure="Comparison against the master meter")
     event.reference_standards.add(standard)
     # MPE 2 % of span (400): 8 units; indicated 220 at a reference of 200 is 5 % of span out

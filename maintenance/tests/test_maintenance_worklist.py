@@ -12,7 +12,7 @@ from pypdf import PdfReader
 
 from maintenance import stats, worklist
 from maintenance.models import CalendarToken, MaintenanceRecord, MaintenanceTask, WalkOrder
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import user_with_role
 
@@ -20,16 +20,16 @@ pytestmark = pytest.mark.django_db
 D = dt.timedelta
 
 
-def meter(tag, area, fluid, principle="electromagnetic", **stored):
+def device(tag, area, fluid, principle="electromagnetic", **stored):
     m = commission(tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L")
     if stored:
-        Meter.objects.filter(pk=m.pk).update(**stored)
+        Device.objects.filter(pk=m.pk).update(**stored)
     return m
 
 
 def set_due(m, code, due):
-    MaintenanceTask.objects.filter(meter=m, code=code).update(next_due_date=due)
+    MaintenanceTask.objects.filter(device=m, code=code).update(next_due_date=due)
 
 
 @pytest.fixture
@@ -45,16 +45,16 @@ def week():
     water = Fluid.objects.create(name="Raw water", phase="liquid", conductivity_us_cm=500)
     caustic = Fluid.objects.create(name="Caustic 2 %", phase="liquid", conductivity_us_cm=90000)
     far = today + D(days=400)
-    a = meter("FT-A1", tanks, caustic, next_due_date=sunday, last_calibrated=today - D(days=300))
-    b = meter("FT-B1", pumps, water, next_due_date=far, last_calibrated=today)
-    c = meter("FT-C1", pumps, water, next_due_date=monday - D(days=3), last_calibrated=today - D(days=400))
-    d = meter("FT-D1", pumps, water, next_due_date=sunday + D(days=1), last_calibrated=today)
+    a = device("FT-A1", tanks, caustic, next_due_date=sunday, last_calibrated=today - D(days=300))
+    b = device("FT-B1", pumps, water, next_due_date=far, last_calibrated=today)
+    c = device("FT-C1", pumps, water, next_due_date=monday - D(days=3), last_calibrated=today - D(days=400))
+    d = device("FT-D1", pumps, water, next_due_date=sunday + D(days=1), last_calibrated=today)
     for m in (a, b, c, d):  # every task due far away, then the few this week
-        MaintenanceTask.objects.filter(meter=m).update(next_due_date=far)
+        MaintenanceTask.objects.filter(device=m).update(next_due_date=far)
     set_due(b, "VISUAL_INSPECTION", monday + D(days=2))
     set_due(d, "TRANSMITTER_VERIFICATION", sunday + D(days=1))  # Monday next week: not this week
-    spare = meter("FT-SPARE", pumps, water, next_due_date=monday)
-    Meter.objects.filter(pk=spare.pk).update(status="spare")
+    spare = device("FT-SPARE", pumps, water, next_due_date=monday)
+    Device.objects.filter(pk=spare.pk).update(status="spare")
     return {"today": today, "monday": monday, "sunday": sunday, "site": site, "tanks": tanks, "pumps": pumps}
 
 
@@ -79,10 +79,10 @@ def test_seven_days_from_a_saturday_serial_standards_and_draft(client, week):
     from calibration.models import CalibrationEvent, ReferenceStandard
 
     saturday = week["monday"] + D(days=5)
-    a, c, d = (Meter.objects.get(position__tag=t) for t in ("FT-A1", "FT-C1", "FT-D1"))
-    Meter.objects.filter(pk=a.pk).update(serial="SN-A1-0042")
-    Meter.objects.filter(pk=d.pk).update(next_due_date=saturday + D(days=6))  # the following Friday: last day
-    Meter.objects.filter(pk=c.pk).update(next_due_date=saturday + D(days=7))  # one day past the span
+    a, c, d = (Device.objects.get(position__tag=t) for t in ("FT-A1", "FT-C1", "FT-D1"))
+    Device.objects.filter(pk=a.pk).update(serial="SN-A1-0042")
+    Device.objects.filter(pk=d.pk).update(next_due_date=saturday + D(days=6))  # the following Friday: last day
+    Device.objects.filter(pk=c.pk).update(next_due_date=saturday + D(days=7))  # one day past the span
     fits = ReferenceStandard.objects.create(identification="RS-FITS", description="covers 0–40", range_max=100,
                                             certificate_number="C-1", due_date=saturday + D(days=300),
                                             expanded_uncertainty=0.1)
@@ -97,7 +97,7 @@ def test_seven_days_from_a_saturday_serial_standards_and_draft(client, week):
                                      expanded_uncertainty=0.1)
     expected = sorted(ReferenceStandard.offered_for(a, on_date=saturday).values_list("identification", flat=True))
     assert expected == [fits.identification]  # the tablet form's own choice, so the list says nothing else
-    draft = CalibrationEvent.objects.create(meter=d, performed_on=saturday, technician="A. Fieldtech", procedure="p")
+    draft = CalibrationEvent.objects.create(device=d, performed_on=saturday, technician="A. Fieldtech", procedure="p")
 
     items = worklist.rows(saturday + D(days=6), start=saturday)
     by_tag = {(i.tag, i.kind): i for i in items}
@@ -169,7 +169,7 @@ def test_icalendar_feed_parsed_back_and_token_revoked(week):
     calendar = Calendar.from_ical(response.content)
     events = {str(e["summary"]): e for e in calendar.walk("VEVENT")}
     today = week["today"]
-    set_due(Meter.objects.get(position__tag="FT-B1"), "VISUAL_INSPECTION", today + D(days=10))
+    set_due(Device.objects.get(position__tag="FT-B1"), "VISUAL_INSPECTION", today + D(days=10))
     response = anonymous.get(url)
     calendar = Calendar.from_ical(response.content)
     events = {str(e["summary"]): e for e in calendar.walk("VEVENT")}
@@ -199,8 +199,8 @@ def test_review_lists_maintenance_overdue_and_due_with_constant_queries(client, 
     from django.test.utils import CaptureQueriesContext
 
     today = week["today"]
-    b = Meter.objects.get(position__tag="FT-B1")
-    set_due(Meter.objects.get(position__tag="FT-D1"), "TRANSMITTER_VERIFICATION", today + D(days=100))
+    b = Device.objects.get(position__tag="FT-B1")
+    set_due(Device.objects.get(position__tag="FT-D1"), "TRANSMITTER_VERIFICATION", today + D(days=100))
     set_due(b, "VISUAL_INSPECTION", today - D(days=4))
     set_due(b, "TRANSMITTER_VERIFICATION", today + D(days=3))
     overdue = list(csv.reader(io.StringIO(client.get("/review/", {"export": "maint_overdue"}).content.decode())))
@@ -212,24 +212,24 @@ def test_review_lists_maintenance_overdue_and_due_with_constant_queries(client, 
         assert client.get("/review/").status_code == 200
     water = Fluid.objects.get(name="Raw water")
     for i in range(60):
-        m = meter(f"EXTRA-{i}", week["pumps"], water, next_due_date=today + D(days=200))
-        MaintenanceTask.objects.filter(meter=m).update(next_due_date=today - D(days=i + 1))
+        m = device(f"EXTRA-{i}", week["pumps"], water, next_due_date=today + D(days=200))
+        MaintenanceTask.objects.filter(device=m).update(next_due_date=today - D(days=i + 1))
     with django_assert_max_num_queries(len(small.captured_queries)):
         body = client.get("/review/").content.decode()
     assert 'id="count-maint_overdue">121<' in body  # 1 + 60 meters × 2 tasks (visual, transmitter)
 
 
 def test_findings_statistics_by_principle_and_fluid(client, week):
-    b, c = Meter.objects.get(position__tag="FT-B1"), Meter.objects.get(position__tag="FT-C1")
-    a = Meter.objects.get(position__tag="FT-A1")
+    b, c = Device.objects.get(position__tag="FT-B1"), Device.objects.get(position__tag="FT-C1")
+    a = Device.objects.get(position__tag="FT-A1")
     tech = user_with_role("technician", "stats-tech")
     today = week["today"]
     for m, condition in ((b, "clean"), (b, "heavy_deposit"), (c, "blocked"), (c, "clean"), (a, "corroded")):
-        record = MaintenanceRecord.objects.create(meter=m, task=MaintenanceTask.objects.get(meter=m,
+        record = MaintenanceRecord.objects.create(device=m, task=MaintenanceTask.objects.get(device=m,
                                                   code="VISUAL_INSPECTION"), performed_on=today, technician="T",
                                                   condition=condition, action="a", minutes_spent=10, created_by=tech)
         record.sign(by="T")
-    MaintenanceRecord.objects.create(meter=a, task=MaintenanceTask.objects.get(meter=a, code="VISUAL_INSPECTION"),
+    MaintenanceRecord.objects.create(device=a, task=MaintenanceTask.objects.get(device=a, code="VISUAL_INSPECTION"),
                                      performed_on=today, technician="T", condition="blocked", action="draft",
                                      minutes_spent=1)  # a draft is not counted
     table = stats.condition_table(stats.findings_frame())

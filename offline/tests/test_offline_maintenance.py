@@ -35,7 +35,7 @@ def tech(plant):  # noqa: F811
 def entry(plant, **extra):  # noqa: F811
     values = {"condition": "heavy_deposit", "action": "Pulled and washed the probe.", "minutes_spent": "35",
               "parts": "gasket", "notes": "kept offline", **extra}
-    return post_data(task_of(plant["meter"], "PITOT_PULL_CLEAN"), **values)
+    return post_data(task_of(plant["device"], "PITOT_PULL_CLEAN"), **values)
 
 
 def test_the_kind_is_registered_with_the_real_permission(plant):  # noqa: F811
@@ -52,7 +52,7 @@ def test_the_same_id_twice_saves_one_record_with_its_values(plant, tech):  # noq
     record = MaintenanceRecord.objects.get()
     assert first.json() == {"status": "saved", "url": f"/maintenance/{record.pk}/",
                             "label": f"FT-P1 {record.performed_on}"}
-    assert record.client_id == cid and record.meter == plant["meter"] and record.created_by == plant["tech"]
+    assert record.client_id == cid and record.device == plant["device"] and record.created_by == plant["tech"]
     assert (record.task.code, record.condition, record.action, record.parts, record.minutes_spent, record.notes,
             record.state) == ("PITOT_PULL_CLEAN", "heavy_deposit", "Pulled and washed the probe.", "gasket", 35,
                               "kept offline", "draft")
@@ -155,9 +155,9 @@ def test_the_kit_and_the_entry_page_carry_maintenance(plant, tech):  # noqa: F81
     from django.utils import timezone
     import datetime as dt
 
-    from plant.models import Meter
+    from plant.models import Device
 
-    Meter.objects.filter(pk=plant["meter"].pk).update(next_due_date=timezone.localdate() + dt.timedelta(days=7))
+    Device.objects.filter(pk=plant["device"].pk).update(next_due_date=timezone.localdate() + dt.timedelta(days=7))
     assert "/positions/FT-P1/maintain/" in tech.get("/field/kit.json").json()["pages"]
     page = tech.get("/positions/FT-P1/maintain/")
     html = page.content.decode()

@@ -13,7 +13,7 @@ from calibration.forms import CalibrationEntry, PointRowForm, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from offline import kinds
 from offline.rules import entry_rules
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import send_twice_at_once, user_with_role
 from tests.helpers import TODAY as ENTRY_DATE, entry_data
@@ -28,17 +28,17 @@ def field(db):
     area = Area.objects.create(site=site, name="Basement")
     water = Fluid.objects.create(name="Raw water", phase="liquid", conductivity_us_cm=300)
 
-    def meter(tag, due_in_days, status="in_service"):
+    def device(tag, due_in_days, status="in_service"):
         m = commission(tag=tag, principle="electromagnetic", area=area, fluid=water, line_size="DN80",
                                  internal_diameter_mm=80, range_max=40, mpe_value=0.5, wetted_material="316L",
                                  status=status)
         due = None if due_in_days is None else TODAY + dt.timedelta(days=due_in_days)
-        Meter.objects.filter(pk=m.pk).update(next_due_date=due)
+        Device.objects.filter(pk=m.pk).update(next_due_date=due)
         m.refresh_from_db()
         return m
 
-    meters = {"soon": meter("FT-OFF-1", 10), "overdue": meter("FT-OFF-2", -20), "later": meter("FT-OFF-3", 200),
-              "never": meter("FT-OFF-4", None), "removed": meter("FT-OFF-5", 5, status="removed")}
+    devices = {"soon": device("FT-OFF-1", 10), "overdue": device("FT-OFF-2", -20), "later": device("FT-OFF-3", 200),
+              "never": device("FT-OFF-4", None), "removed": device("FT-OFF-5", 5, status="removed")}
     standard = ReferenceStandard.objects.create(identification="RS-OFF", description="master meter", range_max=40,
                                                 certificate_number="C-OFF", due_date=TODAY + dt.timedelta(days=300),
                                                 expanded_uncertainty=0.1)
@@ -51,7 +51,7 @@ def field(db):
     for name, user in users.items():
         clients[name] = Client()
         clients[name].force_login(user)
-    return {"meters": meters, "standard": standard, "lapsed": lapsed, "users": users, "clients": clients}
+    return {"meters": devices, "standard": standard, "lapsed": lapsed, "users": users, "clients": clients}
 
 
 def pairs(post):
@@ -73,72 +73,72 @@ def counts():
 
 
 def test_a_sent_entry_is_saved_once_with_its_values(field):
-    tech, meter = field["clients"]["tech"], field["meters"]["soon"]
+    tech, device = field["clients"]["tech"], field["meters"]["soon"]
     cid = uuid.uuid4()
     post = entry_data(field["standard"], **{"ev-contractor": "B. Offline", "ev-notes": "entered in the basement"})
-    first = send(tech, cid, meter.tag, post)
+    first = send(tech, cid, device.tag, post)
     assert first.status_code == 201, first.content
     event = CalibrationEvent.objects.get()
     assert first.json() == {"status": "saved", "url": f"/calibrations/{event.pk}/",
-                            "label": f"{meter.tag} {ENTRY_DATE}"}
-    assert event.client_id == cid and event.meter == meter and event.created_by == field["users"]["tech"]
+                            "label": f"{device.tag} {ENTRY_DATE}"}
+    assert event.client_id == cid and event.device == device and event.created_by == field["users"]["tech"]
     assert event.state == "draft" and event.technician == "B. Offline" and event.notes == "entered in the basement"
     assert sorted((p.reference_value, p.indicated_value) for p in event.points.all()) == [
         (4, 4.01), (10, 10.02), (20, 20.05), (30, 29.97), (40, 40.04)]
     # sent again (the answer was lost, the tablet retries): the same record, nothing new
     for _ in range(2):
-        again = send(tech, cid, meter.tag, post)
+        again = send(tech, cid, device.tag, post)
         assert again.status_code == 200
         assert again.json()["status"] == "received before" and again.json()["url"] == first.json()["url"]
     assert counts() == (1, 5)
 
 
 def test_a_refused_entry_saves_nothing_and_names_the_field(field):
-    tech, meter = field["clients"]["tech"], field["meters"]["soon"]
+    tech, device = field["clients"]["tech"], field["meters"]["soon"]
     cid = uuid.uuid4()
     bad = entry_data(field["standard"], found=[(4, 4.01), (10, 10.02), (55, 55.1), (30, 29.97), (40, 40.04)])
-    response = send(tech, cid, meter.tag, bad)
+    response = send(tech, cid, device.tag, bad)
     assert response.status_code == 422
     assert response.json()["errors"] == {
         "af-2-reference_value": ["55 m³/h is outside the meter's calibrated range 0–40 m³/h."]}
     assert counts() == (0, 0)
     # corrected on the tablet, sent again with the same id: saved
     good = entry_data(field["standard"])
-    assert send(tech, cid, meter.tag, good).status_code == 201
+    assert send(tech, cid, device.tag, good).status_code == 201
     assert CalibrationEvent.objects.get().client_id == cid and counts() == (1, 5)
 
 
 def test_refusals_that_only_an_entry_kept_offline_meets(field):
-    tech, meters = field["clients"]["tech"], field["meters"]
+    tech, devices = field["clients"]["tech"], field["meters"]
     # the device at FT-OFF-5 was taken out of service after the entry was kept on the tablet
-    assert meters["removed"].position is None
+    assert devices["removed"].position is None
     removed = send(tech, uuid.uuid4(), "FT-OFF-5", entry_data(field["standard"]))
     assert removed.status_code == 422
     assert removed.json()["errors"] == {"__all__": [
         "No device is installed at FT-OFF-5 now; the entry cannot be saved to it."]}
     gone = send(tech, uuid.uuid4(), "FT-NOT-THERE", entry_data(field["standard"]))
     assert gone.json()["errors"] == {"__all__": ["Position FT-NOT-THERE is not in the register any more."]}
-    lapsed = send(tech, uuid.uuid4(), meters["soon"].tag, entry_data(field["lapsed"], **{"ev-performed_on": TODAY}))
+    lapsed = send(tech, uuid.uuid4(), devices["soon"].tag, entry_data(field["lapsed"], **{"ev-performed_on": TODAY}))
     assert lapsed.status_code == 422
     assert lapsed.json()["errors"]["ev-reference_standards"] == [
         f"Reference standard RS-LAPSED was past its due date ({field['lapsed'].due_date}) on {TODAY}."]
     assert counts() == (0, 0)
 
     # a signed calibration of that meter on that day is already on record (entered online meanwhile)
-    online = CalibrationEntry(meters["soon"], entry_post_data(
+    online = CalibrationEntry(devices["soon"], entry_post_data(
         {"performed_on": TODAY.isoformat(), "technician": "C. Online", "reference_standards": [field["standard"].pk],
          "procedure": "five points", "reason": "scheduled", "decision_rule": "simple",
          "condition_received": "installed"},
         [(4, 4.0), (10, 10.0), (20, 20.0), (30, 30.0), (40, 40.0)]), user=field["users"]["tech2"])
     assert online.is_valid()
     signed = online.save().sign(by="C. Online")
-    covered = send(tech, uuid.uuid4(), meters["soon"].tag, entry_data(field["standard"], **{"ev-performed_on": TODAY}))
+    covered = send(tech, uuid.uuid4(), devices["soon"].tag, entry_data(field["standard"], **{"ev-performed_on": TODAY}))
     assert covered.status_code == 422
     assert covered.json()["errors"] == {"ev-performed_on": [
         f"A signed calibration of FT-OFF-1 on {TODAY} is already on record (calibration {signed.pk}); "
         f"check the date, or discard this entry if it is the same work."]}
     yesterday = entry_data(field["standard"], **{"ev-performed_on": (TODAY - dt.timedelta(days=1)).isoformat()})
-    assert send(tech, uuid.uuid4(), meters["soon"].tag, yesterday).status_code == 201
+    assert send(tech, uuid.uuid4(), devices["soon"].tag, yesterday).status_code == 201
     assert CalibrationEvent.objects.count() == 2
 
 
@@ -245,8 +245,8 @@ def test_service_worker_and_manifest_are_served_from_the_root(field):
 
 
 def test_the_tablet_checks_say_what_the_server_says(field):
-    meter = field["meters"]["soon"]
-    rules = entry_rules(meter)
+    device = field["meters"]["soon"]
+    rules = entry_rules(device)
     assert set(rules["required"]) >= {"ev-performed_on", "ev-reference_standards", "ev-procedure",
                                       "ev-condition_received"}
     assert "ev-contractor" not in rules["required"]  # the logged-in technician is the performer
@@ -254,7 +254,7 @@ def test_the_tablet_checks_say_what_the_server_says(field):
     assert (rules["range_min"], rules["range_max"]) == (0, 40)
     for value in (41, 55, 1000.5):
         row = PointRowForm({"nominal_pct": "50", "reference_value": str(value), "indicated_value": str(value)},
-                           meter=meter)
+                           device=device)
         assert not row.is_valid()
         assert rules["messages"]["outside_range"].replace("{value}", f"{value:g}") == row.errors["reference_value"][0]
     assert rules["messages"]["reference_required"] == "Enter the reference flow."
@@ -262,7 +262,7 @@ def test_the_tablet_checks_say_what_the_server_says(field):
     assert rules["messages"]["negative"] == "The reference flow cannot be negative."
     assert rules["messages"]["zero_of_reading"] == "A % of reading error needs a reference flow above zero."
     # the entry page carries them for the tablet
-    page = field["clients"]["tech"].get(f"/positions/{meter.tag}/calibrate/").content.decode()
+    page = field["clients"]["tech"].get(f"/positions/{device.tag}/calibrate/").content.decode()
     assert 'id="offline-entry"' in page and '"target": "FT-OFF-1"' in page and '"kind": "calibration"' in page
 
 
@@ -274,8 +274,8 @@ def test_another_kind_is_added_by_registering_its_handler(field, monkeypatch):
         name = "logbook"
         permission = "calibration.add_calibrationevent"
 
-        def pages(self, user, meters):
-            return [f"/logbook/{m.tag}/" for m in meters]
+        def pages(self, user, devices):
+            return [f"/logbook/{m.tag}/" for m in devices]
 
         def receive(self, user, client_id, target, data):
             calls.append((user.username, client_id, target, data.getlist("text")))
@@ -298,10 +298,10 @@ def test_a_send_that_loses_the_race_returns_the_winners_record(field, monkeypatc
     client id refuses the second insert, its transaction is undone, and the first record is answered."""
     from offline.calibration_kind import CalibrationKind
 
-    tech, meter = field["clients"]["tech"], field["meters"]["soon"]
+    tech, device = field["clients"]["tech"], field["meters"]["soon"]
     cid = uuid.uuid4()
     post = entry_data(field["standard"])
-    assert send(tech, cid, meter.tag, post).status_code == 201
+    assert send(tech, cid, device.tag, post).status_code == 201
     winner = CalibrationEvent.objects.get()
     real_find = CalibrationKind.find
     misses = []
@@ -313,7 +313,7 @@ def test_a_send_that_loses_the_race_returns_the_winners_record(field, monkeypatc
         return real_find(self, client_id)
 
     monkeypatch.setattr(CalibrationKind, "find", find_late)
-    again = send(tech, cid, meter.tag, post)
+    again = send(tech, cid, device.tag, post)
     assert misses == [cid]
     assert again.status_code == 200 and again.json()["url"] == winner.get_absolute_url()
     assert counts() == (1, 5)

@@ -150,11 +150,11 @@ def draft_signed_without_signer(rows, w):
 
 
 def invented_principle(rows, w):
-    row(rows, "plant.meter", w["meter"].pk)["principle"] = "perpetual_motion"
+    row(rows, "plant.device", w["device"].pk)["principle"] = "perpetual_motion"
 
 
 def negative_mpe(rows, w):
-    row(rows, "plant.meter", w["meter"].pk)["mpe_value"] = -0.5
+    row(rows, "plant.device", w["device"].pk)["mpe_value"] = -0.5
 
 
 def text_in_a_number(rows, w):
@@ -179,9 +179,9 @@ EDITS = [
     (maintenance_minutes, lambda w: f"maintenance record {w['maintenance'].pk} no longer matches what was signed"),
     (draft_signed_without_signer, lambda w: f"record calibration.calibrationevent {w['draft'].pk}, field signed_by: "
                                             "A signed record must say who signed it and when."),
-    (invented_principle, lambda w: f"record plant.meter {w['meter'].pk}, field principle: Value 'perpetual_motion' "
+    (invented_principle, lambda w: f"record plant.device {w['device'].pk}, field principle: Value 'perpetual_motion' "
                                    "is not a valid choice."),
-    (negative_mpe, lambda w: f"record plant.meter {w['meter'].pk}, field mpe_value: MPE must be greater than zero."),
+    (negative_mpe, lambda w: f"record plant.device {w['device'].pk}, field mpe_value: MPE must be greater than zero."),
     (text_in_a_number, lambda w: "field reference_value: “plenty” value must be a float."),
     (missing_link, lambda w: "field event: it names calibration.calibrationevent 987654, which the backup does not "
                              "hold."),

@@ -23,7 +23,7 @@ from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceT
 from plant import backups, citations, importer, installations
 from plant.citations import CitedRecordError
 from plant.installations import commission
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site
 from tests.helpers import user_with_role
 
 pytestmark = pytest.mark.django_db
@@ -32,8 +32,8 @@ SINCE = dt.date(2025, 1, 6)  # when the cited device was installed
 WORKED_ON = dt.date(2025, 6, 3)  # the date of its signed calibration and its signed maintenance record
 
 
-def signed_calibration(meter, standard, user, day):
-    event = CalibrationEvent.objects.create(meter=meter, performed_on=day, technician="C. Tester", performed_by=user,
+def signed_calibration(device, standard, user, day):
+    event = CalibrationEvent.objects.create(device=device, performed_on=day, technician="C. Tester", performed_by=user,
                                             created_by=user, procedure="Comparison against a master meter")
     event.reference_standards.add(standard)
     for nominal, reference, indicated in ((25, 10.0, 10.02), (50, 20.0, 20.05)):
@@ -48,7 +48,7 @@ def world(db, tmp_path, settings):
     site = Site.objects.create(name="Cited site")
     area = Area.objects.create(site=site, name="Hall")
     water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=500)
-    meter = commission(tag="FT-C1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
+    device = commission(tag="FT-C1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
                        internal_diameter_mm=52.5, range_max=40, mpe_value=0.5, wetted_material="316L", serial="SN-C1",
                        since=SINCE)
     standard = ReferenceStandard.objects.create(identification="RS-C", description="master meter", range_max=50,
@@ -56,25 +56,25 @@ def world(db, tmp_path, settings):
                                                 expanded_uncertainty=0.1)
     tech = user_with_role("technician", "techc")
     reviewer = user_with_role("reviewer", "reviewc")
-    event = signed_calibration(meter, standard, tech, WORKED_ON)
+    event = signed_calibration(device, standard, tech, WORKED_ON)
     Countersignature.objects.create(event=event, user=reviewer, name="Reviewer Tester", role="Reviewer")
-    task = MaintenanceTask.objects.filter(meter=meter).order_by("code").first()
-    record = MaintenanceRecord.objects.create(meter=meter, task=task, performed_on=WORKED_ON, technician="C. Tester",
+    task = MaintenanceTask.objects.filter(device=device).order_by("code").first()
+    record = MaintenanceRecord.objects.create(device=device, task=task, performed_on=WORKED_ON, technician="C. Tester",
                                               condition="clean", action="Inspected", minutes_spent=20, created_by=tech)
     record.sign(by=tech.get_full_name())
     admin = user_with_role("administrator", "adminc")
     client = Client()
     client.force_login(admin)
-    return {"site": site, "area": area, "fluid": water, "meter": meter, "position": meter.position,
+    return {"site": site, "area": area, "fluid": water, "device": device, "position": device.position,
             "standard": standard, "tech": tech, "reviewer": reviewer, "event": event, "task": task, "record": record,
-            "duty": meter.duties.get(), "installation": meter.installations.get(), "client": client}
+            "duty": device.duties.get(), "installation": device.installations.get(), "client": client}
 
 
 # kind: (key in `world`, admin URL part, the refusal sentence)
 CITED = {
     "standard": ("standard", "calibration/referencestandard",
                  "Reference standard RS-C is cited by 1 signed calibration; withdraw it from use instead."),
-    "device": ("meter", "plant/meter",
+    "device": ("device", "plant/device",
                "Device S/N SN-C1 is cited by 1 signed calibration and 1 signed maintenance record; "
                "take it out of service instead."),
     "position": ("position", "plant/position",
@@ -114,7 +114,7 @@ def sentence(world, kind):
     return expected
 
 
-STATE_MODELS = (Site, Area, Fluid, Position, Meter, DutyPeriod, Installation, ReferenceStandard, StandardLink,
+STATE_MODELS = (Site, Area, Fluid, Position, Device, DutyPeriod, Installation, ReferenceStandard, StandardLink,
                 CalibrationEvent, CalibrationPoint, Countersignature, MaintenanceTask, MaintenanceRecord,
                 MaintenancePhoto, User)
 
@@ -144,7 +144,7 @@ def test_each_cited_object_gets_one_sentence_naming_what_cites_it(world, kind):
 
 
 def test_drafts_cite_nothing(world):
-    draft = CalibrationEvent.objects.create(meter=world["meter"], performed_on=WORKED_ON, technician="T",
+    draft = CalibrationEvent.objects.create(device=world["device"], performed_on=WORKED_ON, technician="T",
                                             procedure="p", created_by=world["tech"])
     spare_standard = ReferenceStandard.objects.create(identification="RS-D", description="d", range_max=50,
                                                       certificate_number="C-D", due_date=dt.date(2099, 1, 1),
@@ -194,14 +194,14 @@ def idle(kind, world):
         standard = ReferenceStandard.objects.create(identification="RS-IDLE", description="d", range_max=50,
                                                     certificate_number="C-I", due_date=dt.date(2099, 1, 1),
                                                     expanded_uncertainty=0.1)
-        draft = CalibrationEvent.objects.create(meter=world["meter"], performed_on=WORKED_ON, technician="T",
+        draft = CalibrationEvent.objects.create(device=world["device"], performed_on=WORKED_ON, technician="T",
                                                 procedure="p")
         draft.reference_standards.add(standard)
         return standard
     if kind == "device":
-        device = Meter.objects.create(principle="electromagnetic", range_max=10, mpe_value=1, serial="SN-IDLE",
+        device = Device.objects.create(principle="electromagnetic", range_max=10, mpe_value=1, serial="SN-IDLE",
                                       status="spare")
-        MaintenanceTask.objects.filter(meter=device).delete()  # derived for the spare, never done
+        MaintenanceTask.objects.filter(device=device).delete()  # derived for the spare, never done
         return device
     if kind == "position":
         return Position.objects.create(tag="FT-IDLE", area=world["area"], fluid=world["fluid"], line_size="DN50",
@@ -213,16 +213,16 @@ def idle(kind, world):
     if kind == "fluid":
         return Fluid.objects.create(name="Unused fluid", phase="liquid")
     if kind == "task":
-        return MaintenanceTask.objects.create(meter=world["meter"], code="CUSTOM", title="Idle check", reason="r",
+        return MaintenanceTask.objects.create(device=world["device"], code="CUSTOM", title="Idle check", reason="r",
                                               base_days=30)
     other = Position.objects.create(tag="FT-OLD", area=world["area"], fluid=world["fluid"], line_size="DN50",
                                     internal_diameter_mm=52.5)
     before_records = (dt.date(2020, 1, 1), dt.date(2020, 6, 1))  # the device's history before anything was signed
     if kind == "duty period":
-        return DutyPeriod.objects.create(meter=world["meter"], position=other, area=world["area"],
+        return DutyPeriod.objects.create(device=world["device"], position=other, area=world["area"],
                                          fluid=world["fluid"], since=before_records[0], until=before_records[1])
     if kind == "installation":
-        return Installation.objects.create(device=world["meter"], position=other, since=before_records[0],
+        return Installation.objects.create(device=world["device"], position=other, since=before_records[0],
                                            until=before_records[1])
     return User.objects.create_user("idle-user")
 
@@ -256,8 +256,8 @@ def repoints(world):
     other = other_meter(world)
     brine = Fluid.objects.create(name="Brine", phase="liquid", conductivity_us_cm=40000, chlorides=True)
     return [
-        (world["task"], "meter", other),
-        (world["duty"], "meter", other), (world["duty"], "position", other.position), (world["duty"], "fluid", brine),
+        (world["task"], "device", other),
+        (world["duty"], "device", other), (world["duty"], "position", other.position), (world["duty"], "fluid", brine),
         (world["duty"], "area", Area.objects.create(site=world["site"], name="Annex")),
         (world["duty"], "since", WORKED_ON + dt.timedelta(days=1)),
         (world["installation"], "device", other), (world["installation"], "position", other.position),
@@ -284,7 +284,7 @@ def test_frozen_links_cannot_be_re_pointed_by_save_full_clean_or_update(world):
 
 def test_closing_a_cited_installation_and_duty_is_how_a_device_moves(world):
     """until is not frozen: removing the device closes its installation and its duty period."""
-    installations.remove(world["meter"], WORKED_ON + dt.timedelta(days=10), "to the workshop")
+    installations.remove(world["device"], WORKED_ON + dt.timedelta(days=10), "to the workshop")
     assert Installation.objects.get(pk=world["installation"].pk).until == WORKED_ON + dt.timedelta(days=10)
     assert DutyPeriod.objects.get(pk=world["duty"].pk).until == WORKED_ON + dt.timedelta(days=10)
     assert CalibrationEvent.objects.get(pk=world["event"].pk).position_id == world["position"].pk
@@ -292,9 +292,9 @@ def test_closing_a_cited_installation_and_duty_is_how_a_device_moves(world):
 
 def test_an_uncited_task_may_move_to_another_meter(world):
     task = idle("task", world)
-    task.meter = other_meter(world)
+    task.device = other_meter(world)
     task.save()
-    assert MaintenanceTask.objects.get(pk=task.pk).meter_id == task.meter_id
+    assert MaintenanceTask.objects.get(pk=task.pk).device_id == task.device_id
 
 
 # The standards of a signed calibration (many-to-many) -----------------------------------------------------------------
@@ -333,7 +333,7 @@ def test_standard_links_of_a_signed_calibration_are_locked_from_both_sides_and_i
 
 
 def test_a_drafts_standards_may_still_change(world):
-    draft = CalibrationEvent.objects.create(meter=world["meter"], performed_on=WORKED_ON, technician="T",
+    draft = CalibrationEvent.objects.create(device=world["device"], performed_on=WORKED_ON, technician="T",
                                             procedure="p")
     second = idle("standard", world)
     draft.reference_standards.set([world["standard"], second])
@@ -372,11 +372,11 @@ def test_countersignatures_cannot_be_re_pointed_or_deleted_in_bulk(world):
 
 
 def test_rows_cannot_be_moved_into_a_signed_record(world):
-    draft = CalibrationEvent.objects.create(meter=world["meter"], performed_on=WORKED_ON, technician="T",
+    draft = CalibrationEvent.objects.create(device=world["device"], performed_on=WORKED_ON, technician="T",
                                             procedure="p")
     CalibrationPoint.objects.create(event=draft, kind="as_found", nominal_pct=50, reference_value=20,
                                     indicated_value=20.1)
-    draft_record = MaintenanceRecord.objects.create(meter=world["meter"], task=world["task"], performed_on=WORKED_ON,
+    draft_record = MaintenanceRecord.objects.create(device=world["device"], task=world["task"], performed_on=WORKED_ON,
                                                     technician="T", condition="clean", action="a", minutes_spent=5)
     photo = MaintenancePhoto.objects.create(record=draft_record, image="maintenance/x.png", content_type="image/png")
     before = state()
@@ -490,26 +490,26 @@ def test_admin_change_form_refuses_re_pointing_at_the_field(world):
     other = other_meter(world)
     task = world["task"]
     response = client.post(f"/admin/maintenance/maintenancetask/{task.pk}/change/",
-                           admin_form_data(task, meter=other.pk))
+                           admin_form_data(task, device=other.pk))
     assert response.status_code == 200
     assert "its meter cannot be changed." in response.content.decode()
     duty = world["duty"]
     brine = Fluid.objects.create(name="Brine", phase="liquid")
     response = client.post(f"/admin/plant/dutyperiod/{duty.pk}/change/", admin_form_data(duty, fluid=brine.pk))
     assert response.status_code == 200 and "its fluid cannot be changed." in response.content.decode()
-    assert MaintenanceTask.objects.get(pk=task.pk).meter_id == world["meter"].pk
+    assert MaintenanceTask.objects.get(pk=task.pk).device_id == world["device"].pk
     assert DutyPeriod.objects.get(pk=duty.pk).fluid_id == world["fluid"].pk
 
 
 def test_admin_inline_deletion_of_a_cited_duty_period_is_refused(world):
-    meter, duty = world["meter"], world["duty"]
-    data = {f.name: getattr(meter, f.attname) for f in Meter._meta.concrete_fields if f.editable and f.name != "id"}
+    device, duty = world["device"], world["duty"]
+    data = {f.name: getattr(device, f.attname) for f in Device._meta.concrete_fields if f.editable and f.name != "id"}
     data = {k: ("" if v is None else v) for k, v in data.items()}
     data.update({"duties-TOTAL_FORMS": 1, "duties-INITIAL_FORMS": 1, "duties-0-id": duty.pk,
-                 "duties-0-meter": meter.pk, "duties-0-position": duty.position_id, "duties-0-area": duty.area_id,
+                 "duties-0-meter": device.pk, "duties-0-position": duty.position_id, "duties-0-area": duty.area_id,
                  "duties-0-fluid": duty.fluid_id, "duties-0-since": duty.since, "duties-0-DELETE": "on"})
     before = state()
-    response = world["client"].post(f"/admin/plant/meter/{meter.pk}/change/", data)
+    response = world["client"].post(f"/admin/plant/device/{device.pk}/change/", data)
     assert response.status_code == 200
     assert sentence(world, "duty period").replace("'", "&#x27;") in response.content.decode()
     assert state() == before
@@ -526,7 +526,7 @@ def test_import_moves_a_cited_position_to_another_fluid_without_re_pointing_its_
     assert plan.applied, plan.errors
     old = DutyPeriod.objects.get(pk=world["duty"].pk)
     assert (old.fluid_id, old.since, old.until is not None) == (world["fluid"].pk, SINCE, True)
-    assert world["meter"].duties.get(until__isnull=True).fluid_id == brine.pk
+    assert world["device"].duties.get(until__isnull=True).fluid_id == brine.pk
     event = CalibrationEvent.objects.get(pk=world["event"].pk)
     assert event.position_id == world["position"].pk and list(event.reference_standards.all()) == [world["standard"]]
 

@@ -68,8 +68,8 @@ def tech_client(tech):
 
 
 @pytest.fixture
-def draft(tech_client, meter, standard):  # noqa: F811
-    assert tech_client.post(f"/positions/{meter.tag}/calibrate/", entry_data(standard)).status_code == 302
+def draft(tech_client, device, standard):  # noqa: F811
+    assert tech_client.post(f"/positions/{device.tag}/calibrate/", entry_data(standard)).status_code == 302
     return CalibrationEvent.objects.get()
 
 
@@ -153,9 +153,9 @@ def test_a_countersignature_the_database_fails_under_saves_nothing(tech_client, 
     assert not Countersignature.objects.exists()
 
 
-def test_a_maintenance_sign_off_the_database_fails_under_saves_nothing(tech_client, tech, meter):  # noqa: F811
-    task = MaintenanceTask.objects.filter(meter=meter).first()
-    record = MaintenanceRecord.objects.create(meter=meter, task=task, performed_on=meter.position.area.site.today(),
+def test_a_maintenance_sign_off_the_database_fails_under_saves_nothing(tech_client, tech, device):  # noqa: F811
+    task = MaintenanceTask.objects.filter(device=device).first()
+    record = MaintenanceRecord.objects.create(device=device, task=task, performed_on=device.position.area.site.today(),
                                               technician="T", condition="clean", action="looked", minutes_spent=5,
                                               created_by=tech)
     due_before = MaintenanceTask.objects.get(pk=task.pk).next_due_date

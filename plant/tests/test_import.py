@@ -7,7 +7,7 @@ from django.core.files.uploadedfile import SimpleUploadedFile
 from django.urls import reverse
 
 from plant import importer
-from plant.models import Area, DutyPeriod, Fluid, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Device, Position, Site
 from plant.installations import commission
 
 pytestmark = pytest.mark.django_db
@@ -61,7 +61,7 @@ def csv_bytes(*lines, header=METER_HEADER):
 
 
 def counts():
-    return (Site.objects.count(), Area.objects.count(), Fluid.objects.count(), Meter.objects.count(),
+    return (Site.objects.count(), Area.objects.count(), Fluid.objects.count(), Device.objects.count(),
             DutyPeriod.objects.count())
 
 
@@ -93,7 +93,7 @@ def test_dry_run_plans_creates_and_updates_and_saves_nothing(register):
     assert plan.rows[2].notes == ["creates site South", "creates area South / Pump house"]
     assert plan.counts == {"create": 2, "update": 1, "unchanged": 1}
     assert counts() == before
-    assert Meter.objects.get(position__tag="FT-101").range_max == 40
+    assert Device.objects.get(position__tag="FT-101").range_max == 40
 
 
 def test_bad_rows_reported_at_row_and_column_with_model_messages(register):
@@ -124,7 +124,7 @@ def test_bad_rows_reported_at_row_and_column_with_model_messages(register):
     result = importer.apply_import(plan)
     assert not result.applied
     assert counts() == before
-    assert not Meter.objects.filter(position__tag__startswith="FT-30").exists()
+    assert not Device.objects.filter(position__tag__startswith="FT-30").exists()
 
 
 def test_missing_required_columns_is_one_error(register):
@@ -150,14 +150,14 @@ def test_good_file_applies_everything(register):
     plan = plan_for(good_file())
     result = importer.apply_import(plan)
     assert result.applied and result.counts == {"create": 2, "update": 1, "unchanged": 1}
-    moved = Meter.objects.get(position__tag="FT-101")
+    moved = Device.objects.get(position__tag="FT-101")
     assert (moved.fluid.name, moved.range_max) == ("Brine", 60)
     assert list(moved.duties.order_by("id").values_list("fluid__name", flat=True)) == ["Water", "Brine"]
-    new = Meter.objects.get(position__tag="FT-200")
+    new = Device.objects.get(position__tag="FT-200")
     assert (new.area.site.name, new.area.name) == ("South", "Pump house")
-    assert Meter.objects.get(position__tag="FT-201").principle == "coriolis"
-    assert Meter.objects.get(position__tag="FT-201").min_flow is None
-    assert Meter.objects.count() == 4
+    assert Device.objects.get(position__tag="FT-201").principle == "coriolis"
+    assert Device.objects.get(position__tag="FT-201").min_flow is None
+    assert Device.objects.count() == 4
 
 
 @pytest.mark.parametrize("failing", ["update", "bulk write", "recompute"])
@@ -178,7 +178,7 @@ def test_failure_mid_apply_rolls_back_everything(register, monkeypatch, failing)
     plan = plan_for(content)
     assert plan.ok and plan.counts["create"] == 3
     if failing == "update":
-        monkeypatch.setattr(Meter, "save", fail)
+        monkeypatch.setattr(Device, "save", fail)
     elif failing == "bulk write":  # the fourth table written in bulk (after positions and devices)
         original, calls = importer._insert, []
 
@@ -197,7 +197,7 @@ def test_failure_mid_apply_rolls_back_everything(register, monkeypatch, failing)
         importer.apply_import(plan)
     monkeypatch.undo()
     assert counts() == before
-    assert Meter.objects.get(position__tag="FT-100").serial == "SN1"
+    assert Device.objects.get(position__tag="FT-100").serial == "SN1"
     assert not Site.objects.filter(name="West").exists()
     assert not Position.objects.filter(tag__startswith="FT-40").exists()
 
@@ -261,7 +261,7 @@ def test_view_dry_run_shows_plan_and_saves_nothing(register, logged_in_client):
     assert response.status_code == 200
     assert response.context["plan"].applied
     assert "Imported meters.csv" in response.content.decode()
-    assert Meter.objects.filter(position__tag__in=["FT-200", "FT-201"]).count() == 2
+    assert Device.objects.filter(position__tag__in=["FT-200", "FT-201"]).count() == 2
     # applied: no longer kept
     response = logged_in_client.post(reverse("plant:import"), {"kind": "meters", "token": token})
     assert response.status_code == 400
@@ -285,7 +285,7 @@ def test_view_apply_shows_counts(register, logged_in_client):
     assert response.status_code == 200
     assert response.context["plan"].counts == {"create": 2, "update": 1, "unchanged": 1}
     assert "Imported meters.csv" in response.content.decode()
-    assert Meter.objects.count() == 4
+    assert Device.objects.count() == 4
 
 
 def test_view_rejects_unknown_file_type(logged_in_client):
@@ -318,6 +318,6 @@ def test_wetted_material_label_and_code_import_as_the_code(register):
         meter_line("FT-303", wetted_material="TITANIUM", material_details="grade 2"),
     )))
     assert plan.applied, plan.errors
-    assert Meter.objects.get(position__tag="FT-302").wetted_material == "alloy C-276"
-    assert (Meter.objects.get(position__tag="FT-303").wetted_material, Meter.objects.get(position__tag="FT-303").material_details) == (
+    assert Device.objects.get(position__tag="FT-302").wetted_material == "alloy C-276"
+    assert (Device.objects.get(position__tag="FT-303").wetted_material, Device.objects.get(position__tag="FT-303").material_details) == (
         "titanium", "grade 2")

@@ -7,7 +7,7 @@ from django.test.utils import CaptureQueriesContext
 from scheduling.fleet import recompute_due_dates
 from maintenance.models import MaintenanceTask
 from plant import importer
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site
 from tests.helpers import row
 
 pytestmark = [pytest.mark.django_db, pytest.mark.small_world("import")]
@@ -67,8 +67,8 @@ def _one_by_one(values):
     form = importer.RegisterRowForm(data=data, instance=importer.RegisterRow())
     assert form.is_valid(), form.errors
     device = form.save().device
-    recompute_due_dates(Meter.objects.filter(pk=device.pk))
-    return Meter.objects.get(pk=device.pk)
+    recompute_due_dates(Device.objects.filter(pk=device.pk))
+    return Device.objects.get(pk=device.pk)
 
 
 def _written(device):
@@ -76,21 +76,21 @@ def _written(device):
     skip = {"id", "position", "tag", "serial"}
     position = device.position
     return {
-        "device": {f.attname: getattr(device, f.attname) for f in Meter._meta.concrete_fields if f.name not in skip},
+        "device": {f.attname: getattr(device, f.attname) for f in Device._meta.concrete_fields if f.name not in skip},
         "position": {f.attname: getattr(position, f.attname) for f in Position._meta.concrete_fields
                      if f.name not in skip},
         "installations": list(Installation.objects.filter(device=device)
                               .values_list("since", "until", "starting_point", "removal_reason")),
-        "duties": list(DutyPeriod.objects.filter(meter=device).values_list("area_id", "fluid_id", "since", "until")),
+        "duties": list(DutyPeriod.objects.filter(device=device).values_list("area_id", "fluid_id", "since", "until")),
         # (the one-by-one path saves the device as a spare first, so its tasks are first derived from the principle
         # alone and then changed by the duty, "Duty changed: ..."; the bulk path writes them once from the duty,
         # "Called for by the duty: ...": the reasons are compared below, not here)
-        "tasks": sorted(MaintenanceTask.objects.filter(meter=device).values_list(
+        "tasks": sorted(MaintenanceTask.objects.filter(device=device).values_list(
             "code", "title", "reason", "basis", "origin", "base_days", "severity_factor", "start_days", "since",
             "active", "frequency_days", "next_due_date")),
         "position audit": list(Position.history.filter(id=position.pk).values_list("history_type", "area_id")),
         "installation audit": list(Installation.history.filter(device_id=device.pk).values_list("history_type")),
-        "device audit, last": list(Meter.history.filter(id=device.pk).order_by("-history_id")
+        "device audit, last": list(Device.history.filter(id=device.pk).order_by("-history_id")
                                    .values_list("status", "principle", "range_max")[:1]),
     }
 
@@ -101,19 +101,19 @@ def test_new_rows_written_in_bulk_are_those_the_one_by_one_path_writes(plant, dj
     result = importer.apply_import(importer.plan_import("meters", new_rows), user=user)
     assert result.applied, result.errors
     for n, values in enumerate(new_rows):
-        bulk = Meter.objects.get(position__tag=values["tag"])
+        bulk = Device.objects.get(position__tag=values["tag"])
         reference = _one_by_one({**values, "tag": f"REF-{n:04d}", "serial": f"REF-{n}"})
         assert _written(bulk) == _written(reference), values["tag"]
         assert bulk.serial == values["serial"] and bulk.status == "in_service"
         assert bulk.risk_severity == reference.risk_severity  # due fields: compared above (never calibrated: none)
         assert Installation.objects.get(device=bulk).installed_by == user
-        tasks = MaintenanceTask.objects.filter(meter=bulk)
-        assert sorted(MaintenanceTask.history.filter(meter_id=bulk.pk).values_list("code", "history_type")) == sorted(
+        tasks = MaintenanceTask.objects.filter(device=bulk)
+        assert sorted(MaintenanceTask.history.filter(device_id=bulk.pk).values_list("code", "history_type")) == sorted(
             (code, "+") for code in tasks.values_list("code", flat=True))
         for task in tasks:
             assert task.change_reason.startswith("Called for by the duty: " + task.title)
-        assert {h.history_user for h in Meter.history.filter(id=bulk.pk)} == {user}
-    assert MaintenanceTask.objects.filter(meter__position__tag__startswith="NEW-").exists()
+        assert {h.history_user for h in Device.history.filter(id=bulk.pk)} == {user}
+    assert MaintenanceTask.objects.filter(device__position__tag__startswith="NEW-").exists()
 
 
 def test_apply_writes_in_bulk_not_per_row(plant):
@@ -143,6 +143,6 @@ def test_a_changed_row_moves_its_position_to_an_area_the_file_creates(plant):
         row("FT-1", 2, principle="vortex", site="East", area="New hall", serial="OLD-1", fluid="Water")]))
     assert result.applied, result.errors
     assert result.rows[0].action == "update" and result.creates == ["site East", "area East / New hall"]
-    device = Meter.objects.get(position__tag="FT-1")
+    device = Device.objects.get(position__tag="FT-1")
     assert (device.area.site.name, device.area.name) == ("East", "New hall")
     assert list(device.duties.order_by("id").values_list("area__name", flat=True)) == ["Hall A", "New hall"]

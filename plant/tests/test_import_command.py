@@ -6,7 +6,7 @@ import pytest
 from django.core.management import CommandError, call_command
 
 from plant import importer
-from plant.models import Fluid, Meter, Position, Site
+from plant.models import Fluid, Device, Position, Site
 from tests.helpers import row
 
 pytestmark = [pytest.mark.django_db, pytest.mark.small_world("import")]
@@ -37,8 +37,8 @@ def test_apply_saves_every_row(plant, tmp_path, django_user_model):
     path = write_csv(tmp_path / "register.csv", [row("NEW-1", 0), row("NEW-2", 1)])
     out, _ = run(path, "--user", "loader")
     assert "Imported register.csv (meters): 2 created, 0 changed, 0 unchanged." in out
-    assert Meter.objects.filter(position__tag__in=["NEW-1", "NEW-2"], status="in_service").count() == 2
-    audit = Meter.history.filter(id=Meter.objects.get(position__tag="NEW-1").pk)
+    assert Device.objects.filter(position__tag__in=["NEW-1", "NEW-2"], status="in_service").count() == 2
+    audit = Device.history.filter(id=Device.objects.get(position__tag="NEW-1").pk)
     assert audit.exists() and {h.history_user.username for h in audit} == {"loader"}
 
 

@@ -31,10 +31,10 @@ def test_migration_maps_existing_meters_and_keeps_the_text():
     site = old.get_model("plant", "Site").objects.create(name="S")
     area = old.get_model("plant", "Area").objects.create(site=site, name="A")
     fluid = old.get_model("plant", "Fluid").objects.create(name="Brine", phase="liquid")
-    Meter = old.get_model("plant", "Meter")
+    Device = old.get_model("plant", "Meter")
     rows = {"M-1": "316L", "M-2": "Hastelloy C", "M-3": "PTFE liner, Hastelloy C", "M-4": "", "M-5": "ss 316l"}
     for tag, text in rows.items():
-        Meter.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+        Device.objects.create(tag=tag, principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                              internal_diameter_mm=50, range_max=10, mpe_value=0.5, wetted_material=text)
     executor = MigrationExecutor(connection)
     executor.migrate([AFTER])

@@ -15,7 +15,7 @@ from django.db.migrations.executor import MigrationExecutor
 from calibration.models import CalibrationEvent
 from plant import installations
 from plant.installations import InstallationError, Removal
-from plant.models import DutyPeriod, Installation, Meter, Position
+from plant.models import DutyPeriod, Installation, Device, Position
 from reports import certificate, review
 from tests.helpers import user_with_role
 
@@ -28,7 +28,7 @@ def technician(demo_maintenance):
 
 
 def spare(serial):
-    return Meter.objects.get(serial=serial, position__isnull=True)
+    return Device.objects.get(serial=serial, position__isnull=True)
 
 
 def swap_page(client, tag, **data):
@@ -51,8 +51,8 @@ def test_swap_keeps_each_devices_history_apart(client, technician):
     position.refresh_from_db()
     old.refresh_from_db()
     new.refresh_from_db()
-    assert position.installed_device() == new and new.status == Meter.Status.IN_SERVICE
-    assert old.position is None and old.status == Meter.Status.SPARE
+    assert position.installed_device() == new and new.status == Device.Status.IN_SERVICE
+    assert old.position is None and old.status == Device.Status.SPARE
     # each device keeps its own records; none moved to the other
     assert set(old.calibrations.values_list("pk", flat=True)) == old_events
     assert set(new.calibrations.values_list("pk", flat=True)) == bench
@@ -82,11 +82,11 @@ def test_a_calibration_after_the_swap_belongs_to_the_new_device(client, technici
     old = position.installed_device()
     new = spare("SN730118")
     installations.swap(position, new, DEMO_TODAY, "electrode coated", technician)
-    event = CalibrationEvent.objects.create(meter=position.installed_device(), performed_on=DEMO_TODAY,
+    event = CalibrationEvent.objects.create(device=position.installed_device(), performed_on=DEMO_TODAY,
                                             technician="T", procedure="p")
-    assert event.meter == new and event.position == position
+    assert event.device == new and event.position == position
     # an entry backdated to when the old device was there is recorded at that position for the old device
-    earlier = CalibrationEvent.objects.create(meter=old, performed_on=dt.date(2025, 6, 1), technician="T",
+    earlier = CalibrationEvent.objects.create(device=old, performed_on=dt.date(2025, 6, 1), technician="T",
                                               procedure="p")
     assert earlier.position == position
 
@@ -96,7 +96,7 @@ def test_refusals_change_nothing(client, technician):
     position = Position.objects.get(tag="FT-204")
     old = position.installed_device()
     never = spare("SN730342")
-    before = (Installation.objects.count(), DutyPeriod.objects.count(), Meter.objects.filter(position=position).get())
+    before = (Installation.objects.count(), DutyPeriod.objects.count(), Device.objects.filter(position=position).get())
     # a spare never calibrated may not go in
     response = swap_page(client, "FT-204", device=never.pk, on_date="2026-12-04", reason="worn",
                          removed_to=Removal.SHELF)
@@ -111,7 +111,7 @@ def test_refusals_change_nothing(client, technician):
     response = swap_page(client, "FT-204", device=elsewhere.pk, on_date="2026-12-04", reason="worn",
                          removed_to=Removal.SHELF)
     assert response.status_code == 400 and "not a spare on the shelf any more" in response.content.decode()
-    after = (Installation.objects.count(), DutyPeriod.objects.count(), Meter.objects.filter(position=position).get())
+    after = (Installation.objects.count(), DutyPeriod.objects.count(), Device.objects.filter(position=position).get())
     assert after == before and after[2] == old
 
 
@@ -129,11 +129,11 @@ def test_overdue_spare_is_refused_until_calibrated_on_the_bench(technician):
 def test_brand_new_device_and_retiring_the_old_one(technician):
     position = Position.objects.get(tag="FT-204")
     old = position.installed_device()
-    fresh = Meter.objects.create(principle="electromagnetic", range_min=0, range_max=30, flow_units="m3/h",
-                                 serial="SN-NEW-1", mpe_value=0.5, status=Meter.Status.SPARE)
+    fresh = Device.objects.create(principle="electromagnetic", range_min=0, range_max=30, flow_units="m3/h",
+                                 serial="SN-NEW-1", mpe_value=0.5, status=Device.Status.SPARE)
     installations.swap(position, fresh, DEMO_TODAY, "liner failed", technician, to=Removal.RETIRED, brand_new=True)
     old.refresh_from_db()
-    assert old.status == Meter.Status.REMOVED and old.position is None
+    assert old.status == Device.Status.REMOVED and old.position is None
     assert position.installed_device() == fresh
     with pytest.raises(InstallationError, match="retired"):
         installations.install(old, Position.objects.get(tag="FT-115"), DEMO_TODAY, technician)
@@ -152,7 +152,7 @@ def test_review_lists_overdue_positions_spares_and_vacant_positions(client, demo
 
 
 def test_certificate_names_device_and_position(demo_maintenance):
-    moved = Meter.objects.get(position__tag="FT-305")
+    moved = Device.objects.get(position__tag="FT-305")
     at_305 = moved.calibrations.filter(state="signed", position__tag="FT-305").first()
     html = certificate.certificate_html(certificate.load_event(at_305.pk))
     assert f"{moved.serial} (register device #{moved.pk})" in html
@@ -163,7 +163,7 @@ def test_certificate_names_device_and_position(demo_maintenance):
 
 
 def test_moved_device_history_shows_both_positions(client, demo_maintenance):
-    moved = Meter.objects.get(position__tag="FT-305")
+    moved = Device.objects.get(position__tag="FT-305")
     page = client.get(f"/devices/{moved.pk}/").content.decode()
     assert "FT-115" in page and "FT-305" in page and "moved to the syrup kitchen" in page
     tags = set(moved.calibrations.values_list("position__tag", flat=True))
@@ -202,41 +202,41 @@ def test_migration_turns_each_meter_into_a_position_and_a_device():
     executor = MigrationExecutor(connection)
     executor.migrate(BEFORE)
     old = executor.loader.project_state(BEFORE).apps
-    meters = [r for r in _load_old(old, "demo_plant") if r["model"] == "plant.meter"]
+    devices = [r for r in _load_old(old, "demo_plant") if r["model"] == "plant.device"]
     events = [r for r in _load_old(old, "demo_history") if r["model"] == "calibration.calibrationevent"]
     # the old demo standards said "per meter's units", which the unit migration (calibration 0006) refuses,
     # naming them; corrected here as a reviewer would before migrating
     old.get_model("calibration", "ReferenceStandard").objects.update(units="m³/h")
     signed_before = {r["pk"]: r["fields"]["signed_at"] for r in events}
-    OldMeter = old.get_model("plant", "Meter")
-    OldMeter.objects.filter(pk=meters[-1]["pk"]).update(status="spare")  # one on the shelf before the change
+    OldDevice = old.get_model("plant", "Meter")
+    OldDevice.objects.filter(pk=devices[-1]["pk"]).update(status="spare")  # one on the shelf before the change
     executor = MigrationExecutor(connection)
     executor.loader.build_graph()
     executor.migrate(AFTER)
     new = executor.loader.project_state(AFTER).apps
     Position_, Meter_ = new.get_model("plant", "Position"), new.get_model("plant", "Meter")
     Event_, Installation_ = new.get_model("calibration", "CalibrationEvent"), new.get_model("plant", "Installation")
-    assert Position_.objects.count() == Meter_.objects.count() == len(meters)
-    for row in meters:
+    assert Position_.objects.count() == Meter_.objects.count() == len(devices)
+    for row in devices:
         position = Position_.objects.get(pk=row["pk"])
         assert position.tag == row["fields"]["tag"]
         assert position.area_id == row["fields"]["area"] and position.fluid_id == row["fields"]["fluid"]
         assert position.normal_flow == row["fields"]["normal_flow"]
     installed = Meter_.objects.filter(position__isnull=False).count()
-    assert installed == len(meters) - 1
+    assert installed == len(devices) - 1
     assert Installation_.objects.filter(until__isnull=True).count() == installed
-    assert Installation_.objects.filter(until__isnull=False, device_id=meters[-1]["pk"]).count() == 1
+    assert Installation_.objects.filter(until__isnull=False, device_id=devices[-1]["pk"]).count() == 1
     # every calibration kept, signed as before, at the position its meter became
     assert Event_.objects.count() == len(events)
     for event in Event_.objects.all():
-        assert event.position_id == event.meter_id
+        assert event.position_id == event.device_id
         assert (event.signed_at.isoformat().replace("+00:00", "Z") if event.signed_at else None) \
             == signed_before[event.pk]
     # ids go on from the last one on PostgreSQL too: a new position gets a fresh id
     area = new.get_model("plant", "Area").objects.first()
     fluid = new.get_model("plant", "Fluid").objects.first()
     fresh = Position_.objects.create(tag="FT-NEW", area=area, fluid=fluid, line_size="DN50", internal_diameter_mm=50)
-    assert fresh.pk > max(r["pk"] for r in meters)
+    assert fresh.pk > max(r["pk"] for r in devices)
     executor = MigrationExecutor(connection)
     executor.loader.build_graph()
     call_command("migrate", verbosity=0)  # to the latest, for the next tests (flushed by transaction=True)

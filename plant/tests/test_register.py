@@ -11,7 +11,7 @@ from django.db import connection
 from calibration.intervals import whole_days
 from plant.forms import FluidForm
 from plant.importer import RegisterRow, RegisterRowForm
-from plant.models import Area, DutyPeriod, Fluid, Meter, Site
+from plant.models import Area, DutyPeriod, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import user_with_role
 
@@ -56,7 +56,7 @@ def test_min_flow_above_range_rejected_at_field(site_area_fluid):
     form = new_row(meter_data(area, fluid, min_flow=55, normal_flow=None))
     assert not form.is_valid()
     assert "above the calibrated range high (40 m³/h)" in form.errors["min_flow"][0]
-    assert Meter.objects.count() == 0
+    assert Device.objects.count() == 0
     assert DutyPeriod.objects.count() == 0
 
 
@@ -68,7 +68,7 @@ def test_duplicate_tag_rejected_at_field(site_area_fluid):
     form = new_row(meter_data(area, fluid))
     assert not form.is_valid()
     assert form.errors["tag"] == ["A position with this tag already exists."]
-    assert Meter.objects.count() == 1
+    assert Device.objects.count() == 1
     assert DutyPeriod.objects.count() == 1
 
 
@@ -76,17 +76,17 @@ def test_duty_change_is_kept_in_history(site_area_fluid):
     site, area, fluid = site_area_fluid
     form = new_row(meter_data(area, fluid))
     assert form.is_valid()
-    meter = form.save().device
+    device = form.save().device
     brine = Fluid.objects.create(name="Brine", phase="liquid", conductivity_us_cm=60000, chlorides=True)
-    position = meter.position
+    position = device.position
     position.fluid = brine  # the duty is the position's: the device installed there serves the new one
     position.save()
-    duties = list(meter.duties.order_by("id"))
+    duties = list(device.duties.order_by("id"))
     assert [d.fluid.name for d in duties] == ["Water", "Brine"]
     assert duties[0].until is not None and duties[1].until is None
-    meter.serial = "SN-CHANGED"  # a save that is not a duty change adds no period
-    meter.save()
-    assert meter.duties.count() == 2
+    device.serial = "SN-CHANGED"  # a save that is not a duty change adds no period
+    device.save()
+    assert device.duties.count() == 2
 
 
 def test_effective_interval_uses_smallest_factor(site_area_fluid):
@@ -94,17 +94,17 @@ def test_effective_interval_uses_smallest_factor(site_area_fluid):
     brine = Fluid.objects.create(name="Brine", phase="liquid", conductivity_us_cm=60000, chlorides=True)
     form = new_row(meter_data(area, brine, wetted_material="316L"))
     assert form.is_valid()
-    meter = Meter.objects.get(pk=form.save().device.pk)
-    findings = meter.findings()
+    device = Device.objects.get(pk=form.save().device.pk)
+    findings = device.findings()
     assert findings, "EM with stainless electrodes on brine must be flagged"
     factor = min(f.interval_factor for f in findings)
-    assert meter.effective_interval_days() == whole_days(365 * factor)  # the one rounding rule, halves up
+    assert device.effective_interval_days() == whole_days(365 * factor)  # the one rounding rule, halves up
 
 
 def test_demo_plant_size_and_mix(demo_plant):
-    assert Meter.objects.count() >= 40
+    assert Device.objects.count() >= 40
     assert Fluid.objects.count() >= 8
-    severities = {tag: {f.severity for f in m.findings()} for m in Meter.objects.filter(position__isnull=False).select_related("position__fluid") for tag in [m.tag]}
+    severities = {tag: {f.severity for f in m.findings()} for m in Device.objects.filter(position__isnull=False).select_related("position__fluid") for tag in [m.tag]}
     assert any("misapplied" in s for s in severities.values())
     assert any(not s for s in severities.values()), "some meters must be clean"
     assert any("high" in s for s in severities.values())
@@ -123,10 +123,10 @@ def test_meter_list_and_filters(client, demo_plant):
 
 
 def test_every_meter_page_renders(client, demo_plant):
-    for meter in Meter.objects.filter(position__isnull=False).select_related("position"):
-        response = client.get(f"/positions/{meter.tag}/")
-        assert response.status_code == 200, meter.tag
-        assert f"Base interval set for this meter: <strong>{meter.base_interval_days} days</strong>".encode() \
+    for device in Device.objects.filter(position__isnull=False).select_related("position"):
+        response = client.get(f"/positions/{device.tag}/")
+        assert response.status_code == 200, device.tag
+        assert f"Base interval set for this meter: <strong>{device.base_interval_days} days</strong>".encode() \
             in response.content  # never calibrated: due now, from the set base interval
 
 
@@ -160,16 +160,16 @@ def test_wetted_material_off_the_list_refused_at_field(site_area_fluid, text):
         commission(tag="FT-X", principle="coriolis", area=area, fluid=fluid, line_size="DN25",
                              internal_diameter_mm=26.6, range_max=8, mpe_value=0.2, wetted_material=text)
     assert "wetted_material" in refused.value.message_dict
-    assert Meter.objects.count() == 0 and DutyPeriod.objects.count() == 0
+    assert Device.objects.count() == 0 and DutyPeriod.objects.count() == 0
 
 
 def test_wetted_material_from_the_list_saved_with_details(site_area_fluid):
     _, area, fluid = site_area_fluid
     form = new_row(meter_data(area, fluid, wetted_material="alloy C-276", material_details="PTFE liner"))
     assert form.is_valid()
-    meter = form.save().device
-    assert (meter.wetted_material, meter.material_details) == ("alloy C-276", "PTFE liner")
-    assert meter.get_wetted_material_display() == "Nickel alloy C-276"
+    device = form.save().device
+    assert (device.wetted_material, device.material_details) == ("alloy C-276", "PTFE liner")
+    assert device.get_wetted_material_display() == "Nickel alloy C-276"
 
 
 # The register's columns (issue 15 item 9) -----------------------------------------------------------------------------
@@ -192,9 +192,9 @@ def small_register(site_area_fluid):
     commission(tag="FT-GOOD", **make)
     commission(tag="FT-BAD", **make)
     # the stored fields the due-date recompute keeps (tested in test_due_dates.py)
-    Meter.objects.filter(position__tag="FT-GOOD").update(next_due_date=dt.date(2027, 6, 1), last_calibrated=dt.date(2026, 6, 1),
+    Device.objects.filter(position__tag="FT-GOOD").update(next_due_date=dt.date(2027, 6, 1), last_calibrated=dt.date(2026, 6, 1),
                                                last_in_tolerance=True, drift_status="flat")
-    Meter.objects.filter(position__tag="FT-BAD").update(next_due_date=dt.date(2027, 1, 15), last_calibrated=dt.date(2026, 11, 1),
+    Device.objects.filter(position__tag="FT-BAD").update(next_due_date=dt.date(2027, 1, 15), last_calibrated=dt.date(2026, 11, 1),
                                               last_in_tolerance=False, drift_status="out_of_tolerance")
     return area, fluid
 
@@ -249,8 +249,8 @@ def test_overdue_due_dates_stand_out(client, small_register):
     # Due yesterday at the site is overdue, due tomorrow is not, never calibrated is due now. (The clock is not
     # moved: the login session would expire with it.)
     today = Site.objects.get().today()
-    Meter.objects.filter(position__tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
-    Meter.objects.filter(position__tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
+    Device.objects.filter(position__tag="FT-BAD").update(next_due_date=today - dt.timedelta(days=1))
+    Device.objects.filter(position__tag="FT-GOOD").update(next_due_date=today + dt.timedelta(days=1))
     body = client.get("/positions/").content.decode()
     marked = re.findall(r'<td class="nowrap overdue"[^>]*>\s*([^<]*?)\s*</td>', body)
     assert sorted(marked) == [(today - dt.timedelta(days=1)).isoformat(), "now (never calibrated)"]

@@ -2,7 +2,7 @@
 import pytest
 from django.test import Client
 
-from plant.models import Area, Fluid, Meter, Position, Site
+from plant.models import Area, Fluid, Device, Position, Site
 from plant.installations import commission
 from tests.helpers import user_with_role
 
@@ -10,7 +10,7 @@ pytestmark = pytest.mark.django_db
 
 
 @pytest.fixture
-def meter():
+def device():
     area = Area.objects.create(site=Site.objects.create(name="Edit site"), name="Hall")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=400)
     return commission(tag="FT-E1", principle="electromagnetic", area=area, fluid=water, line_size="DN50",
@@ -40,44 +40,44 @@ def form_data(instance, **changes):
     return {k: v for k, v in data.items() if v is not False}
 
 
-def test_reviewer_changes_the_interval_and_the_change_is_audited(reviewer, meter):
+def test_reviewer_changes_the_interval_and_the_change_is_audited(reviewer, device):
     # the interval is the device's: edited on the device, the page then shown is its position's
-    response = reviewer.post(f"/devices/{meter.pk}/edit/", form_data(meter, base_interval_days=180))
-    assert response.status_code == 302 and response["Location"] == f"/positions/{meter.tag}/"
-    meter.refresh_from_db()
-    assert meter.base_interval_days == 180
-    latest = meter.history.first()
+    response = reviewer.post(f"/devices/{device.pk}/edit/", form_data(device, base_interval_days=180))
+    assert response.status_code == 302 and response["Location"] == f"/positions/{device.tag}/"
+    device.refresh_from_db()
+    assert device.base_interval_days == 180
+    latest = device.history.first()
     assert latest.history_user.username == "reviewer"
     assert [(c.field, c.old, c.new) for c in latest.diff_against(latest.prev_record).changes] == [
         ("base_interval_days", 365, 180)]
 
 
-def test_bad_values_are_refused_at_the_field_and_nothing_is_saved(reviewer, meter):
-    before = Meter.objects.values().get(pk=meter.pk), Position.objects.values().get(pk=meter.position_id)
-    audit = meter.history.count(), meter.position.history.count()
+def test_bad_values_are_refused_at_the_field_and_nothing_is_saved(reviewer, device):
+    before = Device.objects.values().get(pk=device.pk), Position.objects.values().get(pk=device.position_id)
+    audit = device.history.count(), device.position.history.count()
     cases = [
-        (meter, {"base_interval_days": "0"}, "The interval must be at least one day."),
-        (meter, {"range_max": "abc"}, "Enter a number."),
-        (meter, {"mpe_value": "-1"}, "MPE must be greater than zero."),
-        (meter, {"range_max": "10", "range_min": "0"}, "is above the calibrated range high"),  # below FT-E1's flows
-        (meter.position, {"min_flow": "50", "normal_flow": "60"}, "is above the calibrated range high"),
-        (meter.position, {"min_flow": "-1"}, "A process flow cannot be negative."),
+        (device, {"base_interval_days": "0"}, "The interval must be at least one day."),
+        (device, {"range_max": "abc"}, "Enter a number."),
+        (device, {"mpe_value": "-1"}, "MPE must be greater than zero."),
+        (device, {"range_max": "10", "range_min": "0"}, "is above the calibrated range high"),  # below FT-E1's flows
+        (device.position, {"min_flow": "50", "normal_flow": "60"}, "is above the calibrated range high"),
+        (device.position, {"min_flow": "-1"}, "A process flow cannot be negative."),
     ]
     for instance, change, message in cases:
-        url = f"/positions/{meter.tag}/edit/" if isinstance(instance, Position) else f"/devices/{meter.pk}/edit/"
+        url = f"/positions/{device.tag}/edit/" if isinstance(instance, Position) else f"/devices/{device.pk}/edit/"
         response = reviewer.post(url, form_data(instance, **change))
         assert response.status_code == 400, change
         assert message in response.content.decode(), (change, message)
-    assert (Meter.objects.values().get(pk=meter.pk), Position.objects.values().get(pk=meter.position_id)) == before
-    assert (meter.history.count(), meter.position.history.count()) == audit  # nothing recorded
+    assert (Device.objects.values().get(pk=device.pk), Position.objects.values().get(pk=device.position_id)) == before
+    assert (device.history.count(), device.position.history.count()) == audit  # nothing recorded
 
 
-def test_fluid_change_rejudges_its_meters(reviewer, meter):
-    fluid = meter.fluid
+def test_fluid_change_rejudges_its_meters(reviewer, device):
+    fluid = device.fluid
     response = reviewer.post(f"/fluids/{fluid.pk}/edit/", form_data(fluid, conductivity_us_cm="0.5"))
     assert response.status_code == 302
-    assert Meter.objects.get(pk=meter.pk).risk_severity == "misapplied"
-    page = reviewer.get(f"/positions/{meter.tag}/").content.decode()
+    assert Device.objects.get(pk=device.pk).risk_severity == "misapplied"
+    page = reviewer.get(f"/positions/{device.tag}/").content.decode()
     assert "Liquid too poorly conductive for a magnetic meter" in page  # EM_LOW_CONDUCTIVITY, in plain words
     assert "Not fit for this duty: replace or re-engineer." in page
     response = reviewer.post(f"/fluids/{fluid.pk}/edit/", form_data(fluid, conductivity_us_cm="-3"))

@@ -17,7 +17,7 @@ from hypothesis import given, settings as hypothesis_settings, strategies as st
 
 from calibration.models import CalibrationEvent
 from plant import importer, spreadsheet
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import url_patterns
 
@@ -80,11 +80,11 @@ def hostile_register(db):
     area = Area.objects.create(site=site, name="-Hall")
     fluid = Fluid.objects.create(name="=HYPERLINK(\"http://example.invalid\")", phase="liquid",
                                  conductivity_us_cm=500, temperature_c=-5.5, notes="+SUM(A1)\nsecond line")
-    meter = commission(tag="=1+1", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+    device = commission(tag="=1+1", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                                  internal_diameter_mm=52.5, range_min=-10, range_max=40, mpe_value=0.5,
                                  mpe_basis="pct_reading", wetted_material="316L", serial="-2+3+cmd|' /C calc'!A0",
                                  maker="@maker", model="'=already quoted")
-    return meter
+    return device
 
 
 def csv_cells(content: bytes):
@@ -154,10 +154,10 @@ def test_import_of_a_hand_made_file_keeps_an_ordinary_apostrophe(db):
 
 def test_review_csv_is_neutralised(hostile_register, client):
     today = timezone.localdate()
-    Meter.objects.filter(pk=hostile_register.pk).update(
+    Device.objects.filter(pk=hostile_register.pk).update(
         next_due_date=today - dt.timedelta(days=3), predicted_crossing=today - dt.timedelta(days=10),
         drift_status="drifting", drift_rate_per_year=-0.25, last_in_tolerance=False)
-    CalibrationEvent.objects.create(meter=hostile_register, performed_on=today, technician="=cmd|'/C calc'!A0",
+    CalibrationEvent.objects.create(device=hostile_register, performed_on=today, technician="=cmd|'/C calc'!A0",
                                     procedure="p")
     for key in ("overdue", "drifting", "failed", "drafts"):
         response = client.get(reverse("reports:review"), {"export": key})
@@ -197,24 +197,24 @@ def hostile_everywhere(db, admin_user):
     area = Area.objects.create(site=site, name="+Hall 2")
     fluid = Fluid.objects.create(name="-Brine @ 3 %", phase="liquid", conductivity_us_cm=5000, chlorides=True,
                                  temperature_c=20)
-    meter = commission(tag="@FT-9", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+    device = commission(tag="@FT-9", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                        internal_diameter_mm=52.5, range_min=0, range_max=40, mpe_value=0.5,
                        mpe_basis="pct_reading", wetted_material="316L", serial="+SN 77", maker="@maker",
                        model="=M1")
-    task = MaintenanceTask.objects.create(meter=meter, code="CUSTOM", title="=Rod out the ports", reason="+fouling",
+    task = MaintenanceTask.objects.create(device=device, code="CUSTOM", title="=Rod out the ports", reason="+fouling",
                                           origin=MaintenanceTask.Origin.REVIEWER, base_days=30)
     today = site.today()
-    record = MaintenanceRecord.objects.create(meter=meter, task=task, performed_on=today, technician="=tech",
+    record = MaintenanceRecord.objects.create(device=device, task=task, performed_on=today, technician="=tech",
                                               condition="heavy_deposit", action="-rodded", minutes_spent=20,
                                               created_by=admin_user)
     record.sign(by="@signer")
-    MaintenanceTask.objects.filter(meter=meter).update(next_due_date=today - dt.timedelta(days=2))
-    CalibrationEvent.objects.create(meter=meter, performed_on=today, technician="@cal tech", procedure="=p")
-    Meter.objects.filter(pk=meter.pk).update(
+    MaintenanceTask.objects.filter(device=device).update(next_due_date=today - dt.timedelta(days=2))
+    CalibrationEvent.objects.create(device=device, performed_on=today, technician="@cal tech", procedure="=p")
+    Device.objects.filter(pk=device.pk).update(
         next_due_date=today - dt.timedelta(days=3), predicted_crossing=today - dt.timedelta(days=10),
         drift_status="drifting", drift_rate_per_year=-0.25, last_in_tolerance=False)
-    return {"meter": meter, "ids": [meter.pk, fluid.pk, area.pk, site.pk, task.pk, record.pk,
-                                    CalibrationEvent.objects.get(meter=meter).pk]}
+    return {"device": device, "ids": [device.pk, fluid.pk, area.pk, site.pk, task.pk, record.pk,
+                                    CalibrationEvent.objects.get(device=device).pk]}
 
 
 def concrete_urls(route, tag, ids):
@@ -256,7 +256,7 @@ def test_every_export_of_the_site_writes_no_formula(hostile_everywhere, client):
     from django.urls import resolve
     from urllib.parse import quote
 
-    tag = quote(hostile_everywhere["meter"].position.tag)
+    tag = quote(hostile_everywhere["device"].position.tag)
     seen, exports = set(), {}
 
     def fetch(url):

@@ -10,7 +10,7 @@ from django.core.management import call_command
 
 from plant import fit, installations
 from plant.installations import InstallationError, Removal
-from plant.models import Installation, Meter, Position
+from plant.models import Installation, Device, Position
 from tests.helpers import user_with_role
 
 
@@ -21,7 +21,7 @@ def oil(demo_maintenance):
 
 
 def em_spare():
-    return Meter.objects.get(serial="SN730118", position__isnull=True)
+    return Device.objects.get(serial="SN730118", position__isnull=True)
 
 
 def swap(client, device, **extra):
@@ -33,7 +33,7 @@ def nothing_moved(position, old, spare, installations_before):
     position.refresh_from_db()
     spare.refresh_from_db()
     assert position.installed_device() == old
-    assert spare.position is None and spare.status == Meter.Status.SPARE
+    assert spare.position is None and spare.status == Device.Status.SPARE
     assert Installation.objects.count() == installations_before
 
 

@@ -9,7 +9,7 @@ from django.urls import reverse
 from django.utils import timezone
 
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from plant.models import Meter
+from plant.models import Device
 from reports.certificate import DEFAULT_LAB, certificate_number, drift_history
 from reports.charts import drift_chart_svg
 from tests.helpers import at, certificate_entry_data as entry_data, enter, flat, has, pdf_text, sign
@@ -70,16 +70,16 @@ def test_certificate_contains_every_required_element(client, signed_event, stand
     # ISO/IEC 17025:2017 §7.8.2.1 k: the technician signs off; the authoriser is a reviewer who countersigns
     assert has(text, "Signed off by", "B. Signatory (Technician), 2026-11-23")
     assert has(text, "Authorised by", "— (not yet countersigned by a reviewer)")
-    assert f"Drift history of device S/N {signed_event.meter.serial}" in text
+    assert f"Drift history of device S/N {signed_event.device.serial}" in text
     assert "supersedes" not in text
     assert f"End of certificate {number}" in text
 
 
-def test_lab_identity_comes_from_settings_at_sign_off(client, meter, standard, settings, monkeypatch):
+def test_lab_identity_comes_from_settings_at_sign_off(client, device, standard, settings, monkeypatch):
     """The laboratory named is the one of the settings when the record was signed (ISO/IEC 17025:2017 §7.8.2.1 b);
     a later change of the settings does not reach an issued certificate."""
     settings.CALIBRATION_LAB = {"name": "Test Lab Ltd", "address": "9 Test Road, Testville"}
-    event = sign(client, enter(client, meter, standard), at(TODAY), monkeypatch)
+    event = sign(client, enter(client, device, standard), at(TODAY), monkeypatch)
     _, text = pdf_text(client.get(f"/calibrations/{event.pk}/certificate.pdf").content)
     assert "Test Lab Ltd" in text and "9 Test Road, Testville" in text
     assert DEFAULT_LAB["name"] not in text
@@ -88,15 +88,15 @@ def test_lab_identity_comes_from_settings_at_sign_off(client, meter, standard, s
     assert again == text
 
 
-def test_draft_has_no_certificate(client, meter, standard):
-    draft = enter(client, meter, standard)
+def test_draft_has_no_certificate(client, device, standard):
+    draft = enter(client, device, standard)
     assert client.get(f"/calibrations/{draft.pk}/certificate.pdf").status_code == 404
     assert client.get("/calibrations/999999/certificate.pdf").status_code == 404
 
 
-def test_out_of_tolerance_guarded_and_no_adjustment(client, meter, standard, monkeypatch):
+def test_out_of_tolerance_guarded_and_no_adjustment(client, device, standard, monkeypatch):
     found = [(10, 10.05), (20, 20.2)]
-    event = enter(client, meter, standard, found=found, **{"ev-decision_rule": "guarded"})
+    event = enter(client, device, standard, found=found, **{"ev-decision_rule": "guarded"})
     sign(client, event, at(TODAY), monkeypatch)
     _, raw = pdf_text(client.get(f"/calibrations/{event.pk}/certificate.pdf").content)
     text = flat(raw)
@@ -107,9 +107,9 @@ def test_out_of_tolerance_guarded_and_no_adjustment(client, meter, standard, mon
     assert "no adjustment was made, so the as-left condition is the as-found condition" in text
 
 
-def test_correction_says_what_it_supersedes(client, meter, standard, signed_event, monkeypatch):
+def test_correction_says_what_it_supersedes(client, device, standard, signed_event, monkeypatch):
     correction = CalibrationEvent.objects.create(
-        meter=meter, performed_on=TODAY, technician="A. Fieldtech", procedure="Re-entry of WI-CAL-07 results",
+        device=device, performed_on=TODAY, technician="A. Fieldtech", procedure="Re-entry of WI-CAL-07 results",
         supersedes=signed_event, created_by=signed_event.created_by,
         correction_reason="As-found indications entered against the wrong nominal points",
     )
@@ -126,13 +126,13 @@ def test_correction_says_what_it_supersedes(client, meter, standard, signed_even
     assert [row[0] for row in drift_history(correction)] == [TODAY]
 
 
-def test_drift_history_and_chart(client, meter, standard, monkeypatch):
-    first = sign(client, enter(client, meter, standard, performed_on=dt.date(2025, 11, 20),
+def test_drift_history_and_chart(client, device, standard, monkeypatch):
+    first = sign(client, enter(client, device, standard, performed_on=dt.date(2025, 11, 20),
                                found=[(10, 10.02), (20, 20.02)]), at(dt.date(2025, 11, 21)), monkeypatch)
-    second = sign(client, enter(client, meter, standard, performed_on=TODAY, adjusted=True,
+    second = sign(client, enter(client, device, standard, performed_on=TODAY, adjusted=True,
                                 found=[(10, 10.09), (20, 19.9)], left=[(10, 10.01), (20, 20.0)]),
                   at(TODAY), monkeypatch)
-    enter(client, meter, standard, performed_on=dt.date(2026, 11, 30))  # draft: not in the history
+    enter(client, device, standard, performed_on=dt.date(2026, 11, 30))  # draft: not in the history
     history = drift_history(second)
     assert [row[0] for row in history] == [first.performed_on, second.performed_on]
     assert history[0][1] == pytest.approx(0.2) and history[0][2] == pytest.approx(0.2)  # no as-left: as found
@@ -147,16 +147,16 @@ def test_drift_history_and_chart(client, meter, standard, monkeypatch):
         drift_chart_svg(history, 0, 300, 150)
 
 
-def test_zip_has_one_certificate_per_event_signed_in_range(client, meter, standard, monkeypatch):
-    before = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 10, 1)),
+def test_zip_has_one_certificate_per_event_signed_in_range(client, device, standard, monkeypatch):
+    before = sign(client, enter(client, device, standard, performed_on=dt.date(2026, 10, 1)),
                   at(dt.date(2026, 10, 2)), monkeypatch)
-    inside_a = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 11, 2)),
+    inside_a = sign(client, enter(client, device, standard, performed_on=dt.date(2026, 11, 2)),
                     at(dt.date(2026, 11, 3), hour=0), monkeypatch)
-    inside_b = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 11, 10)),
+    inside_b = sign(client, enter(client, device, standard, performed_on=dt.date(2026, 11, 10)),
                     at(dt.date(2026, 11, 30), hour=23), monkeypatch)
-    after = sign(client, enter(client, meter, standard, performed_on=dt.date(2026, 11, 30)),
+    after = sign(client, enter(client, device, standard, performed_on=dt.date(2026, 11, 30)),
                  at(dt.date(2026, 12, 1)), monkeypatch)
-    enter(client, meter, standard, performed_on=dt.date(2026, 11, 15))  # draft in range: no certificate
+    enter(client, device, standard, performed_on=dt.date(2026, 11, 15))  # draft in range: no certificate
     response = client.get("/certificates.zip?start=2026-11-03&end=2026-11-30")
     assert response.status_code == 200
     assert response["Content-Type"] == "application/zip"
@@ -241,8 +241,8 @@ def test_performed_by_authorised_by_and_countersignature(client, signed_event, m
     assert "Countersigned by Reviewer Tester (Reviewer)" in page
 
 
-def test_outside_contractor_is_marked(client, meter, standard, monkeypatch):
-    event = enter(client, meter, standard, **{"ev-contractor": "C. Outside, Flowfix Services"})
+def test_outside_contractor_is_marked(client, device, standard, monkeypatch):
+    event = enter(client, device, standard, **{"ev-contractor": "C. Outside, Flowfix Services"})
     assert event.performed_by is None and event.technician == "C. Outside, Flowfix Services"
     assert event.created_by.username == "b-signatory"
     sign(client, event, at(TODAY), monkeypatch)
@@ -260,7 +260,7 @@ def html_text(body):
     return flat(html.unescape(re.sub(r"<[^>]+>", " ", body)))
 
 
-def test_k_from_repeats_and_low_tur_on_certificate(client, meter, standard, monkeypatch, tmp_path):
+def test_k_from_repeats_and_low_tur_on_certificate(client, device, standard, monkeypatch, tmp_path):
     """Issue 17 item 1 and issue 15 item 5 on the certificate: k from the t distribution, TUR below 4:1 marked.
 
     Meter MPE 0.5 % of reading; point 20 m³/h with repeats 20.00, 20.04, 20.08 (indication 20.04, the mean):
@@ -273,7 +273,7 @@ def test_k_from_repeats_and_low_tur_on_certificate(client, meter, standard, monk
     <= MPE -> conditional pass (ILAC-G8 §4.2.2)."""
     found = [(20, "")]
     data = entry_data(standard, found=found, **{"ev-decision_rule": "guarded", "af-0-repeats": "20.00 20.04 20.08"})
-    response = client.post(f"/positions/{meter.tag}/calibrate/", data)
+    response = client.post(f"/positions/{device.tag}/calibrate/", data)
     assert response.status_code == 302, response.content.decode()[:3000]
     event = CalibrationEvent.objects.get()
     point = event.points.get()

@@ -7,7 +7,7 @@ import socket
 import pytest
 from pypdf import PdfReader
 
-from plant.models import Meter, Site
+from plant.models import Device, Site
 from reports import certificate, pdf_fetch
 from tests.helpers import user_with_role
 from tests.helpers import calibrate, guarded_standard as standard
@@ -59,15 +59,15 @@ def pdf_text(content):
 
 
 @pytest.mark.django_db
-def test_references_in_stored_values_are_printed_as_text_and_fetched_nowhere(meter, fetched, no_network):  # noqa: F811
-    Meter.objects.filter(pk=meter.pk).update(serial=LOCAL_IMAGE[:60], maker=REMOTE_IMAGE[:80], model=CSS_URL[:80])
-    Site.objects.filter(pk=meter.area.site_id).update(address=f"{REMOTE_SHEET}\n{CSS_IMPORT}")
-    event = calibrate(meter, standard(0.25), "simple", [0.5])
+def test_references_in_stored_values_are_printed_as_text_and_fetched_nowhere(device, fetched, no_network):  # noqa: F811
+    Device.objects.filter(pk=device.pk).update(serial=LOCAL_IMAGE[:60], maker=REMOTE_IMAGE[:80], model=CSS_URL[:80])
+    Site.objects.filter(pk=device.area.site_id).update(address=f"{REMOTE_SHEET}\n{CSS_IMPORT}")
+    event = calibrate(device, standard(0.25), "simple", [0.5])
     # notes, procedure and technician are free text typed by people; a signed record cannot be edited,
     # so the hostile values go in before signing through a fresh draft
     from calibration.models import CalibrationEvent, CalibrationPoint
 
-    draft = CalibrationEvent.objects.create(meter=meter, performed_on=event.performed_on, technician=LOCAL_IMAGE,
+    draft = CalibrationEvent.objects.create(device=device, performed_on=event.performed_on, technician=LOCAL_IMAGE,
                                             procedure=f"{REMOTE_IMAGE} {CSS_IMPORT}", notes=f"{LOCAL_IMAGE}\n{REMOTE_SHEET}",
                                             decision_rule="simple", created_by=user_with_role("technician", "t1"))
     draft.reference_standards.add(*event.reference_standards.all())

@@ -21,8 +21,8 @@ def expected_pc(point):
     return stats.norm.cdf((point.mpe - point.error) / u) - stats.norm.cdf((-point.mpe - point.error) / u)
 
 
-def test_signed_content_version_2_keeps_p_c_pfa_and_the_prior(client, meter, standard, monkeypatch):
-    event = sign(client, enter(client, meter, standard), at(dt.date(2026, 11, 23)), monkeypatch)
+def test_signed_content_version_2_keeps_p_c_pfa_and_the_prior(client, device, standard, monkeypatch):
+    event = sign(client, enter(client, device, standard), at(dt.date(2026, 11, 23)), monkeypatch)
     content = CalibrationEvent.objects.get(pk=event.pk).signed_content
     assert content["version"] == 2
     risks = content["conformity"]
@@ -57,13 +57,13 @@ def test_signed_content_version_2_keeps_p_c_pfa_and_the_prior(client, meter, sta
     assert "> 99.9 %" in text
 
 
-def test_weak_reference_gives_conformity_not_decided(client, meter, monkeypatch):
+def test_weak_reference_gives_conformity_not_decided(client, device, monkeypatch):
     """The issue's field finding: errors inside the MPE that guarded acceptance cannot accept with a weak reference
     are 'conformity not decided (TUR x:1)', on the page and on the certificate."""
     weak = ReferenceStandard.objects.create(identification="RS-9", description="Older master meter", range_min=0,
                                             range_max=40, certificate_number="C-9", due_date=dt.date(2027, 6, 1),
                                             expanded_uncertainty=0.3, uncertainty_basis="pct_reading")
-    event = enter(client, meter, weak, **{"ev-decision_rule": "guarded"})
+    event = enter(client, device, weak, **{"ev-decision_rule": "guarded"})
     in_band = [p for p in event.points.filter(kind="as_found") if p.decision == "conditional pass"]
     assert in_band, "the 0.25 % errors lie between MPE - U and the MPE"
     sign(client, event, at(dt.date(2026, 11, 23)), monkeypatch)
@@ -80,8 +80,8 @@ def test_weak_reference_gives_conformity_not_decided(client, meter, monkeypatch)
     assert f"{100 * pc:.1f} %" in text
 
 
-def test_version_1_record_prints_without_risks(client, meter, standard, monkeypatch):
-    event = sign(client, enter(client, meter, standard), at(dt.date(2026, 11, 23)), monkeypatch)
+def test_version_1_record_prints_without_risks(client, device, standard, monkeypatch):
+    event = sign(client, enter(client, device, standard), at(dt.date(2026, 11, 23)), monkeypatch)
     with connection.cursor() as cursor:   # stored as a record signed before content was frozen
         cursor.execute(f"UPDATE {CalibrationEvent._meta.db_table} SET signed_content = %s WHERE id = %s",
                        ["{}", event.pk])
@@ -102,7 +102,7 @@ def test_review_lists_pfa_above_target_and_low_p_c(admin_user, settings):
     client = Client()
     client.force_login(admin_user)
 
-    from plant.models import Area, Fluid, Meter, Site
+    from plant.models import Area, Fluid, Device, Site
     from tests.helpers import export, make_meter
 
     site = Site.objects.create(name="Risk site")
@@ -118,7 +118,7 @@ def test_review_lists_pfa_above_target_and_low_p_c(admin_user, settings):
     with CaptureQueriesContext(db) as empty:
         assert client.get("/review/").status_code == 200
     for tag, values in stored.items():
-        Meter.objects.filter(position__tag=tag).update(**values)
+        Device.objects.filter(position__tag=tag).update(**values)
     assert sorted(r[0] for r in export(client, "pfa_above")[1]) == ["PFA-HIGH"]
     header, rows = export(client, "low_pc")
     assert [r[0] for r in rows] == ["PC-LOW"]

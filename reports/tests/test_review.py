@@ -7,7 +7,7 @@ from django.utils import timezone
 
 from calibration.models import CalibrationEvent, ReferenceStandard
 from plant import risk
-from plant.models import Area, Fluid, Meter, Position, Site
+from plant.models import Area, Fluid, Device, Position, Site
 from tests.helpers import export, make_meter
 
 pytestmark = pytest.mark.django_db
@@ -30,19 +30,19 @@ def fleet():
                drift_status="drifting")
     # the latest verdict is stored on the meter by the due-date recompute (tested in test_due_dates.py)
     failed = make_meter("FAILED-1", area, water, next_due_date=today + d(days=60), last_in_tolerance=False)
-    CalibrationEvent.objects.create(meter=failed, performed_on=today - d(days=400), technician="T", procedure="p",
+    CalibrationEvent.objects.create(device=failed, performed_on=today - d(days=400), technician="T", procedure="p",
                                     state="signed", as_found_in_tolerance=True)
-    CalibrationEvent.objects.create(meter=failed, performed_on=today - d(days=30), technician="T", procedure="p",
+    CalibrationEvent.objects.create(device=failed, performed_on=today - d(days=30), technician="T", procedure="p",
                                     state="signed", as_found_in_tolerance=False)
     recovered = make_meter("RECOVERED-1", area, water, next_due_date=today + d(days=300), last_in_tolerance=True)
-    CalibrationEvent.objects.create(meter=recovered, performed_on=today - d(days=400), technician="T", procedure="p",
+    CalibrationEvent.objects.create(device=recovered, performed_on=today - d(days=400), technician="T", procedure="p",
                                     state="signed", as_found_in_tolerance=False)
-    CalibrationEvent.objects.create(meter=recovered, performed_on=today - d(days=30), technician="T", procedure="p",
+    CalibrationEvent.objects.create(device=recovered, performed_on=today - d(days=30), technician="T", procedure="p",
                                     state="signed", as_found_in_tolerance=True)
     make_meter("MISAPPLIED-1", area, oil, next_due_date=today + d(days=300))
     spare = make_meter("SPARE-1", area, water, next_due_date=today - d(days=50))
-    Meter.objects.filter(pk=spare.pk).update(status="spare")
-    CalibrationEvent.objects.create(meter=make_meter("DRAFT-1", area, water, next_due_date=today + d(days=300)),
+    Device.objects.filter(pk=spare.pk).update(status="spare")
+    CalibrationEvent.objects.create(device=make_meter("DRAFT-1", area, water, next_due_date=today + d(days=300)),
                                     performed_on=today, technician="T", procedure="p")
     ReferenceStandard.objects.create(identification="RS-OLD", description="expired", range_max=10,
                                      certificate_number="X", due_date=today - d(days=1), expanded_uncertainty=0.1)
@@ -246,9 +246,9 @@ def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
 
     monkeypatch.setattr(django_timezone, "now", lambda: dt.datetime(2026, 12, 4, 23, 30, tzinfo=dt.timezone.utc))
     site = Site.objects.get()
-    meter = Meter.objects.get(position__tag="LATER-1")
-    Meter.objects.filter(pk=meter.pk).update(next_due_date=dt.date(2026, 12, 4))
-    Meter.objects.exclude(pk=meter.pk).update(next_due_date=dt.date(2027, 6, 1))
+    device = Device.objects.get(position__tag="LATER-1")
+    Device.objects.filter(pk=device.pk).update(next_due_date=dt.date(2026, 12, 4))
+    Device.objects.exclude(pk=device.pk).update(next_due_date=dt.date(2027, 6, 1))
     assert "LATER-1" not in tags(client, "overdue")  # the site has no zone: the plant's (UTC here) 2026-12-04
     site.time_zone = "Pacific/Auckland"
     site.full_clean()
@@ -259,7 +259,7 @@ def test_today_is_the_sites_date_not_utc(client, fleet, monkeypatch):
     # a second site west of UTC (Chicago, UTC-6: still 2026-12-04 17:30) keeps its own date in the same list
     west = Site.objects.create(name="West site", time_zone="America/Chicago")
     Position.objects.filter(tag="DUE-1").update(area=Area.objects.create(site=west, name="Yard"))
-    Meter.objects.filter(position__tag="DUE-1").update(next_due_date=dt.date(2026, 12, 4))
+    Device.objects.filter(position__tag="DUE-1").update(next_due_date=dt.date(2026, 12, 4))
     assert tags(client, "overdue") == ["LATER-1"]
     assert "DUE-1" in tags(client, "due")
 

@@ -8,7 +8,7 @@ import pytest
 from django.utils import timezone
 
 from calibration.models import CalibrationEvent
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from reports import stats
 
@@ -17,7 +17,7 @@ pytestmark = pytest.mark.django_db
 TODAY = timezone.localdate()
 
 
-def meter(tag, principle, area, fluid, drift):
+def device(tag, principle, area, fluid, drift):
     return commission(
         tag=tag, principle=principle, area=area, fluid=fluid, line_size="DN50", internal_diameter_mm=52.5,
         range_max=40, mpe_value=0.5, drift_rate_per_year=drift,
@@ -26,7 +26,7 @@ def meter(tag, principle, area, fluid, drift):
 
 def event(m, days_ago, found, state="signed", **extra):
     return CalibrationEvent.objects.create(
-        meter=m, performed_on=TODAY - dt.timedelta(days=days_ago), technician="T", procedure="P",
+        device=m, performed_on=TODAY - dt.timedelta(days=days_ago), technician="T", procedure="P",
         state=state, as_found_in_tolerance=found, **extra,
     )
 
@@ -37,10 +37,10 @@ def fleet():
     a1, a2 = Area.objects.create(site=north, name="Hall 1"), Area.objects.create(site=south, name="Hall 2")
     water = Fluid.objects.create(name="Water", phase="liquid", conductivity_us_cm=500, density_kg_m3=998, viscosity_mpa_s=1)
     air = Fluid.objects.create(name="Air", phase="gas", density_kg_m3=1.2, viscosity_mpa_s=0.018)
-    m1 = meter("FT-1", "electromagnetic", a1, water, 0.3)
-    m2 = meter("FT-2", "vortex", a2, air, -0.4)
-    m3 = meter("FT-3", "vortex", a1, water, None)
-    meter("FT-4", "electromagnetic", a2, water, -0.6)  # no calibrations at all
+    m1 = device("FT-1", "electromagnetic", a1, water, 0.3)
+    m2 = device("FT-2", "vortex", a2, air, -0.4)
+    m3 = device("FT-3", "vortex", a1, water, None)
+    device("FT-4", "electromagnetic", a2, water, -0.6)  # no calibrations at all
     # FT-1: the event 60 days ago was corrected (the original, out of tolerance, is superseded)
     event(m1, 800, False), event(m1, 430, True), event(m1, 100, True), event(m1, 10, False)
     original = event(m1, 60, False)
@@ -59,8 +59,8 @@ def by_group(table):
 
 def test_rates_intervals_and_drift_match_hand_computation(fleet, django_assert_max_num_queries):
     with django_assert_max_num_queries(2):
-        events, meters = stats.fleet_frame(TODAY)
-    by_principle, by_fluid = stats.fleet_statistics(events, meters, TODAY)
+        events, devices = stats.fleet_frame(TODAY)
+    by_principle, by_fluid = stats.fleet_statistics(events, devices, TODAY)
     assert list(by_principle.columns) == stats.COLUMNS == list(by_fluid.columns)
     assert list(by_principle["group"]) == ["Electromagnetic", "Vortex"]  # display names
     assert list(by_fluid["group"]) == ["Air", "Water"]
@@ -146,8 +146,8 @@ def test_xlsx_has_both_sheets_equal_to_the_tables(fleet, client):
     assert response.status_code == 200
     sheets = pd.read_excel(io.BytesIO(response.content), sheet_name=None, engine="openpyxl")
     assert list(sheets) == ["by principle", "by fluid"]
-    events, meters = stats.fleet_frame(site=fleet["north"])
-    by_principle, by_fluid = stats.fleet_statistics(events, meters, timezone.localdate())
+    events, devices = stats.fleet_frame(site=fleet["north"])
+    by_principle, by_fluid = stats.fleet_statistics(events, devices, timezone.localdate())
     pd.testing.assert_frame_equal(sheets["by principle"], by_principle, check_dtype=False)
     pd.testing.assert_frame_equal(sheets["by fluid"], by_fluid, check_dtype=False)
 

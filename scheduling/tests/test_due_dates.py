@@ -10,7 +10,7 @@ import math
 
 from calibration import intervals
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from scheduling import due
 
@@ -206,17 +206,17 @@ def drifting_meter(db):
     site = Site.objects.create(name="S")
     area = Area.objects.create(site=site, name="A")
     fluid = Fluid.objects.create(name="W", phase="liquid", conductivity_us_cm=400)
-    meter = commission(tag="FT-D", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
+    device = commission(tag="FT-D", principle="electromagnetic", area=area, fluid=fluid, line_size="DN50",
                                  internal_diameter_mm=52.5, range_max=100, mpe_value=1.0, mpe_basis="absolute",
                                  wetted_material="316L", base_interval_days=2000)
     standard = ReferenceStandard.objects.create(identification="RS", description="ref", range_max=200,
                                                 certificate_number="C", due_date=dt.date(2099, 1, 1),
                                                 expanded_uncertainty=0.0, uncertainty_basis="absolute")
-    return meter, standard
+    return device, standard
 
 
-def add_event(meter, standard, day, found_error, left_error=None):
-    event = CalibrationEvent.objects.create(meter=meter, performed_on=day, technician="T", procedure="p",
+def add_event(device, standard, day, found_error, left_error=None):
+    event = CalibrationEvent.objects.create(device=device, performed_on=day, technician="T", procedure="p",
                                             adjusted=left_error is not None)
     event.reference_standards.add(standard)
     CalibrationPoint.objects.create(event=event, kind="as_found", nominal_pct=50, reference_value=50,
@@ -232,57 +232,57 @@ def test_synthetic_meter_exact_crossing_and_adjustment_reset(drifting_meter, set
     """Drift 0.002 flow units/day exactly (no scatter), MPE 1.0 absolute: from an as-left of 0 the error
     reaches the MPE 500 days after the last calibration; the due date is that minus the 30-day margin."""
     settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "staircase", "max_interval_days": 3000}
-    meter, standard = drifting_meter
+    device, standard = drifting_meter
     start = dt.date(2020, 1, 1)
     days = [0, 100, 200, 300]
     for d in days:
-        add_event(meter, standard, start + dt.timedelta(days=d), found_error=0.002 * d)
-    meter.refresh_from_db()
+        add_event(device, standard, start + dt.timedelta(days=d), found_error=0.002 * d)
+    device.refresh_from_db()
     last = start + dt.timedelta(days=300)
     # not adjusted: baseline is the last as-found 0.6, so 0.4 remains -> 200 days
-    assert meter.predicted_crossing == last + dt.timedelta(days=200)
-    assert meter.due_rationale["winner"] == "drift"
-    assert meter.next_due_date == last + dt.timedelta(days=170)
+    assert device.predicted_crossing == last + dt.timedelta(days=200)
+    assert device.due_rationale["winner"] == "drift"
+    assert device.next_due_date == last + dt.timedelta(days=170)
     # adjust back to zero at day 400 (as-found 0.8): the baseline resets, 1.0 remains -> 500 days
-    add_event(meter, standard, start + dt.timedelta(days=400), found_error=0.8, left_error=0.0)
-    meter.refresh_from_db()
-    assert meter.predicted_crossing == start + dt.timedelta(days=900)
-    assert meter.drift_rate_per_year == pytest.approx(0.002 * 365.25)
+    add_event(device, standard, start + dt.timedelta(days=400), found_error=0.8, left_error=0.0)
+    device.refresh_from_db()
+    assert device.predicted_crossing == start + dt.timedelta(days=900)
+    assert device.drift_rate_per_year == pytest.approx(0.002 * 365.25)
 
 
 def test_meter_without_history_has_no_due_date_and_says_so(drifting_meter):
     call_command("recompute_due_dates")
-    meter = Meter.objects.get()
-    assert meter.next_due_date is None
-    assert "No signed calibration" in meter.due_rationale["note"]
+    device = Device.objects.get()
+    assert device.next_due_date is None
+    assert "No signed calibration" in device.due_rationale["note"]
 
 
 def test_recompute_command_on_demo_fleet(demo_history, client):
     call_command("recompute_due_dates")
-    meters = list(Meter.objects.filter(position__isnull=False))
-    assert all(m.next_due_date is not None for m in meters)
-    winners = {m.due_rationale["winner"] for m in meters}
+    devices = list(Device.objects.filter(position__isnull=False))
+    assert all(m.next_due_date is not None for m in devices)
+    winners = {m.due_rationale["winner"] for m in devices}
     assert winners == {"risk", "drift", "method"}
-    page = client.get(f"/positions/{meters[0].tag}/").content.decode()
+    page = client.get(f"/positions/{devices[0].tag}/").content.decode()
     assert "(chosen)" in page and "<svg" in page
 
 
 def test_recompute_stores_the_latest_verdict_and_the_duty_risk(drifting_meter):
-    meter, standard = drifting_meter
-    add_event(meter, standard, dt.date(2025, 1, 1), found_error=2.0, left_error=0.0)  # out of tolerance
-    meter.refresh_from_db()
-    assert meter.last_in_tolerance is False
-    add_event(meter, standard, dt.date(2026, 1, 1), found_error=0.1)  # the latest one counts
-    meter.refresh_from_db()
-    assert meter.last_in_tolerance is True and meter.risk_severity == ""
+    device, standard = drifting_meter
+    add_event(device, standard, dt.date(2025, 1, 1), found_error=2.0, left_error=0.0)  # out of tolerance
+    device.refresh_from_db()
+    assert device.last_in_tolerance is False
+    add_event(device, standard, dt.date(2026, 1, 1), found_error=0.1)  # the latest one counts
+    device.refresh_from_db()
+    assert device.last_in_tolerance is True and device.risk_severity == ""
     # the fluid turns out to be demineralised water: an electromagnetic meter on it is misapplied
-    meter.fluid.conductivity_us_cm = 0.5
-    meter.fluid.save()
-    meter.refresh_from_db()
-    assert meter.risk_severity == "misapplied"
-    Meter.objects.filter(pk=meter.pk).update(risk_severity="")
+    device.fluid.conductivity_us_cm = 0.5
+    device.fluid.save()
+    device.refresh_from_db()
+    assert device.risk_severity == "misapplied"
+    Device.objects.filter(pk=device.pk).update(risk_severity="")
     call_command("recompute_due_dates")
-    assert Meter.objects.get(pk=meter.pk).risk_severity == "misapplied"
+    assert Device.objects.get(pk=device.pk).risk_severity == "misapplied"
 
 
 def test_another_meters_failures_do_not_pull_a_meter_that_always_passed(drifting_meter, settings):
@@ -291,7 +291,7 @@ def test_another_meters_failures_do_not_pull_a_meter_that_always_passed(drifting
     (365 × 1.25 = 456.25 -> 456, × 1.25 = 570 d, OIML D 10 method 1), whatever the other one did."""
     settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "reliability", "max_interval_days": 1095}
     good, standard = drifting_meter
-    Meter.objects.filter(pk=good.pk).update(base_interval_days=365)
+    Device.objects.filter(pk=good.pk).update(base_interval_days=365)
     bad = commission(tag="FT-BAD", principle="electromagnetic", area=good.area, fluid=good.fluid,
                                line_size="DN50", internal_diameter_mm=52.5, range_max=100, mpe_value=1.0,
                                mpe_basis="absolute", wetted_material="316L", base_interval_days=365)
@@ -309,15 +309,15 @@ def test_meter_page_shows_one_truth(demo_history, client):
     """The heading's interval is the one the due date uses (due - last calibrated), and every candidate is
     listed beside it with its date, days and reason; findings are said in words."""
     call_command("recompute_due_dates")
-    for meter in Meter.objects.exclude(next_due_date=None).select_related("position"):
-        body = client.get(meter.get_absolute_url()).content.decode()
-        used = (meter.next_due_date - meter.last_calibrated).days
-        assert f'<strong id="used-interval">{used} days</strong>' in body, meter.tag
-        assert meter.due_rationale["interval_days"] == used
-        for candidate in meter.due_rationale["candidates"]:
-            assert f"<td>{candidate['due']}</td><td>{candidate['days']}</td>" in body, meter.tag
-        for finding in meter.due_rationale["findings"]:
-            assert finding.split(";")[0] in body.replace("&#x27;", "'"), meter.tag
+    for device in Device.objects.exclude(next_due_date=None).select_related("position"):
+        body = client.get(device.get_absolute_url()).content.decode()
+        used = (device.next_due_date - device.last_calibrated).days
+        assert f'<strong id="used-interval">{used} days</strong>' in body, device.tag
+        assert device.due_rationale["interval_days"] == used
+        for candidate in device.due_rationale["candidates"]:
+            assert f"<td>{candidate['due']}</td><td>{candidate['days']}</td>" in body, device.tag
+        for finding in device.due_rationale["findings"]:
+            assert finding.split(";")[0] in body.replace("&#x27;", "'"), device.tag
         assert "effective interval" not in body
 
 
@@ -346,17 +346,17 @@ def test_improving_meter_crossing_rate_and_chart_on_the_side_it_heads_to(driftin
     from reports.trend import meter_drift_chart
 
     settings.CALIBRATION = {**settings.CALIBRATION, "interval_method": "staircase", "max_interval_days": 3000}
-    meter, standard = drifting_meter
+    device, standard = drifting_meter
     start = dt.date(2020, 1, 1)
     for k, error in enumerate([0.4, 0.3, 0.2, 0.1]):
-        add_event(meter, standard, start + dt.timedelta(days=365 * k), found_error=error)
-    meter.refresh_from_db()
+        add_event(device, standard, start + dt.timedelta(days=365 * k), found_error=error)
+    device.refresh_from_db()
     last = start + dt.timedelta(days=3 * 365)
-    assert meter.drift_status == "improving"
-    assert meter.predicted_crossing == last + dt.timedelta(days=4015)
-    assert meter.drift_rate_per_year == pytest.approx(-0.1 * 365.25 / 365, rel=1e-6)
-    assert meter.due_rationale["drift_rate_u_per_year"] == pytest.approx(0.0, abs=1e-9)
-    assert meter.due_rationale["drift_chart_pct"] == 50
-    svg = meter_drift_chart(meter)
+    assert device.drift_status == "improving"
+    assert device.predicted_crossing == last + dt.timedelta(days=4015)
+    assert device.drift_rate_per_year == pytest.approx(-0.1 * 365.25 / 365, rel=1e-6)
+    assert device.due_rationale["drift_rate_u_per_year"] == pytest.approx(0.0, abs=1e-9)
+    assert device.due_rationale["drift_chart_pct"] == 50
+    svg = meter_drift_chart(device)
     assert "one-sided 95 % lower prediction bound" in svg and "as found (50 % of range)" in svg
-    assert f"predicted crossing {meter.predicted_crossing.isoformat()}" in svg
+    assert f"predicted crossing {device.predicted_crossing.isoformat()}" in svg

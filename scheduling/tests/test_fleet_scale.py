@@ -18,7 +18,7 @@ from calibration import drift
 from scheduling.drift_fleet import predict_crossings
 from scheduling.fleet import UPDATED_FIELDS, recompute_due_dates
 from calibration.models import CalibrationEvent, CalibrationPoint
-from plant.models import Meter, Position
+from plant.models import Device, Position
 from reports.benchmark import naive_recompute
 
 
@@ -104,7 +104,7 @@ def test_vectorised_crossings_of_nothing():
 
 
 def due_fields():
-    return {row["pk"]: row for row in Meter.objects.order_by("pk").values("pk", *UPDATED_FIELDS)}
+    return {row["pk"]: row for row in Device.objects.order_by("pk").values("pk", *UPDATED_FIELDS)}
 
 
 @pytest.mark.django_db
@@ -114,7 +114,7 @@ def test_bulk_recompute_gives_the_naive_due_dates(method, settings):
     call_command("make_fleet", meters=60, seed=5, verbosity=0)
     recompute_due_dates()
     fast = due_fields()
-    Meter.objects.update(next_due_date=None, due_rationale={}, drift_status="", last_calibrated=None,
+    Device.objects.update(next_due_date=None, due_rationale={}, drift_status="", last_calibrated=None,
                          drift_rate_per_year=None, predicted_crossing=None)
     naive_recompute()
     slow = due_fields()
@@ -135,9 +135,9 @@ def test_bulk_recompute_gives_the_naive_due_dates(method, settings):
 def test_single_meter_recompute_equals_the_whole_fleet_recompute():
     call_command("make_fleet", meters=40, seed=9, verbosity=0)
     whole = due_fields()
-    some = [m.pk for m in Meter.objects.filter(calibrations__isnull=False).distinct().order_by("pk")[:3]]
-    Meter.objects.filter(pk__in=some).update(next_due_date=None, due_rationale={})
-    recompute_due_dates(Meter.objects.filter(pk__in=some))
+    some = [m.pk for m in Device.objects.filter(calibrations__isnull=False).distinct().order_by("pk")[:3]]
+    Device.objects.filter(pk__in=some).update(next_due_date=None, due_rationale={})
+    recompute_due_dates(Device.objects.filter(pk__in=some))
     again = due_fields()
     for pk in some:
         assert again[pk] == whole[pk]
@@ -146,26 +146,26 @@ def test_single_meter_recompute_equals_the_whole_fleet_recompute():
 @pytest.mark.django_db
 def test_make_fleet_is_realistic_and_refuses_a_second_fleet():
     call_command("make_fleet", meters=30, seed=3, verbosity=0)
-    assert Meter.objects.count() == 30
+    assert Device.objects.count() == 30
     tags = list(Position.objects.order_by("tag").values_list("tag", flat=True))  # in-service devices' positions
     assert tags[0] == "SYN-000001" and 25 <= len(tags) <= 30
-    assert Meter.objects.filter(position__isnull=False).count() == len(tags)
+    assert Device.objects.filter(position__isnull=False).count() == len(tags)
     events = CalibrationEvent.objects.filter(state="signed")
     points = CalibrationPoint.objects.filter(event__state="signed")
     assert 30 <= points.count() / 30 <= 80  # about 50 points per meter over ten years: 20,000 meters -> ~1,000,000
     assert events.order_by("performed_on").first().performed_on <= dt.date(2016, 12, 31)
-    assert Meter.objects.filter(next_due_date__isnull=False).exists()  # due dates computed at the end
+    assert Device.objects.filter(next_due_date__isnull=False).exists()  # due dates computed at the end
     from ledger import chain
 
     assert chain.verify() == []  # written in bulk, then sealed in the record chain (with a note saying so)
     # every stored error and decision is what the point's own computation gives
-    for point in points.select_related("event__meter").order_by("pk")[:50]:
+    for point in points.select_related("event__device").order_by("pk")[:50]:
         stored = (point.error, point.expanded_uncertainty, point.decision)
-        point.compute(point.event.meter, point.event.reference_standards.first(), point.event.decision_rule)
+        point.compute(point.event.device, point.event.reference_standards.first(), point.event.decision_rule)
         assert (point.error, point.expanded_uncertainty, point.decision) == stored
     with pytest.raises(CommandError, match="already holds a synthetic fleet"):
         call_command("make_fleet", meters=30, seed=3, verbosity=0)
-    assert Meter.objects.count() == 30
+    assert Device.objects.count() == 30
 
 
 @pytest.mark.django_db
@@ -177,9 +177,9 @@ def test_make_fleet_same_seed_same_history():
     def build_and_read(seed):
         with transaction.atomic():
             FleetBuilder(12, seed=seed).build()
-            rows = list(CalibrationPoint.objects.order_by("event__meter__serial", "event__performed_on", "kind",
+            rows = list(CalibrationPoint.objects.order_by("event__device__serial", "event__performed_on", "kind",
                                                           "nominal_pct")
-                        .values_list("event__meter__serial", "event__performed_on", "kind", "nominal_pct", "error"))
+                        .values_list("event__device__serial", "event__performed_on", "kind", "nominal_pct", "error"))
             transaction.set_rollback(True)
         return rows
 
@@ -199,10 +199,10 @@ def test_vectorised_staircase_equals_the_scalar_sequence():
     kw = dict(extend=1.25, shorten=0.5, min_days=30, max_days=1095)
     bases = {m: rng.choice([1, 29, 45, 180, 365, 730, 1000, 3650]) for m in range(1, 301)}
     records = {m: [rng.random() < 0.8 for _ in range(rng.randint(1, 25))] for m in bases}
-    meter_ids = np.array([m for m in bases for _ in records[m]])
+    device_ids = np.array([m for m in bases for _ in records[m]])
     in_tol = np.array([ok for m in bases for ok in records[m]])
-    starts = np.flatnonzero(np.r_[True, meter_ids[1:] != meter_ids[:-1]])
-    steps = fleet.staircase_steps(meter_ids, starts, in_tol, bases, kw)
+    starts = np.flatnonzero(np.r_[True, device_ids[1:] != device_ids[:-1]])
+    steps = fleet.staircase_steps(device_ids, starts, in_tol, bases, kw)
     for start, m in zip(starts, bases):
         base = min(max(bases[m], 30), 1095)
         expected = intervals.staircase_sequence(base, records[m], **kw)

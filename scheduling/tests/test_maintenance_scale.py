@@ -9,7 +9,7 @@ from django.core.management import call_command
 from maintenance import loop
 from scheduling.maintenance_due import meter_evidence, recompute_maintenance
 from maintenance.models import MaintenanceRecord, MaintenanceTask
-from plant.models import Meter
+from plant.models import Device
 
 pytestmark = pytest.mark.django_db
 
@@ -46,8 +46,8 @@ def test_bulk_maintenance_recompute_equals_the_per_task_reference():
                     for task in tasks for row in [bulk[task.pk]])
     assert moved[1] and moved[-1], moved
     # the fouling finding: bulk equals the one-meter read, and some meters have it
-    for meter_id in Meter.objects.values_list("pk", flat=True):
-        assert [f.reason for f in evidence.get(meter_id, [])] == [f.reason for f in meter_evidence(meter_id)]
+    for device_id in Device.objects.values_list("pk", flat=True):
+        assert [f.reason for f in evidence.get(device_id, [])] == [f.reason for f in meter_evidence(device_id)]
     assert evidence
     # a second recompute writes nothing (only changed rows are written)
     from django.db import connection
@@ -61,10 +61,10 @@ def test_bulk_maintenance_recompute_equals_the_per_task_reference():
 def test_one_meter_recompute_touches_only_its_tasks():
     call_command("make_fleet", meters=10, seed=22, verbosity=0)
     before = stored()
-    meter = Meter.objects.order_by("pk").first()
-    mine = set(MaintenanceTask.objects.filter(meter=meter).values_list("pk", flat=True))
+    device = Device.objects.order_by("pk").first()
+    mine = set(MaintenanceTask.objects.filter(device=device).values_list("pk", flat=True))
     MaintenanceTask.objects.update(next_due_date=dt.date(2000, 1, 1))
-    recompute_maintenance(Meter.objects.filter(pk=meter.pk).values("pk"))
+    recompute_maintenance(Device.objects.filter(pk=device.pk).values("pk"))
     after = stored()
     for pk, row in after.items():
         if pk in mine:

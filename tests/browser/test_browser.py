@@ -13,7 +13,7 @@ from django.utils import timezone
 from playwright.sync_api import expect
 
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import ARTIFACTS, TABLET, TIMEOUT_MS, assert_no_sideways_scroll, assert_touch_size, fill_points, user_with_role
 
@@ -28,7 +28,7 @@ def small_plant():
     site = Site.objects.create(name="Browser test site")
     area = Area.objects.create(site=site, name="Filling hall")
     water = Fluid.objects.create(name="Process water", phase="liquid", conductivity_us_cm=450)
-    meter = commission(tag="FT-BRW-1", principle="electromagnetic", area=area, fluid=water,
+    device = commission(tag="FT-BRW-1", principle="electromagnetic", area=area, fluid=water,
                                  line_size="DN50", internal_diameter_mm=52.5, range_min=0, range_max=40,
                                  mpe_value=0.5, mpe_basis="pct_reading", wetted_material="316L")
     standard = ReferenceStandard.objects.create(
@@ -44,7 +44,7 @@ def small_plant():
     technician = user_with_role("technician", "fieldtech")
     technician.set_password("tablet-pass-1")
     technician.save()
-    return {"meter": meter, "standard": standard, "technician": technician, "password": "tablet-pass-1"}
+    return {"device": device, "standard": standard, "technician": technician, "password": "tablet-pass-1"}
 
 
 def counts():
@@ -52,7 +52,7 @@ def counts():
 
 
 def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
-    meter, standard = small_plant["meter"], small_plant["standard"]
+    device, standard = small_plant["device"], small_plant["standard"]
     context = browser.new_context(viewport=TABLET, device_scale_factor=1, has_touch=True, locale="en-GB",
                                   accept_downloads=True)
     context.set_default_timeout(TIMEOUT_MS)
@@ -94,15 +94,15 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         shot("register")
 
         # Register -> meter page -> new calibration form.
-        meter_link = page.get_by_role("link", name=meter.tag, exact=True)
+        meter_link = page.get_by_role("link", name=device.tag, exact=True)
         meter_link.click()
-        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/$"))
-        assert page.title().startswith(meter.tag) and "<" not in page.title()
-        shot("meter")
+        page.wait_for_url(re.compile(rf"/positions/{device.tag}/$"))
+        assert page.title().startswith(device.tag) and "<" not in page.title()
+        shot("device")
         new_cal = page.get_by_role("link", name="New calibration")
         assert_touch_size(new_cal, "New calibration link")
         new_cal.click()
-        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/calibrate/$"))
+        page.wait_for_url(re.compile(rf"/positions/{device.tag}/calibrate/$"))
         assert_no_sideways_scroll(page, "calibration form")
         shot("entry-empty")
 
@@ -203,13 +203,13 @@ def test_tablet_calibration_flow(small_plant, live_server, browser, shots):
         from pypdf import PdfReader
 
         text = "".join(p.extract_text() for p in PdfReader(io.BytesIO(body)).pages)
-        assert meter.tag in text
+        assert device.tag in text
         assert "Performed by" in text and "Technician Tester" in text and "C-BRW-1" in text
         (shots / "certificate.pdf").write_bytes(body)
 
         # Back on the meter page the calibration is listed.
-        page.get_by_role("link", name=meter.tag, exact=True).first.click()
-        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/$"))
+        page.get_by_role("link", name=device.tag, exact=True).first.click()
+        page.wait_for_url(re.compile(rf"/positions/{device.tag}/$"))
         assert page.locator(f'table.grid a[href="/calibrations/{event.pk}/"]').is_visible()
         shot("meter-after")
     except BaseException:
@@ -242,7 +242,7 @@ def test_weekly_review_fits_a_tablet(demo_history, live_server, browser):
         expect(page.locator("h1")).to_have_text("Weekly review")
         overdue = page.locator("#count-overdue")
         expect(overdue).to_be_visible()
-        assert int(overdue.inner_text()) == Meter.objects.filter(
+        assert int(overdue.inner_text()) == Device.objects.filter(
             status="in_service", next_due_date__lt=timezone.localdate()).count()
         assert page.locator("section table.grid").count() >= 5
         assert_no_sideways_scroll(page, "weekly review")

@@ -11,7 +11,7 @@ from PIL import Image
 from playwright.sync_api import expect
 
 from maintenance.models import MaintenancePhoto, MaintenanceRecord, MaintenanceTask
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import user_with_role
 from tests.helpers import ARTIFACTS, TABLET, TIMEOUT_MS, assert_no_sideways_scroll, assert_touch_size
@@ -27,13 +27,13 @@ def pitot_plant(tmp_path, settings):
     area = Area.objects.create(site=site, name="Cooling towers")
     cooling = Fluid.objects.create(name="Cooling tower water", phase="liquid", conductivity_us_cm=1800,
                                    biofouling=True, scaling=True)
-    meter = commission(tag="FT-TAB-1", principle="averaging_pitot", area=area, fluid=cooling,
+    device = commission(tag="FT-TAB-1", principle="averaging_pitot", area=area, fluid=cooling,
                                  line_size="DN200", internal_diameter_mm=202.7, range_max=400, mpe_value=2.0,
                                  mpe_basis="pct_span", wetted_material="316")
     tech = user_with_role("technician", "padtech")
     tech.set_password("pad-pass-1")
     tech.save()
-    return {"meter": meter, "tech": tech}
+    return {"device": device, "tech": tech}
 
 
 def photo_file(path):
@@ -45,7 +45,7 @@ def test_tablet_maintenance_record(pitot_plant, live_server, browser, tmp_path):
     SHOTS.mkdir(parents=True, exist_ok=True)
     for old in SHOTS.glob("*.png"):
         old.unlink()
-    meter = pitot_plant["meter"]
+    device = pitot_plant["device"]
     context = browser.new_context(viewport=TABLET, device_scale_factor=1, has_touch=True, locale="en-GB")
     context.set_default_timeout(TIMEOUT_MS)
     page = context.new_page()
@@ -63,13 +63,13 @@ def test_tablet_maintenance_record(pitot_plant, live_server, browser, tmp_path):
         page.locator('[name="password"]').fill("pad-pass-1")
         page.get_by_role("button", name="Log in").click()
         page.wait_for_url(re.compile(r"/positions/$"))
-        page.goto(f"{live_server.url}/positions/{meter.tag}/")
+        page.goto(f"{live_server.url}/positions/{device.tag}/")
         new = page.get_by_role("link", name="New maintenance record")
         assert_touch_size(new, "New maintenance record link")
         assert_no_sideways_scroll(page, "meter page")
-        shot("meter")
+        shot("device")
         new.click()
-        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/maintain/$"))
+        page.wait_for_url(re.compile(rf"/positions/{device.tag}/maintain/$"))
         caution = page.get_by_role("note")
         expect(caution).to_contain_text("permit to work")
         expect(caution).to_contain_text("depressurise and drain")
@@ -125,9 +125,9 @@ def test_tablet_maintenance_record(pitot_plant, live_server, browser, tmp_path):
         shot("signed")
 
         # The meter page: the task is due 23 d after today (45 d × 0.5, found blocked), and says why.
-        page.get_by_role("link", name=meter.tag, exact=True).first.click()
-        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/$"))
-        task = MaintenanceTask.objects.get(meter=meter, code="PITOT_PULL_CLEAN")
+        page.get_by_role("link", name=device.tag, exact=True).first.click()
+        page.wait_for_url(re.compile(rf"/positions/{device.tag}/$"))
+        task = MaintenanceTask.objects.get(device=device, code="PITOT_PULL_CLEAN")
         due = timezone.localdate() + dt.timedelta(days=23)
         row = page.locator(f"#task-{task.pk}")
         expect(row.locator(".due-date")).to_have_text(due.isoformat())

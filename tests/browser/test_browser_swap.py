@@ -9,7 +9,7 @@ from django.contrib.auth.models import User
 from django.core.management import call_command
 from playwright.sync_api import expect
 
-from plant.models import Installation, Meter, Position
+from plant.models import Installation, Device, Position
 from tests.helpers import TABLET, TIMEOUT_MS, assert_no_sideways_scroll, assert_touch_size, user_with_role
 
 pytestmark = pytest.mark.django_db(transaction=True)
@@ -30,7 +30,7 @@ def test_swap_on_the_tablet(demo, live_server, browser, shots):
     context.set_default_timeout(TIMEOUT_MS)
     page = context.new_page()
     old = Position.objects.get(tag="FT-204").installed_device()
-    spare = Meter.objects.get(serial="SN730118")
+    spare = Device.objects.get(serial="SN730118")
     try:
         page.goto(f"{live_server.url}/accounts/login/")
         page.get_by_label("Username").fill("swaptech")
@@ -62,5 +62,5 @@ def test_swap_on_the_tablet(demo, live_server, browser, shots):
         context.close()
     old.refresh_from_db()
     spare.refresh_from_db()
-    assert spare.position.tag == "FT-204" and old.position is None and old.status == Meter.Status.SPARE
+    assert spare.position.tag == "FT-204" and old.position is None and old.status == Device.Status.SPARE
     assert User.objects.get(username="swaptech") == Installation.objects.get(device=spare).installed_by

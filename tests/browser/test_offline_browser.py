@@ -18,7 +18,7 @@ from playwright.sync_api import expect, sync_playwright
 from calibration.forms import CalibrationEntry, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from maintenance.models import MaintenanceRecord
-from plant.models import Area, Fluid, Meter, Site
+from plant.models import Area, Fluid, Device, Site
 from plant.installations import commission
 from tests.helpers import (ARTIFACTS, CHROMIUM, LAUNCH_ARGS, TABLET, TIMEOUT_MS, assert_touch_size, fill_points,
                            user_with_role)
@@ -73,14 +73,14 @@ def pump_station():
     area = Area.objects.create(site=site, name="Dry well")
     water = Fluid.objects.create(name="Raw water", phase="liquid", conductivity_us_cm=380)
 
-    def meter(tag, due_in_days, range_max):
+    def device(tag, due_in_days, range_max):
         m = commission(tag=tag, principle="electromagnetic", area=area, fluid=water, line_size="DN100",
                                  internal_diameter_mm=102, range_min=0, range_max=range_max, mpe_value=0.5,
                                  mpe_basis="pct_reading", wetted_material="316L")
-        Meter.objects.filter(pk=m.pk).update(next_due_date=today + dt.timedelta(days=due_in_days))
+        Device.objects.filter(pk=m.pk).update(next_due_date=today + dt.timedelta(days=due_in_days))
         return m
 
-    meters = [meter("FT-DW-1", 7, 40), meter("FT-DW-2", -3, 80), meter("FT-DW-3", 250, 40)]
+    devices = [device("FT-DW-1", 7, 40), device("FT-DW-2", -3, 80), device("FT-DW-3", 250, 40)]
     # each standard covers the meters it serves, so their lowest point is within its usable range (from 10 % of
     # its range maximum, common practice)
     standard = ReferenceStandard.objects.create(
@@ -94,7 +94,7 @@ def pump_station():
     technician = user_with_role("technician", "welltech")
     technician.set_password("dry-well-pass-1")
     technician.save()
-    return {"meters": meters, "standard": standard, "standard_80": standard_80, "technician": technician, "today": today}
+    return {"meters": devices, "standard": standard, "standard_80": standard_80, "technician": technician, "today": today}
 
 
 def open_tablet(playwright, profile, offline=False):
@@ -292,11 +292,11 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         expect(status).to_contain_text("1 sent, 1 refused (see below), 1 still waiting")
         assert cut["done"]
         assert list(CalibrationEvent.objects.values_list("client_id", flat=True)
-                    .filter(meter=first)) == [__import__("uuid").UUID(ids[first.tag])]
+                    .filter(device=first)) == [__import__("uuid").UUID(ids[first.tag])]
         context.unroute("**/field/send/")
         page.get_by_role("button", name="Send now").click()
         expect(status).to_have_text("1 sent.")
-        assert CalibrationEvent.objects.filter(meter=first).count() == 1
+        assert CalibrationEvent.objects.filter(device=first).count() == 1
 
         # the refused one stays, with the server's message beside the date
         refused = page.locator(f'#queue-list li[data-id="{ids[second.tag]}"]')
@@ -324,7 +324,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
         shot(page, "06-all-sent")
 
         # Exactly those records, once each, with the values entered.
-        events = {e.meter.tag: e for e in CalibrationEvent.objects.select_related("meter").exclude(pk=covering.pk)}
+        events = {e.device.tag: e for e in CalibrationEvent.objects.select_related("device").exclude(pk=covering.pk)}
         assert set(events) == {first.tag, second.tag}
         one, two = events[first.tag], events[second.tag]
         assert str(one.client_id) == ids[first.tag] and str(two.client_id) == ids[second.tag]
@@ -337,7 +337,7 @@ def test_entries_made_without_network_are_sent_once(pump_station, live_server, p
             (8, 8.0), (20, 20.1), (40, 40.0), (60, 59.9), (80, 80.2)]
         assert {one.state, two.state} == {"draft"} and {one.created_by, two.created_by} == {plant["technician"]}
         record = MaintenanceRecord.objects.get()  # exactly one, with what was entered offline
-        assert (str(record.client_id), record.meter, record.task_id, record.condition, record.action, record.parts,
+        assert (str(record.client_id), record.device, record.task_id, record.condition, record.action, record.parts,
                 record.minutes_spent, record.notes, record.performed_on, record.state, record.created_by) == (
             maintenance_id, first, task_id, "heavy_deposit", "Opened the dry-well meter, wiped the electrodes",
             "liner gasket", 45, "kept offline in the dry well", plant["today"], "draft", plant["technician"])
@@ -376,7 +376,7 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
     """The tablet believes it is online, but the post of the form gets no answer (the signal dropped on the way):
     what was typed comes back in the form, is kept on the tablet, and is sent once the network works."""
     plant = pump_station
-    meter = plant["meters"][0]
+    device = plant["meters"][0]
     context = browser.new_context(viewport=TABLET, device_scale_factor=1, has_touch=True, locale="en-GB",
                                   timezone_id="UTC")
     context.set_default_timeout(TIMEOUT_MS)
@@ -387,7 +387,7 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
         page.get_by_label("Password").fill("dry-well-pass-1")
         page.get_by_role("button", name="Log in").click()
         page.wait_for_url(re.compile(r"/positions/$"))
-        page.goto(f"{live_server.url}/positions/{meter.tag}/calibrate/")
+        page.goto(f"{live_server.url}/positions/{device.tag}/calibrate/")
         page.evaluate("navigator.serviceWorker.ready.then(() => true)")
         page.reload()  # a page loaded once the worker is active is served through it
         ready(page)
@@ -399,7 +399,7 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
                       lambda route: route.abort("internetdisconnected") if route.request.method == "POST"
                       else route.continue_())
         page.get_by_role("button", name="Save calibration").click()
-        page.wait_for_url(re.compile(rf"/positions/{meter.tag}/calibrate/#interrupted$"))
+        page.wait_for_url(re.compile(rf"/positions/{device.tag}/calibrate/#interrupted$"))
         ready(page)
         expect(page.locator("#offline-interrupted")).to_be_visible()
         assert page.get_by_label("Method / procedure").input_value() == "Saved as the signal dropped"
@@ -415,7 +415,7 @@ def test_a_save_that_finds_no_network_gives_the_entry_back(pump_station, live_se
         page.get_by_role("button", name="Send now").click()
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (0)")
         event = CalibrationEvent.objects.get()
-        assert event.meter == meter and event.procedure == "Saved as the signal dropped" and event.client_id
+        assert event.device == device and event.procedure == "Saved as the signal dropped" and event.client_id
         assert sorted((p.reference_value, p.indicated_value) for p in event.points.all()) == [
             (4, 4.01), (10, 10.02), (20, 20.05), (30, 30.03), (40, 40.04)]
     finally:
@@ -495,6 +495,6 @@ def test_pages_kept_under_the_old_address_open_offline(pump_station, live_server
         page.get_by_role("button", name="Send now").click()
         expect(page.locator("#queue-title")).to_have_text("Waiting to send (0)")
         event = CalibrationEvent.objects.get()
-        assert event.meter == first and event.procedure == "Kept under the old address"
+        assert event.device == first and event.procedure == "Kept under the old address"
     finally:
         context.close()

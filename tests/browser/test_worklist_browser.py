@@ -9,7 +9,7 @@ from playwright.sync_api import expect
 
 from calibration.models import CalibrationEvent
 from maintenance import worklist
-from plant.models import Meter
+from plant.models import Device
 from tests.helpers import user_with_role
 from tests.helpers import MIN_TOUCH, TABLET, TIMEOUT_MS
 
@@ -25,8 +25,8 @@ def test_work_list_on_a_tablet_with_a_draft(demo_history, live_server, browser):
     due = [i for i in worklist.rows(last, start=first) if i.kind == worklist.CALIBRATION]
     assert len(due) >= 2, "the demo plant has calibrations due within seven days"
     drafted, plain = due[0], due[1]
-    meter = Meter.objects.get(position__tag=drafted.tag)
-    draft = CalibrationEvent.objects.create(meter=meter, performed_on=start, technician="Tech Tester",
+    device = Device.objects.get(position__tag=drafted.tag)
+    draft = CalibrationEvent.objects.create(device=device, performed_on=start, technician="Tech Tester",
                                             procedure="browser test draft")
     tech = user_with_role("technician", "listtech")
     tech.set_password("list-pass-1")

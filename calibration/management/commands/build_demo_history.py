@@ -21,7 +21,7 @@ from calibration import errors
 from plant import units
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
 from calibration.invented import NOMINALS, invented_found_errors
-from plant.models import Meter
+from plant.models import Device
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_history.json"
 BENCH_SPARE = "SN730118"  # the demo's spare calibrated on the bench (plant/management/commands/build_demo_plant.py)
@@ -81,31 +81,31 @@ class Command(BaseCommand):
         rng = random.Random(seed)
         standards = _standards()
         events = 0
-        for meter in (Meter.objects.filter(position__isnull=False).select_related("position__fluid")
+        for device in (Device.objects.filter(position__isnull=False).select_related("position__fluid")
                       .order_by("position__tag")):
-            events += self._history(meter, rng, standards)
-        events += self._bench(Meter.objects.get(serial=BENCH_SPARE, position__isnull=True), rng, standards)
+            events += self._history(device, rng, standards)
+        events += self._bench(Device.objects.get(serial=BENCH_SPARE, position__isnull=True), rng, standards)
         # the records only: the audit trail (historical rows) is written again as the fixture loads, and
         # dumped ids of it would collide with that on PostgreSQL, whose sequences do not skip loaded ids
         call_command("dumpdata", "calibration.referencestandard", "calibration.calibrationevent",
                      "calibration.calibrationpoint", indent=1, output=str(FIXTURE))
         self.stdout.write(self.style.SUCCESS(f"{events} signed calibrations written to {FIXTURE}"))
 
-    def _history(self, meter, rng, standards):
+    def _history(self, device, rng, standards):
         """One meter's invented history, kept the way a plant that is looked after keeps it: each next
         calibration is done on or a little before the due date the tracker gave after the previous one
         (scheduling/fleet.py recomputes it at every sign-off), except that a few meters miss their last one.
         """
-        factor = meter.risk_factor()
-        mpe = meter.mpe_value
+        factor = device.risk_factor()
+        mpe = device.mpe_value
         behaviour = rng.choices(["stable", "steady", "fouling"], weights=[8, 2, 0] if factor >= 1 else [4, 4, 2])[0]
         # invented drift in units of MPE per year; risky duties move more
         rate = {"stable": 0.0, "steady": 0.2, "fouling": 0.1}[behaviour] * mpe / max(factor, 0.25) * rng.choice([-1, 1])
         years = rng.randint(5, 8)
         day = TODAY - dt.timedelta(days=int(365.25 * years)) + dt.timedelta(days=rng.randint(0, 20))
         baseline = rng.uniform(-0.1, 0.1) * mpe
-        phase = meter.fluid.phase if meter.fluid.phase in ("gas", "steam") else "liquid"
-        standard = standards[(phase, meter.flow_units)]
+        phase = device.fluid.phase if device.fluid.phase in ("gas", "steam") else "liquid"
+        standard = standards[(phase, device.flow_units)]
         count = 0
         jumped = False
         previous = None
@@ -118,66 +118,66 @@ class Command(BaseCommand):
             found = invented_found_errors(rng, offset, mpe)
             adjust = max(abs(e) for e in found) > 0.6 * mpe
             used = standard
-            if meter.tag == WEIGH_TANK_METER and day >= WEIGH_TANK_FROM:
+            if device.tag == WEIGH_TANK_METER and day >= WEIGH_TANK_FROM:
                 used = standards["weigh_tank"]
             event = CalibrationEvent.objects.create(
-                meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS),
-                meter_units=meter.flow_units, reference_units=used.units,
-                density_kg_m3=WEIGH_TANK_DENSITY if used.units != meter.flow_units else None,
-                procedure=PROCEDURE["clampon" if meter.principle == "ultrasonic_clampon" else "flow"],
-                ambient_temp_c=round(rng.uniform(8, 28), 1), fluid_temp_c=meter.fluid.temperature_c,
+                device=device, performed_on=day, technician=rng.choice(TECHNICIANS),
+                meter_units=device.flow_units, reference_units=used.units,
+                density_kg_m3=WEIGH_TANK_DENSITY if used.units != device.flow_units else None,
+                procedure=PROCEDURE["clampon" if device.principle == "ultrasonic_clampon" else "flow"],
+                ambient_temp_c=round(rng.uniform(8, 28), 1), fluid_temp_c=device.fluid.temperature_c,
                 pressure_bar=round(rng.uniform(1.5, 6), 1), reason="scheduled", adjusted=adjust,
                 decision_rule="simple",
                 notes="Zero and span adjusted." if adjust else "",
             )
             event.reference_standards.add(used)
-            self._points(event, meter, CalibrationPoint.Kind.AS_FOUND, found, rng)
+            self._points(event, device, CalibrationPoint.Kind.AS_FOUND, found, rng)
             if adjust:
                 left = [rng.gauss(0, 0.05 * mpe) for _ in NOMINALS]
-                self._points(event, meter, CalibrationPoint.Kind.AS_LEFT, left, rng)
+                self._points(event, device, CalibrationPoint.Kind.AS_LEFT, left, rng)
                 baseline, jumped = sum(left) / len(left), False
             else:
                 baseline = offset
             event.sign(event.technician, "Instrument technician",
                        at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc))
             count += 1
-            meter.refresh_from_db(fields=["next_due_date"])
+            device.refresh_from_db(fields=["next_due_date"])
             previous = day
             # done on the due date or up to three weeks before it, never sooner than two weeks after the last
-            day = max(meter.next_due_date - dt.timedelta(days=rng.randint(0, 21)), day + dt.timedelta(days=14))
+            day = max(device.next_due_date - dt.timedelta(days=rng.randint(0, 21)), day + dt.timedelta(days=14))
             if day >= TODAY - dt.timedelta(days=3):
                 return count
             if day >= TODAY - dt.timedelta(days=LATE_WINDOW_DAYS) and rng.random() < LATE_CHANCE:
                 return count  # the last one is missed: its due date has passed
 
-    def _bench(self, meter, rng, standards):
+    def _bench(self, device, rng, standards):
         """The spare's calibration on the workshop bench a month ago, so it may be installed."""
         day = TODAY - dt.timedelta(days=30)
-        standard = standards[("liquid", meter.flow_units)]
+        standard = standards[("liquid", device.flow_units)]
         event = CalibrationEvent.objects.create(
-            meter=meter, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=BENCH_PROCEDURE,
-            meter_units=meter.flow_units, reference_units=standard.units,
+            device=device, performed_on=day, technician=rng.choice(TECHNICIANS), procedure=BENCH_PROCEDURE,
+            meter_units=device.flow_units, reference_units=standard.units,
             ambient_temp_c=20.5, fluid_temp_c=18.0, pressure_bar=2.0, reason="scheduled", decision_rule="simple",
             condition_received="New from stores, sealed.")
         event.reference_standards.add(standard)
-        self._points(event, meter, CalibrationPoint.Kind.AS_FOUND,
-                     [rng.gauss(0, 0.1 * meter.mpe_value) for _ in NOMINALS], rng)
+        self._points(event, device, CalibrationPoint.Kind.AS_FOUND,
+                     [rng.gauss(0, 0.1 * device.mpe_value) for _ in NOMINALS], rng)
         event.sign(event.technician, "Instrument technician",
                    at=dt.datetime.combine(day, dt.time(15, 0), tzinfo=dt.timezone.utc))
         return 1
 
-    def _points(self, event, meter, kind, errors_in_basis, rng):
-        span = meter.range_max - meter.range_min
+    def _points(self, event, device, kind, errors_in_basis, rng):
+        span = device.range_max - device.range_min
         for nominal, error in zip(NOMINALS, errors_in_basis):
-            reference = round(meter.range_min + span * nominal / 100 * rng.uniform(0.97, 1.03), 4)
+            reference = round(device.range_min + span * nominal / 100 * rng.uniform(0.97, 1.03), 4)
             entered = reference
             if event.converted:  # the rig's reading in its own units, as the technician would type it
                 entered = round(units.convert(reference, event.device_units, event.entered_units,
                                               density_kg_m3=event.density_kg_m3), 2)
                 reference = units.convert(entered, event.entered_units, event.device_units,
                                           density_kg_m3=event.density_kg_m3)
-            indicated = errors.indication_for_error(reference, error, meter.mpe_basis, span)
+            indicated = errors.indication_for_error(reference, error, device.mpe_basis, span)
             point = CalibrationPoint(event=event, kind=kind, nominal_pct=nominal, reference_value=reference,
                                      reference_entered=entered, indicated_value=round(indicated, 5))
-            point.compute(meter, event.reference_standards.first(), event.decision_rule, factor=event.unit_factor())
+            point.compute(device, event.reference_standards.first(), event.decision_rule, factor=event.unit_factor())
             point.save()

@@ -22,7 +22,7 @@ from calibration.models import CalibrationEvent
 from maintenance import synthetic
 from maintenance.models import MaintenanceRecord, MaintenanceTask, WalkOrder
 from maintenance.signals import tasks_changed
-from plant.models import Area, Meter
+from plant.models import Area, Device
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_maintenance.json"
 TODAY = dt.date(2026, 11, 30)  # the demo history's "today"
@@ -61,26 +61,26 @@ class Command(BaseCommand):
 
     @transaction.atomic
     def handle(self, *args, seed, output, **options):
-        if MaintenanceRecord.objects.exists() or not Meter.objects.filter(position__tag="FT-601").exists():
+        if MaintenanceRecord.objects.exists() or not Device.objects.filter(position__tag="FT-601").exists():
             raise CommandError("Load fixtures/demo_plant.json into an empty database first (no maintenance yet).")
         rng = random.Random(seed)
         MaintenanceTask.objects.all().delete()  # the ones derived on loading, if any: rebuilt with the demo's dates
         for position, name in enumerate(WALK, start=1):
             WalkOrder.objects.create(area=Area.objects.get(name=name), position=position)
         records = 0
-        for meter in (Meter.objects.filter(position__isnull=False).select_related("position__fluid")
+        for device in (Device.objects.filter(position__isnull=False).select_related("position__fluid")
                       .order_by("position__tag")):
-            tasks = synthetic.build_tasks(meter, SINCE)
+            tasks = synthetic.build_tasks(device, SINCE)
             MaintenanceTask.objects.bulk_create(tasks)
             for task in tasks:
-                model = synthetic.duty_model(task.code, meter.fluid.props())
-                if meter.tag == "FT-303" and task.code == "ELECTRODE_CLEAN":
+                model = synthetic.duty_model(task.code, device.fluid.props())
+                if device.tag == "FT-303" and task.code == "ELECTRODE_CLEAN":
                     model = {**model, "tau": 5000.0}  # the line is flushed hot after every batch (invented)
                 visits = synthetic.invent_visits(rng, task.start_days, SINCE, TODAY - dt.timedelta(days=3),
                                                  task.code, model)
                 notes = {}
-                if meter.tag == "FT-601" and task.code == "PITOT_PULL_CLEAN":
-                    failed = (CalibrationEvent.objects.filter(meter=meter, as_found_in_tolerance=False,
+                if device.tag == "FT-601" and task.code == "PITOT_PULL_CLEAN":
+                    failed = (CalibrationEvent.objects.filter(device=device, as_found_in_tolerance=False,
                                                               performed_on__gte=SINCE)
                               .order_by("performed_on").values_list("performed_on", flat=True).first())
                     visits, notes = pitot_story(visits, failed)

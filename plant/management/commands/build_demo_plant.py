@@ -13,7 +13,7 @@ from django.db import transaction
 from plant import risk
 from plant.demo_data import AREAS, DETAILS, FLUIDS, MAKERS, METERS
 from plant.installations import commission
-from plant.models import Area, DutyPeriod, Fluid, Installation, Meter, Position, Site
+from plant.models import Area, DutyPeriod, Fluid, Installation, Device, Position, Site
 
 
 FIXTURE = Path(settings.BASE_DIR) / "fixtures" / "demo_plant.json"
@@ -67,23 +67,23 @@ class Command(BaseCommand):
             )
         # one device moved: the one at FT-305 served on brine at FT-115 before the syrup kitchen; FT-115 has
         # stood empty since (the brine pre-dosing it measured was stopped)
-        moved = Meter.objects.get(position__tag="FT-305")
+        moved = Device.objects.get(position__tag="FT-305")
         brine = Position.objects.create(tag="FT-115", area=areas["Brine & pickling"], fluid=fluids["Pickling brine"],
                                         line_size="DN25", internal_diameter_mm=26.6, flow_units="m3/h",
                                         normal_flow=2.5, min_flow=0.4)
         Installation.objects.create(device=moved, position=brine, since=COMMISSIONED_ON, until=MOVED_ON,
                                     removal_reason="moved to the syrup kitchen; brine pre-dosing stopped")
-        DutyPeriod.objects.create(meter=moved, position=brine, area=brine.area, fluid=brine.fluid,
+        DutyPeriod.objects.create(device=moved, position=brine, area=brine.area, fluid=brine.fluid,
                                   since=COMMISSIONED_ON, until=MOVED_ON)
-        Meter.objects.filter(pk=moved.pk).update(risk_severity=risk.worst_severity(moved.findings()))
+        Device.objects.filter(pk=moved.pk).update(risk_severity=risk.worst_severity(moved.findings()))
         # two spares in stores: one calibrated on the bench (demo history), one never calibrated
         for serial, principle, rmax, units_text, material, mpe in SPARES:
-            Meter.objects.create(principle=principle, range_min=0, range_max=rmax, flow_units=units_text,
+            Device.objects.create(principle=principle, range_min=0, range_max=rmax, flow_units=units_text,
                                  wetted_material=material, serial=serial, maker=rng.choice(MAKERS),
-                                 model=f"M{rng.randint(10, 99)}", mpe_value=mpe, status=Meter.Status.SPARE)
+                                 model=f"M{rng.randint(10, 99)}", mpe_value=mpe, status=Device.Status.SPARE)
         FIXTURE.parent.mkdir(exist_ok=True)
         # the records only: the audit trail is written again as the fixture loads (see build_demo_history)
-        call_command("dumpdata", "plant.site", "plant.area", "plant.fluid", "plant.position", "plant.meter",
+        call_command("dumpdata", "plant.site", "plant.area", "plant.fluid", "plant.position", "plant.device",
                      "plant.installation", "plant.dutyperiod", indent=1, output=str(FIXTURE))
-        self.stdout.write(self.style.SUCCESS(f"{Position.objects.count()} positions and {Meter.objects.count()} devices "
+        self.stdout.write(self.style.SUCCESS(f"{Position.objects.count()} positions and {Device.objects.count()} devices "
                                              f"written to {FIXTURE}"))

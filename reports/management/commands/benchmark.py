@@ -15,7 +15,7 @@ from tqdm import tqdm
 from scheduling.fleet import recompute_due_dates
 from calibration.forms import NOMINAL_POINTS, entry_post_data
 from calibration.models import CalibrationEvent, CalibrationPoint, ReferenceStandard
-from plant.models import Meter
+from plant.models import Device
 from plant.roles import REVIEWER, TECHNICIAN, ensure_roles
 from reports import benchmark, certificate
 
@@ -60,18 +60,18 @@ class Command(BaseCommand):
     def handle(self, *args, repeat, naive_meters, import_rows, import_only, **options):
         if import_only:
             self.stdout.write(f"Quenby benchmark, register import only. Machine: {machine()}")
-            self.stdout.write(f"Database: {database()}; {Meter.objects.count()} devices in the register")
+            self.stdout.write(f"Database: {database()}; {Device.objects.count()} devices in the register")
             self._table(self._import(import_rows or 20000))
             return
-        meters = Meter.objects.count()
-        if not meters:
+        devices = Device.objects.count()
+        if not devices:
             raise CommandError("No meters: build a fleet first, e.g. python manage.py make_fleet --meters 20000")
         events = CalibrationEvent.objects.filter(state=CalibrationEvent.State.SIGNED).count()
         points = CalibrationPoint.objects.count()
         self.stdout.write(f"Quenby benchmark. Machine: {machine()}")
         from maintenance.models import MaintenanceRecord, MaintenanceTask
 
-        self.stdout.write(f"Database: {database()}; fleet: {meters} meters, {events} signed calibrations, "
+        self.stdout.write(f"Database: {database()}; fleet: {devices} meters, {events} signed calibrations, "
                           f"{points} points, {MaintenanceTask.objects.count()} maintenance tasks, "
                           f"{MaintenanceRecord.objects.count()} maintenance records")
         rows = []
@@ -93,14 +93,14 @@ class Command(BaseCommand):
         MaintenanceTask.objects.update(frequency_days=None)  # every stored row now differs: all are written
         rewrite, _ = benchmark.timed(recompute_maintenance)
         rows.append(("  maintenance with every task row rewritten", f"{rewrite:.2f} s", "", None))
-        naive_qs = Meter.objects.order_by("pk")[:naive_meters] if naive_meters else None
-        measured = naive_meters if naive_meters else meters
-        with tqdm(total=measured, unit="meter", desc="naive", file=self.stderr, disable=None) as bar:
+        naive_qs = Device.objects.order_by("pk")[:naive_meters] if naive_meters else None
+        measured = naive_meters if naive_meters else devices
+        with tqdm(total=measured, unit="device", desc="naive", file=self.stderr, disable=None) as bar:
             naive, _ = benchmark.timed(lambda: benchmark.naive_recompute(
-                Meter.objects.filter(pk__in=naive_qs.values("pk")) if naive_qs is not None else None,
+                Device.objects.filter(pk__in=naive_qs.values("pk")) if naive_qs is not None else None,
                 progress=bar.update))
-        naive_fleet = naive * meters / measured
-        note = "" if measured == meters else f" (measured on {measured} meters, scaled)"
+        naive_fleet = naive * devices / measured
+        note = "" if measured == devices else f" (measured on {measured} meters, scaled)"
         rows.append(("Fleet recompute, naive per meter", f"{naive_fleet:.1f} s{note}", "", None))
         ratio = naive_fleet / fast
         rows.append(("  naive / bulk", f"{ratio:.0f}×", f"≥ {TARGETS['ratio']:.0f}×", ratio >= TARGETS["ratio"]))
@@ -147,7 +147,7 @@ class Command(BaseCommand):
         seconds, work_queries, status = benchmark.page(client, f"/maintenance/worklist/?area={area.pk}", repeat)
         rows.append((f"Work list page, this week, one area ({area.n} meters)",
                      f"{seconds * 1000:.0f} ms, {work_queries} queries (HTTP {status})", "", status == 200))
-        rare = (Meter.objects.filter(status=Meter.Status.IN_SERVICE).values("principle")
+        rare = (Device.objects.filter(status=Device.Status.IN_SERVICE).values("principle")
                 .annotate(n=Count("pk")).order_by("n", "principle").first())
         seconds, few_queries, status = benchmark.page(client, f"/review/?principle={rare['principle']}", repeat)
         rows.append((f"Review page, {rare['n']} {rare['principle']} meters only",
@@ -155,13 +155,13 @@ class Command(BaseCommand):
                      f"≤ {queries} queries", few_queries <= queries))
         rows += self._register(technician, rare, repeat)
 
-        meter = (Meter.objects.filter(position__isnull=False).annotate(n=Count("calibrations"))
+        device = (Device.objects.filter(position__isnull=False).annotate(n=Count("calibrations"))
                  .order_by("-n", "pk").first())
-        event = certificate.load_event(meter.calibrations.filter(state="signed").order_by("-performed_on")
+        event = certificate.load_event(device.calibrations.filter(state="signed").order_by("-performed_on")
                                        .values_list("pk", flat=True).first())
         first, _ = benchmark.timed(lambda: certificate.certificate_pdf(event))
         seconds, pdf = benchmark.timed(lambda: certificate.certificate_pdf(event), repeat=repeat)
-        rows.append((f"Certificate PDF ({meter.n} calibrations of history)", f"{seconds:.2f} s, {len(pdf) // 1024} KiB "
+        rows.append((f"Certificate PDF ({device.n} calibrations of history)", f"{seconds:.2f} s, {len(pdf) // 1024} KiB "
                      f"(first in the process {first:.2f} s: fonts load)",
                      f"< {TARGETS['certificate']} s", seconds < TARGETS["certificate"]))
 
@@ -169,12 +169,12 @@ class Command(BaseCommand):
         standard = ReferenceStandard.objects.create(
             identification="RS-BENCH", description="benchmark reference", range_min=0, range_max=10 ** 7,
             certificate_number="BENCH", due_date=dt.date.today() + dt.timedelta(days=30), expanded_uncertainty=0.01)
-        data = _entry(meter, standard)
-        seconds, response = benchmark.timed(lambda: client.post(f"/positions/{meter.tag}/calibrate/", data))
+        data = _entry(device, standard)
+        seconds, response = benchmark.timed(lambda: client.post(f"/positions/{device.tag}/calibrate/", data))
         if response.status_code != 302:
             raise CommandError(f"The calibration form refused the benchmark entry ({response.status_code}).")
         rows.append(("Calibration form save (5 as-found points)", f"{seconds * 1000:.0f} ms", "", None))
-        saved = CalibrationEvent.objects.filter(meter=meter, state="draft").latest("pk")
+        saved = CalibrationEvent.objects.filter(device=device, state="draft").latest("pk")
         seconds, response = benchmark.timed(lambda: client.post(f"/calibrations/{saved.pk}/sign/"))
         rows.append(("Sign-off incl. the meter's due-date recompute", f"{seconds * 1000:.0f} ms", "",
                      None if response.status_code == 302 else False))
@@ -238,11 +238,11 @@ class Command(BaseCommand):
         return rows
 
 
-def _entry(meter, standard):
+def _entry(device, standard):
     """A valid tablet-form entry: five as-found points up the range, within 0.1 % of the reference."""
     header = {"performed_on": dt.date.today().isoformat(), "condition_received": "In service",
               "reference_standards": [standard.pk], "procedure": "Benchmark entry", "reason": "scheduled",
               "decision_rule": "simple"}
-    span = meter.range_max - meter.range_min
-    references = [meter.range_min + span * nominal / 100 for nominal in NOMINAL_POINTS]
+    span = device.range_max - device.range_min
+    references = [device.range_min + span * nominal / 100 for nominal in NOMINAL_POINTS]
     return entry_post_data(header, [(f"{r:.6g}", f"{r * 1.001:.6g}") for r in references])

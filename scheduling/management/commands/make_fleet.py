@@ -25,12 +25,12 @@ class Command(BaseCommand):
         builder = FleetBuilder(meters, seed=seed)
         started = time.perf_counter()
         try:
-            with tqdm(total=meters, unit="meter", desc="history", file=self.stderr, disable=None) as bar:
+            with tqdm(total=meters, unit="device", desc="history", file=self.stderr, disable=None) as bar:
                 totals = builder.build(progress=bar.update)
         except ValueError as exc:
             raise CommandError(str(exc))
         built = time.perf_counter() - started
-        with tqdm(total=meters, unit="meter", desc="due dates", file=self.stderr, disable=None) as bar:
+        with tqdm(total=meters, unit="device", desc="due dates", file=self.stderr, disable=None) as bar:
             recompute_due_dates(progress=bar.update)
         # the history is written in bulk, not signed one by one: its records are sealed in the chain now, with a
         # note saying so, so that `verify_records` holds on the synthetic fleet too
