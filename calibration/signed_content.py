@@ -222,6 +222,16 @@ def _worst(errors):
     return max(errors, key=abs) if errors else None
 
 
+def device_key(model) -> str:
+    """The name of `model`'s foreign key to its device: `device`; `meter` in the historical models of the migrations
+    before Meter was renamed Device (issue 28), which calibration 0010 rebuilds signed content through."""
+    return "device" if any(f.name == "device" for f in model._meta.get_fields()) else "meter"  # rename: keep
+
+
+def device_id_of(record) -> int | None:
+    return getattr(record, f"{device_key(type(record))}_id")
+
+
 def drift_rows(Event, Point, event, own_points) -> list:
     """[date, worst as-found, worst as-left] of the device's signed calibrations up to and including `event`.
 
@@ -229,8 +239,9 @@ def drift_rows(Event, Point, event, own_points) -> list:
     window (or by `event` itself) is left out. With no as-left points the as-left condition is the as-found one.
     `Event`/`Point`: the models (the app's, or a migration's); `own_points`: `event`'s point contents, so the
     rows can be built while it is being signed."""
-    others = (Event.objects.filter(device_id=event.device_id, state=SIGNED, signed_at__lte=event.signed_at,
-                                   performed_on__lte=event.performed_on).exclude(pk=event.pk))
+    others = (Event.objects.filter(**{f"{device_key(Event)}_id": device_id_of(event)}, state=SIGNED,
+                                   signed_at__lte=event.signed_at, performed_on__lte=event.performed_on)
+              .exclude(pk=event.pk))
     replaced = set(Event.objects.filter(supersedes__in=others, state=SIGNED, signed_at__lte=event.signed_at)
                    .values_list("supersedes_id", flat=True))
     if event.supersedes_id:
@@ -343,7 +354,8 @@ def _ordered_points(points):
 
 def served_fluid_id(DutyPeriod, device_id, position_id, day):
     """The fluid the device served at the position on `day` (its duty history), or None when none is recorded."""
-    duty = (DutyPeriod.objects.filter(device_id=device_id, position_id=position_id, since__lte=day)
+    duty = (DutyPeriod.objects.filter(**{f"{device_key(DutyPeriod)}_id": device_id}, position_id=position_id,
+                                      since__lte=day)
             .filter(Q(until__isnull=True) | Q(until__gte=day)).order_by("-since", "-id")
             .values_list("fluid_id", flat=True).first())
     return duty
@@ -402,14 +414,15 @@ def rebuilt(event, apps) -> dict:
             return get(app, model).objects.get(pk=pk)
         return found
 
-    device = version("plant", "Meter", event.device_id, "device")
+    device_model = "Device" if device_key(type(event)) == "device" else "Meter"  # rename: keep
+    device = version("plant", device_model, device_id_of(event), "device")
     position = version("plant", "Position", event.position_id, "position")
     area = site = fluid = None
     if position is not None:
         area = get("plant", "Area").objects.get(pk=position.area_id)
         site = get("plant", "Site").objects.get(pk=area.site_id)
         current.update({"area", "site"})  # neither keeps an audit trail
-        fluid_id = served_fluid_id(get("plant", "DutyPeriod"), event.device_id, event.position_id,
+        fluid_id = served_fluid_id(get("plant", "DutyPeriod"), device_id_of(event), event.position_id,
                                    event.performed_on) or position.fluid_id
         fluid = version("plant", "Fluid", fluid_id, "service fluid")
     standards = list(event.standards_snapshot or [])

@@ -11,9 +11,10 @@ import hashlib
 from collections import defaultdict
 
 from django.apps import apps as live_apps
+from django.core.exceptions import FieldDoesNotExist
 from django.db import models
 
-from ledger import canonical
+from ledger import canonical, registry
 
 BATCH = 500
 
@@ -34,10 +35,19 @@ def layout_of(kind, models_registry=None):
 
 
 def _columns(model, names):
-    """(name, attname, converter) of each named field; KeyError names one the model no longer has."""
+    """(name, attname, converter) of each named field, the name as the layout states it (a field renamed since is
+    read under its name now, ledger.registry.Kind.renamed); FieldDoesNotExist names one the model no longer has."""
+    renamed = None
     out = []
     for name in names:
-        field = model._meta.get_field(name)
+        try:
+            field = model._meta.get_field(name)
+        except FieldDoesNotExist:
+            if renamed is None:
+                renamed = registry.renamed_fields(model._meta.label_lower)
+            if name not in renamed:
+                raise
+            field = model._meta.get_field(renamed[name])
         out.append((name, field.attname, converter(field)))
     return out
 

@@ -20,7 +20,10 @@ class Kind:
     signed: field lookups that select the signed records ({"state": "signed"}; empty: every row is signed);
     signed_at: the field holding the signing time (signing order: this, then the primary key);
     parts: reverse relations whose rows belong to the record's content (the points of a calibration, the
-           photos of a maintenance record), by their accessor name on the record.
+           photos of a maintenance record), by their accessor name on the record;
+    renamed: (former name, name now) of each field of the record renamed since records were sealed: the layout kept
+             with an entry names the field as it was hashed, and the content keeps that name, read from the field
+             as it is called now, so that records sealed before a rename keep their hashes.
     A record's content is every concrete field of it and of each part, and its many-to-many links; a file
     field's bytes are hashed with it (ledger.content)."""
 
@@ -30,6 +33,7 @@ class Kind:
     signed: dict = field(default_factory=dict)
     signed_at: str = "signed_at"
     parts: tuple = ()
+    renamed: tuple = ()
 
 
 _kinds: dict[str, Kind] = {}
@@ -51,3 +55,9 @@ def kinds():
 
 def get(name):
     return _kinds[name]
+
+
+def renamed_fields(model_label):
+    """{former name: name now} of the fields of the model labelled `model_label` (any case) that were renamed."""
+    label = model_label.lower()
+    return {old: new for kind in _kinds.values() if kind.model.lower() == label for old, new in kind.renamed}

@@ -49,11 +49,11 @@ def text_of(body):
 
 def edit_the_register(device, standard, settings):
     """Everything the certificate names, changed after signing: device, position, area, site, fluid, standard, lab."""
-    device = Device.objects.get(pk=device.pk)
-    device.serial, device.maker, device.model = "SN-NEW-999", "Otherco", "OC-1"
-    device.range_min, device.range_max, device.mpe_value, device.mpe_basis = 5, 80, 1.0, "pct_span"
-    device.principle, device.wetted_material = "vortex", "alloy C-276"
-    device.save()
+    edited = Device.objects.get(pk=device.pk)
+    edited.serial, edited.maker, edited.model = "SN-NEW-999", "Otherco", "OC-1"
+    edited.range_min, edited.range_max, edited.mpe_value, edited.mpe_basis = 5, 80, 1.0, "pct_span"
+    edited.principle, edited.wetted_material = "vortex", "alloy C-276"
+    edited.save()
     position = Position.objects.get(pk=device.position_id)
     old_fluid = position.fluid
     old_fluid.name = "Renamed water"
