@@ -209,6 +209,56 @@ def test_migration_seals_earlier_records_in_signing_order_and_says_so(settings, 
     assert chain.verify() == []
 
 
+BEFORE_DEVICE = [("plant", "0015_meter_conformity_risk_fields"), ("calibration", "0017_standard_principle"),
+                 ("maintenance", "0003_review_indexes"), ("ledger", "0002_seal_records_signed_before_the_ledger")]
+
+
+@pytest.mark.django_db(transaction=True)
+def test_records_sealed_before_meter_became_device_still_verify(settings, tmp_path):
+    """The layouts kept with entries sealed before the rename name the field `meter`: read from `device` now, the
+    hashes are the same bytes, and the chain verifies; records signed after it are sealed under `device`."""
+    settings.MEDIA_ROOT = tmp_path / "media"
+    world = build_world()
+    executor = MigrationExecutor(connection)
+    executor.migrate(BEFORE_DEVICE)
+    old = executor.loader.project_state(BEFORE_DEVICE).apps
+    # a calibration and a maintenance record signed and sealed on the schema before the rename
+    Event, Record = old.get_model("calibration", "CalibrationEvent"), old.get_model("maintenance", "MaintenanceRecord")
+    now = timezone.now()
+    event = Event.objects.create(meter_id=world["device"].pk, performed_on=now.date(), technician="T",  # rename: keep
+                                 procedure="p", condition_received="c", state="signed", signed_at=now, signed_by="T")
+    old.get_model("calibration", "CalibrationPoint").objects.create(
+        event=event, kind="as_found", nominal_pct=50, reference_value=20, indicated_value=20.02, error=0.1)
+    record = Record.objects.create(meter_id=world["device"].pk, task_id=world["maintenance"].task_id,  # rename: keep
+                                   performed_on=now.date(), technician="T", condition="clean", action="Looked.",
+                                   minutes_spent=10, state="signed", signed_at=now, signed_by="T")
+    chain.append("calibration", event.pk, old)
+    chain.append("maintenance", record.pk, old)
+    sealed_as = {kind: set(layout["fields"]) for kind, layout in ContentLayout.objects.values_list("kind", "layout")
+                 if "meter" in layout["fields"]}  # rename: keep
+    assert set(sealed_as) == {"calibration", "maintenance"}
+    executor = MigrationExecutor(connection)
+    executor.loader.build_graph()
+    executor.migrate(executor.loader.graph.leaf_nodes())
+    assert chain.verify() == []
+    out = io.StringIO()
+    call_command("verify_records", stdout=out)
+    assert "Record chain intact" in out.getvalue()
+    # records signed now are sealed under the field's name now
+    later = world["draft"].sign(by="Tess Tester")
+    entry = LedgerEntry.objects.get(kind="calibration", record_id=later.pk)
+    assert "device" in entry.layout.layout["fields"] and "meter" not in entry.layout.layout["fields"]  # rename: keep
+    assert chain.verify() == []
+    # moving a record sealed before the rename to another device is still caught, through the renamed column
+    other = commission(tag="FT-L2", principle="electromagnetic", area=world["device"].area,
+                       fluid=world["device"].fluid, line_size="DN50", internal_diameter_mm=52.5, range_max=40,
+                       mpe_value=0.5, wetted_material="316L")
+    with connection.cursor() as cursor:
+        cursor.execute("UPDATE calibration_calibrationevent SET device_id = %s WHERE id = %s", [other.pk, event.pk])
+    problems = chain.verify()
+    assert [(p.kind, p.record_id) for p in problems] == [("calibration", event.pk)]
+
+
 def demo_steps():
     """The manage.py steps of scripts/demo after `migrate` (the test database is migrated already)."""
     steps = []
