@@ -1,6 +1,6 @@
 """The site's addresses: each app's pages, put together here, the one place that may import every app."""
 from django.contrib import admin
-from django.urls import include, path
+from django.urls import include, path, re_path
 from django.views.generic import RedirectView
 
 from calibration import views as calibration_views
@@ -30,6 +30,9 @@ urlpatterns = [
     path("", include("reports.urls")),
     path("accounts/lockouts/", accounts.lockout_list, name="lockouts"),
     path("accounts/", include("django.contrib.auth.urls")),
+    # the admin pages of the device model from before it was renamed Device (Meter)
+    re_path(r"^admin/plant/(?P<historical>(historical)?)meter/(?P<rest>.*)$",
+            RedirectView.as_view(url="/admin/plant/%(historical)sdevice/%(rest)s", permanent=True, query_string=True)),
     path("admin/", admin.site.urls),
     path("field/", include("offline.urls")),
     path("sw.js", offline_views.service_worker, name="service-worker"),
