@@ -123,12 +123,12 @@ def test_csrf_enforced_on_every_form(world):
 def test_admin_pages_of_the_device_model_answer_at_their_old_address(world):
     """Meter was renamed Device (issue 28): its admin pages moved with it, and the old addresses lead there."""
     admin, pk = world["clients"]["administrator"], world["device"].pk
-    response = admin.get(f"/admin/plant/meter/{pk}/change/?_changelist_filters=status%3Dspare")
+    response = admin.get(f"/admin/plant/meter/{pk}/change/?_changelist_filters=status%3Dspare")  # rename: keep
     assert response.status_code == 301
     assert response["Location"] == f"/admin/plant/device/{pk}/change/?_changelist_filters=status%3Dspare"
     page = admin.get(response["Location"])
     assert page.status_code == 200 and "Change device" in page.content.decode()
-    listing = admin.get("/admin/plant/meter/")
+    listing = admin.get("/admin/plant/meter/")  # rename: keep
     assert listing.status_code == 301 and listing["Location"] == "/admin/plant/device/"
     assert admin.get("/admin/plant/device/").status_code == 200
 
