@@ -492,7 +492,7 @@ def test_admin_change_form_refuses_re_pointing_at_the_field(world):
     response = client.post(f"/admin/maintenance/maintenancetask/{task.pk}/change/",
                            admin_form_data(task, device=other.pk))
     assert response.status_code == 200
-    assert "its meter cannot be changed." in response.content.decode()
+    assert "its device cannot be changed." in response.content.decode()
     duty = world["duty"]
     brine = Fluid.objects.create(name="Brine", phase="liquid")
     response = client.post(f"/admin/plant/dutyperiod/{duty.pk}/change/", admin_form_data(duty, fluid=brine.pk))
