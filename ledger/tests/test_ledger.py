@@ -17,6 +17,7 @@ from calibration.models import CalibrationEvent, CalibrationPoint, Countersignat
 from ledger import canonical, chain, content, registry
 from ledger.models import ContentLayout, LedgerEntry, LedgerHead, LedgerRowError, VerificationRun
 from maintenance.models import MaintenanceRecord
+from plant.installations import commission
 from tests.helpers import build_world, draft_calibration, draft_maintenance, png, run_manage, user_with_role
 
 pytestmark = pytest.mark.django_db
